@@ -1,0 +1,114 @@
+/* Association measures, significance tests and false-discovery control for item pairs
+ * (src/assoc.c). Definitions follow DESIGN.md: support, confidences, lift, phi, Jaccard,
+ * expected count; Fisher's exact test where the smallest expected cell is below 5 (Cochran's
+ * rule), else chi-square with 1 df without continuity correction; weighted input: chi-square
+ * scaled by Kish's effective sample size; Benjamini-Hochberg q-values over every pair of
+ * eligible items, pairs never seen together included. Distribution functions come from GSL. */
+#ifndef PAIRMAP_ASSOC_H
+#define PAIRMAP_ASSOC_H
+
+#include <stdbool.h>
+#include <stddef.h>
+#include <stdint.h>
+
+#include "pairmap/cooccur.h"
+#include "pairmap/error.h"
+#include "pairmap/incidence.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef enum { PM_SIGN_POSITIVE = 0, PM_SIGN_NEGATIVE = 1, PM_SIGN_BOTH = 2 } pm_sign_t;
+typedef enum { PM_TEST_FISHER = 0, PM_TEST_CHI2 = 1 } pm_test_t;
+
+/* The measures of one pair (a, b). Counts are weighted sums when the input is weighted. */
+typedef struct {
+    double together, expected, support, confidence_ab, confidence_ba, lift, phi, jaccard;
+    pm_test_t test;
+    double p; /* one-sided in the direction of the sign, two-sided for PM_SIGN_BOTH */
+    double q; /* Benjamini-Hochberg (NaN until computed) */
+} pm_measures_t;
+
+/* Measures of a 2x2 table from counts: N respondents, na and nb choosing each item, nab both.
+ * Requires 0 < na, nb < N and nab <= min(na, nb). */
+void pm_assoc_counts(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, pm_sign_t sign,
+                     pm_measures_t *m);
+/* The same from weighted sums, with chi-square scaled by neff (Kish) as the only test. */
+void pm_assoc_weighted(double W, double wa, double wb, double wab, double neff, pm_sign_t sign,
+                       pm_measures_t *m);
+
+/* Fisher's exact test for the table [[nab, na-nab], [nb-nab, N-na-nb+nab]]:
+ * alternative 1 = greater (P(X >= nab)), -1 = less, 0 = two-sided (sum of the table
+ * probabilities not above the observed one, relative tolerance 1e-7). */
+double pm_assoc_fisher(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, int alternative);
+
+/* 95% (or 1-alpha) Jeffreys interval for x successes of n: Beta(x+1/2, n-x+1/2) quantiles,
+ * with 0 as lower bound at x = 0 and 1 as upper bound at x = n (Brown, Cai & DasGupta 2001).
+ * x and n may be fractional (weighted, effective sizes). */
+void pm_assoc_jeffreys(double x, double n, double alpha, double *lo, double *hi);
+
+/* ---- scoring every pair ---------------------------------------------------------------- */
+typedef struct {
+    pm_sign_t sign;
+    uint32_t min_count;  /* pairs seen together fewer times are tested but not listed */
+    double min_share;    /* items below this share are not eligible */
+    unsigned threads;    /* 0: all cores */
+    int kernel;          /* PM_COUNTS_* */
+    size_t dense_max_items;
+    pm_progress_fn progress;
+    void *progress_ud;
+} pm_assoc_opts_t;
+
+void pm_assoc_opts_init(pm_assoc_opts_t *o);
+
+/* The listed pairs with p- and q-values, ordered by (a, b). With sign negative or both and
+ * min_count 0, pairs never seen together are listed too (items^2 of them). */
+typedef struct {
+    size_t n;
+    uint32_t *a, *b, *n_ab; /* raw joint counts */
+    double *w_ab;           /* weighted joint counts (NULL when unweighted) */
+    double *p, *q;
+    unsigned char *test;    /* pm_test_t */
+    pm_sign_t sign;
+    /* the family */
+    unsigned char *eligible; /* per item */
+    size_t n_eligible;
+    uint64_t hypotheses;     /* n_eligible (n_eligible - 1) / 2 */
+    uint64_t seen;           /* pairs seen together */
+    uint64_t below_count;    /* seen together fewer than min_count times: tested, not listed */
+    uint64_t unseen;         /* pairs never seen together */
+    size_t excluded_none, excluded_all, excluded_share; /* items left out, by reason */
+    int kernel;
+    uint64_t work;
+    double t_count, t_measures; /* seconds */
+    /* q-value lookup for any p of the family (sorted distinct p with their q) */
+    double *qp, *qq;
+    size_t nq;
+} pm_pairs_t;
+
+/* Counts, tests and corrects every pair of eligible items of inc. *out owns the result
+ * (pm_pairs_free). Cost O(sum k^2 + seen pairs log seen pairs + D^2) where D is the number of
+ * distinct item totals (classes of never-seen pairs share one p-value). */
+pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pairs_t **out,
+                      pm_diag_t *diag);
+void pm_pairs_free(pm_pairs_t *p);
+
+/* All measures of listed pair k (q included). */
+void pm_pairs_measures(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k,
+                       pm_measures_t *m);
+/* Measures of any eligible pair (a, b) with joint counts nab/wab, q from the family. */
+void pm_pairs_measure_any(const pm_pairs_t *pp, const pm_incidence_t *inc, uint32_t a,
+                          uint32_t b, uint32_t nab, double wab, pm_measures_t *m);
+/* The q-value of a p-value of the family (the q of the largest family p-value <= p). */
+double pm_pairs_qvalue(const pm_pairs_t *pp, double p);
+/* Index of listed pair (a, b), a < b, or -1. */
+long pm_pairs_find(const pm_pairs_t *pp, uint32_t a, uint32_t b);
+
+/* Benjamini-Hochberg q-values of p[0..n) into q (q may equal p). Ties share a q. O(n log n). */
+pm_err_t pm_assoc_bh(const double *p, size_t n, double *q);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,96 @@
+/* Reading "who chose what" data: long pairs, one line per respondent, or a wide survey export
+ * (src/input.c, src/input_wide.c). The result is a pm_table_t: interned respondents, items and
+ * categories plus the (respondent, item) rows, ready for src/incidence.c. */
+#ifndef PAIRMAP_INPUT_H
+#define PAIRMAP_INPUT_H
+
+#include <stdbool.h>
+#include <stddef.h>
+#include <stdint.h>
+
+#include "pairmap/error.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef enum { PM_FORMAT_LONG = 0, PM_FORMAT_LINES = 1, PM_FORMAT_WIDE = 2 } pm_format_t;
+
+/* Largest field accepted, in bytes (a longer one is a data error, exit 2). */
+#define PM_INPUT_MAX_FIELD 65536
+
+/* Options of the reader. Strings are borrowed: they must outlive pm_input_read().
+ * Column selectors are a header name or a 1-based number given as text ("2"). */
+typedef struct {
+    pm_format_t format;
+    const char *id_col;       /* NULL: column 1 (long); none (lines) */
+    const char *item_col;     /* NULL: column 2 (long) */
+    const char *category_col; /* NULL: no categories */
+    const char *weight_col;   /* NULL: unweighted */
+    char sep;                 /* 0: detect from the first line among , TAB ; | */
+    bool no_header;           /* the first line is data */
+    uint64_t respondents;     /* 0: N = respondents seen; else N outright (>= seen) */
+    const char *const *drop_items; /* items removed before counting */
+    size_t n_drop_items;
+    const char *merge_file; /* CSV item,group: items renamed to their group; NULL: none */
+    /* wide format (src/input_wide.c) */
+    const char *const *columns; /* prefixes selecting each question's option columns */
+    size_t n_columns;
+    const char *const *drop_values; /* extra "not chosen" cell values */
+    size_t n_drop_values;
+    const char *const *skip_cols; /* columns never read as options */
+    size_t n_skip_cols;
+    bool base_all; /* wide: keep respondents who chose nothing in N */
+    const char *display_name; /* name used in messages; NULL: the path ("-" shows "stdin") */
+} pm_input_opts_t;
+
+/* Sets every option to its default. */
+void pm_input_opts_init(pm_input_opts_t *o);
+
+/* What the reader saw; counted once each, never printed per row. */
+typedef struct {
+    uint64_t lines;           /* physical lines read */
+    uint64_t records;         /* data records (header excluded) */
+    uint64_t rows;            /* respondent-item rows kept (before deduplication) */
+    uint64_t empty_items;     /* rows or lines that named no item */
+    uint64_t dropped_rows;    /* rows removed by --drop-item */
+    uint64_t merged_rows;     /* rows renamed by --merge-file */
+    uint64_t merge_entries;   /* entries in the merge file */
+    uint64_t respondents;     /* distinct respondents seen */
+    uint64_t blank_excluded;  /* wide --base answered: respondents who chose nothing, left out */
+    uint64_t bytes;           /* bytes read */
+    unsigned char sha256[32]; /* SHA-256 of the bytes read */
+} pm_input_stats_t;
+
+typedef struct pm_table pm_table_t;
+
+/* Reads path ("-" = standard input) with the options o. On success *out owns a new table
+ * (free with pm_table_free). On failure *out is NULL and diag names the file and line:
+ * PM_EDATA for bad data, PM_EIO when the file cannot be read, PM_EUSAGE for options that do
+ * not fit the file (an unknown column name), PM_ENOMEM. Streams: memory is O(rows + strings). */
+pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **out,
+                       pm_diag_t *diag);
+
+/* Frees a table (accepts NULL). */
+void pm_table_free(pm_table_t *t);
+
+const pm_input_stats_t *pm_table_stats(const pm_table_t *t);
+/* The name shown in messages ("stdin" for "-"). */
+const char *pm_table_source(const pm_table_t *t);
+bool pm_table_weighted(const pm_table_t *t);
+bool pm_table_has_categories(const pm_table_t *t);
+
+/* Row access for `reshape`, the one output that shows respondent ids. Rows are in input
+ * order; respondents who chose nothing come back with item == NULL (one row each). */
+size_t pm_table_nrows(const pm_table_t *t);
+void pm_table_row(const pm_table_t *t, size_t i, const char **respondent, const char **item,
+                  const char **category);
+size_t pm_table_nrespondents(const pm_table_t *t);
+const char *pm_table_respondent(const pm_table_t *t, size_t r);
+/* True when respondent r has no row with an item. */
+bool pm_table_respondent_empty(const pm_table_t *t, size_t r);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,611 @@
+/* Option parsing and the steps shared by every command (see cli.h). */
+#include "cli.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <time.h>
+#include <unistd.h>
+
+#define ALL (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_RESHAPE)
+#define SCORE (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS)
+
+typedef struct {
+    const char *name;
+    char shortname;
+    int arg;        /* takes a value */
+    int repeatable;
+    unsigned cmds;
+} opt_def;
+
+static const opt_def OPTS[] = {
+    /* input */
+    {"format", 0, 1, 0, ALL},
+    {"id-col", 0, 1, 0, ALL},
+    {"item-col", 0, 1, 0, ALL},
+    {"category-col", 0, 1, 0, ALL},
+    {"weight-col", 0, 1, 0, ALL},
+    {"sep", 0, 1, 0, ALL},
+    {"no-header", 0, 0, 0, ALL},
+    {"respondents", 0, 1, 0, ALL},
+    {"drop-item", 0, 1, 1, ALL},
+    {"merge-file", 0, 1, 0, ALL},
+    {"columns", 0, 1, 1, ALL},
+    {"drop-value", 0, 1, 1, ALL},
+    {"skip-col", 0, 1, 1, ALL},
+    {"base", 0, 1, 0, ALL},
+    {"quiet", 'q', 0, 0, ALL},
+    {"threads", 0, 1, 0, ALL},
+    /* selection */
+    {"min-count", 0, 1, 0, SCORE},
+    {"min-share", 0, 1, 0, SCORE},
+    {"max-q", 0, 1, 0, SCORE},
+    {"min-phi", 0, 1, 0, SCORE},
+    {"min-lift", 0, 1, 0, SCORE},
+    {"top-edges", 0, 1, 0, PM_CMD_MAP | PM_CMD_PAIRS},
+    {"sign", 0, 1, 0, SCORE},
+    {"measure", 0, 1, 0, PM_CMD_MAP | PM_CMD_PAIRS},
+    /* map */
+    {"output", 'o', 1, 0, PM_CMD_MAP},
+    {"seed", 0, 1, 0, PM_CMD_MAP},
+    {"restarts", 0, 1, 0, PM_CMD_MAP},
+    {"resolution", 0, 1, 0, PM_CMD_MAP},
+    {"iterations", 0, 1, 0, PM_CMD_MAP},
+    {"draw", 0, 1, 0, PM_CMD_MAP},
+    {"title", 0, 1, 0, PM_CMD_MAP},
+    {"width", 0, 1, 0, PM_CMD_MAP},
+    {"height", 0, 1, 0, PM_CMD_MAP},
+    {"color-by", 0, 1, 0, PM_CMD_MAP},
+    /* partners */
+    {"item", 0, 1, 1, PM_CMD_PARTNERS},
+    {"top", 0, 1, 0, PM_CMD_PARTNERS},
+    {"by", 0, 1, 0, PM_CMD_PARTNERS},
+    {"csv", 0, 0, 0, PM_CMD_PARTNERS},
+    {"help", 'h', 0, 0, ALL},
+};
+#define NOPTS (sizeof OPTS / sizeof OPTS[0])
+
+const char pm_cli_input_help[] =
+    "Input:\n"
+    "  INPUT                 a CSV file, or - for standard input\n"
+    "  --format F            long (default: one row per respondent and item), lines (one\n"
+    "                        respondent per line, items in the fields) or wide (one column\n"
+    "                        per answer option)\n"
+    "  --id-col COL          respondent column, by header name or 1-based number\n"
+    "                        (long: default 1; lines: none, every line is a respondent)\n"
+    "  --item-col COL        item column (long; default 2)\n"
+    "  --category-col COL    item category column (optional)\n"
+    "  --weight-col COL      sampling weight per respondent (a finite number > 0, the same\n"
+    "                        on every row of a respondent)\n"
+    "  --sep C               delimiter: , tab ; | (default: detected from the first line)\n"
+    "  --no-header           the first line is data (default: it is a header)\n"
+    "  --respondents N       the base N outright, when respondents who chose nothing are\n"
+    "                        not in the file (an error if below the respondents seen)\n"
+    "  --drop-item NAME      leave the item out (repeatable)\n"
+    "  --merge-file FILE     CSV item,group: items renamed to their group before counting\n"
+    "  --columns PREFIX      wide: the option columns of one question (repeatable)\n"
+    "  --drop-value TEXT     wide: a cell value meaning 'not chosen' besides empty, 0, no,\n"
+    "                        false (repeatable)\n"
+    "  --skip-col NAME       wide: a column never read as an option (repeatable)\n"
+    "  --base answered|all   wide: leave respondents who chose nothing out of N (answered,\n"
+    "                        default) or keep them (all)\n"
+    "  --threads N           worker threads (default: all cores)\n"
+    "  -q, --quiet           no notes, no progress\n"
+    "A long row with an empty item registers a respondent who chose nothing (counted in N).\n"
+    "Duplicate respondent-item rows count once. Item names are trimmed of white space.\n";
+
+const char pm_cli_select_help[] =
+    "Selection (applied in this order; each reports how many pairs it removed):\n"
+    "  --min-count N         least raw joint count (default 5). Also small-cell suppression:\n"
+    "                        no pair reported rests on fewer respondents. Pairs below it are\n"
+    "                        still tested and enter Benjamini-Hochberg.\n"
+    "  --sign S              positive (default: pairs chosen together more than chance,\n"
+    "                        one-sided test), negative (less than chance: possible\n"
+    "                        substitutes, one-sided) or both (two-sided)\n"
+    "  --max-q F             largest Benjamini-Hochberg q-value (default 0.05)\n"
+    "  --min-phi F           least |phi| (default 0)\n"
+    "  --min-lift F          least lift (default 0)\n"
+    "  --top-edges K         keep the K pairs with the largest |weight|\n"
+    "  --measure M           edge weight: phi (default), lift or jaccard\n"
+    "  --min-share F         items chosen by a smaller share are not eligible (default 0)\n"
+    "Tests: Fisher's exact test where the smallest expected cell is below 5, else chi-square\n"
+    "(1 df, no continuity correction); weighted input: chi-square on Kish's effective sample\n"
+    "size. q-values: Benjamini-Hochberg over every pair of eligible items (0 < n < N), pairs\n"
+    "never seen together included. With --sign negative or both their p-values are computed\n"
+    "as well; with --sign negative --min-count 0 they are also listed (the cost grows as\n"
+    "items^2).\n"
+    "A negative association is a hint, not proof of substitution: items sold in different\n"
+    "seasons or mutually exclusive answer options show it too.\n";
+
+static const opt_def *find_long(const char *name, size_t len) {
+    for (size_t i = 0; i < NOPTS; i++) {
+        if (strlen(OPTS[i].name) == len && memcmp(OPTS[i].name, name, len) == 0) {
+            return &OPTS[i];
+        }
+    }
+    return NULL;
+}
+
+static const opt_def *find_short(char c) {
+    for (size_t i = 0; i < NOPTS; i++) {
+        if (OPTS[i].shortname == c) {
+            return &OPTS[i];
+        }
+    }
+    return NULL;
+}
+
+int pm_cli_usage_error(const pm_cli_t *c, const char *fmt, ...) {
+    va_list ap;
+    va_start(ap, fmt);
+    fputs("pairmap: ", stderr);
+    vfprintf(stderr, fmt, ap);
+    fputc('\n', stderr);
+    va_end(ap);
+    fprintf(stderr, "pairmap: see 'pairmap %s --help'\n", c && c->command ? c->command : "");
+    return 1;
+}
+
+static int store(pm_cli_t *c, const opt_def *d, const char *val) {
+    for (size_t i = 0; i < c->nopts; i++) {
+        if (c->opt[i].name == d->name) {
+            if (!d->repeatable) {
+                return pm_cli_usage_error(c, "option --%s given twice", d->name);
+            }
+            if (c->opt[i].n >= PM_CLI_MAX_VALUES) {
+                return pm_cli_usage_error(c, "option --%s given more than %d times", d->name,
+                                          PM_CLI_MAX_VALUES);
+            }
+            c->opt[i].vals[c->opt[i].n++] = val;
+            return 0;
+        }
+    }
+    c->opt[c->nopts].name = d->name;
+    c->opt[c->nopts].vals[0] = val;
+    c->opt[c->nopts].n = 1;
+    c->nopts++;
+    return 0;
+}
+
+int pm_cli_parse(pm_cli_t *c, const char *command, unsigned cmd, int argc, char **argv,
+                 const char *usage) {
+    memset(c, 0, sizeof *c);
+    c->command = command;
+    c->cmd = cmd;
+    int only_pos = 0;
+    for (int i = 0; i < argc; i++) {
+        const char *a = argv[i];
+        const opt_def *d = NULL;
+        const char *val = NULL;
+        if (!only_pos && strcmp(a, "--") == 0) {
+            only_pos = 1;
+            continue;
+        }
+        if (!only_pos && a[0] == '-' && a[1] == '-') {
+            const char *eq = strchr(a + 2, '=');
+            size_t len = eq ? (size_t)(eq - a - 2) : strlen(a + 2);
+            d = find_long(a + 2, len);
+            if (!d) {
+                return pm_cli_usage_error(c, "unknown option '%.*s' for 'pairmap %s'",
+                                          (int)(len + 2), a, command);
+            }
+            if (eq) {
+                if (!d->arg) {
+                    return pm_cli_usage_error(c, "option --%s takes no value", d->name);
+                }
+                val = eq + 1;
+            }
+        } else if (!only_pos && a[0] == '-' && a[1] != '\0') {
+            d = a[2] == '\0' ? find_short(a[1]) : NULL;
+            if (!d) {
+                return pm_cli_usage_error(c, "unknown option '%s' for 'pairmap %s'", a,
+                                          command);
+            }
+        } else {
+            if (c->input) {
+                return pm_cli_usage_error(c, "more than one INPUT given ('%s' and '%s')",
+                                          c->input, a);
+            }
+            c->input = a;
+            continue;
+        }
+        if (!(d->cmds & cmd)) {
+            return pm_cli_usage_error(c, "option --%s does not apply to 'pairmap %s'",
+                                      d->name, command);
+        }
+        if (strcmp(d->name, "help") == 0) {
+            fputs(usage, stdout);
+            return -1;
+        }
+        if (d->arg && !val) {
+            if (i + 1 >= argc) {
+                return pm_cli_usage_error(c, "option --%s needs a value", d->name);
+            }
+            val = argv[++i];
+        }
+        if (!d->arg) {
+            val = "";
+        }
+        int rc = store(c, d, val);
+        if (rc) {
+            return rc;
+        }
+    }
+    if (!c->input) {
+        return pm_cli_usage_error(c, "no INPUT given (a file, or - for standard input)");
+    }
+    return 0;
+}
+
+const char *pm_cli_get(const pm_cli_t *c, const char *name) {
+    for (size_t i = 0; i < c->nopts; i++) {
+        if (strcmp(c->opt[i].name, name) == 0) {
+            return c->opt[i].vals[c->opt[i].n - 1];
+        }
+    }
+    return NULL;
+}
+
+const char *const *pm_cli_all(const pm_cli_t *c, const char *name, size_t *n) {
+    for (size_t i = 0; i < c->nopts; i++) {
+        if (strcmp(c->opt[i].name, name) == 0) {
+            *n = c->opt[i].n;
+            return c->opt[i].vals;
+        }
+    }
+    *n = 0;
+    return NULL;
+}
+
+bool pm_cli_flag(const pm_cli_t *c, const char *name) {
+    return pm_cli_get(c, name) != NULL;
+}
+
+int pm_cli_uint(const pm_cli_t *c, const char *name, uint64_t dflt, uint64_t min, uint64_t max,
+                uint64_t *out) {
+    const char *v = pm_cli_get(c, name);
+    if (!v) {
+        *out = dflt;
+        return 0;
+    }
+    char *end;
+    errno = 0;
+    if (v[0] == '-' || v[0] == '\0') {
+        return pm_cli_usage_error(c, "--%s expects a whole number from %llu to %llu, got '%s'",
+                                  name, (unsigned long long)min, (unsigned long long)max, v);
+    }
+    unsigned long long x = strtoull(v, &end, 10);
+    if (*end || errno || x < min || x > max) {
+        return pm_cli_usage_error(c, "--%s expects a whole number from %llu to %llu, got '%s'",
+                                  name, (unsigned long long)min, (unsigned long long)max, v);
+    }
+    *out = x;
+    return 0;
+}
+
+int pm_cli_double(const pm_cli_t *c, const char *name, double dflt, double min, double max,
+                  double *out) {
+    const char *v = pm_cli_get(c, name);
+    if (!v) {
+        *out = dflt;
+        return 0;
+    }
+    char *end;
+    errno = 0;
+    double x = strtod(v, &end);
+    if (*v == '\0' || *end || errno || !isfinite(x) || x < min || x > max) {
+        return pm_cli_usage_error(c, "--%s expects a number from %g to %g, got '%s'", name, min,
+                                  max, v);
+    }
+    *out = x;
+    return 0;
+}
+
+int pm_cli_choice(const pm_cli_t *c, const char *name, const char *const *choices, int dflt,
+                  int *out) {
+    const char *v = pm_cli_get(c, name);
+    if (!v) {
+        *out = dflt;
+        return 0;
+    }
+    char list[256] = "";
+    for (int i = 0; choices[i]; i++) {
+        if (strcmp(v, choices[i]) == 0) {
+            *out = i;
+            return 0;
+        }
+        size_t l = strlen(list);
+        snprintf(list + l, sizeof list - l, "%s%s", i ? ", " : "", choices[i]);
+    }
+    return pm_cli_usage_error(c, "--%s expects one of %s, got '%s'", name, list, v);
+}
+
+int pm_cli_input_opts(const pm_cli_t *c, pm_input_opts_t *o) {
+    pm_input_opts_init(o);
+    static const char *const formats[] = {"long", "lines", "wide", NULL};
+    int f;
+    if (pm_cli_choice(c, "format", formats, 0, &f)) {
+        return 1;
+    }
+    o->format = (pm_format_t)f;
+    o->id_col = pm_cli_get(c, "id-col");
+    o->item_col = pm_cli_get(c, "item-col");
+    o->category_col = pm_cli_get(c, "category-col");
+    o->weight_col = pm_cli_get(c, "weight-col");
+    const char *sep = pm_cli_get(c, "sep");
+    if (sep) {
+        if (strcmp(sep, "\\t") == 0 || strcmp(sep, "tab") == 0 || strcmp(sep, "\t") == 0) {
+            o->sep = '\t';
+        } else if (strlen(sep) == 1 && strchr(",;|", sep[0])) {
+            o->sep = sep[0];
+        } else {
+            return pm_cli_usage_error(c, "--sep expects one of , ; | tab, got '%s'", sep);
+        }
+    }
+    o->no_header = pm_cli_flag(c, "no-header");
+    uint64_t n;
+    if (pm_cli_uint(c, "respondents", 0, 1, UINT32_MAX, &n)) {
+        return 1;
+    }
+    o->respondents = n;
+    o->drop_items = pm_cli_all(c, "drop-item", &o->n_drop_items);
+    o->merge_file = pm_cli_get(c, "merge-file");
+    o->columns = pm_cli_all(c, "columns", &o->n_columns);
+    o->drop_values = pm_cli_all(c, "drop-value", &o->n_drop_values);
+    o->skip_cols = pm_cli_all(c, "skip-col", &o->n_skip_cols);
+    static const char *const bases[] = {"answered", "all", NULL};
+    int b;
+    if (pm_cli_choice(c, "base", bases, 0, &b)) {
+        return 1;
+    }
+    o->base_all = b == 1;
+    if (o->format != PM_FORMAT_WIDE) {
+        static const char *const wide_only[] = {"columns", "drop-value", "skip-col", "base"};
+        for (size_t i = 0; i < 4; i++) {
+            if (pm_cli_get(c, wide_only[i])) {
+                return pm_cli_usage_error(c, "--%s needs --format wide", wide_only[i]);
+            }
+        }
+    } else {
+        if (o->n_columns == 0) {
+            return pm_cli_usage_error(c, "--format wide needs at least one --columns PREFIX");
+        }
+        if (o->item_col || o->category_col) {
+            return pm_cli_usage_error(c, "--item-col and --category-col do not apply to "
+                                         "--format wide (items come from --columns)");
+        }
+    }
+    if (o->format == PM_FORMAT_LINES && o->item_col) {
+        return pm_cli_usage_error(c, "--item-col does not apply to --format lines");
+    }
+    return 0;
+}
+
+int pm_cli_threads(const pm_cli_t *c, unsigned *threads) {
+    uint64_t t;
+    if (pm_cli_uint(c, "threads", 0, 1, 256, &t)) {
+        return 1;
+    }
+    *threads = (unsigned)t;
+    return 0;
+}
+
+int pm_cli_select_opts(const pm_cli_t *c, pm_select_opts_t *o) {
+    pm_select_opts_init(o);
+    uint64_t u;
+    if (pm_cli_uint(c, "min-count", 5, 0, UINT32_MAX, &u)) {
+        return 1;
+    }
+    o->min_count = (uint32_t)u;
+    if (pm_cli_double(c, "min-share", 0, 0, 1, &o->min_share) ||
+        pm_cli_double(c, "max-q", 0.05, 0, 1, &o->max_q) ||
+        pm_cli_double(c, "min-phi", 0, 0, 1, &o->min_phi) ||
+        pm_cli_double(c, "min-lift", 0, 0, 1e300, &o->min_lift)) {
+        return 1;
+    }
+    if (pm_cli_uint(c, "top-edges", 0, 1, SIZE_MAX, &u)) {
+        return 1;
+    }
+    o->top_edges = (size_t)u;
+    static const char *const signs[] = {"positive", "negative", "both", NULL};
+    static const char *const measures[] = {"phi", "lift", "jaccard", NULL};
+    int s, m;
+    if (pm_cli_choice(c, "sign", signs, 0, &s) || pm_cli_choice(c, "measure", measures, 0, &m)) {
+        return 1;
+    }
+    o->sign = (pm_sign_t)s;
+    o->measure = (pm_measure_t)m;
+    return 0;
+}
+
+int pm_cli_fail(const pm_diag_t *d) {
+    char buf[2048];
+    pm_diag_format(d, buf, sizeof buf);
+    fprintf(stderr, "pairmap: %s\n", buf);
+    return pm_err_exit_status(d->code ? d->code : PM_EINTERNAL);
+}
+
+void pm_cli_note(const pm_cli_t *c, const char *fmt, ...) {
+    if (pm_cli_flag(c, "quiet")) {
+        return;
+    }
+    va_list ap;
+    va_start(ap, fmt);
+    fputs("pairmap: ", stderr);
+    vfprintf(stderr, fmt, ap);
+    fputc('\n', stderr);
+    va_end(ap);
+}
+
+/* ---- progress ------------------------------------------------------------------------------ */
+typedef struct {
+    double start, last;
+    int shown;
+} progress_state;
+static progress_state g_progress; /* CLI only: one progress line per process */
+
+bool pm_cli_show_progress(const pm_cli_t *c) {
+    return !pm_cli_flag(c, "quiet") && isatty(STDERR_FILENO);
+}
+
+static double now_s(void) {
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + (double)ts.tv_nsec * 1e-9;
+}
+
+void pm_cli_progress(void *ud, const char *stage, uint64_t done, uint64_t total) {
+    (void)ud;
+    double t = now_s();
+    if (!g_progress.start) {
+        g_progress.start = t;
+    }
+    if (t - g_progress.last < 0.2 && done < total) {
+        return;
+    }
+    if (t - g_progress.start < 1.0 && done < total) {
+        return; /* short work: no bar */
+    }
+    g_progress.last = t;
+    double frac = total ? (double)done / (double)total : 1;
+    int w = 30, filled = (int)(frac * w);
+    char bar[32];
+    for (int i = 0; i < w; i++) {
+        bar[i] = i < filled ? '#' : '.';
+    }
+    bar[w] = '\0';
+    double rate = (double)done / (t - g_progress.start + 1e-9);
+    fprintf(stderr, "\r%-16s [%s] %3.0f%%  %.3g/s ", stage, bar, frac * 100, rate);
+    g_progress.shown = 1;
+}
+
+void pm_cli_progress_end(const pm_cli_t *c) {
+    (void)c;
+    if (g_progress.shown) {
+        fputs("\r\033[K", stderr);
+    }
+    memset(&g_progress, 0, sizeof g_progress);
+}
+
+/* ---- loading ----------------------------------------------------------------------------- */
+int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, double *t_read) {
+    *table = NULL;
+    *inc = NULL;
+    pm_input_opts_t io;
+    if (pm_cli_input_opts(c, &io)) {
+        return 1;
+    }
+    if (strcmp(c->input, "-") != 0) {
+        struct stat st;
+        if (stat(c->input, &st) == 0 && S_ISDIR(st.st_mode)) {
+            fprintf(stderr, "pairmap: %s: is a directory; give a CSV file\n", c->input);
+            return 3;
+        }
+    }
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    double t0 = now_s();
+    pm_err_t rc = pm_input_read(c->input, &io, table, &d);
+    if (rc) {
+        return pm_cli_fail(&d);
+    }
+    rc = pm_incidence_build(*table, inc, &d);
+    if (rc) {
+        pm_table_free(*table);
+        *table = NULL;
+        return pm_cli_fail(&d);
+    }
+    if (t_read) {
+        *t_read = now_s() - t0;
+    }
+    const pm_input_stats_t *s = pm_table_stats(*table);
+    const pm_incidence_t *ic = *inc;
+    if (ic->duplicates) {
+        pm_cli_note(c, "warning: %llu duplicate respondent-item rows merged (each counts once)",
+                    (unsigned long long)ic->duplicates);
+    }
+    if (s->empty_items) {
+        pm_cli_note(c, "note: %llu rows named no item (their respondents count in N)",
+                    (unsigned long long)s->empty_items);
+    }
+    if (s->dropped_rows) {
+        pm_cli_note(c, "note: %llu rows dropped by --drop-item", (unsigned long long)s->dropped_rows);
+    }
+    if (s->merged_rows) {
+        pm_cli_note(c, "note: %llu rows renamed by --merge-file (%llu entries)",
+                    (unsigned long long)s->merged_rows, (unsigned long long)s->merge_entries);
+    }
+    if (s->blank_excluded) {
+        pm_cli_note(c, "note: %llu respondents chose nothing in the selected questions and are "
+                       "left out of N (--base answered)",
+                    (unsigned long long)s->blank_excluded);
+    }
+    if (ic->single_item) {
+        pm_cli_note(c, "note: %llu respondents chose one item only (they count in N but form no "
+                       "pair)",
+                    (unsigned long long)ic->single_item);
+    }
+    return 0;
+}
+
+int pm_cli_score(const pm_cli_t *c, const pm_incidence_t *inc, const pm_select_opts_t *sel,
+                 pm_pairs_t **pairs) {
+    pm_assoc_opts_t ao;
+    pm_assoc_opts_init(&ao);
+    ao.sign = sel->sign;
+    ao.min_count = sel->min_count;
+    ao.min_share = sel->min_share;
+    if (pm_cli_threads(c, &ao.threads)) {
+        return 1;
+    }
+    if (pm_cli_show_progress(c)) {
+        ao.progress = pm_cli_progress;
+    }
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    pm_err_t rc = pm_assoc_run(inc, &ao, pairs, &d);
+    pm_cli_progress_end(c);
+    if (rc) {
+        return pm_cli_fail(&d);
+    }
+    const pm_pairs_t *pp = *pairs;
+    if (pp->excluded_all) {
+        pm_cli_note(c, "note: %zu items chosen by every respondent have no defined phi and are "
+                       "left out",
+                    pp->excluded_all);
+    }
+    if (pp->excluded_none) {
+        pm_cli_note(c, "note: %zu items chosen by nobody are left out", pp->excluded_none);
+    }
+    if (pp->excluded_share) {
+        pm_cli_note(c, "note: %zu items below --min-share are left out", pp->excluded_share);
+    }
+    if (pp->n_eligible < 2) {
+        fprintf(stderr,
+                "pairmap: %s: only %zu eligible item%s (chosen by some but not all "
+                "respondents); pairs need at least 2\n",
+                c->input[0] == '-' && !c->input[1] ? "stdin" : c->input, pp->n_eligible,
+                pp->n_eligible == 1 ? "" : "s");
+        pm_pairs_free(*pairs);
+        *pairs = NULL;
+        return 2;
+    }
+    return 0;
+}
+
+int pm_cli_close_stdout(void) {
+    if (fflush(stdout) != 0 || ferror(stdout)) {
+        fprintf(stderr, "pairmap: cannot write to standard output: %s\n", strerror(errno));
+        return 3;
+    }
+    if (fclose(stdout) != 0) {
+        fprintf(stderr, "pairmap: cannot write to standard output: %s\n", strerror(errno));
+        return 3;
+    }
+    return 0;
+}

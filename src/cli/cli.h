@@ -1,0 +1,112 @@
+/* Command-line plumbing shared by the commands: option table and parser, conversion of
+ * options into the library's option structs, loading the input, notes and progress. */
+#ifndef PM_CLI_H
+#define PM_CLI_H
+
+#include <stdbool.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+
+#include "pairmap/assoc.h"
+#include "pairmap/cooccur.h"
+#include "pairmap/error.h"
+#include "pairmap/incidence.h"
+#include "pairmap/input.h"
+#include "pairmap/select.h"
+
+/* Commands, as a bit mask for the option table. */
+enum {
+    PM_CMD_MAP = 1,
+    PM_CMD_PARTNERS = 2,
+    PM_CMD_PAIRS = 4,
+    PM_CMD_ITEMS = 8,
+    PM_CMD_RESHAPE = 16,
+};
+
+#define PM_CLI_MAX_VALUES 256
+
+/* Parsed command line: every option's values in order, plus the positional INPUT. */
+typedef struct {
+    const char *command;
+    unsigned cmd;
+    const char *input;
+    size_t nopts;
+    struct {
+        const char *name;
+        const char *vals[PM_CLI_MAX_VALUES];
+        size_t n;
+    } opt[96];
+} pm_cli_t;
+
+/* Parses argv after the command name. Returns 0, or the exit status to leave with (1 for a
+ * usage error, already reported; -1 when --help was printed: exit 0). usage is the command's
+ * help text. */
+int pm_cli_parse(pm_cli_t *c, const char *command, unsigned cmd, int argc, char **argv,
+                 const char *usage);
+
+/* Last value of option name (without "--"), or NULL when absent. */
+const char *pm_cli_get(const pm_cli_t *c, const char *name);
+/* All values of a repeatable option; *n gets the count. */
+const char *const *pm_cli_all(const pm_cli_t *c, const char *name, size_t *n);
+bool pm_cli_flag(const pm_cli_t *c, const char *name);
+
+/* Typed getters: return 0, or report a usage error and return 1. */
+int pm_cli_uint(const pm_cli_t *c, const char *name, uint64_t dflt, uint64_t min, uint64_t max,
+                uint64_t *out);
+int pm_cli_double(const pm_cli_t *c, const char *name, double dflt, double min, double max,
+                  double *out);
+/* One of the words of choices (NULL-terminated); *out its index. */
+int pm_cli_choice(const pm_cli_t *c, const char *name, const char *const *choices, int dflt,
+                  int *out);
+
+/* Builds the reader's options from the command line. */
+int pm_cli_input_opts(const pm_cli_t *c, pm_input_opts_t *o);
+/* Builds the selection options (map, pairs, partners). */
+int pm_cli_select_opts(const pm_cli_t *c, pm_select_opts_t *o);
+/* --threads (0 = all cores). */
+int pm_cli_threads(const pm_cli_t *c, unsigned *threads);
+
+/* Reports a usage error: "pairmap: <msg>" plus a hint line. Returns 1. */
+int pm_cli_usage_error(const pm_cli_t *c, const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 2, 3)))
+#endif
+    ;
+/* Prints a diagnostic as "pairmap: FILE:LINE: message" and returns its exit status. */
+int pm_cli_fail(const pm_diag_t *d);
+/* A note on stderr unless --quiet. */
+void pm_cli_note(const pm_cli_t *c, const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 2, 3)))
+#endif
+    ;
+
+/* Reads INPUT and builds the incidence, printing the reader's notes. Returns 0 or the exit
+ * status. */
+int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc,
+                double *t_read);
+/* Scores every pair with the command line's options. */
+int pm_cli_score(const pm_cli_t *c, const pm_incidence_t *inc, const pm_select_opts_t *sel,
+                 pm_pairs_t **pairs);
+
+/* Progress on stderr (a terminal only, and not with --quiet). */
+void pm_cli_progress(void *ud, const char *stage, uint64_t done, uint64_t total);
+void pm_cli_progress_end(const pm_cli_t *c);
+bool pm_cli_show_progress(const pm_cli_t *c);
+
+/* Closes stdout and reports a write error (full disk, closed pipe). Returns 0 or 3. */
+int pm_cli_close_stdout(void);
+
+/* The common help texts. */
+extern const char pm_cli_input_help[];
+extern const char pm_cli_select_help[];
+
+/* Commands (src/cli/cmd_*.c): argc/argv start after the command name. */
+int pm_cmd_map(int argc, char **argv);
+int pm_cmd_partners(int argc, char **argv);
+int pm_cmd_pairs(int argc, char **argv);
+int pm_cmd_items(int argc, char **argv);
+int pm_cmd_reshape(int argc, char **argv);
+
+#endif

@@ -1,0 +1,58 @@
+/* pairmap: entry point; dispatches to the commands in src/cli/cmd_*.c. */
+#include <stdio.h>
+#include <string.h>
+
+#include "cli.h"
+#include "pairmap/error.h"
+#include "pairmap/network.h"
+
+static const char usage[] =
+    "pairmap: which items go together, which replace each other, and whether it is real.\n"
+    "\n"
+    "Usage:\n"
+    "  pairmap map      INPUT -o DIR [options]   the whole job: clusters, layout, and\n"
+    "                                            DIR/map.graphml, map.svg, edges.csv,\n"
+    "                                            nodes.csv, run.json\n"
+    "  pairmap partners INPUT --item NAME [...]  ranked partners of one item or of a set\n"
+    "  pairmap pairs    INPUT [options]          the pairs that pass the selection (CSV)\n"
+    "  pairmap items    INPUT [options]          item shares with 95% Jeffreys intervals\n"
+    "  pairmap reshape  INPUT --format wide ...  a wide survey export as long pairs\n"
+    "  pairmap --version | --help | COMMAND --help\n"
+    "\n"
+    "INPUT is a CSV file or - for standard input. Data goes to standard output, notes to\n"
+    "standard error.\n"
+    "Exit status: 0 success, 1 usage error, 2 bad input data, 3 I/O error, 4 out of memory\n"
+    "or internal error, 130 interrupted.\n";
+
+int main(int argc, char **argv) {
+    pm_init();
+    if (argc < 2) {
+        fputs(usage, stderr);
+        return 1;
+    }
+    const char *cmd = argv[1];
+    if (strcmp(cmd, "--help") == 0 || strcmp(cmd, "-h") == 0 || strcmp(cmd, "help") == 0) {
+        fputs(usage, stdout);
+        return pm_cli_close_stdout();
+    }
+    if (strcmp(cmd, "--version") == 0) {
+        printf("pairmap %s\n", pm_version());
+        return pm_cli_close_stdout();
+    }
+    static const struct {
+        const char *name;
+        int (*fn)(int, char **);
+    } cmds[] = {
+        {"map", pm_cmd_map},     {"partners", pm_cmd_partners}, {"pairs", pm_cmd_pairs},
+        {"items", pm_cmd_items}, {"reshape", pm_cmd_reshape},
+    };
+    for (size_t i = 0; i < sizeof cmds / sizeof cmds[0]; i++) {
+        if (strcmp(cmd, cmds[i].name) == 0) {
+            return cmds[i].fn(argc - 2, argv + 2);
+        }
+    }
+    fprintf(stderr, "pairmap: unknown command '%s'; the commands are map, partners, pairs, "
+                    "items, reshape (see pairmap --help)\n",
+            cmd);
+    return 1;
+}

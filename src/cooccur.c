@@ -1,0 +1,616 @@
+/* Pair counting kernels (see cooccur.h).
+ *
+ * Both kernels first build a filtered copy of the incidence holding only eligible items
+ * (renumbered 0..E-1, order kept) and only respondents with two or more of them.
+ *
+ * dense: respondent-major; each thread adds its share of respondents into its own upper
+ *   triangle of E(E-1)/2 counters; the triangles are summed (integers: exact, so the result
+ *   does not depend on the split). Unweighted only, E <= dense_max_items.
+ * sparse: item-major Gustavson. With the transpose (item a -> the rows holding a), the pairs
+ *   (a, b > a) are accumulated in a dense per-thread vector of E counters plus a list of the
+ *   touched b, then emitted in b order. Weighted sums run over rows in increasing order, so
+ *   they too are identical for any thread count. Work per item is estimated beforehand and
+ *   items are cut into chunks of similar work; chunk results are concatenated in order. */
+#include "pairmap/cooccur.h"
+
+#include <stdatomic.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "parallel.h"
+#include "util.h"
+
+void pm_counts_opts_init(pm_counts_opts_t *o) {
+    memset(o, 0, sizeof *o);
+    o->min_keep = 1;
+}
+
+void pm_counts_free(pm_counts_t *c) {
+    if (!c) {
+        return;
+    }
+    free(c->a);
+    free(c->b);
+    free(c->n);
+    free(c->w);
+    free(c);
+}
+
+unsigned pm_cpu_count(void) {
+    long n = sysconf(_SC_NPROCESSORS_ONLN);
+    return n > 0 ? (unsigned)n : 1u;
+}
+
+long pm_counts_find(const pm_counts_t *c, uint32_t a, uint32_t b) {
+    size_t lo = 0, hi = c->n_pairs;
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        if (c->a[mid] < a || (c->a[mid] == a && c->b[mid] < b)) {
+            lo = mid + 1;
+        } else {
+            hi = mid;
+        }
+    }
+    if (lo < c->n_pairs && c->a[lo] == a && c->b[lo] == b) {
+        return (long)lo;
+    }
+    return -1;
+}
+
+/* ---- per-chunk output ------------------------------------------------------------------ */
+typedef struct {
+    uint32_t *a, *b, *n;
+    double *w;
+    size_t len, cap;
+    uint64_t seen, pruned;
+} outbuf;
+
+static int out_push(outbuf *o, uint32_t a, uint32_t b, uint32_t n, double w, int weighted) {
+    if (o->len == o->cap) {
+        size_t nc = o->cap ? o->cap * 2 : 256;
+        uint32_t *na = pm_i_realloc(o->a, nc, sizeof *na);
+        if (!na) {
+            return -1;
+        }
+        o->a = na;
+        uint32_t *nb = pm_i_realloc(o->b, nc, sizeof *nb);
+        if (!nb) {
+            return -1;
+        }
+        o->b = nb;
+        uint32_t *nn = pm_i_realloc(o->n, nc, sizeof *nn);
+        if (!nn) {
+            return -1;
+        }
+        o->n = nn;
+        if (weighted) {
+            double *nw = pm_i_realloc(o->w, nc, sizeof *nw);
+            if (!nw) {
+                return -1;
+            }
+            o->w = nw;
+        }
+        o->cap = nc;
+    }
+    o->a[o->len] = a;
+    o->b[o->len] = b;
+    o->n[o->len] = n;
+    if (weighted) {
+        o->w[o->len] = w;
+    }
+    o->len++;
+    return 0;
+}
+
+/* ---- shared state ------------------------------------------------------------------------ */
+typedef struct {
+    const pm_counts_opts_t *o;
+    size_t E;
+    uint32_t *gidx;   /* eligible index -> item index */
+    size_t R;         /* filtered respondents */
+    uint64_t *rp;     /* R + 1 */
+    uint32_t *ci;     /* filtered rows */
+    double *wt;       /* R weights or NULL */
+    /* sparse: transpose */
+    uint64_t *tp;     /* E + 1 */
+    uint32_t *trow;   /* row of each entry */
+    uint32_t *tpos;   /* position of the item inside that row */
+    /* chunking */
+    size_t nchunks;
+    size_t *cbeg;     /* chunk c covers items (sparse) or rows (dense) cbeg[c]..cbeg[c+1] */
+    outbuf *outs;
+    unsigned threads;
+    /* per-thread scratch */
+    uint32_t **acc;
+    double **wacc;
+    uint32_t **touched;
+    uint32_t **tri;   /* dense triangles */
+    unsigned nacc, ntri; /* scratch buffers allocated */
+    atomic_uint_fast64_t done;
+    uint64_t total;
+    atomic_int progress_lock;
+} kstate;
+
+static void report(kstate *k, uint64_t add) {
+    uint64_t d = atomic_fetch_add(&k->done, add) + add;
+    if (k->o->progress) {
+        int expected = 0;
+        if (atomic_compare_exchange_strong(&k->progress_lock, &expected, 1)) {
+            k->o->progress(k->o->progress_ud, "counting pairs", d, k->total);
+            atomic_store(&k->progress_lock, 0);
+        }
+    }
+}
+
+static int emit(kstate *k, outbuf *ob, unsigned thread, uint32_t ea, uint32_t eb, uint32_t n,
+                double w) {
+    uint32_t a = k->gidx[ea], b = k->gidx[eb];
+    ob->seen++;
+    if (n < k->o->min_keep) {
+        ob->pruned++;
+        if (k->o->prune) {
+            k->o->prune(k->o->prune_ud, thread, a, b, n, w);
+        }
+        return 0;
+    }
+    return out_push(ob, a, b, n, w, k->wt != NULL);
+}
+
+static int cmp_u32(const void *x, const void *y) {
+    uint32_t a = *(const uint32_t *)x, b = *(const uint32_t *)y;
+    return a < b ? -1 : a > b;
+}
+
+/* ---- sparse kernel ------------------------------------------------------------------------ */
+static int sparse_chunk(void *ud, size_t c, unsigned th) {
+    kstate *k = ud;
+    outbuf *ob = &k->outs[c];
+    uint32_t *acc = k->acc[th];
+    double *wacc = k->wacc ? k->wacc[th] : NULL;
+    uint32_t *touched = k->touched[th];
+    uint64_t work = 0;
+    for (size_t a = k->cbeg[c]; a < k->cbeg[c + 1]; a++) {
+        size_t nt = 0;
+        for (uint64_t t = k->tp[a]; t < k->tp[a + 1]; t++) {
+            uint32_t r = k->trow[t];
+            uint64_t beg = k->rp[r] + k->tpos[t] + 1, end = k->rp[r + 1];
+            const uint32_t *row = k->ci;
+            work += end - beg;
+            if (wacc) {
+                double w = k->wt[r];
+                for (uint64_t q = beg; q < end; q++) {
+                    uint32_t b = row[q];
+                    if (acc[b]++ == 0) {
+                        touched[nt++] = b;
+                    }
+                    wacc[b] += w;
+                }
+            } else {
+                for (uint64_t q = beg; q < end; q++) {
+                    uint32_t b = row[q];
+                    if (acc[b]++ == 0) {
+                        touched[nt++] = b;
+                    }
+                }
+            }
+        }
+        if (nt == 0) {
+            continue;
+        }
+        if (nt * 16 > k->E - a) { /* dense enough: scan instead of sorting */
+            nt = 0;
+            for (size_t b = a + 1; b < k->E; b++) {
+                if (acc[b]) {
+                    touched[nt++] = (uint32_t)b;
+                }
+            }
+        } else {
+            qsort(touched, nt, sizeof *touched, cmp_u32);
+        }
+        for (size_t i = 0; i < nt; i++) {
+            uint32_t b = touched[i];
+            if (emit(k, ob, th, (uint32_t)a, b, acc[b], wacc ? wacc[b] : 0) != 0) {
+                return 1;
+            }
+            acc[b] = 0;
+            if (wacc) {
+                wacc[b] = 0;
+            }
+        }
+    }
+    report(k, work);
+    return 0;
+}
+
+/* ---- dense kernel --------------------------------------------------------------------------- */
+static inline size_t tri_index(size_t E, size_t a, size_t b) {
+    /* row-major upper triangle without the diagonal */
+    return a * (2 * E - a - 1) / 2 + (b - a - 1);
+}
+
+static int dense_chunk(void *ud, size_t c, unsigned th) {
+    kstate *k = ud;
+    uint32_t *tri = k->tri[th];
+    uint64_t work = 0;
+    for (size_t r = k->cbeg[c]; r < k->cbeg[c + 1]; r++) {
+        uint64_t beg = k->rp[r], end = k->rp[r + 1];
+        for (uint64_t i = beg; i < end; i++) {
+            size_t a = k->ci[i];
+            size_t base = a * (2 * k->E - a - 1) / 2 - a - 1;
+            for (uint64_t j = i + 1; j < end; j++) {
+                tri[base + k->ci[j]]++;
+            }
+        }
+        work += (end - beg) * (end - beg - 1) / 2;
+    }
+    report(k, work);
+    return 0;
+}
+
+static int dense_emit_chunk(void *ud, size_t c, unsigned th) {
+    kstate *k = ud;
+    outbuf *ob = &k->outs[c];
+    uint32_t *tri = k->tri[0];
+    for (size_t a = k->cbeg[c]; a < k->cbeg[c + 1]; a++) {
+        for (size_t b = a + 1; b < k->E; b++) {
+            uint32_t n = tri[tri_index(k->E, a, b)];
+            if (n && emit(k, ob, th, (uint32_t)a, (uint32_t)b, n, 0) != 0) {
+                return 1;
+            }
+        }
+    }
+    return 0;
+}
+
+static int dense_sum_chunk(void *ud, size_t c, unsigned th) {
+    (void)th;
+    kstate *k = ud;
+    size_t T = k->E * (k->E - 1) / 2;
+    size_t per = (T + k->nchunks - 1) / k->nchunks;
+    size_t b = c * per, e = b + per < T ? b + per : T;
+    uint32_t *dst = k->tri[0];
+    for (unsigned t = 1; t < k->threads; t++) {
+        const uint32_t *src = k->tri[t];
+        for (size_t i = b; i < e; i++) {
+            dst[i] += src[i];
+        }
+    }
+    return 0;
+}
+
+/* Splits 0..n into at most nch chunks of similar cost. */
+static size_t make_chunks(const uint64_t *cost, size_t n, size_t nch, size_t *beg) {
+    uint64_t total = 0;
+    for (size_t i = 0; i < n; i++) {
+        total += cost[i] + 1;
+    }
+    uint64_t per = total / nch + 1, acc = 0;
+    size_t c = 0;
+    beg[0] = 0;
+    for (size_t i = 0; i < n; i++) {
+        acc += cost[i] + 1;
+        if (acc >= per && c + 1 < nch) {
+            beg[++c] = i + 1;
+            acc = 0;
+        }
+    }
+    if (beg[c] != n) {
+        beg[++c] = n;
+    }
+    return c;
+}
+
+pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o,
+                         pm_counts_t **out, pm_diag_t *diag) {
+    *out = NULL;
+    pm_err_t rc = PM_ENOMEM;
+    kstate k;
+    memset(&k, 0, sizeof k);
+    k.o = o;
+    k.threads = o->threads ? o->threads : pm_cpu_count();
+    if (k.threads > 256) {
+        k.threads = 256;
+    }
+    atomic_init(&k.done, 0);
+    atomic_init(&k.progress_lock, 0);
+    pm_counts_t *res = pm_i_calloc(1, sizeof *res);
+    int32_t *eidx = pm_i_malloc(inc->n_items, sizeof *eidx);
+    uint64_t *cost = NULL;
+    if (!res || !eidx) {
+        goto cleanup;
+    }
+    /* eligible renumbering */
+    k.gidx = pm_i_malloc(inc->n_items, sizeof *k.gidx);
+    if (!k.gidx) {
+        goto cleanup;
+    }
+    for (size_t i = 0; i < inc->n_items; i++) {
+        if (!o->eligible || o->eligible[i]) {
+            eidx[i] = (int32_t)k.E;
+            k.gidx[k.E++] = (uint32_t)i;
+        } else {
+            eidx[i] = -1;
+        }
+    }
+    /* filtered rows */
+    uint64_t nnz = 0;
+    size_t R = 0;
+    for (size_t r = 0; r < inc->n_resp; r++) {
+        size_t m = 0;
+        for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
+            m += eidx[inc->col[q]] >= 0;
+        }
+        if (m >= 2) {
+            nnz += m;
+            R++;
+        }
+    }
+    k.R = R;
+    k.rp = pm_i_malloc(R + 1, sizeof *k.rp);
+    k.ci = pm_i_malloc(nnz ? nnz : 1, sizeof *k.ci);
+    if (inc->weight) {
+        k.wt = pm_i_malloc(R ? R : 1, sizeof *k.wt);
+    }
+    if (!k.rp || !k.ci || (inc->weight && !k.wt)) {
+        goto cleanup;
+    }
+    {
+        uint64_t w = 0;
+        size_t rr = 0;
+        for (size_t r = 0; r < inc->n_resp; r++) {
+            uint64_t start = w;
+            for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
+                int32_t e = eidx[inc->col[q]];
+                if (e >= 0) {
+                    k.ci[w++] = (uint32_t)e;
+                }
+            }
+            if (w - start >= 2) {
+                k.rp[rr] = start;
+                if (k.wt) {
+                    k.wt[rr] = inc->weight[r];
+                }
+                rr++;
+            } else {
+                w = start;
+            }
+        }
+        k.rp[R] = w;
+        for (size_t r = 0; r < R; r++) {
+            uint64_t m = k.rp[r + 1] - k.rp[r];
+            k.total += m * (m - 1) / 2;
+        }
+    }
+    res->work = k.total;
+    int kernel = o->kernel;
+    size_t dmax = o->dense_max_items ? o->dense_max_items : 2048;
+    if (kernel == PM_COUNTS_AUTO) {
+        kernel = (!inc->weight && k.E <= dmax) ? PM_COUNTS_DENSE : PM_COUNTS_SPARSE;
+    }
+    if (kernel == PM_COUNTS_DENSE && inc->weight) {
+        kernel = PM_COUNTS_SPARSE;
+    }
+    res->kernel = kernel;
+    size_t want = (size_t)k.threads * 16;
+    if (kernel == PM_COUNTS_SPARSE) {
+        /* transpose with positions, and work per item */
+        k.tp = pm_i_calloc(k.E + 1, sizeof *k.tp);
+        k.trow = pm_i_malloc(nnz ? nnz : 1, sizeof *k.trow);
+        k.tpos = pm_i_malloc(nnz ? nnz : 1, sizeof *k.tpos);
+        cost = pm_i_calloc(k.E ? k.E : 1, sizeof *cost);
+        if (!k.tp || !k.trow || !k.tpos || !cost) {
+            goto cleanup;
+        }
+        for (uint64_t q = 0; q < nnz; q++) {
+            k.tp[k.ci[q] + 1]++;
+        }
+        for (size_t e = 0; e < k.E; e++) {
+            k.tp[e + 1] += k.tp[e];
+        }
+        uint64_t *fill = pm_i_malloc(k.E ? k.E : 1, sizeof *fill);
+        if (!fill) {
+            goto cleanup;
+        }
+        memcpy(fill, k.tp, k.E * sizeof *fill);
+        for (size_t r = 0; r < R; r++) {
+            uint64_t b = k.rp[r], e = k.rp[r + 1];
+            for (uint64_t q = b; q < e; q++) {
+                uint32_t it = k.ci[q];
+                uint64_t at = fill[it]++;
+                k.trow[at] = (uint32_t)r;
+                k.tpos[at] = (uint32_t)(q - b);
+                cost[it] += e - q - 1;
+            }
+        }
+        free(fill);
+        k.cbeg = pm_i_malloc(want + 2, sizeof *k.cbeg);
+        if (!k.cbeg) {
+            goto cleanup;
+        }
+        k.nchunks = make_chunks(cost, k.E, want, k.cbeg);
+        k.acc = pm_i_calloc(k.threads, sizeof *k.acc);
+        k.touched = pm_i_calloc(k.threads, sizeof *k.touched);
+        if (!k.acc || !k.touched) {
+            goto cleanup;
+        }
+        k.nacc = k.threads;
+        if (k.wt) {
+            k.wacc = pm_i_calloc(k.threads, sizeof *k.wacc);
+            if (!k.wacc) {
+                goto cleanup;
+            }
+        }
+        for (unsigned t = 0; t < k.threads; t++) {
+            k.acc[t] = pm_i_calloc(k.E ? k.E : 1, sizeof(uint32_t));
+            k.touched[t] = pm_i_malloc(k.E ? k.E : 1, sizeof(uint32_t));
+            if (!k.acc[t] || !k.touched[t]) {
+                goto cleanup;
+            }
+            if (k.wt) {
+                k.wacc[t] = pm_i_calloc(k.E ? k.E : 1, sizeof(double));
+                if (!k.wacc[t]) {
+                    goto cleanup;
+                }
+            }
+        }
+        k.outs = pm_i_calloc(k.nchunks ? k.nchunks : 1, sizeof *k.outs);
+        if (!k.outs) {
+            goto cleanup;
+        }
+        int prc = pm_i_parallel(k.threads, k.nchunks, sparse_chunk, &k);
+        if (prc) {
+            rc = prc < 0 ? PM_EINTERNAL : PM_ENOMEM;
+            goto cleanup;
+        }
+    } else {
+        size_t T = k.E * (k.E > 0 ? k.E - 1 : 0) / 2;
+        unsigned nt = k.threads;
+        if ((uint64_t)nt * 64 > R + 64) {
+            nt = (unsigned)(R / 64 + 1); /* few rows: fewer triangles */
+        }
+        if (nt > k.threads) {
+            nt = k.threads;
+        }
+        k.threads = nt;
+        k.tri = pm_i_calloc(nt, sizeof *k.tri);
+        if (!k.tri) {
+            goto cleanup;
+        }
+        k.ntri = nt;
+        for (unsigned t = 0; t < nt; t++) {
+            k.tri[t] = pm_i_calloc(T ? T : 1, sizeof(uint32_t));
+            if (!k.tri[t]) {
+                goto cleanup;
+            }
+        }
+        /* rows cut into chunks of similar work */
+        cost = pm_i_malloc(R ? R : 1, sizeof *cost);
+        k.cbeg = pm_i_malloc(want + 2, sizeof *k.cbeg);
+        if (!cost || !k.cbeg) {
+            goto cleanup;
+        }
+        for (size_t r = 0; r < R; r++) {
+            uint64_t m = k.rp[r + 1] - k.rp[r];
+            cost[r] = m * (m - 1) / 2;
+        }
+        k.nchunks = make_chunks(cost, R, want, k.cbeg);
+        /* Each thread must own its triangle: chunks are claimed dynamically, so a chunk may
+         * run on any thread; that is fine because the sum over triangles is exact. */
+        int prc = pm_i_parallel(nt, k.nchunks, dense_chunk, &k);
+        if (prc) {
+            rc = prc < 0 ? PM_EINTERNAL : PM_ENOMEM;
+            goto cleanup;
+        }
+        if (nt > 1) {
+            size_t nsum = want;
+            size_t save = k.nchunks;
+            k.nchunks = nsum;
+            pm_i_parallel(k.threads, nsum, dense_sum_chunk, &k);
+            k.nchunks = save;
+        }
+        /* emission by item ranges */
+        free(cost);
+        cost = pm_i_malloc(k.E ? k.E : 1, sizeof *cost);
+        if (!cost) {
+            goto cleanup;
+        }
+        for (size_t a = 0; a < k.E; a++) {
+            cost[a] = k.E - a;
+        }
+        k.nchunks = make_chunks(cost, k.E, want, k.cbeg);
+        k.outs = pm_i_calloc(k.nchunks ? k.nchunks : 1, sizeof *k.outs);
+        if (!k.outs) {
+            goto cleanup;
+        }
+        k.threads = o->threads ? o->threads : pm_cpu_count();
+        if (k.threads > 256) {
+            k.threads = 256;
+        }
+        int erc = pm_i_parallel(k.threads, k.nchunks, dense_emit_chunk, &k);
+        if (erc) {
+            rc = erc < 0 ? PM_EINTERNAL : PM_ENOMEM;
+            goto cleanup;
+        }
+    }
+    /* concatenate chunk outputs in order */
+    size_t total = 0;
+    for (size_t c = 0; c < k.nchunks; c++) {
+        total += k.outs[c].len;
+        res->seen += k.outs[c].seen;
+        res->pruned += k.outs[c].pruned;
+    }
+    res->a = pm_i_malloc(total ? total : 1, sizeof *res->a);
+    res->b = pm_i_malloc(total ? total : 1, sizeof *res->b);
+    res->n = pm_i_malloc(total ? total : 1, sizeof *res->n);
+    if (inc->weight) {
+        res->w = pm_i_malloc(total ? total : 1, sizeof *res->w);
+    }
+    if (!res->a || !res->b || !res->n || (inc->weight && !res->w)) {
+        goto cleanup;
+    }
+    size_t at = 0;
+    for (size_t c = 0; c < k.nchunks; c++) {
+        outbuf *ob = &k.outs[c];
+        if (ob->len) {
+            memcpy(res->a + at, ob->a, ob->len * sizeof *res->a);
+            memcpy(res->b + at, ob->b, ob->len * sizeof *res->b);
+            memcpy(res->n + at, ob->n, ob->len * sizeof *res->n);
+            if (res->w) {
+                memcpy(res->w + at, ob->w, ob->len * sizeof *res->w);
+            }
+        }
+        at += ob->len;
+        free(ob->a);
+        free(ob->b);
+        free(ob->n);
+        free(ob->w);
+        ob->a = ob->b = ob->n = NULL;
+        ob->w = NULL;
+    }
+    res->n_pairs = total;
+    rc = PM_OK;
+cleanup:
+    if (k.outs) {
+        for (size_t c = 0; c < k.nchunks; c++) {
+            free(k.outs[c].a);
+            free(k.outs[c].b);
+            free(k.outs[c].n);
+            free(k.outs[c].w);
+        }
+        free(k.outs);
+    }
+    for (unsigned t = 0; t < k.nacc; t++) {
+        free(k.acc[t]);
+        free(k.touched[t]);
+        if (k.wacc) {
+            free(k.wacc[t]);
+        }
+    }
+    for (unsigned t = 0; t < k.ntri; t++) {
+        free(k.tri[t]);
+    }
+    free(k.acc);
+    free(k.touched);
+    free(k.wacc);
+    free(k.tri);
+    free(k.cbeg);
+    free(cost);
+    free(k.tp);
+    free(k.trow);
+    free(k.tpos);
+    free(k.rp);
+    free(k.ci);
+    free(k.wt);
+    free(k.gidx);
+    free(eidx);
+    if (rc != PM_OK) {
+        pm_counts_free(res);
+        if (rc == PM_ENOMEM) {
+            return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory while counting pairs");
+        }
+        return pm_diag_set(diag, rc, NULL, 0, "cannot start the counting threads");
+    }
+    *out = res;
+    return PM_OK;
+}

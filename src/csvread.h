@@ -1,0 +1,43 @@
+/* Streaming CSV records with physical line numbers, on top of libcsv: block reads, UTF-8 BOM,
+ * CRLF, quoted fields, delimiter detection, NUL-byte and field-size checks, SHA-256 of the
+ * bytes read. Shared by the long, lines and wide readers (src/input.c, src/input_wide.c). */
+#ifndef PM_CSVREAD_H
+#define PM_CSVREAD_H
+
+#include <stdint.h>
+#include <stdio.h>
+
+#include "pairmap/error.h"
+#include "sha256.h"
+
+/* One record. Fields are NUL-terminated, valid until the callback returns. */
+typedef struct {
+    const char *const *f;
+    const uint32_t *len;
+    size_t n;
+    uint64_t line; /* physical line where the record starts, 1-based */
+} pm_i_record;
+
+/* Called once per non-blank record. Return PM_OK to go on; any other code stops the read and
+ * is returned by pm_i_csv_stream (the callback fills diag). */
+typedef pm_err_t (*pm_i_record_fn)(void *ud, const pm_i_record *r, pm_diag_t *diag);
+
+typedef struct {
+    char sep;             /* 0: detect from the first line among , TAB ; | (default ,) */
+    const char *display;  /* file name for messages */
+    uint64_t bytes;       /* out: bytes read */
+    uint64_t lines;       /* out: physical lines */
+    char sep_used;        /* out: the delimiter */
+    pm_i_sha256 *sha;     /* optional: updated with every byte read */
+} pm_i_csv_opts;
+
+/* Reads fp to its end, calling fn for every record. Errors: PM_EDATA (malformed quoting,
+ * unterminated quote, NUL byte, field over PM_INPUT_MAX_FIELD), PM_EIO, PM_ENOMEM, or the
+ * callback's code. */
+pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud,
+                         pm_diag_t *diag);
+
+/* True when s[0..len) is valid UTF-8 (no overlong forms, no surrogates). */
+int pm_i_utf8_valid(const char *s, size_t len);
+
+#endif

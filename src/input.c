@@ -1,0 +1,661 @@
+/* Readers for the long and lines formats, the table builder shared with the wide reader, and
+ * item hygiene (--drop-item, --merge-file). One pass, streaming; strings interned once. */
+#include "input_internal.h"
+
+#include <ctype.h>
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+void pm_input_opts_init(pm_input_opts_t *o) {
+    memset(o, 0, sizeof *o);
+    o->format = PM_FORMAT_LONG;
+}
+
+/* ==== table builder ========================================================================= */
+
+void pm_i_trim(const char **s, size_t *len) {
+    const char *p = *s;
+    size_t n = *len;
+    while (n && isspace((unsigned char)p[0])) {
+        p++;
+        n--;
+    }
+    while (n && isspace((unsigned char)p[n - 1])) {
+        n--;
+    }
+    *s = p;
+    *len = n;
+}
+
+void pm_table_free(pm_table_t *t) {
+    if (!t) {
+        return;
+    }
+    free(t->source);
+    pm_i_strtab_destroy(&t->resp);
+    pm_i_strtab_destroy(&t->items);
+    pm_i_strtab_destroy(&t->cats);
+    pm_i_strtab_destroy(&t->drop);
+    pm_i_strtab_destroy(&t->merge_from);
+    pm_i_strtab_destroy(&t->merge_to_names);
+    free(t->merge_to);
+    free(t->item_cat);
+    free(t->item_line);
+    free(t->row_resp);
+    free(t->row_item);
+    free(t->resp_weight);
+    free(t->resp_line);
+    free(t->resp_has_item);
+    free(t->last_id);
+    free(t);
+}
+
+typedef struct {
+    pm_table_t *t;
+    const char *file;
+    uint64_t *line_of; /* merge_from id -> line */
+    size_t cap;
+    int header_checked;
+} merge_state;
+
+static pm_err_t merge_record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
+    merge_state *m = ud;
+    if (!m->header_checked) {
+        m->header_checked = 1;
+        if (r->n >= 2 && strcmp(r->f[0], "item") == 0 && strcmp(r->f[1], "group") == 0) {
+            return PM_OK;
+        }
+    }
+    if (r->n != 2) {
+        return pm_diag_set(diag, PM_EDATA, m->file, (long)r->line,
+                           "expected 2 fields 'item,group', got %zu", r->n);
+    }
+    const char *a = r->f[0], *g = r->f[1];
+    size_t al = r->len[0], gl = r->len[1];
+    pm_i_trim(&a, &al);
+    pm_i_trim(&g, &gl);
+    if (!al || !gl) {
+        return pm_diag_set(diag, PM_EDATA, m->file, (long)r->line,
+                           "empty item or group name in the merge file");
+    }
+    if (!pm_i_utf8_valid(a, al) || !pm_i_utf8_valid(g, gl)) {
+        return pm_diag_set(diag, PM_EDATA, m->file, (long)r->line, "invalid UTF-8 in a name");
+    }
+    bool added;
+    int64_t id = pm_i_strtab_intern(&m->t->merge_from, a, al, &added);
+    if (id < 0) {
+        return pm_diag_set(diag, PM_ENOMEM, m->file, 0, "out of memory");
+    }
+    if (!added) {
+        return pm_diag_set(diag, PM_EDATA, m->file, (long)r->line,
+                           "item '%.*s' is listed twice (first on line %llu)", (int)al, a,
+                           (unsigned long long)m->line_of[id]);
+    }
+    int64_t gid = pm_i_strtab_intern(&m->t->merge_to_names, g, gl, NULL);
+    size_t cap2 = m->cap;
+    if (gid < 0 || pm_i_grow((void **)&m->line_of, &m->cap, (size_t)id + 1, sizeof(uint64_t)) ||
+        pm_i_grow((void **)&m->t->merge_to, &cap2, (size_t)id + 1, sizeof(int64_t))) {
+        return pm_diag_set(diag, PM_ENOMEM, m->file, 0, "out of memory");
+    }
+    m->line_of[id] = r->line;
+    m->t->merge_to[id] = gid;
+    m->t->stats.merge_entries++;
+    return PM_OK;
+}
+
+static pm_err_t load_merge(pm_table_t *t, const char *path, pm_diag_t *diag) {
+    FILE *fp = fopen(path, "rb");
+    if (!fp) {
+        return pm_diag_set(diag, PM_EIO, path, 0, "cannot open the merge file: %s",
+                           strerror(errno));
+    }
+    merge_state m = {t, path, NULL, 0, 0};
+    pm_i_csv_opts co = {0};
+    co.sep = ',';
+    co.display = path;
+    pm_err_t rc = pm_i_csv_stream(fp, &co, merge_record, &m, diag);
+    free(m.line_of);
+    fclose(fp);
+    return rc;
+}
+
+pm_err_t pm_i_table_new(const pm_input_opts_t *o, const char *display, pm_table_t **out,
+                        pm_diag_t *diag) {
+    *out = NULL;
+    pm_table_t *t = pm_i_calloc(1, sizeof *t);
+    if (!t) {
+        return pm_diag_set(diag, PM_ENOMEM, display, 0, "out of memory");
+    }
+    pm_i_strtab_init(&t->resp);
+    pm_i_strtab_init(&t->items);
+    pm_i_strtab_init(&t->cats);
+    pm_i_strtab_init(&t->drop);
+    pm_i_strtab_init(&t->merge_from);
+    pm_i_strtab_init(&t->merge_to_names);
+    t->last_r = -1;
+    t->source = strdup(display);
+    if (!t->source) {
+        pm_table_free(t);
+        return pm_diag_set(diag, PM_ENOMEM, display, 0, "out of memory");
+    }
+    for (size_t i = 0; i < o->n_drop_items; i++) {
+        const char *s = o->drop_items[i];
+        size_t n = strlen(s);
+        pm_i_trim(&s, &n);
+        if (pm_i_strtab_intern(&t->drop, s, n, NULL) < 0) {
+            pm_table_free(t);
+            return pm_diag_set(diag, PM_ENOMEM, display, 0, "out of memory");
+        }
+    }
+    if (o->merge_file) {
+        pm_err_t rc = load_merge(t, o->merge_file, diag);
+        if (rc != PM_OK) {
+            pm_table_free(t);
+            return rc;
+        }
+    }
+    t->weighted = o->weight_col != NULL;
+    t->has_category = o->category_col != NULL;
+    *out = t;
+    return PM_OK;
+}
+
+static pm_err_t new_respondent(pm_table_t *t, size_t r, uint64_t line, pm_diag_t *diag) {
+    if (r >= t->resp_cap) {
+        size_t c1 = t->resp_cap, c2 = t->resp_cap, c3 = t->resp_cap;
+        if (pm_i_grow((void **)&t->resp_weight, &c1, r + 1, sizeof(double)) ||
+            pm_i_grow((void **)&t->resp_line, &c2, r + 1, sizeof(uint64_t)) ||
+            pm_i_grow((void **)&t->resp_has_item, &c3, r + 1, 1)) {
+            return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+        }
+        t->resp_cap = c1;
+    }
+    t->resp_weight[r] = NAN;
+    t->resp_line[r] = line;
+    t->resp_has_item[r] = 0;
+    t->stats.respondents++;
+    return PM_OK;
+}
+
+pm_err_t pm_i_table_respondent(pm_table_t *t, const char *id, size_t len, uint64_t line,
+                               uint32_t *r, pm_diag_t *diag) {
+    if (t->last_r >= 0 && len == t->last_len && memcmp(id, t->last_id, len) == 0) {
+        *r = (uint32_t)t->last_r;
+        return PM_OK;
+    }
+    if (t->n_anon) {
+        return pm_diag_set(diag, PM_EINTERNAL, t->source, (long)line,
+                           "respondents with and without ids mixed");
+    }
+    bool added;
+    int64_t id_ = pm_i_strtab_intern(&t->resp, id, len, &added);
+    if (id_ < 0) {
+        return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
+    }
+    if (added) {
+        pm_err_t rc = new_respondent(t, (size_t)id_, line, diag);
+        if (rc) {
+            return rc;
+        }
+    }
+    if (pm_i_grow((void **)&t->last_id, &t->last_cap, len + 1, 1)) {
+        return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+    }
+    memcpy(t->last_id, id, len);
+    t->last_len = len;
+    t->last_r = id_;
+    *r = (uint32_t)id_;
+    return PM_OK;
+}
+
+pm_err_t pm_i_table_anon_respondent(pm_table_t *t, uint64_t line, uint32_t *r,
+                                    pm_diag_t *diag) {
+    if (t->n_anon >= UINT32_MAX - 1) {
+        return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
+                           "more than %u respondents", (unsigned)(UINT32_MAX - 1));
+    }
+    size_t id = (size_t)t->n_anon++;
+    pm_err_t rc = new_respondent(t, id, line, diag);
+    *r = (uint32_t)id;
+    return rc;
+}
+
+pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len,
+                        const char *cat, size_t catlen, uint64_t line, pm_diag_t *diag) {
+    pm_i_trim(&item, &len);
+    if (len == 0) {
+        t->stats.empty_items++;
+        return PM_OK;
+    }
+    if (t->drop.count && pm_i_strtab_find(&t->drop, item, len) >= 0) {
+        t->stats.dropped_rows++;
+        return PM_OK;
+    }
+    if (t->merge_from.count) {
+        int64_t m = pm_i_strtab_find(&t->merge_from, item, len);
+        if (m >= 0) {
+            int64_t g = t->merge_to[m];
+            item = t->merge_to_names.str[g];
+            len = t->merge_to_names.len[g];
+            t->stats.merged_rows++;
+            if (t->drop.count && pm_i_strtab_find(&t->drop, item, len) >= 0) {
+                t->stats.dropped_rows++;
+                return PM_OK;
+            }
+        }
+    }
+    bool added;
+    int64_t it = pm_i_strtab_find(&t->items, item, len);
+    if (it < 0) {
+        if (!pm_i_utf8_valid(item, len)) {
+            return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
+                               "invalid UTF-8 in item name; save the file as UTF-8");
+        }
+        it = pm_i_strtab_intern(&t->items, item, len, &added);
+        if (it < 0) {
+            return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+        }
+        if ((size_t)it >= t->item_cap) {
+            size_t c2 = t->item_cap;
+            if (pm_i_grow((void **)&t->item_cat, &t->item_cap, (size_t)it + 1, sizeof(int32_t)) ||
+                pm_i_grow((void **)&t->item_line, &c2, (size_t)it + 1, sizeof(uint64_t))) {
+                return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+            }
+        }
+        t->item_cat[it] = -1;
+        t->item_line[it] = line;
+    }
+    if (cat) {
+        pm_i_trim(&cat, &catlen);
+    }
+    if (cat && catlen) {
+        int64_t c = pm_i_strtab_find(&t->cats, cat, catlen);
+        if (c < 0) {
+            if (!pm_i_utf8_valid(cat, catlen)) {
+                return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
+                                   "invalid UTF-8 in category name; save the file as UTF-8");
+            }
+            c = pm_i_strtab_intern(&t->cats, cat, catlen, NULL);
+            if (c < 0) {
+                return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+            }
+        }
+        if (t->item_cat[it] < 0) {
+            t->item_cat[it] = (int32_t)c;
+            t->item_line[it] = line;
+        } else if (t->item_cat[it] != c) {
+            return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
+                               "item '%s' has category '%s' here but '%s' on line %llu; give "
+                               "each item one category",
+                               t->items.str[it], t->cats.str[c], t->cats.str[t->item_cat[it]],
+                               (unsigned long long)t->item_line[it]);
+        }
+    }
+    if (t->n_rows >= t->rows_cap) {
+        size_t c1 = t->rows_cap, c2 = t->rows_cap;
+        if (pm_i_grow((void **)&t->row_resp, &c1, t->n_rows + 1, sizeof(uint32_t)) ||
+            pm_i_grow((void **)&t->row_item, &c2, t->n_rows + 1, sizeof(uint32_t))) {
+            return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+        }
+        t->rows_cap = c1 < c2 ? c1 : c2;
+    }
+    t->row_resp[t->n_rows] = r;
+    t->row_item[t->n_rows] = (uint32_t)it;
+    t->n_rows++;
+    t->resp_has_item[r] = 1;
+    t->stats.rows++;
+    return PM_OK;
+}
+
+pm_err_t pm_i_table_weight(pm_table_t *t, uint32_t r, const char *w, size_t len, uint64_t line,
+                           pm_diag_t *diag) {
+    pm_i_trim(&w, &len);
+    char buf[64];
+    if (len == 0 || len >= sizeof buf) {
+        return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
+                           "expected a weight (a number > 0), got '%.*s'", (int)(len < 40 ? len : 40), w);
+    }
+    memcpy(buf, w, len);
+    buf[len] = '\0';
+    char *end;
+    errno = 0;
+    double v = strtod(buf, &end);
+    if (*end != '\0' || !isfinite(v) || !(v > 0)) {
+        return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
+                           "expected a weight that is a finite number > 0, got '%s'", buf);
+    }
+    if (isnan(t->resp_weight[r])) {
+        t->resp_weight[r] = v;
+    } else if (t->resp_weight[r] != v) {
+        return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
+                           "weight '%s' differs from the weight %.17g this respondent has on "
+                           "line %llu; give each respondent one weight",
+                           buf, t->resp_weight[r], (unsigned long long)t->resp_line[r]);
+    }
+    return PM_OK;
+}
+
+pm_err_t pm_i_table_finish(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *diag) {
+    if (t->stats.respondents == 0) {
+        return pm_diag_set(diag, PM_EDATA, t->source, 0,
+                           t->stats.lines == 0 ? "the file is empty; expected rows of "
+                                                 "respondent and item"
+                                               : "no data rows after the header");
+    }
+    if (o->respondents) {
+        if (o->respondents < t->stats.respondents) {
+            return pm_diag_set(diag, PM_EDATA, t->source, 0,
+                               "--respondents %llu is below the %llu respondents in the file",
+                               (unsigned long long)o->respondents,
+                               (unsigned long long)t->stats.respondents);
+        }
+        t->respondents_override = o->respondents;
+    }
+    return PM_OK;
+}
+
+/* ==== columns ============================================================================== */
+
+long pm_i_column_index(const char *sel, const char *const *hdr, const uint32_t *hlen,
+                       size_t n) {
+    if (hdr) {
+        for (size_t i = 0; i < n; i++) {
+            const char *h = hdr[i];
+            size_t hl = hlen[i];
+            pm_i_trim(&h, &hl);
+            if (hl == strlen(sel) && memcmp(h, sel, hl) == 0) {
+                return (long)i;
+            }
+        }
+    }
+    char *end;
+    errno = 0;
+    long v = strtol(sel, &end, 10);
+    if (*sel && *end == '\0' && errno == 0 && v >= 1) {
+        return v - 1;
+    }
+    return -1;
+}
+
+void pm_i_column_list(const char *const *hdr, size_t n, char *buf, size_t size) {
+    size_t used = 0;
+    buf[0] = '\0';
+    for (size_t i = 0; i < n && used + 8 < size; i++) {
+        int k = snprintf(buf + used, size - used, "%s'%s'", i ? ", " : "", hdr[i]);
+        if (k < 0) {
+            break;
+        }
+        used += (size_t)k;
+    }
+    if (used >= size) {
+        buf[size - 1] = '\0';
+    }
+}
+
+/* ==== long and lines readers ================================================================= */
+
+typedef struct {
+    pm_table_t *t;
+    const pm_input_opts_t *o;
+    int started;
+    int have_header;
+    long id, item, cat, weight; /* column indices, -1 = none */
+    size_t ncols;               /* fields per row (long format, from the header) */
+} reader;
+
+static pm_err_t resolve(reader *rd, const char *opt, const char *sel, long dflt, long *out,
+                        const pm_i_record *r, pm_diag_t *diag) {
+    if (!sel) {
+        *out = dflt;
+        return PM_OK;
+    }
+    long i = pm_i_column_index(sel, rd->have_header ? r->f : NULL, r->len, r->n);
+    if (i < 0 || (size_t)i >= r->n) {
+        char cols[512];
+        pm_i_column_list(r->f, r->n, cols, sizeof cols);
+        if (i >= 0) {
+            return pm_diag_set(diag, PM_EUSAGE, rd->t->source, (long)r->line,
+                               "%s %s is past the %zu columns of the first line", opt, sel, r->n);
+        }
+        return pm_diag_set(diag, PM_EUSAGE, rd->t->source, (long)r->line,
+                           "%s '%s' names no column; the columns are %s", opt, sel, cols);
+    }
+    *out = i;
+    return PM_OK;
+}
+
+static pm_err_t first_record(reader *rd, const pm_i_record *r, pm_diag_t *diag) {
+    const pm_input_opts_t *o = rd->o;
+    pm_err_t rc;
+    rd->have_header = !o->no_header;
+    if (o->format == PM_FORMAT_LONG) {
+        if ((rc = resolve(rd, "--id-col", o->id_col, 0, &rd->id, r, diag)) ||
+            (rc = resolve(rd, "--item-col", o->item_col, 1, &rd->item, r, diag)) ||
+            (rc = resolve(rd, "--category-col", o->category_col, -1, &rd->cat, r, diag)) ||
+            (rc = resolve(rd, "--weight-col", o->weight_col, -1, &rd->weight, r, diag))) {
+            return rc;
+        }
+        if ((size_t)rd->item >= r->n) {
+            return pm_diag_set(diag, PM_EDATA, rd->t->source, (long)r->line,
+                               "the first line has %zu field%s; long format needs a respondent "
+                               "column and an item column (or give --format lines)",
+                               r->n, r->n == 1 ? "" : "s");
+        }
+        if (rd->id == rd->item) {
+            return pm_diag_set(diag, PM_EUSAGE, rd->t->source, (long)r->line,
+                               "--id-col and --item-col name the same column");
+        }
+        rd->ncols = r->n;
+    } else {
+        if ((rc = resolve(rd, "--id-col", o->id_col, -1, &rd->id, r, diag)) ||
+            (rc = resolve(rd, "--weight-col", o->weight_col, -1, &rd->weight, r, diag))) {
+            return rc;
+        }
+        rd->item = -1;
+        rd->cat = -1;
+    }
+    return PM_OK;
+}
+
+static pm_err_t long_row(reader *rd, const pm_i_record *r, pm_diag_t *diag) {
+    pm_table_t *t = rd->t;
+    if (r->n != rd->ncols) {
+        return pm_diag_set(diag, PM_EDATA, t->source, (long)r->line,
+                           "found %zu fields, expected %zu as on the %s; check the delimiter "
+                           "and quoting",
+                           r->n, rd->ncols, rd->have_header ? "header" : "first line");
+    }
+    const char *id = r->f[rd->id];
+    size_t idl = r->len[rd->id];
+    pm_i_trim(&id, &idl);
+    if (idl == 0) {
+        return pm_diag_set(diag, PM_EDATA, t->source, (long)r->line,
+                           "empty respondent id in column %ld", rd->id + 1);
+    }
+    uint32_t resp;
+    pm_err_t rc = pm_i_table_respondent(t, id, idl, r->line, &resp, diag);
+    if (rc) {
+        return rc;
+    }
+    if (rd->weight >= 0) {
+        rc = pm_i_table_weight(t, resp, r->f[rd->weight], r->len[rd->weight], r->line, diag);
+        if (rc) {
+            return rc;
+        }
+    }
+    return pm_i_table_add(t, resp, r->f[rd->item], r->len[rd->item],
+                          rd->cat >= 0 ? r->f[rd->cat] : NULL,
+                          rd->cat >= 0 ? r->len[rd->cat] : 0, r->line, diag);
+}
+
+static pm_err_t lines_row(reader *rd, const pm_i_record *r, pm_diag_t *diag) {
+    pm_table_t *t = rd->t;
+    uint32_t resp;
+    pm_err_t rc;
+    if (rd->id >= 0) {
+        if ((size_t)rd->id >= r->n) {
+            return pm_diag_set(diag, PM_EDATA, t->source, (long)r->line,
+                               "the line has %zu fields, fewer than --id-col %ld", r->n,
+                               rd->id + 1);
+        }
+        const char *id = r->f[rd->id];
+        size_t idl = r->len[rd->id];
+        pm_i_trim(&id, &idl);
+        if (idl == 0) {
+            return pm_diag_set(diag, PM_EDATA, t->source, (long)r->line, "empty respondent id");
+        }
+        rc = pm_i_table_respondent(t, id, idl, r->line, &resp, diag);
+    } else {
+        rc = pm_i_table_anon_respondent(t, r->line, &resp, diag);
+    }
+    if (rc) {
+        return rc;
+    }
+    if (rd->weight >= 0) {
+        if ((size_t)rd->weight >= r->n) {
+            return pm_diag_set(diag, PM_EDATA, t->source, (long)r->line,
+                               "the line has %zu fields, fewer than --weight-col %ld", r->n,
+                               rd->weight + 1);
+        }
+        rc = pm_i_table_weight(t, resp, r->f[rd->weight], r->len[rd->weight], r->line, diag);
+        if (rc) {
+            return rc;
+        }
+    }
+    int any = 0;
+    for (size_t i = 0; i < r->n; i++) {
+        if ((long)i == rd->id || (long)i == rd->weight) {
+            continue;
+        }
+        const char *s = r->f[i];
+        size_t l = r->len[i];
+        pm_i_trim(&s, &l);
+        if (l == 0) {
+            continue;
+        }
+        any = 1;
+        rc = pm_i_table_add(t, resp, s, l, NULL, 0, r->line, diag);
+        if (rc) {
+            return rc;
+        }
+    }
+    if (!any) {
+        t->stats.empty_items++;
+    }
+    return PM_OK;
+}
+
+static pm_err_t on_rec(void *ud, const pm_i_record *r, pm_diag_t *diag) {
+    reader *rd = ud;
+    if (!rd->started) { /* first record: resolve columns */
+        rd->started = 1;
+        pm_err_t rc = first_record(rd, r, diag);
+        if (rc) {
+            return rc;
+        }
+        if (rd->have_header) {
+            return PM_OK;
+        }
+    }
+    rd->t->stats.records++;
+    return rd->o->format == PM_FORMAT_LONG ? long_row(rd, r, diag) : lines_row(rd, r, diag);
+}
+
+pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **out,
+                       pm_diag_t *diag) {
+    *out = NULL;
+    int is_stdin = strcmp(path, "-") == 0;
+    const char *display = o->display_name ? o->display_name : (is_stdin ? "stdin" : path);
+    if (o->format == PM_FORMAT_LINES && o->category_col) {
+        return pm_diag_set(diag, PM_EUSAGE, NULL, 0,
+                           "--category-col does not apply to --format lines");
+    }
+    if (o->respondents && o->weight_col) {
+        return pm_diag_set(diag, PM_EUSAGE, NULL, 0,
+                           "--respondents cannot be combined with --weight-col: the weights of "
+                           "respondents missing from the file are unknown");
+    }
+    FILE *fp = is_stdin ? stdin : fopen(path, "rb");
+    if (!fp) {
+        return pm_diag_set(diag, PM_EIO, display, 0, "cannot open: %s", strerror(errno));
+    }
+    pm_table_t *t = NULL;
+    pm_err_t rc = pm_i_table_new(o, display, &t, diag);
+    if (rc) {
+        goto done;
+    }
+    pm_i_sha256 sha;
+    pm_i_sha256_init(&sha);
+    pm_i_csv_opts co = {0};
+    co.sep = o->sep;
+    co.display = display;
+    co.sha = &sha;
+    if (o->format == PM_FORMAT_WIDE) {
+        rc = pm_i_read_wide(fp, o, t, &co, diag);
+    } else {
+        reader rd;
+        memset(&rd, 0, sizeof rd);
+        rd.t = t;
+        rd.o = o;
+        rc = pm_i_csv_stream(fp, &co, on_rec, &rd, diag);
+    }
+    if (rc == PM_OK && ferror(fp)) {
+        rc = pm_diag_set(diag, PM_EIO, display, 0, "cannot read");
+    }
+    if (rc == PM_EIO && errno == EISDIR) {
+        rc = pm_diag_set(diag, PM_EIO, display, 0, "is a directory, not a file");
+    }
+    t->stats.bytes = co.bytes;
+    t->stats.lines = co.lines;
+    pm_i_sha256_final(&sha, t->stats.sha256);
+    if (rc == PM_OK) {
+        rc = pm_i_table_finish(t, o, diag);
+    }
+done:
+    if (!is_stdin) {
+        fclose(fp);
+    }
+    if (rc) {
+        pm_table_free(t);
+        return rc;
+    }
+    *out = t;
+    return PM_OK;
+}
+
+/* ==== accessors ============================================================================= */
+
+const pm_input_stats_t *pm_table_stats(const pm_table_t *t) {
+    return &t->stats;
+}
+const char *pm_table_source(const pm_table_t *t) {
+    return t->source;
+}
+bool pm_table_weighted(const pm_table_t *t) {
+    return t->weighted;
+}
+bool pm_table_has_categories(const pm_table_t *t) {
+    return t->has_category;
+}
+size_t pm_table_nrows(const pm_table_t *t) {
+    return t->n_rows;
+}
+void pm_table_row(const pm_table_t *t, size_t i, const char **respondent, const char **item,
+                  const char **category) {
+    uint32_t r = t->row_resp[i], it = t->row_item[i];
+    *respondent = t->n_anon ? NULL : t->resp.str[r];
+    *item = t->items.str[it];
+    *category = t->item_cat[it] >= 0 ? t->cats.str[t->item_cat[it]] : NULL;
+}
+size_t pm_table_nrespondents(const pm_table_t *t) {
+    return (size_t)t->stats.respondents;
+}
+const char *pm_table_respondent(const pm_table_t *t, size_t r) {
+    return t->n_anon ? NULL : t->resp.str[r];
+}
+bool pm_table_respondent_empty(const pm_table_t *t, size_t r) {
+    return !t->resp_has_item[r];
+}

@@ -1,0 +1,56 @@
+/* Internal utilities shared by the library: checked allocation (with a failure-injection hook
+ * for tests), growable arrays and an interning string table backed by an arena.
+ * Never installed; the CLI does not include it. */
+#ifndef PM_UTIL_H
+#define PM_UTIL_H
+
+#include <stdbool.h>
+#include <stddef.h>
+#include <stdint.h>
+
+/* ---- allocation ------------------------------------------------------------------------- */
+/* All return NULL on overflow of n * size or on failure; they never abort. */
+void *pm_i_malloc(size_t n, size_t size);
+void *pm_i_calloc(size_t n, size_t size);
+void *pm_i_realloc(void *p, size_t n, size_t size);
+void pm_i_free(void *p);
+/* Test hook: make the n-th allocation from now fail (0 disables). Not thread-safe. */
+void pm_i_alloc_fail_after(long n);
+
+/* Grows *p (holding *cap elements of size) to hold at least need elements. 0 on success. */
+int pm_i_grow(void **p, size_t *cap, size_t need, size_t size);
+
+/* ---- string interning -------------------------------------------------------------------- */
+/* Open-addressing hash table (linear probing, power-of-two capacity) mapping byte strings to
+ * dense ids 0..count-1 in first-seen order. Strings live in an arena of large blocks and are
+ * NUL-terminated; their addresses are stable. */
+typedef struct pm_i_arena_block pm_i_arena_block;
+typedef struct {
+    uint32_t *slots;     /* id + 1, 0 = empty */
+    size_t cap;          /* number of slots, a power of two */
+    const char **str;    /* id -> string */
+    uint32_t *len;       /* id -> length in bytes */
+    uint64_t *hash;      /* id -> hash */
+    size_t count, str_cap;
+    pm_i_arena_block *blocks;
+} pm_i_strtab;
+
+void pm_i_strtab_init(pm_i_strtab *t);
+void pm_i_strtab_destroy(pm_i_strtab *t);
+/* Looks s up, inserting it when absent. Returns the id, or -1 on allocation failure. *added is
+ * set when the string was new (may be NULL). */
+int64_t pm_i_strtab_intern(pm_i_strtab *t, const char *s, size_t len, bool *added);
+/* Returns the id of s, or -1 when absent. */
+int64_t pm_i_strtab_find(const pm_i_strtab *t, const char *s, size_t len);
+uint64_t pm_i_hash(const char *s, size_t len);
+
+/* ---- misc ---------------------------------------------------------------------------------- */
+/* Byte-wise comparison of two NUL-terminated strings as unsigned bytes (strcmp semantics). */
+int pm_i_bytecmp(const char *a, const char *b);
+/* Formats a double so that it round-trips (shortest of %.15g..%.17g that reads back equal),
+ * "nan"/"inf"/"-inf" for non-finite values. Returns the length. */
+int pm_i_fmt_double(char *buf, size_t size, double v);
+/* Monotonic clock in seconds. */
+double pm_i_now(void);
+
+#endif

@@ -1,0 +1,93 @@
+/* CSV writers: edges (also `pairs` output) and item shares. */
+#include "pairmap/write.h"
+
+#include <errno.h>
+#include <string.h>
+
+#include "util.h"
+
+void pm_write_csv_field(FILE *fp, const char *s) {
+    size_t n = strlen(s);
+    int quote = n > 0 && (s[0] == ' ' || s[0] == '\t' || s[n - 1] == ' ' || s[n - 1] == '\t');
+    if (!quote && strpbrk(s, ",\"\r\n;\t|")) {
+        quote = 1;
+    }
+    if (!quote) {
+        fputs(s, fp);
+        return;
+    }
+    fputc('"', fp);
+    for (const char *p = s; *p; p++) {
+        if (*p == '"') {
+            fputc('"', fp);
+        }
+        fputc(*p, fp);
+    }
+    fputc('"', fp);
+}
+
+void pm_write_number(FILE *fp, double v) {
+    char buf[64];
+    pm_i_fmt_double(buf, sizeof buf, v);
+    fputs(buf, fp);
+}
+
+static pm_err_t check(FILE *fp, pm_diag_t *diag) {
+    if (ferror(fp)) {
+        return pm_diag_set(diag, PM_EIO, NULL, 0, "cannot write the output: %s",
+                           strerror(errno ? errno : EIO));
+    }
+    return PM_OK;
+}
+
+pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
+                            const pm_edges_t *e, pm_diag_t *diag) {
+    fputs(PM_EDGES_HEADER "\n", fp);
+    for (size_t i = 0; i < e->n; i++) {
+        size_t k = e->idx[i];
+        pm_measures_t m;
+        pm_pairs_measures(pp, inc, k, &m);
+        pm_write_csv_field(fp, inc->name[pp->a[k]]);
+        fputc(',', fp);
+        pm_write_csv_field(fp, inc->name[pp->b[k]]);
+        const double v[8] = {m.together, m.expected,      m.support, m.confidence_ab,
+                             m.confidence_ba, m.lift, m.phi,     m.jaccard};
+        for (int j = 0; j < 8; j++) {
+            fputc(',', fp);
+            pm_write_number(fp, v[j]);
+        }
+        fputs(m.test == PM_TEST_FISHER ? ",fisher," : ",chi2,", fp);
+        pm_write_number(fp, m.p);
+        fputc(',', fp);
+        pm_write_number(fp, m.q);
+        fputc('\n', fp);
+        if ((i & 4095) == 0 && ferror(fp)) {
+            break;
+        }
+    }
+    return check(fp, diag);
+}
+
+pm_err_t pm_write_items_csv(FILE *fp, const pm_incidence_t *inc, pm_diag_t *diag) {
+    fputs("item,category,respondents,share,share_low,share_high\n", fp);
+    double neff = pm_incidence_neff(inc);
+    for (size_t i = 0; i < inc->n_items; i++) {
+        double share = pm_incidence_share(inc, i), lo, hi;
+        if (inc->wcount) {
+            pm_assoc_jeffreys(share * neff, neff, 0.05, &lo, &hi);
+        } else {
+            pm_assoc_jeffreys((double)inc->count[i], (double)inc->N, 0.05, &lo, &hi);
+        }
+        pm_write_csv_field(fp, inc->name[i]);
+        fputc(',', fp);
+        pm_write_csv_field(fp, inc->category[i] ? inc->category[i] : "");
+        fprintf(fp, ",%llu,", (unsigned long long)inc->count[i]);
+        pm_write_number(fp, share);
+        fputc(',', fp);
+        pm_write_number(fp, lo);
+        fputc(',', fp);
+        pm_write_number(fp, hi);
+        fputc('\n', fp);
+    }
+    return check(fp, diag);
+}

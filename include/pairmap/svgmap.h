@@ -1,0 +1,61 @@
+/* The SVG map (src/svgmap.c): a standalone SVG 1.1 picture of the clusters for a report.
+ * Input is plain arrays so the drawing knows nothing of igraph; the picture is laid out afresh
+ * for the drawn items with pm_layout_fr (network.h). */
+#ifndef PAIRMAP_SVGMAP_H
+#define PAIRMAP_SVGMAP_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+
+#include "pairmap/error.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* What to draw. Node i: name, category (NULL: none), share in [0,1], cluster 1..n_clusters
+ * (1 = largest), strength (sum of positive edge weights). Edge k joins ea[k] and eb[k] with
+ * the edge measure weight[k]; negative weight = a negative (substitute) edge. */
+typedef struct {
+    size_t n_nodes;
+    const char *const *name;
+    const char *const *category;
+    const double *share;
+    const int *cluster;
+    const double *strength;
+    size_t n_edges;
+    const uint32_t *ea, *eb;
+    const double *weight;
+    size_t n_clusters;
+    const char *const *cluster_name; /* cluster c (1-based) is cluster_name[c - 1] */
+    uint64_t respondents;
+    const char *thresholds; /* e.g. "min count 5, q <= 0.05, phi > 0", for the subtitle */
+} pm_svg_data_t;
+
+typedef struct {
+    const char *title;   /* NULL: a default title */
+    int width, height;   /* canvas in px; 0: defaults */
+    size_t draw;         /* items to draw; 0: sized from the canvas */
+    int color_by_category; /* 0: fill by cluster */
+    uint64_t seed;
+    int iterations;      /* layout iterations; 0: default */
+} pm_svg_opts_t;
+
+typedef struct {
+    size_t drawn;        /* items drawn */
+    size_t left_out;     /* items not drawn */
+    size_t edges_drawn;
+} pm_svg_stats_t;
+
+void pm_svg_opts_init(pm_svg_opts_t *o);
+
+/* Writes the SVG to fp. Deterministic for the same data and options. Errors: PM_EIO (stream),
+ * PM_ENOMEM, PM_EINTERNAL (layout). */
+pm_err_t pm_svg_write(FILE *fp, const pm_svg_data_t *d, const pm_svg_opts_t *o,
+                      pm_svg_stats_t *stats, pm_diag_t *diag);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

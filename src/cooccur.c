@@ -114,8 +114,9 @@ typedef struct {
     double *wt;       /* R weights or NULL */
     /* sparse: transpose */
     uint64_t *tp;     /* E + 1 */
-    uint32_t *trow;   /* row of each entry */
-    uint32_t *tpos;   /* position of the item inside that row */
+    uint32_t *tbeg;   /* entry: offset in ci just after the item (its row's suffix) */
+    uint32_t *tend;   /* entry: offset in ci of its row's end */
+    uint32_t *trow;   /* entry: its row (weighted only) */
     /* chunking */
     size_t nchunks;
     size_t *cbeg;     /* chunk c covers items (sparse) or rows (dense) cbeg[c]..cbeg[c+1] */
@@ -172,13 +173,17 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
     uint64_t work = 0;
     for (size_t a = k->cbeg[c]; a < k->cbeg[c + 1]; a++) {
         size_t nt = 0;
-        for (uint64_t t = k->tp[a]; t < k->tp[a + 1]; t++) {
-            uint32_t r = k->trow[t];
-            uint64_t beg = k->rp[r] + k->tpos[t] + 1, end = k->rp[r + 1];
+        const uint64_t t_end = k->tp[a + 1];
+        for (uint64_t t = k->tp[a]; t < t_end; t++) {
+            /* the rows of item a are scattered over ci: fetch a few entries ahead */
+            if (t + 8 < t_end) {
+                __builtin_prefetch(&k->ci[k->tbeg[t + 8]]);
+            }
+            uint64_t beg = k->tbeg[t], end = k->tend[t];
             const uint32_t *row = k->ci;
             work += end - beg;
             if (wacc) {
-                double w = k->wt[r];
+                double w = k->wt[k->trow[t]];
                 for (uint64_t q = beg; q < end; q++) {
                     uint32_t b = row[q];
                     if (acc[b]++ == 0) {
@@ -348,7 +353,9 @@ pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o,
     }
     k.R = R;
     k.rp = pm_i_malloc(R + 1, sizeof *k.rp);
-    k.ci = pm_i_malloc(nnz ? nnz : 1, sizeof *k.ci);
+    /* + 1: the fill loop below writes a row's single eligible item before dropping the row
+     * (found by tests/fuzz/fuzz_input, issue 6) */
+    k.ci = pm_i_malloc(nnz + 1, sizeof *k.ci);
     if (inc->weight) {
         k.wt = pm_i_malloc(R ? R : 1, sizeof *k.wt);
     }
@@ -396,10 +403,17 @@ pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o,
     if (kernel == PM_COUNTS_SPARSE) {
         /* transpose with positions, and work per item */
         k.tp = pm_i_calloc(k.E + 1, sizeof *k.tp);
-        k.trow = pm_i_malloc(nnz ? nnz : 1, sizeof *k.trow);
-        k.tpos = pm_i_malloc(nnz ? nnz : 1, sizeof *k.tpos);
+        if (nnz >= UINT32_MAX) {
+            rc = PM_EDATA;
+            goto cleanup;
+        }
+        k.tbeg = pm_i_malloc(nnz ? nnz : 1, sizeof *k.tbeg);
+        k.tend = pm_i_malloc(nnz ? nnz : 1, sizeof *k.tend);
+        if (k.wt) {
+            k.trow = pm_i_malloc(nnz ? nnz : 1, sizeof *k.trow);
+        }
         cost = pm_i_calloc(k.E ? k.E : 1, sizeof *cost);
-        if (!k.tp || !k.trow || !k.tpos || !cost) {
+        if (!k.tp || !k.tbeg || !k.tend || (k.wt && !k.trow) || !cost) {
             goto cleanup;
         }
         for (uint64_t q = 0; q < nnz; q++) {
@@ -418,8 +432,11 @@ pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o,
             for (uint64_t q = b; q < e; q++) {
                 uint32_t it = k.ci[q];
                 uint64_t at = fill[it]++;
-                k.trow[at] = (uint32_t)r;
-                k.tpos[at] = (uint32_t)(q - b);
+                k.tbeg[at] = (uint32_t)(q + 1);
+                k.tend[at] = (uint32_t)e;
+                if (k.trow) {
+                    k.trow[at] = (uint32_t)r;
+                }
                 cost[it] += e - q - 1;
             }
         }
@@ -598,7 +615,8 @@ cleanup:
     free(cost);
     free(k.tp);
     free(k.trow);
-    free(k.tpos);
+    free(k.tbeg);
+    free(k.tend);
     free(k.rp);
     free(k.ci);
     free(k.wt);
@@ -608,6 +626,11 @@ cleanup:
         pm_counts_free(res);
         if (rc == PM_ENOMEM) {
             return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory while counting pairs");
+        }
+        if (rc == PM_EDATA) {
+            return pm_diag_set(diag, PM_EDATA, NULL, 0,
+                               "more than 4294967294 respondent-item rows of eligible items; "
+                               "split the input or raise --min-share");
         }
         return pm_diag_set(diag, rc, NULL, 0, "cannot start the counting threads");
     }

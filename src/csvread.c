@@ -23,6 +23,7 @@ typedef struct {
     size_t ptr_cap;
     size_t nf, f_cap, len_cap;
     uint64_t cur_line, rec_line;
+    uint64_t row_line; /* line where the next record can start (not inside a quoted field) */
     int in_record;
     pm_err_t err;
     pm_diag_t *diag;
@@ -38,7 +39,7 @@ static void on_field(void *s, size_t len, void *ud) {
     }
     if (!st->in_record) {
         st->in_record = 1;
-        st->rec_line = st->cur_line;
+        st->rec_line = st->row_line; /* a first field may span lines: where it began */
     }
     if (len > PM_INPUT_MAX_FIELD) {
         st->err = pm_diag_set(st->diag, PM_EDATA, st->display, (long)st->rec_line,
@@ -125,14 +126,49 @@ static char detect_sep(const char *p, size_t n) {
     return cand[best];
 }
 
-static uint64_t line_of(const char *p, size_t upto, uint64_t first) {
-    uint64_t l = first;
-    for (size_t i = 0; i < upto; i++) {
-        if (p[i] == '\n') {
-            l++;
-        }
+/* Fast path for a line without quotes while libcsv holds no partial record: split at the
+ * delimiter in place (the buffer is ours), trimming spaces and tabs around fields as libcsv
+ * does. line[len-1] is '\n' or the line is the file's last. */
+static pm_err_t fast_line(state *st, char *line, size_t len, char sep) {
+    if (len && line[len - 1] == '\n') {
+        len--;
     }
-    return l;
+    if (len && line[len - 1] == '\r') {
+        len--;
+    }
+    size_t nf = 0, b = 0;
+    for (size_t i = 0; i <= len; i++) {
+        if (i < len && line[i] != sep) {
+            continue;
+        }
+        size_t fb = b, fe = i;
+        while (fb < fe && (line[fb] == ' ' || line[fb] == '\t') && line[fb] != sep) {
+            fb++;
+        }
+        while (fe > fb && (line[fe - 1] == ' ' || line[fe - 1] == '\t') && line[fe - 1] != sep) {
+            fe--;
+        }
+        if (fe - fb > PM_INPUT_MAX_FIELD) {
+            return pm_diag_set(st->diag, PM_EDATA, st->display, (long)st->cur_line,
+                               "field %zu is %zu bytes long, over the limit of %u bytes; check "
+                               "the delimiter and quoting",
+                               nf + 1, fe - fb, (unsigned)PM_INPUT_MAX_FIELD);
+        }
+        if (pm_i_grow((void **)&st->ptr, &st->ptr_cap, nf + 1, sizeof *st->ptr) ||
+            pm_i_grow((void **)&st->len, &st->len_cap, nf + 1, sizeof *st->len)) {
+            return pm_diag_set(st->diag, PM_ENOMEM, st->display, 0, "out of memory");
+        }
+        line[fe] = '\0'; /* fe <= i: a delimiter, the line end or inside trimmed space */
+        st->ptr[nf] = line + fb;
+        st->len[nf] = (uint32_t)(fe - fb);
+        nf++;
+        b = i + 1;
+    }
+    if (nf == 1 && st->len[0] == 0) {
+        return PM_OK; /* blank line */
+    }
+    pm_i_record r = {st->ptr, st->len, nf, st->cur_line};
+    return st->fn(st->ud, &r, st->diag);
 }
 
 pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud,
@@ -146,7 +182,8 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
     st.cur_line = 1;
     struct csv_parser p;
     pm_err_t rc = PM_OK;
-    char *blk = pm_i_malloc(BLOCK, 1);
+    size_t cap = BLOCK;
+    char *blk = pm_i_malloc(cap + 1, 1);
     if (!blk) {
         return pm_diag_set(diag, PM_ENOMEM, o->display, 0, "out of memory");
     }
@@ -154,48 +191,73 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
         free(blk);
         return pm_diag_set(diag, PM_ENOMEM, o->display, 0, "out of memory");
     }
-    int first = 1;
+    int first = 1, eof = 0, seen_nul = 0, last_nl = 1;
+    uint64_t pending_line = 1;
+    size_t have = 0, pos = 0;
     o->bytes = 0;
-    for (;;) {
-        size_t n = fread(blk, 1, BLOCK, fp);
+    while (!eof) {
+        size_t n = fread(blk + have, 1, cap - have, fp);
         if (n == 0) {
             if (ferror(fp)) {
                 rc = pm_diag_set(diag, PM_EIO, o->display, 0, "cannot read: %s",
                                  strerror(errno ? errno : EIO));
                 goto done;
             }
-            break;
+            eof = 1;
         }
-        if (o->sha) {
-            pm_i_sha256_update(o->sha, blk, n);
+        if (o->sha && n) {
+            pm_i_sha256_update(o->sha, blk + have, n);
         }
         o->bytes += n;
-        size_t pos = 0;
-        if (first) {
+        size_t nul_at = SIZE_MAX;
+        const char *nul = n ? memchr(blk + have, '\0', n) : NULL;
+        if (nul) {
+            nul_at = (size_t)(nul - blk);
+        }
+        have += n;
+        pos = 0;
+        if (first && (have > 0 || eof)) {
             first = 0;
-            if (n >= 3 && memcmp(blk, "\xEF\xBB\xBF", 3) == 0) {
+            if (have >= 3 && memcmp(blk, "\xEF\xBB\xBF", 3) == 0) {
                 pos = 3; /* libcsv does not strip a UTF-8 BOM */
             }
             if (!o->sep) {
-                o->sep = detect_sep(blk + pos, n - pos);
+                o->sep = detect_sep(blk + pos, have - pos);
             }
             csv_set_delim(&p, (unsigned char)o->sep);
         }
-        const char *nul = memchr(blk + pos, '\0', n - pos);
-        size_t limit = nul ? (size_t)(nul - blk) : n;
-        while (pos < limit) {
-            const char *nl = memchr(blk + pos, '\n', limit - pos);
-            size_t end = nl ? (size_t)(nl - blk) + 1 : limit;
-            size_t r = csv_parse(&p, blk + pos, end - pos, on_field, on_record, &st);
-            if (st.err) {
-                rc = st.err;
-                goto done;
+        /* whole lines in the buffer */
+        for (;;) {
+            char *nl = memchr(blk + pos, '\n', have - pos);
+            size_t end = nl ? (size_t)(nl - blk) + 1 : (eof ? have : pos);
+            if (end == pos) {
+                break;
             }
-            if (r != end - pos) {
-                rc = pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
-                                 "malformed quoting near byte %zu of the line: a quote inside "
-                                 "an unquoted field or text after a closing quote",
-                                 r + 1);
+            if (nul_at < end) {
+                seen_nul = 1;
+                break;
+            }
+            size_t len = end - pos;
+            if (p.pstate == 0 && !st.in_record && !memchr(blk + pos, '"', len)) {
+                last_nl = blk[end - 1] == '\n';
+                rc = fast_line(&st, blk + pos, len, o->sep);
+            } else {
+                if (p.pstate == 0 && !st.in_record) {
+                    pending_line = st.cur_line; /* a record (maybe multi-line) starts here */
+                }
+                last_nl = blk[end - 1] == '\n';
+                size_t r = csv_parse(&p, blk + pos, len, on_field, on_record, &st);
+                if (!st.err && r != len) {
+                    rc = pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
+                                     "malformed quoting near byte %zu of the line: a quote "
+                                     "inside an unquoted field or text after a closing quote",
+                                     r + 1);
+                }
+                if (st.err) {
+                    rc = st.err;
+                }
+            }
+            if (rc) {
                 goto done;
             }
             pos = end;
@@ -203,14 +265,33 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
                 st.cur_line++;
             }
         }
-        if (nul) {
-            rc = pm_diag_set(diag, PM_EDATA, o->display, (long)line_of(blk, 0, st.cur_line),
+        if (seen_nul) {
+            rc = pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
                              "NUL byte in the input; the file is binary or not UTF-8 text");
             goto done;
         }
+        /* keep the partial last line for the next read */
+        if (pos > 0) {
+            memmove(blk, blk + pos, have - pos);
+            have -= pos;
+        } else if (have == cap && !eof) {
+            /* one line longer than the buffer: hand it to libcsv piecewise */
+            size_t r = csv_parse(&p, blk, have, on_field, on_record, &st);
+            if (st.err) {
+                rc = st.err;
+                goto done;
+            }
+            if (r != have) {
+                rc = pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
+                                 "malformed quoting in a very long line");
+                goto done;
+            }
+            have = 0;
+        }
     }
     if (csv_fini(&p, on_field, on_record, &st) != 0) {
-        rc = pm_diag_set(diag, PM_EDATA, o->display, (long)(st.in_record ? st.rec_line : st.cur_line),
+        rc = pm_diag_set(diag, PM_EDATA, o->display,
+                         (long)(st.in_record ? st.rec_line : pending_line),
                          "unterminated quoted field: a closing quote is missing");
         goto done;
     }
@@ -218,7 +299,7 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
         rc = st.err;
     }
 done:
-    o->lines = st.cur_line - 1 + (o->bytes > 0 ? 1 : 0);
+    o->lines = st.cur_line - 1 + (o->bytes > 0 && !last_nl ? 1 : 0);
     o->sep_used = o->sep ? o->sep : ',';
     csv_free(&p);
     free(blk);

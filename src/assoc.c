@@ -244,7 +244,16 @@ typedef struct {
 
 static double beta_gap(double x, void *v) {
     const beta_q *q = v;
-    return gsl_cdf_beta_P(x, q->a, q->b) - q->p;
+    double c = gsl_cdf_beta_P(x, q->a, q->b);
+    if (!isfinite(c)) {
+        /* GSL's continued fraction fails (NaN) close to the mean when a + b is large
+         * (measured: n = 10^7, within about 0.4 sd of the mean), and Brent's method stops at
+         * a non-finite value with a wrong root. There the normal approximation steers the
+         * solver; the 2.5% and 97.5% points lie about 2 sd out, where GSL's CDF works. */
+        double s = q->a + q->b, mu = q->a / s, sd = sqrt(mu * (1 - mu) / (s + 1));
+        c = gsl_cdf_ugaussian_P((x - mu) / sd);
+    }
+    return c - q->p;
 }
 
 /* p-quantile of Beta(a, b) by Brent's method on gsl_cdf_beta_P (gsl_cdf_beta_Pinv returns NaN
@@ -366,9 +375,11 @@ static double pair_p(const double *lf, const pm_incidence_t *inc, pm_sign_t sign
     return m.p;
 }
 
-/* Per-thread store of pruned pairs: floats (sign positive) or identities (otherwise). */
+/* Per-thread store of pruned pairs: their p-values (sign positive) or identities (otherwise).
+ * p-values are kept as doubles: rounding them to float moved ranks and so changed the q-values
+ * of kept pairs when --min-count pruned others. */
 typedef struct {
-    float *pf;
+    double *pf;
     size_t nf, cf;
     uint32_t *a, *b, *n;
     double *w;
@@ -397,7 +408,7 @@ static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t
             pb->fail = 1;
             return;
         }
-        pb->pf[pb->nf++] = (float)pair_p(c->lf, c->inc, c->sign, c->neff, a, b, nab, wab, NULL);
+        pb->pf[pb->nf++] = pair_p(c->lf, c->inc, c->sign, c->neff, a, b, nab, wab, NULL);
         return;
     }
     if (pb->ni == pb->ci) {
@@ -451,37 +462,38 @@ static int cmp_pgroup(const void *x, const void *y) {
     return a->p < b->p ? -1 : a->p > b->p;
 }
 
-static int cmp_float(const void *x, const void *y) {
-    float a = *(const float *)x, b = *(const float *)y;
-    return a < b ? -1 : a > b;
-}
+static int cmp_double(const void *x, const void *y);
 
-/* LSD radix sort of non-negative floats: their bit patterns sort as unsigned integers. */
-static int radix_floats(float *v, size_t n) {
+/* LSD radix sort of non-negative doubles (16-bit digits): their bit patterns sort as unsigned
+ * integers. */
+static int radix_doubles(double *v, size_t n) {
     if (n < 4096) {
-        qsort(v, n, sizeof *v, cmp_float);
+        qsort(v, n, sizeof *v, cmp_double);
         return 0;
     }
-    uint32_t *a = (uint32_t *)(void *)v, *tmp = pm_i_malloc(n, sizeof *tmp);
-    if (!tmp) {
+    uint64_t *a = (uint64_t *)(void *)v, *tmp = pm_i_malloc(n, sizeof *tmp);
+    size_t *cnt = pm_i_malloc(65537, sizeof *cnt);
+    if (!tmp || !cnt) {
+        free(tmp);
+        free(cnt);
         return -1;
     }
-    uint32_t *src = a, *dst = tmp;
-    for (int shift = 0; shift < 32; shift += 8) {
-        size_t cnt[257] = {0};
+    uint64_t *src = a, *dst = tmp;
+    for (int shift = 0; shift < 64; shift += 16) {
+        memset(cnt, 0, 65537 * sizeof *cnt);
         for (size_t i = 0; i < n; i++) {
-            cnt[((src[i] >> shift) & 0xff) + 1]++;
+            cnt[((src[i] >> shift) & 0xffff) + 1]++;
         }
-        if (cnt[((src[0] >> shift) & 0xff) + 1] == n) {
-            continue; /* every key has this byte: nothing to do */
+        if (cnt[((src[0] >> shift) & 0xffff) + 1] == n) {
+            continue; /* every key has this digit */
         }
-        for (int b = 0; b < 256; b++) {
+        for (int b = 0; b < 65536; b++) {
             cnt[b + 1] += cnt[b];
         }
         for (size_t i = 0; i < n; i++) {
-            dst[cnt[(src[i] >> shift) & 0xff]++] = src[i];
+            dst[cnt[(src[i] >> shift) & 0xffff]++] = src[i];
         }
-        uint32_t *t = src;
+        uint64_t *t = src;
         src = dst;
         dst = t;
     }
@@ -489,6 +501,7 @@ static int radix_floats(float *v, size_t n) {
         memcpy(a, src, n * sizeof *a);
     }
     free(tmp);
+    free(cnt);
     return 0;
 }
 
@@ -590,7 +603,7 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
     uint32_t *cls = NULL, *order = NULL;
     pgroup *groups = NULL;
     size_t ngroups = 0;
-    float *pf = NULL;
+    double *pf = NULL;
     double *pd = NULL;
     size_t npf = 0, npd = 0;
     pidx *lv = NULL;
@@ -872,14 +885,21 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
     }
     qsort(lv, pp->n, sizeof *lv, cmp_pidx);
     for (size_t i = 0; i < npf; i++) {
-        if (!(pf[i] >= 0)) { /* -0.0 or NaN would break the bit-pattern order */
-            pf[i] = isnan(pf[i]) ? 1.0f : 0.0f;
+        if (!(pf[i] > 0)) { /* -0.0 or NaN would break the bit-pattern order */
+            pf[i] = isnan(pf[i]) ? 1.0 : 0.0;
         }
     }
-    if (radix_floats(pf, npf)) {
+    if (radix_doubles(pf, npf)) {
         goto cleanup;
     }
-    qsort(pd, npd, sizeof *pd, cmp_double);
+    for (size_t i = 0; i < npd; i++) {
+        if (!(pd[i] > 0)) {
+            pd[i] = isnan(pd[i]) ? 1.0 : 0.0;
+        }
+    }
+    if (radix_doubles(pd, npd)) {
+        goto cleanup;
+    }
     if (ngroups) { /* groups may be NULL: qsort's pointer must not be (UBSan, issue 6) */
         qsort(groups, ngroups, sizeof *groups, cmp_pgroup);
     }
@@ -894,8 +914,8 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
             if (il && lv[il - 1].p > v) {
                 v = lv[il - 1].p;
             }
-            if (ifl && (double)pf[ifl - 1] > v) {
-                v = (double)pf[ifl - 1];
+            if (ifl && pf[ifl - 1] > v) {
+                v = pf[ifl - 1];
             }
             if (id && pd[id - 1] > v) {
                 v = pd[id - 1];
@@ -918,7 +938,7 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
                 used++;
                 record = 1;
             }
-            while (ifl && (double)pf[ifl - 1] == v) {
+            while (ifl && pf[ifl - 1] == v) {
                 ifl--;
                 used++;
             }

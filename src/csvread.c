@@ -126,6 +126,37 @@ static char detect_sep(const char *p, size_t n) {
     return cand[best];
 }
 
+/* libcsv collects a whole field before on_field sees it, so a field that never ends (a
+ * missing closing quote early in a big file) would be buffered to the end of the file. Stop
+ * it as soon as it passes the limit (issue 6). start: the line where its record began. */
+static pm_err_t runaway(const struct csv_parser *p, const state *st, uint64_t start,
+                        pm_diag_t *diag) {
+    if (p->entry_pos <= PM_INPUT_MAX_FIELD) {
+        return PM_OK;
+    }
+    if (p->quoted) {
+        return pm_diag_set(diag, PM_EDATA, st->display, (long)start,
+                           "quoted field %zu runs past the limit of %u bytes: a closing quote "
+                           "is probably missing",
+                           st->nf + 1, (unsigned)PM_INPUT_MAX_FIELD);
+    }
+    return pm_diag_set(diag, PM_EDATA, st->display, (long)start,
+                       "field %zu is over the limit of %u bytes; check the delimiter and quoting",
+                       st->nf + 1, (unsigned)PM_INPUT_MAX_FIELD);
+}
+
+/* True when a CR other than that of a final CRLF is in the line: libcsv ends a record there
+ * (files with CR-only line ends), so such a line must not take the fast path (issue 6). */
+static int inner_cr(const char *s, size_t len) {
+    if (len && s[len - 1] == '\n') {
+        len--;
+    }
+    if (len && s[len - 1] == '\r') {
+        len--;
+    }
+    return len && memchr(s, '\r', len) != NULL;
+}
+
 /* Fast path for a line without quotes while libcsv holds no partial record: split at the
  * delimiter in place (the buffer is ours), trimming spaces and tabs around fields as libcsv
  * does. line[len-1] is '\n' or the line is the file's last. */
@@ -238,23 +269,31 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
                 break;
             }
             size_t len = end - pos;
-            if (p.pstate == 0 && !st.in_record && !memchr(blk + pos, '"', len)) {
+            if (p.pstate == 0 && !st.in_record && !memchr(blk + pos, '"', len) &&
+                !inner_cr(blk + pos, len)) {
                 last_nl = blk[end - 1] == '\n';
                 rc = fast_line(&st, blk + pos, len, o->sep);
             } else {
                 if (p.pstate == 0 && !st.in_record) {
                     pending_line = st.cur_line; /* a record (maybe multi-line) starts here */
+                    st.row_line = st.cur_line;
                 }
                 last_nl = blk[end - 1] == '\n';
                 size_t r = csv_parse(&p, blk + pos, len, on_field, on_record, &st);
                 if (!st.err && r != len) {
-                    rc = pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
-                                     "malformed quoting near byte %zu of the line: a quote "
-                                     "inside an unquoted field or text after a closing quote",
-                                     r + 1);
+                    rc = csv_error(&p) == CSV_ENOMEM
+                             ? pm_diag_set(diag, PM_ENOMEM, o->display, 0, "out of memory")
+                             : pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
+                                           "malformed quoting near byte %zu of the line: a "
+                                           "quote inside an unquoted field or text after a "
+                                           "closing quote",
+                                           r + 1);
                 }
                 if (st.err) {
                     rc = st.err;
+                }
+                if (!rc) {
+                    rc = runaway(&p, &st, pending_line, diag);
                 }
             }
             if (rc) {
@@ -267,7 +306,8 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
         }
         if (seen_nul) {
             rc = pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
-                             "NUL byte in the input; the file is binary or not UTF-8 text");
+                             "found a NUL byte: the file is binary or UTF-16 text; save it as "
+                             "UTF-8 CSV");
             goto done;
         }
         /* keep the partial last line for the next read */
@@ -276,14 +316,23 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
             have -= pos;
         } else if (have == cap && !eof) {
             /* one line longer than the buffer: hand it to libcsv piecewise */
+            if (p.pstate == 0 && !st.in_record) {
+                pending_line = st.cur_line; /* a record starts here (issue 6: line numbers) */
+                st.row_line = st.cur_line;
+            }
             size_t r = csv_parse(&p, blk, have, on_field, on_record, &st);
             if (st.err) {
                 rc = st.err;
                 goto done;
             }
             if (r != have) {
-                rc = pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
-                                 "malformed quoting in a very long line");
+                rc = csv_error(&p) == CSV_ENOMEM
+                         ? pm_diag_set(diag, PM_ENOMEM, o->display, 0, "out of memory")
+                         : pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
+                                       "malformed quoting in a very long line");
+                goto done;
+            }
+            if ((rc = runaway(&p, &st, pending_line, diag)) != PM_OK) {
                 goto done;
             }
             have = 0;

@@ -30,6 +30,31 @@ void pm_i_trim(const char **s, size_t *len) {
     *len = n;
 }
 
+/* Copies s[0..len) into buf for a message, with every byte that is not part of valid UTF-8
+ * (or is a control byte) written as \xHH, cut at about 60 bytes: the user sees which name it
+ * is and where the bad byte sits (issue 6). */
+static const char *shown(const char *s, size_t len, char *buf, size_t size) {
+    size_t o = 0;
+    for (size_t i = 0; i < len && o + 8 < size; i++) {
+        unsigned char c = (unsigned char)s[i];
+        size_t n = c < 0x80 ? 1 : c < 0xE0 ? 2 : c < 0xF0 ? 3 : 4;
+        if (o > 60) {
+            memcpy(buf + o, "...", 3);
+            o += 3;
+            break;
+        }
+        if (c >= 0x20 && c != 0x7F && (c < 0x80 || (i + n <= len && pm_i_utf8_valid(s + i, n)))) {
+            memcpy(buf + o, s + i, n);
+            o += n;
+            i += n - 1;
+        } else {
+            o += (size_t)snprintf(buf + o, size - o, "\\x%02X", c);
+        }
+    }
+    buf[o] = '\0';
+    return buf;
+}
+
 void pm_table_free(pm_table_t *t) {
     if (!t) {
         return;
@@ -82,7 +107,11 @@ static pm_err_t merge_record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
                            "empty item or group name in the merge file");
     }
     if (!pm_i_utf8_valid(a, al) || !pm_i_utf8_valid(g, gl)) {
-        return pm_diag_set(diag, PM_EDATA, m->file, (long)r->line, "invalid UTF-8 in a name");
+        char b[96];
+        return pm_diag_set(diag, PM_EDATA, m->file, (long)r->line,
+                           "invalid UTF-8 in the name '%s'; save the merge file as UTF-8",
+                           pm_i_utf8_valid(a, al) ? shown(g, gl, b, sizeof b)
+                                                  : shown(a, al, b, sizeof b));
     }
     bool added;
     int64_t id = pm_i_strtab_intern(&m->t->merge_from, a, al, &added);
@@ -251,8 +280,10 @@ pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len,
     int64_t it = pm_i_strtab_find(&t->items, item, len);
     if (it < 0) {
         if (!pm_i_utf8_valid(item, len)) {
+            char b[96];
             return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
-                               "invalid UTF-8 in item name; save the file as UTF-8");
+                               "invalid UTF-8 in item name '%s'; save the file as UTF-8",
+                               shown(item, len, b, sizeof b));
         }
         it = pm_i_strtab_intern(&t->items, item, len, &added);
         if (it < 0) {
@@ -275,8 +306,10 @@ pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len,
         int64_t c = pm_i_strtab_find(&t->cats, cat, catlen);
         if (c < 0) {
             if (!pm_i_utf8_valid(cat, catlen)) {
+                char b[96];
                 return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
-                                   "invalid UTF-8 in category name; save the file as UTF-8");
+                                   "invalid UTF-8 in category name '%s'; save the file as UTF-8",
+                                   shown(cat, catlen, b, sizeof b));
             }
             c = pm_i_strtab_intern(&t->cats, cat, catlen, NULL);
             if (c < 0) {
@@ -658,4 +691,14 @@ const char *pm_table_respondent(const pm_table_t *t, size_t r) {
 }
 bool pm_table_respondent_empty(const pm_table_t *t, size_t r) {
     return !t->resp_has_item[r];
+}
+void pm_table_row_index(const pm_table_t *t, size_t i, size_t *respondent, size_t *item) {
+    *respondent = t->row_resp[i];
+    *item = t->row_item[i];
+}
+size_t pm_table_nitems(const pm_table_t *t) {
+    return t->items.count;
+}
+double pm_table_respondent_weight(const pm_table_t *t, size_t r) {
+    return t->weighted ? t->resp_weight[r] : NAN;
 }

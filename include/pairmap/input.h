@@ -80,15 +80,23 @@ const char *pm_table_source(const pm_table_t *t);
 bool pm_table_weighted(const pm_table_t *t);
 bool pm_table_has_categories(const pm_table_t *t);
 
-/* Row access for `reshape`, the one output that shows respondent ids. Rows are in input
- * order; respondents who chose nothing come back with item == NULL (one row each). */
+/* Row access for `reshape`, the one output that shows respondent ids. Rows are the kept
+ * respondent-item rows in input order (duplicates included); a respondent who chose nothing
+ * has no row: find them with pm_table_respondent_empty. respondent is NULL for respondents
+ * without id (lines format without --id-col); category is NULL when the item has none. */
 size_t pm_table_nrows(const pm_table_t *t);
 void pm_table_row(const pm_table_t *t, size_t i, const char **respondent, const char **item,
                   const char **category);
+/* Respondent index (0 .. pm_table_nrespondents() - 1, in order of first appearance) and item
+ * index (0 .. pm_table_nitems() - 1) of row i. */
+void pm_table_row_index(const pm_table_t *t, size_t i, size_t *respondent, size_t *item);
+size_t pm_table_nitems(const pm_table_t *t);
 size_t pm_table_nrespondents(const pm_table_t *t);
 const char *pm_table_respondent(const pm_table_t *t, size_t r);
 /* True when respondent r has no row with an item. */
 bool pm_table_respondent_empty(const pm_table_t *t, size_t r);
+/* Respondent r's weight (--weight-col); NaN when the table is unweighted. */
+double pm_table_respondent_weight(const pm_table_t *t, size_t r);
 
 #ifdef __cplusplus
 }

@@ -1,7 +1,18 @@
-/* The network stage: igraph graph of the kept pairs, Louvain clusters, Fruchterman-Reingold
- * layout (src/network.c, the only file that includes igraph). */
+/* The network stage: an igraph graph of the kept pairs, Louvain clusters with restarts and a
+ * stability figure, and a Fruchterman-Reingold layout (src/network.c, the only file that
+ * includes igraph). Everything here takes plain arrays, so callers never see igraph types.
+ *
+ * Edges with a weight that is not finite and > 0 (negative associations under --sign negative
+ * or both are passed with weight 0 by the CLI) are kept in the counts but take no part in
+ * clustering or layout: Louvain and Fruchterman-Reingold both need positive weights.
+ *
+ * igraph's random generator, error handler and finally stack are process-global: these
+ * functions are not thread-safe and must not run concurrently. */
 #ifndef PAIRMAP_NETWORK_H
 #define PAIRMAP_NETWORK_H
+
+#include <stddef.h>
+#include <stdint.h>
 
 #include "pairmap/error.h"
 
@@ -10,8 +21,102 @@ extern "C" {
 #endif
 
 /* Process set-up, once, before any other pairmap call: installs igraph's attribute table and
- * a non-aborting igraph error handler, and turns GSL's aborting handler off. */
+ * a non-aborting igraph error handler (igraph errors come back as PM_EINTERNAL with igraph's
+ * text, never an abort), and turns GSL's aborting handler off. */
 void pm_init(void);
+
+/* Default number of Fruchterman-Reingold iterations (iterations <= 0 selects it). */
+#define PM_LAYOUT_ITERATIONS 500
+
+/* Fruchterman-Reingold layout of an undirected graph given as plain arrays.
+ *   n           vertices 0 .. n-1
+ *   m, ea, eb   edges (ea[k], eb[k]); self-loops and edges with w[k] not finite or <= 0 are
+ *               ignored; parallel edges are allowed
+ *   w           edge weights (NULL: all 1). Heavier edges pull harder (shorter edges). The
+ *               weights used are divided by their mean, so the picture does not depend on the
+ *               measure's scale
+ *   seed        seeds igraph's generator right before the layout (same seed, same picture)
+ *   iterations  <= 0: PM_LAYOUT_ITERATIONS
+ *   xy          out, 2n doubles (x of vertex i at xy[2i], y at xy[2i+1]). Vertices with at least
+ *               one usable edge fill the unit box [0,1]^2 (scaled by one factor on both axes,
+ *               centred on the shorter one); the others ("isolated") sit on a ring of radius
+ *               PM_LAYOUT_RING_RADIUS around (0.5, 0.5), outside the box, evenly spaced in
+ *               vertex order starting at the top, going clockwise on screen (y grows downward)
+ * Only the vertices with edges are laid out by igraph (its grid variant, used above 1000
+ * vertices, would let isolated vertices drift far away). Cost O(iterations * n'^2) up to 1000
+ * laid-out vertices, O(iterations * n') beyond.
+ * Errors: PM_EINTERNAL (an edge names a vertex >= n; igraph failure, with igraph's text),
+ * PM_ENOMEM. On error xy is left unspecified. */
+#define PM_LAYOUT_RING_RADIUS 0.8
+pm_err_t pm_layout_fr(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb, const double *w,
+                      uint64_t seed, int iterations, double *xy, pm_diag_t *diag);
+
+/* ---- clustering -------------------------------------------------------------------------- */
+
+/* Louvain options. */
+typedef struct {
+    double resolution; /* >= 0, default 1 */
+    uint64_t seed;     /* default 1 */
+    unsigned restarts; /* runs, >= 1, default 10 */
+    /* Optional, per vertex: names break ties between clusters of equal size and between
+     * members of equal strength (by bytes; NULL: by vertex index); share is the second key
+     * for a cluster's leading members (NULL: none). */
+    const char *const *names;
+    const double *share;
+} pm_cluster_opts_t;
+
+void pm_cluster_opts_init(pm_cluster_opts_t *o);
+
+/* Seed of restart r: seed + r * PM_CLUSTER_SEED_STEP (mod 2^64). The step is a large odd
+ * constant (2^64 / golden ratio), so the restarts' seeds are far apart and distinct. */
+#define PM_CLUSTER_SEED_STEP UINT64_C(0x9E3779B97F4A7C15)
+
+/* Clusters, renumbered 1 .. n_clusters by size (1 = largest; ties by the name of the leading
+ * member). A vertex with no usable edge is a cluster of its own (a singleton). */
+typedef struct {
+    size_t n;          /* vertices */
+    uint32_t *cluster; /* [n] 1-based cluster of each vertex */
+    size_t n_clusters;
+    size_t *size;        /* [n_clusters] size of cluster c+1 */
+    uint32_t *members;   /* [n] vertices grouped by cluster, leading member first: by
+                          * inner strength, then share, then name */
+    size_t *first;       /* [n_clusters + 1] members of cluster c+1 are
+                          * members[first[c] .. first[c+1]) */
+    double *strength;    /* [n] sum of the vertex's usable edge weights (all clusters) */
+    double *inner;       /* [n] the same over edges within the vertex's own cluster */
+    size_t n_used_edges; /* edges that took part */
+    size_t n_singletons; /* clusters of one vertex */
+    double modularity;   /* of the kept partition (igraph_modularity, same weights and
+                          * resolution); NaN when no edge took part */
+    double stability;    /* mean adjusted Rand index over all pairs of restarts; NaN with
+                          * one restart */
+    unsigned restarts;
+    unsigned best_restart; /* index of the kept run (highest modularity, ties: lowest) */
+    double *restart_q;     /* [restarts] modularity of each run */
+} pm_clusters_t;
+
+/* Louvain (igraph_community_multilevel) with weights w (see the note at the top on unusable
+ * edges), o->restarts runs from seeds derived from o->seed, the best modularity kept. Vertices
+ * are taken in the order given (give them in canonical order for reproducible results).
+ * *out owns the result (pm_clusters_free). Errors: PM_EUSAGE (resolution < 0, restarts 0),
+ * PM_EINTERNAL (bad vertex id, igraph failure), PM_ENOMEM. Cost: restarts Louvain runs
+ * (about O(m log n) each) plus O(restarts^2 n) for the stability. */
+pm_err_t pm_cluster_louvain(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
+                            const double *w, const pm_cluster_opts_t *o, pm_clusters_t **out,
+                            pm_diag_t *diag);
+void pm_clusters_free(pm_clusters_t *c);
+
+/* Adjusted Rand index (Hubert & Arabie 1985) of two partitions of n elements given as
+ * labels (any values); computed from the contingency table. 1 for identical partitions;
+ * defined as 1 when both partitions are trivial in the same way (all one cluster, or all
+ * singletons). Errors: PM_ENOMEM. */
+pm_err_t pm_adjusted_rand(size_t n, const uint32_t *x, const uint32_t *y, double *ari,
+                          pm_diag_t *diag);
+
+/* Modularity (Newman 2004, with resolution gamma) of a partition with weights w; unusable
+ * edges are left out as above. NaN when no edge has positive weight. Uses igraph_modularity. */
+pm_err_t pm_modularity(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb, const double *w,
+                       const uint32_t *membership, double resolution, double *q, pm_diag_t *diag);
 
 #ifdef __cplusplus
 }

@@ -31,6 +31,12 @@ typedef struct {
     const char *const *cluster_name; /* cluster c (1-based) is cluster_name[c - 1] */
     uint64_t respondents;
     const char *thresholds; /* e.g. "min count 5, q <= 0.05, phi > 0", for the subtitle */
+    /* Optional (NULL when not given; a zeroed struct gets the defaults): */
+    const char *measure;           /* name of the edge measure for the legend, e.g. "phi";
+                                    * NULL: "edge weight" */
+    const unsigned char *negative; /* per edge, nonzero = a negative (substitute) pair; NULL:
+                                    * weight[k] < 0. Needed when the measure is lift, which
+                                    * stays positive for substitutes */
 } pm_svg_data_t;
 
 typedef struct {
@@ -50,8 +56,10 @@ typedef struct {
 
 void pm_svg_opts_init(pm_svg_opts_t *o);
 
-/* Writes the SVG to fp. Deterministic for the same data and options. Errors: PM_EIO (stream),
- * PM_ENOMEM, PM_EINTERNAL (layout). */
+/* Writes the SVG to fp. Deterministic for the same data and options. Draws at most o->draw
+ * items (fewer when their labels cannot all fit without overlap); stats says how many were
+ * drawn and left out. Errors: PM_EUSAGE (canvas below 400x300 or above 20000 px), PM_EIO
+ * (stream), PM_ENOMEM, PM_EINTERNAL (layout; data that breaks the invariants above). */
 pm_err_t pm_svg_write(FILE *fp, const pm_svg_data_t *d, const pm_svg_opts_t *o,
                       pm_svg_stats_t *stats, pm_diag_t *diag);
 

@@ -143,9 +143,13 @@ int pm_cli_usage_error(const pm_cli_t *c, const char *fmt, ...) {
     va_start(ap, fmt);
     fputs("pairmap: ", stderr);
     vfprintf(stderr, fmt, ap);
-    fputc('\n', stderr);
     va_end(ap);
-    fprintf(stderr, "pairmap: see 'pairmap %s --help'\n", c && c->command ? c->command : "");
+    /* one line: what is wrong, then where to look (issue 6) */
+    if (c && c->command) {
+        fprintf(stderr, "; see 'pairmap %s --help'\n", c->command);
+    } else {
+        fputs("; see 'pairmap --help'\n", stderr);
+    }
     return 1;
 }
 
@@ -273,12 +277,15 @@ int pm_cli_uint(const pm_cli_t *c, const char *name, uint64_t dflt, uint64_t min
     }
     char *end;
     errno = 0;
-    if (v[0] == '-' || v[0] == '\0') {
-        return pm_cli_usage_error(c, "--%s expects a whole number from %llu to %llu, got '%s'",
-                                  name, (unsigned long long)min, (unsigned long long)max, v);
+    unsigned long long x = 0;
+    if (v[0] != '-' && v[0] != '\0') {
+        x = strtoull(v, &end, 10);
     }
-    unsigned long long x = strtoull(v, &end, 10);
-    if (*end || errno || x < min || x > max) {
+    if (v[0] == '-' || v[0] == '\0' || *end || errno || x < min || x > max) {
+        if (max >= SIZE_MAX) { /* no real upper bound: do not print 2^64 - 1 */
+            return pm_cli_usage_error(c, "--%s expects a whole number >= %llu, got '%s'", name,
+                                      (unsigned long long)min, v);
+        }
         return pm_cli_usage_error(c, "--%s expects a whole number from %llu to %llu, got '%s'",
                                   name, (unsigned long long)min, (unsigned long long)max, v);
     }
@@ -297,6 +304,9 @@ int pm_cli_double(const pm_cli_t *c, const char *name, double dflt, double min, 
     errno = 0;
     double x = strtod(v, &end);
     if (*v == '\0' || *end || errno || !isfinite(x) || x < min || x > max) {
+        if (max >= 1e300) { /* no real upper bound */
+            return pm_cli_usage_error(c, "--%s expects a number >= %g, got '%s'", name, min, v);
+        }
         return pm_cli_usage_error(c, "--%s expects a number from %g to %g, got '%s'", name, min,
                                   max, v);
     }

@@ -67,7 +67,7 @@ int pm_cli_select_opts(const pm_cli_t *c, pm_select_opts_t *o);
 /* --threads (0 = all cores). */
 int pm_cli_threads(const pm_cli_t *c, unsigned *threads);
 
-/* Reports a usage error: "pairmap: <msg>" plus a hint line. Returns 1. */
+/* Reports a usage error on one line: "pairmap: <msg>; see 'pairmap CMD --help'". Returns 1. */
 int pm_cli_usage_error(const pm_cli_t *c, const char *fmt, ...)
 #if defined(__GNUC__)
     __attribute__((format(printf, 2, 3)))

@@ -1,11 +1,699 @@
-/* pairmap map (in progress). */
-#include <stdio.h>
+/* pairmap map: the whole job. Reads, counts, scores and selects pairs, clusters the items
+ * (Louvain with restarts), lays them out (Fruchterman-Reingold) and writes DIR/map.graphml,
+ * map.svg, edges.csv, nodes.csv and run.json atomically; a summary goes to stdout. */
+#include <math.h>
+#include <stdbool.h>
+#include <signal.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+#include <unistd.h>
 
 #include "cli.h"
+#include "pairmap/mapwrite.h"
+#include "pairmap/network.h"
+#include "pairmap/outfile.h"
+#include "pairmap/svgmap.h"
+#include "pairmap/write.h"
+
+static const char help[] =
+    "Usage: pairmap map INPUT -o DIR [options]\n"
+    "\n"
+    "The whole job: pairs that hold up become edges, Louvain clusters the items, a\n"
+    "Fruchterman-Reingold layout places them, and DIR receives\n"
+    "  map.graphml  GraphML 1.0 for graph viewers (node data name, category, respondents,\n"
+    "               share, cluster, x, y; edge data together, phi, lift, jaccard, q_value,\n"
+    "               weight)\n"
+    "  map.svg      the picture, for a report\n"
+    "  edges.csv    the kept pairs, columns as `pairmap pairs`\n"
+    "  nodes.csv    " PM_NODES_HEADER "\n"
+    "               (one row per eligible item; rows by cluster, then share descending,\n"
+    "               then name; x, y in the unit box, items without edges on a ring outside)\n"
+    "  run.json     version, options, input size and SHA-256, counts, pairs removed by each\n"
+    "               threshold, clusters, modularity, stability, and seconds per stage under\n"
+    "               \"timings\" (the one part that differs between identical runs)\n"
+    "A summary goes to standard output. DIR is created if missing. Every file is written to a\n"
+    "temporary file in DIR first and all are renamed into place only when all are complete:\n"
+    "a failed or interrupted run leaves the files already in DIR untouched.\n"
+    "\n"
+    "Network:\n"
+    "  -o, --output DIR      output directory (required)\n"
+    "  --seed N              seed of the clustering and the layout (default 1)\n"
+    "  --restarts R          Louvain runs (default 10); run r uses seed + r * 0x9E3779B97F4A7C15\n"
+    "                        (mod 2^64). The run with the highest modularity is kept (ties: the\n"
+    "                        first); stability is the mean adjusted Rand index between the\n"
+    "                        runs' partitions (1 = every run found the same clusters)\n"
+    "  --resolution F        Louvain resolution (default 1; higher gives more, smaller clusters)\n"
+    "  --iterations N        Fruchterman-Reingold iterations (default 500)\n"
+    "  --title TEXT          title of the picture (also stored in the GraphML)\n"
+    "  --draw N              how many items the SVG draws (default: as many as fit); the\n"
+    "                        GraphML and CSV files keep all\n"
+    "  --width PX, --height PX   size of the SVG canvas\n"
+    "  --color-by cluster|category   fill of the SVG's items (default cluster)\n"
+    "Edges are weighted by --measure. Only edges with phi > 0 take part in clustering and\n"
+    "layout (both need positive weights): under --sign negative or both, the negative edges\n"
+    "are written to the files but take no part in clustering or layout. An item with no such\n"
+    "edge is a cluster of its own (a singleton) and sits on a ring outside the layout's box.\n"
+    "Clusters are numbered by size (1 = largest) and named by their leading members (most\n"
+    "weight on edges inside the cluster, then share). Same input, options and seed: the same\n"
+    "files, byte for byte, for any row order of the input and any --threads.\n"
+    "\n";
+
+/* ---- interruption ------------------------------------------------------------------------ */
+static void on_signal(int sig) {
+    pm_outdir_remove_temporaries();
+    static const char msg[] = "\npairmap: interrupted; no output file was replaced\n";
+    ssize_t w = write(STDERR_FILENO, msg, sizeof msg - 1);
+    (void)w;
+    _exit(130); /* DESIGN.md: 130 interrupted, for SIGTERM as for SIGINT */
+}
+
+static void catch_signals(void) {
+    struct sigaction sa;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_signal;
+    sigemptyset(&sa.sa_mask);
+    sigaction(SIGINT, &sa, NULL);
+    sigaction(SIGTERM, &sa, NULL);
+}
+
+static double now_s(void) {
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + (double)ts.tv_nsec * 1e-9;
+}
+
+/* ---- the run ------------------------------------------------------------------------------ */
+typedef struct {
+    uint64_t seed, restarts, iterations, draw, width, height;
+    double resolution;
+    const char *dir, *title;
+    int color_by;
+} net_opts;
+
+#define LEADING 3 /* members that name a cluster */
+
+typedef struct {
+    pm_table_t *t;
+    pm_incidence_t *inc;
+    pm_pairs_t *pp;
+    pm_edges_t *e;
+    pm_clusters_t *cl;
+    pm_outdir_t *od;
+    size_t n;
+    uint32_t *item, *vof, *ea, *eb, *degree;
+    double *wuse, *share, *xy;
+    unsigned char *negative; /* [edges] phi < 0 */
+    const char **names;
+    char **cluster_name;
+    int *cluster_int;
+    size_t n_negative;
+    double t_read, t_count, t_measures, t_graph, t_write;
+    pm_svg_stats_t svg;
+} run_state;
+
+static void state_free(run_state *s) {
+    if (s->cluster_name) {
+        for (size_t i = 0; s->cl && i < s->cl->n_clusters; i++) {
+            free(s->cluster_name[i]);
+        }
+    }
+    free(s->cluster_name);
+    free(s->cluster_int);
+    free(s->item);
+    free(s->vof);
+    free(s->ea);
+    free(s->eb);
+    free(s->degree);
+    free(s->wuse);
+    free(s->negative);
+    free(s->share);
+    free(s->xy);
+    free(s->names);
+    pm_clusters_free(s->cl);
+    pm_outdir_free(s->od);
+    pm_edges_free(s->e);
+    pm_pairs_free(s->pp);
+    pm_incidence_free(s->inc);
+    pm_table_free(s->t);
+}
+
+static int oom(void) {
+    fputs("pairmap: out of memory\n", stderr);
+    return 4;
+}
+
+/* "A · B · C": the cluster's leading members. */
+static char *cluster_label(const run_state *s, size_t c) {
+    const pm_clusters_t *cl = s->cl;
+    size_t k = cl->first[c + 1] - cl->first[c], len = 1;
+    if (k > LEADING) {
+        k = LEADING;
+    }
+    for (size_t j = 0; j < k; j++) {
+        len += strlen(s->names[cl->members[cl->first[c] + j]]) + 4;
+    }
+    char *out = malloc(len);
+    if (!out) {
+        return NULL;
+    }
+    out[0] = '\0';
+    for (size_t j = 0; j < k; j++) {
+        if (j) {
+            strcat(out, " \xc2\xb7 ");
+        }
+        strcat(out, s->names[cl->members[cl->first[c] + j]]);
+    }
+    return out;
+}
+
+static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_opts_t *sel,
+                         run_state *s) {
+    const pm_pairs_t *pp = s->pp;
+    const pm_incidence_t *inc = s->inc;
+    size_t ni = inc->n_items, m = s->e->n;
+    s->n = pp->n_eligible;
+    s->item = malloc((s->n ? s->n : 1) * sizeof *s->item);
+    s->vof = malloc((ni ? ni : 1) * sizeof *s->vof);
+    s->names = malloc((s->n ? s->n : 1) * sizeof *s->names);
+    s->share = malloc((s->n ? s->n : 1) * sizeof *s->share);
+    s->degree = calloc(s->n ? s->n : 1, sizeof *s->degree);
+    s->xy = malloc((s->n ? s->n : 1) * 2 * sizeof *s->xy);
+    s->ea = malloc((m ? m : 1) * sizeof *s->ea);
+    s->eb = malloc((m ? m : 1) * sizeof *s->eb);
+    s->wuse = malloc((m ? m : 1) * sizeof *s->wuse);
+    s->negative = calloc(m ? m : 1, 1);
+    if (!s->item || !s->vof || !s->names || !s->share || !s->degree || !s->xy || !s->ea || !s->eb ||
+        !s->wuse || !s->negative) {
+        return oom();
+    }
+    size_t v = 0;
+    for (size_t i = 0; i < ni; i++) {
+        s->vof[i] = UINT32_MAX;
+        if (pp->eligible[i]) {
+            s->item[v] = (uint32_t)i;
+            s->names[v] = inc->name[i];
+            s->share[v] = pm_incidence_share(inc, i);
+            s->vof[i] = (uint32_t)v++;
+        }
+    }
+    for (size_t k = 0; k < m; k++) {
+        size_t idx = s->e->idx[k];
+        pm_measures_t ms;
+        pm_pairs_measures(pp, inc, idx, &ms);
+        s->ea[k] = s->vof[pp->a[idx]];
+        s->eb[k] = s->vof[pp->b[idx]];
+        s->degree[s->ea[k]]++;
+        s->degree[s->eb[k]]++;
+        double w = s->e->weight[k];
+        s->negative[k] = ms.phi < 0;
+        if (ms.phi > 0 && isfinite(w) && w > 0) {
+            s->wuse[k] = w;
+        } else {
+            s->wuse[k] = 0; /* negative association: in the files, not in clusters or layout */
+            s->n_negative++;
+        }
+    }
+    (void)sel;
+    pm_cluster_opts_t co;
+    pm_cluster_opts_init(&co);
+    co.resolution = no->resolution;
+    co.seed = no->seed;
+    co.restarts = (unsigned)no->restarts;
+    co.names = s->names;
+    co.share = s->share;
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    if (pm_cluster_louvain(s->n, m, s->ea, s->eb, s->wuse, &co, &s->cl, &d)) {
+        return pm_cli_fail(&d);
+    }
+    if (pm_layout_fr(s->n, m, s->ea, s->eb, s->wuse, no->seed, (int)no->iterations, s->xy, &d)) {
+        return pm_cli_fail(&d);
+    }
+    s->cluster_name = calloc(s->cl->n_clusters ? s->cl->n_clusters : 1, sizeof *s->cluster_name);
+    s->cluster_int = malloc((s->n ? s->n : 1) * sizeof *s->cluster_int);
+    if (!s->cluster_name || !s->cluster_int) {
+        return oom();
+    }
+    for (size_t k = 0; k < s->cl->n_clusters; k++) {
+        if (!(s->cluster_name[k] = cluster_label(s, k))) {
+            return oom();
+        }
+    }
+    for (size_t k = 0; k < s->n; k++) {
+        s->cluster_int[k] = (int)s->cl->cluster[k];
+    }
+    (void)c;
+    return 0;
+}
+
+/* ---- run.json ------------------------------------------------------------------------------ */
+static void json_options(pm_json_t *j, const pm_cli_t *c) {
+    pm_json_begin_object(j, "options");
+    for (size_t i = 0; i < c->nopts; i++) {
+        const char *name = c->opt[i].name;
+        if (c->opt[i].n > 1 || strcmp(name, "item") == 0 || strcmp(name, "drop-item") == 0 ||
+            strcmp(name, "columns") == 0 || strcmp(name, "drop-value") == 0 ||
+            strcmp(name, "skip-col") == 0) {
+            pm_json_begin_array(j, name);
+            for (size_t k = 0; k < c->opt[i].n; k++) {
+                pm_json_string(j, NULL, c->opt[i].vals[k]);
+            }
+            pm_json_end_array(j);
+        } else if (strcmp(name, "quiet") == 0 || strcmp(name, "no-header") == 0) {
+            pm_json_bool(j, name, true);
+        } else {
+            pm_json_string(j, name, c->opt[i].vals[0]);
+        }
+    }
+    pm_json_end_object(j);
+}
+
+static pm_err_t write_run_json(FILE *fp, const pm_cli_t *c, const net_opts *no,
+                               const pm_select_opts_t *sel, const run_state *s,
+                               const char *const *files, size_t nfiles, pm_diag_t *d) {
+    const pm_input_stats_t *st = pm_table_stats(s->t);
+    const pm_incidence_t *inc = s->inc;
+    const pm_pairs_t *pp = s->pp;
+    const pm_edges_t *e = s->e;
+    const pm_clusters_t *cl = s->cl;
+    pm_json_t j;
+    pm_json_init(&j, fp);
+    pm_json_begin_object(&j, NULL);
+    pm_json_string(&j, "pairmap", pm_version());
+    pm_json_string(&j, "command", "map");
+    pm_json_string(&j, "input", c->input);
+    json_options(&j, c);
+    pm_json_begin_object(&j, "settings");
+    static const char *const formats[] = {"long", "lines", "wide"};
+    pm_input_opts_t io;
+    pm_cli_input_opts(c, &io);
+    pm_json_string(&j, "format", formats[io.format]);
+    pm_json_bool(&j, "weighted", inc->wcount != NULL);
+    pm_json_uint(&j, "min_count", sel->min_count);
+    pm_json_number(&j, "min_share", sel->min_share);
+    pm_json_number(&j, "max_q", sel->max_q);
+    pm_json_number(&j, "min_phi", sel->min_phi);
+    pm_json_number(&j, "min_lift", sel->min_lift);
+    if (sel->top_edges) {
+        pm_json_uint(&j, "top_edges", sel->top_edges);
+    } else {
+        pm_json_null(&j, "top_edges");
+    }
+    pm_json_string(&j, "sign", pm_sign_name(sel->sign));
+    pm_json_string(&j, "measure", pm_measure_name(sel->measure));
+    pm_json_uint(&j, "seed", no->seed);
+    pm_json_uint(&j, "restarts", no->restarts);
+    pm_json_string(&j, "restart_seeds", "seed + r * 0x9E3779B97F4A7C15 (mod 2^64), r = 0..R-1");
+    pm_json_number(&j, "resolution", no->resolution);
+    pm_json_uint(&j, "iterations", no->iterations);
+    pm_json_end_object(&j);
+
+    pm_json_begin_object(&j, "input_file");
+    pm_json_string(&j, "name", pm_table_source(s->t));
+    pm_json_uint(&j, "bytes", st->bytes);
+    char hex[65];
+    for (int i = 0; i < 32; i++) {
+        snprintf(hex + 2 * i, 3, "%02x", st->sha256[i]);
+    }
+    pm_json_string(&j, "sha256", hex);
+    pm_json_end_object(&j);
+
+    pm_json_begin_object(&j, "counts");
+    pm_json_uint(&j, "lines", st->lines);
+    pm_json_uint(&j, "records", st->records);
+    pm_json_uint(&j, "rows_read", st->rows);
+    pm_json_uint(&j, "rows_without_item", st->empty_items);
+    pm_json_uint(&j, "rows_merged", st->merged_rows);
+    pm_json_uint(&j, "merge_entries", st->merge_entries);
+    pm_json_uint(&j, "rows_dropped", st->dropped_rows);
+    pm_json_uint(&j, "duplicate_rows", inc->duplicates);
+    pm_json_uint(&j, "respondents_seen", st->respondents);
+    pm_json_uint(&j, "respondents_left_out", st->blank_excluded);
+    pm_json_uint(&j, "respondents", inc->N);
+    pm_json_uint(&j, "respondents_one_item", inc->single_item);
+    pm_json_uint(&j, "respondents_no_item", inc->no_item);
+    pm_json_uint(&j, "items", inc->n_items);
+    pm_json_uint(&j, "items_eligible", pp->n_eligible);
+    pm_json_uint(&j, "items_chosen_by_none", pp->excluded_none);
+    pm_json_uint(&j, "items_chosen_by_all", pp->excluded_all);
+    pm_json_uint(&j, "items_below_min_share", pp->excluded_share);
+    pm_json_end_object(&j);
+
+    pm_json_begin_object(&j, "pairs");
+    pm_json_uint(&j, "tested", e->tested);
+    pm_json_uint(&j, "seen_together", pp->seen);
+    pm_json_uint(&j, "never_seen", e->never_seen);
+    pm_json_uint(&j, "kept", e->n);
+    pm_json_begin_object(&j, "removed");
+    pm_json_uint(&j, "min_count", e->removed_count);
+    pm_json_uint(&j, "sign", e->removed_sign);
+    pm_json_uint(&j, "max_q", e->removed_q);
+    pm_json_uint(&j, "min_phi", e->removed_phi);
+    pm_json_uint(&j, "min_lift", e->removed_lift);
+    pm_json_uint(&j, "top_edges", e->removed_top);
+    pm_json_end_object(&j);
+    pm_json_uint(&j, "negative_not_clustered", s->n_negative);
+    pm_json_end_object(&j);
+
+    pm_json_begin_object(&j, "network");
+    pm_json_uint(&j, "vertices", s->n);
+    pm_json_uint(&j, "edges", e->n);
+    pm_json_uint(&j, "edges_clustered", cl->n_used_edges);
+    pm_json_uint(&j, "clusters", cl->n_clusters);
+    pm_json_uint(&j, "singletons", cl->n_singletons);
+    pm_json_number(&j, "modularity", cl->modularity);
+    pm_json_number(&j, "stability", cl->stability);
+    pm_json_uint(&j, "best_restart", cl->best_restart);
+    pm_json_begin_array(&j, "restart_modularity");
+    for (unsigned r = 0; r < cl->restarts; r++) {
+        pm_json_number(&j, NULL, cl->restart_q[r]);
+    }
+    pm_json_end_array(&j);
+    pm_json_end_object(&j);
+
+    pm_json_begin_array(&j, "clusters");
+    for (size_t k = 0; k < cl->n_clusters; k++) {
+        pm_json_begin_object(&j, NULL);
+        pm_json_uint(&j, "cluster", k + 1);
+        pm_json_uint(&j, "size", cl->size[k]);
+        pm_json_string(&j, "name", s->cluster_name[k]);
+        pm_json_begin_array(&j, "members");
+        for (size_t t = cl->first[k]; t < cl->first[k + 1]; t++) {
+            pm_json_string(&j, NULL, s->names[cl->members[t]]);
+        }
+        pm_json_end_array(&j);
+        pm_json_end_object(&j);
+    }
+    pm_json_end_array(&j);
+
+    pm_json_begin_object(&j, "svg");
+    pm_json_uint(&j, "items_drawn", s->svg.drawn);
+    pm_json_uint(&j, "items_left_out", s->svg.left_out);
+    pm_json_uint(&j, "edges_drawn", s->svg.edges_drawn);
+    pm_json_end_object(&j);
+
+    pm_json_begin_array(&j, "files");
+    for (size_t k = 0; k < nfiles; k++) {
+        pm_json_string(&j, NULL, files[k]);
+    }
+    pm_json_end_array(&j);
+
+    /* last, and the one part that varies between identical runs */
+    pm_json_begin_object(&j, "timings");
+    pm_json_number(&j, "read", s->t_read);
+    pm_json_number(&j, "count", s->t_count);
+    pm_json_number(&j, "measures", s->t_measures);
+    pm_json_number(&j, "graph", s->t_graph);
+    pm_json_number(&j, "write", s->t_write);
+    pm_json_end_object(&j);
+    pm_json_end_object(&j);
+    return pm_json_finish(&j, d);
+}
+
+/* ---- files ----------------------------------------------------------------------------------- */
+static void thresholds_text(char *buf, size_t size, const pm_select_opts_t *sel) {
+    int n = snprintf(buf, size, "together >= %u, q <= %g, %s associations", sel->min_count,
+                     sel->max_q, pm_sign_name(sel->sign));
+    if (sel->min_phi > 0 && n > 0 && (size_t)n < size) {
+        n += snprintf(buf + n, size - (size_t)n, ", |phi| >= %g", sel->min_phi);
+    }
+    if (sel->min_lift > 0 && n > 0 && (size_t)n < size) {
+        n += snprintf(buf + n, size - (size_t)n, ", lift >= %g", sel->min_lift);
+    }
+    if (sel->top_edges && n > 0 && (size_t)n < size) {
+        snprintf(buf + n, size - (size_t)n, ", top %zu edges", sel->top_edges);
+    }
+}
+
+static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_opts_t *sel,
+                       run_state *s) {
+    static const char *const files[] = {"map.graphml", "map.svg", "edges.csv", "nodes.csv",
+                                        "run.json"};
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    double t0 = now_s();
+    pm_map_t map = {
+        .inc = s->inc,
+        .pairs = s->pp,
+        .edges = s->e,
+        .measure = sel->measure,
+        .n = s->n,
+        .item = s->item,
+        .clusters = s->cl,
+        .degree = s->degree,
+        .xy = s->xy,
+        .ea = s->ea,
+        .eb = s->eb,
+        .title = no->title,
+    };
+    const char **cats = malloc((s->n ? s->n : 1) * sizeof *cats);
+    if (!cats) {
+        return oom();
+    }
+    for (size_t v = 0; v < s->n; v++) {
+        cats[v] = s->inc->category[s->item[v]];
+    }
+    char thr[256];
+    thresholds_text(thr, sizeof thr, sel);
+    pm_svg_data_t sd = {
+        .n_nodes = s->n,
+        .name = s->names,
+        .category = cats,
+        .share = s->share,
+        .cluster = s->cluster_int,
+        .strength = s->cl->strength,
+        .n_edges = s->e->n,
+        .ea = s->ea,
+        .eb = s->eb,
+        .weight = s->e->weight,
+        .n_clusters = s->cl->n_clusters,
+        .cluster_name = (const char *const *)s->cluster_name,
+        .respondents = s->inc->N,
+        .thresholds = thr,
+        .measure = pm_measure_name(sel->measure),
+        .negative = s->negative,
+    };
+    pm_svg_opts_t so;
+    pm_svg_opts_init(&so);
+    so.title = no->title;
+    so.width = (int)no->width;
+    so.height = (int)no->height;
+    so.draw = (size_t)no->draw;
+    so.color_by_category = no->color_by == 1;
+    so.seed = no->seed;
+    so.iterations = (int)no->iterations;
+    pm_err_t rc = PM_OK;
+    for (size_t k = 0; k < 4 && !rc; k++) {
+        FILE *fp;
+        rc = pm_outdir_create(s->od, files[k], &fp, &d);
+        if (rc) {
+            break;
+        }
+        switch (k) {
+        case 0:
+            rc = pm_write_graphml(fp, &map, &d);
+            break;
+        case 1:
+            rc = pm_svg_write(fp, &sd, &so, &s->svg, &d);
+            break;
+        case 2:
+            rc = pm_write_edges_csv(fp, s->pp, s->inc, s->e, &d);
+            break;
+        default:
+            rc = pm_write_nodes_csv(fp, &map, &d);
+            break;
+        }
+        pm_err_t rc2 = pm_outdir_finish(s->od, fp, rc ? NULL : &d);
+        if (!rc) {
+            rc = rc2;
+        }
+    }
+    free(cats);
+    if (rc) {
+        if (d.code == PM_EIO && !d.file[0]) {
+            snprintf(d.file, sizeof d.file, "%s", no->dir);
+        }
+        return pm_cli_fail(&d);
+    }
+    s->t_write = now_s() - t0;
+    FILE *fp;
+    rc = pm_outdir_create(s->od, files[4], &fp, &d);
+    if (!rc) {
+        rc = write_run_json(fp, c, no, sel, s, files, 5, &d);
+        pm_err_t rc2 = pm_outdir_finish(s->od, fp, rc ? NULL : &d);
+        if (!rc) {
+            rc = rc2;
+        }
+    }
+    if (!rc) {
+        rc = pm_outdir_commit(s->od, &d);
+    }
+    return rc ? pm_cli_fail(&d) : 0;
+}
+
+/* ---- summary --------------------------------------------------------------------------------- */
+static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_state *s) {
+    const pm_edges_t *e = s->e;
+    const pm_pairs_t *pp = s->pp;
+    const pm_clusters_t *cl = s->cl;
+    printf("respondents   %llu\n", (unsigned long long)s->inc->N);
+    printf("items         %zu eligible", pp->n_eligible);
+    if (pp->n_eligible != s->inc->n_items) {
+        printf(" of %zu (left out: %zu chosen by nobody, %zu by everyone, %zu below "
+               "--min-share)",
+               s->inc->n_items, pp->excluded_none, pp->excluded_all, pp->excluded_share);
+    }
+    printf("\npairs tested  %llu (%llu seen together)\n", (unsigned long long)e->tested,
+           (unsigned long long)pp->seen);
+    /* never-seen pairs are listed (and go through the thresholds) only under --min-count 0
+     * with --sign negative or both; otherwise they are a reason of their own */
+    bool unseen_apart = e->never_seen && !(sel->min_count == 0 && sel->sign != PM_SIGN_POSITIVE);
+    printf("pairs kept    %zu (removed:", e->n);
+    const char *sep = " ";
+    if (unseen_apart) {
+        printf("%s%llu never seen together", sep, (unsigned long long)e->never_seen);
+        sep = ", ";
+    }
+    if (sel->min_count > 0) {
+        printf("%s%llu seen together fewer than %u times", sep,
+               (unsigned long long)e->removed_count, sel->min_count);
+        sep = ", ";
+    }
+    if (sel->sign != PM_SIGN_BOTH) {
+        printf("%s%llu not %s", sep, (unsigned long long)e->removed_sign, pm_sign_name(sel->sign));
+        sep = ", ";
+    }
+    printf("%s%llu with q > %g", sep, (unsigned long long)e->removed_q, sel->max_q);
+    if (sel->min_phi > 0) {
+        printf(", %llu with |phi| < %g", (unsigned long long)e->removed_phi, sel->min_phi);
+    }
+    if (sel->min_lift > 0) {
+        printf(", %llu with lift < %g", (unsigned long long)e->removed_lift, sel->min_lift);
+    }
+    if (sel->top_edges) {
+        printf(", %llu beyond the top %zu", (unsigned long long)e->removed_top, sel->top_edges);
+    }
+    printf(")\n");
+    if (s->n_negative) {
+        printf("              %zu negative edges are in the files but take no part in "
+               "clusters or layout\n",
+               s->n_negative);
+    }
+    size_t multi = cl->n_clusters - cl->n_singletons;
+    printf("clusters      %zu", cl->n_clusters);
+    if (cl->n_singletons) {
+        printf(" (%zu of one item: items without a positive kept edge)", cl->n_singletons);
+    }
+    printf("\n");
+    size_t shown = 0;
+    for (size_t k = 0; k < cl->n_clusters && shown < 30; k++) {
+        if (cl->size[k] < 2 && multi > 0) {
+            continue;
+        }
+        printf("  %4zu  %5zu items  %s\n", k + 1, cl->size[k], s->cluster_name[k]);
+        shown++;
+    }
+    if (multi > shown) {
+        printf("        ... %zu more clusters in nodes.csv and run.json\n", multi - shown);
+    }
+    if (isnan(cl->modularity)) {
+        printf("modularity    n/a (no edge to cluster)\n");
+    } else {
+        printf("modularity    %.12g (best of %llu Louvain runs, run %u; resolution %g, weight "
+               "%s)\n",
+               cl->modularity, (unsigned long long)no->restarts, cl->best_restart, no->resolution,
+               pm_measure_name(sel->measure));
+    }
+    if (isnan(cl->stability)) {
+        printf("stability     n/a (%s)\n",
+               cl->n_used_edges == 0 ? "no edge to cluster" : "one run; use --restarts 2 or more");
+    } else {
+        printf("stability     %.4f (mean adjusted Rand index between the %llu runs' "
+               "partitions; 1 = all agree)\n",
+               cl->stability, (unsigned long long)no->restarts);
+    }
+    printf("written       %s/: map.graphml, map.svg, edges.csv, nodes.csv, run.json\n", no->dir);
+}
+
+/* ---- command ----------------------------------------------------------------------------------
+ */
+static int net_options(const pm_cli_t *c, net_opts *no) {
+    memset(no, 0, sizeof *no);
+    no->dir = pm_cli_get(c, "output");
+    if (!no->dir || !no->dir[0]) {
+        return pm_cli_usage_error(c, "'pairmap map' needs -o DIR (the output directory)");
+    }
+    no->title = pm_cli_get(c, "title");
+    static const char *const colors[] = {"cluster", "category", NULL};
+    if (pm_cli_uint(c, "seed", 1, 0, UINT64_MAX, &no->seed) ||
+        pm_cli_uint(c, "restarts", 10, 1, 10000, &no->restarts) ||
+        pm_cli_double(c, "resolution", 1.0, 0, 1e6, &no->resolution) ||
+        pm_cli_uint(c, "iterations", PM_LAYOUT_ITERATIONS, 1, 1000000, &no->iterations) ||
+        pm_cli_uint(c, "draw", 0, 1, 100000, &no->draw) ||
+        pm_cli_uint(c, "width", 0, 100, 20000, &no->width) ||
+        pm_cli_uint(c, "height", 0, 100, 20000, &no->height) ||
+        pm_cli_choice(c, "color-by", colors, 0, &no->color_by)) {
+        return 1;
+    }
+    return 0;
+}
 
 int pm_cmd_map(int argc, char **argv) {
-    (void)argc;
-    (void)argv;
-    fputs("pairmap: 'map' is not available yet\n", stderr);
-    return 1;
+    pm_cli_t c;
+    static char full[16384];
+    snprintf(full, sizeof full, "%s%s\n%s", help, pm_cli_input_help, pm_cli_select_help);
+    int rc = pm_cli_parse(&c, "map", PM_CMD_MAP, argc, argv, full);
+    if (rc) {
+        return rc < 0 ? pm_cli_close_stdout() : rc;
+    }
+    pm_select_opts_t sel;
+    net_opts no;
+    unsigned th;
+    if (pm_cli_select_opts(&c, &sel) || net_options(&c, &no) || pm_cli_threads(&c, &th)) {
+        return 1;
+    }
+    pm_input_opts_t io;
+    if (pm_cli_input_opts(&c, &io)) {
+        return 1;
+    }
+    run_state s;
+    memset(&s, 0, sizeof s);
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    catch_signals();
+    /* the directory first: a run that cannot write should fail before the work */
+    if (pm_outdir_open(no.dir, &s.od, &d)) {
+        return pm_cli_fail(&d);
+    }
+    rc = pm_cli_load(&c, &s.t, &s.inc, &s.t_read);
+    if (rc) {
+        goto done;
+    }
+    rc = pm_cli_score(&c, s.inc, &sel, &s.pp);
+    if (rc) {
+        goto done;
+    }
+    double t0 = now_s();
+    if (pm_select_run(s.pp, s.inc, &sel, &s.e, &d)) {
+        rc = pm_cli_fail(&d);
+        goto done;
+    }
+    s.t_count = s.pp->t_count;
+    s.t_measures = s.pp->t_measures + (now_s() - t0);
+    t0 = now_s();
+    rc = build_network(&c, &no, &sel, &s);
+    if (rc) {
+        goto done;
+    }
+    s.t_graph = now_s() - t0;
+    rc = write_files(&c, &no, &sel, &s);
+    if (rc) {
+        goto done;
+    }
+    summary(&sel, &no, &s);
+    rc = pm_cli_close_stdout();
+done:
+    state_free(&s);
+    return rc;
 }

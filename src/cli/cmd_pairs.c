@@ -44,7 +44,11 @@ int pm_cmd_pairs(int argc, char **argv) {
     pm_diag_t d;
     pm_diag_clear(&d);
     if (pm_select_run(pp, inc, &sel, &e, &d) || pm_write_edges_csv(stdout, pp, inc, e, &d)) {
-        rc = pm_cli_fail(&d);
+        /* a failed write is reported as one on standard output (full disk, issue 6) */
+        rc = d.code == PM_EIO && ferror(stdout) ? pm_cli_close_stdout() : 0;
+        if (rc == 0) {
+            rc = pm_cli_fail(&d);
+        }
         goto done;
     }
     pm_cli_note(&c,

@@ -1,11 +1,479 @@
-/* pairmap partners (in progress). */
-#include <stdio.h>
+/* pairmap partners: the ranked partners of one item, or of a set of items (respondents who
+ * chose all of them), with confidence and its Jeffreys interval, lift, phi and q-value. */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
 
 #include "cli.h"
+#include "pairmap/write.h"
+
+static const char help[] =
+    "Usage: pairmap partners INPUT --item NAME [--item NAME ...] [options]\n"
+    "\n"
+    "Ranks the partners of an item: the items its respondents also chose. Columns\n"
+    "  partner     the other item\n"
+    "  together    respondents who chose both (weighted sum with --weight-col)\n"
+    "  expected    what chance alone would give: n(NAME) n(partner) / N\n"
+    "  confidence  share of NAME's respondents who also chose the partner, with its 95%\n"
+    "              Jeffreys interval (confidence_low, confidence_high)\n"
+    "  lift, phi, q_value   as in `pairmap pairs`\n"
+    "\n"
+    "  --item NAME           the item (exact name). Given several times: the partners of the\n"
+    "                        set, i.e. of the respondents who chose all of them. A set's\n"
+    "                        q-values come from Benjamini-Hochberg over its own tests (one per\n"
+    "                        eligible item outside the set, never-seen partners included);\n"
+    "                        one item's q-values are those of `pairmap pairs`, whose rows it\n"
+    "                        repeats\n"
+    "  --top K               show the K best partners (default 10; 0 = all)\n"
+    "  --by KEY              rank by phi (default), lift, confidence or together. With --sign\n"
+    "                        positive the largest come first; with --sign negative the\n"
+    "                        smallest (the items least often found with NAME: likely\n"
+    "                        substitutes); with --sign both the strongest in either\n"
+    "                        direction (|phi|, |log lift|). Ties: partner name\n"
+    "  --csv                 CSV on standard output, first column `partner`, numbers in full\n"
+    "                        precision. Without it: an aligned text table (also when the output\n"
+    "                        is not a terminal)\n"
+    "The selection options below apply as in `pairmap pairs` (--min-count, --max-q, --sign,\n"
+    "--min-phi, --min-lift, --min-share). A negative association is a hint, not proof:\n"
+    "items sold in different seasons or mutually exclusive answer options show it too.\n"
+    "An unknown NAME is an error (exit 2) that lists the closest item names.\n"
+    "\n";
+
+#define CSV_HEADER                                                                                 \
+    "partner,together,expected,confidence,confidence_low,confidence_high,lift,phi,q_value"
+
+enum { BY_PHI = 0, BY_LIFT = 1, BY_CONFIDENCE = 2, BY_TOGETHER = 3 };
+
+typedef struct {
+    uint32_t item;
+    double together, expected, conf, lo, hi, lift, phi, q;
+    double key;
+} row;
+
+/* ---- closest names ----------------------------------------------------------------------- */
+/* Levenshtein distance on bytes, two rows of the table (Wagner & Fischer 1974). */
+static size_t edit_distance(const char *a, const char *b, size_t *buf) {
+    size_t la = strlen(a), lb = strlen(b);
+    size_t *prev = buf, *cur = buf + lb + 1;
+    for (size_t j = 0; j <= lb; j++) {
+        prev[j] = j;
+    }
+    for (size_t i = 1; i <= la; i++) {
+        cur[0] = i;
+        for (size_t j = 1; j <= lb; j++) {
+            size_t sub = prev[j - 1] + (a[i - 1] != b[j - 1]);
+            size_t del = prev[j] + 1, ins = cur[j - 1] + 1;
+            cur[j] = sub < del ? (sub < ins ? sub : ins) : (del < ins ? del : ins);
+        }
+        size_t *t = prev;
+        prev = cur;
+        cur = t;
+    }
+    return prev[lb];
+}
+
+static int unknown_item(const pm_incidence_t *inc, const char *src, const char *name) {
+    size_t best[3] = {SIZE_MAX, SIZE_MAX, SIZE_MAX}, who[3] = {0, 0, 0};
+    size_t lb = strlen(name);
+    size_t *buf = malloc(2 * (lb + 1) * sizeof *buf);
+    if (!buf) {
+        fputs("pairmap: out of memory\n", stderr);
+        return 4;
+    }
+    for (size_t i = 0; i < inc->n_items; i++) {
+        size_t dist = edit_distance(inc->name[i], name, buf);
+        /* insertion into the top 3; names are in byte order, so ties keep byte order */
+        for (int k = 0; k < 3; k++) {
+            if (dist < best[k]) {
+                for (int t = 2; t > k; t--) {
+                    best[t] = best[t - 1];
+                    who[t] = who[t - 1];
+                }
+                best[k] = dist;
+                who[k] = i;
+                break;
+            }
+        }
+    }
+    free(buf);
+    fprintf(stderr, "pairmap: %s: no item '%s'", src, name);
+    for (int k = 0; k < 3 && best[k] != SIZE_MAX; k++) {
+        fprintf(stderr, "%s'%s'", k ? ", " : "; closest: ", inc->name[who[k]]);
+    }
+    fputc('\n', stderr);
+    return 2;
+}
+
+/* ---- ranking -------------------------------------------------------------------------------- */
+static const pm_incidence_t *g_rank_inc; /* qsort has no context; CLI, single-threaded */
+
+static int cmp_row(const void *p, const void *q) {
+    const row *a = p, *b = q;
+    if (a->key != b->key) {
+        return a->key > b->key ? -1 : 1; /* larger key first; NaN never arises (finite) */
+    }
+    return strcmp(/* C compares as unsigned char: byte order */
+                  g_rank_inc->name[a->item], g_rank_inc->name[b->item]);
+}
+
+static double rank_key(const row *r, int by, pm_sign_t sign) {
+    double v;
+    switch (by) {
+    case BY_LIFT:
+        v = sign == PM_SIGN_BOTH ? fabs(log(r->lift)) : r->lift;
+        break;
+    case BY_CONFIDENCE:
+        v = r->conf;
+        break;
+    case BY_TOGETHER:
+        v = r->together;
+        break;
+    default:
+        v = sign == PM_SIGN_BOTH ? fabs(r->phi) : r->phi;
+    }
+    if (sign == PM_SIGN_NEGATIVE) {
+        v = -v; /* smallest first */
+    }
+    return isfinite(v) ? v : (v > 0 ? HUGE_VAL : -HUGE_VAL);
+}
+
+/* ---- output --------------------------------------------------------------------------------- */
+static size_t display_width(const char *s) {
+    size_t w = 0;
+    for (const unsigned char *p = (const unsigned char *)s; *p; p++) {
+        w += (*p & 0xC0) != 0x80; /* code points */
+    }
+    return w;
+}
+
+static void pad(size_t n) {
+    while (n-- > 0) {
+        fputc(' ', stdout);
+    }
+}
+
+static void print_text(const pm_incidence_t *inc, const row *r, size_t n, bool weighted) {
+    size_t w = strlen("partner");
+    for (size_t i = 0; i < n; i++) {
+        size_t d = display_width(inc->name[r[i].item]);
+        if (d > w) {
+            w = d;
+        }
+    }
+    fputs("partner", stdout);
+    pad(w - strlen("partner"));
+    printf("  %9s  %9s  %-24s  %7s  %7s  %9s\n", "together", "expected",
+           "confidence (95% interval)", "lift", "phi", "q_value");
+    for (size_t i = 0; i < n; i++) {
+        const char *name = inc->name[r[i].item];
+        fputs(name, stdout);
+        pad(w - display_width(name));
+        char conf[64];
+        snprintf(conf, sizeof conf, "%5.1f%% [%4.1f, %4.1f]", 100 * r[i].conf, 100 * r[i].lo,
+                 100 * r[i].hi);
+        if (weighted) {
+            printf("  %9.1f", r[i].together);
+        } else {
+            printf("  %9.0f", r[i].together);
+        }
+        printf("  %9.1f  %-24s  %7.2f  %7.3f  %9.2g\n", r[i].expected, conf, r[i].lift, r[i].phi,
+               r[i].q);
+    }
+}
+
+static void print_csv(const pm_incidence_t *inc, const row *r, size_t n) {
+    fputs(CSV_HEADER "\n", stdout);
+    for (size_t i = 0; i < n; i++) {
+        pm_write_csv_field(stdout, inc->name[r[i].item]);
+        const double v[8] = {r[i].together, r[i].expected, r[i].conf, r[i].lo,
+                             r[i].hi,       r[i].lift,     r[i].phi,  r[i].q};
+        for (int k = 0; k < 8; k++) {
+            fputc(',', stdout);
+            pm_write_number(stdout, v[k]);
+        }
+        fputc('\n', stdout);
+    }
+}
+
+/* ---- the anchor set ------------------------------------------------------------------------- */
+/* Respondents who chose every item of the set (in_set marks them, k of them): their count,
+ * weight and squared weight, and per other item the joint count and weight. */
+typedef struct {
+    uint64_t n;
+    double w, w2;
+    uint32_t *nb; /* [items] */
+    double *wb;   /* [items] */
+} anchor;
+
+static int anchor_scan(const pm_incidence_t *inc, const unsigned char *in_set, size_t k,
+                       anchor *an) {
+    memset(an, 0, sizeof *an);
+    an->nb = calloc(inc->n_items ? inc->n_items : 1, sizeof *an->nb);
+    an->wb = calloc(inc->n_items ? inc->n_items : 1, sizeof *an->wb);
+    if (!an->nb || !an->wb) {
+        return 1;
+    }
+    for (size_t r = 0; r < inc->n_resp; r++) {
+        size_t hit = 0;
+        for (uint64_t p = inc->row_ptr[r]; p < inc->row_ptr[r + 1]; p++) {
+            hit += in_set[inc->col[p]];
+        }
+        if (hit != k) {
+            continue;
+        }
+        double w = inc->weight ? inc->weight[r] : 1.0;
+        an->n++;
+        an->w += w;
+        an->w2 += w * w;
+        for (uint64_t p = inc->row_ptr[r]; p < inc->row_ptr[r + 1]; p++) {
+            uint32_t b = inc->col[p];
+            if (!in_set[b]) {
+                an->nb[b]++;
+                an->wb[b] += w;
+            }
+        }
+    }
+    return 0;
+}
+
+static void anchor_free(anchor *an) {
+    free(an->nb);
+    free(an->wb);
+}
+
+/* Confidence n_ab / n_a with its Jeffreys interval; weighted: on the anchor's effective size
+ * (Kish, over the respondents who chose the anchor). */
+static void confidence(const pm_incidence_t *inc, const anchor *an, uint32_t b, row *r) {
+    if (inc->weight) {
+        double neff = an->w2 > 0 ? an->w * an->w / an->w2 : 0;
+        r->conf = an->wb[b] / an->w;
+        pm_assoc_jeffreys(r->conf * neff, neff, 0.05, &r->lo, &r->hi);
+    } else {
+        r->conf = (double)an->nb[b] / (double)an->n;
+        pm_assoc_jeffreys((double)an->nb[b], (double)an->n, 0.05, &r->lo, &r->hi);
+    }
+}
+
+static bool passes(const pm_select_opts_t *sel, uint32_t nab, const pm_measures_t *m) {
+    if (nab < sel->min_count) {
+        return false;
+    }
+    if ((sel->sign == PM_SIGN_POSITIVE && !(m->phi > 0)) ||
+        (sel->sign == PM_SIGN_NEGATIVE && !(m->phi < 0))) {
+        return false;
+    }
+    if (!(m->q <= sel->max_q)) {
+        return false;
+    }
+    if (sel->min_phi > 0 && !(fabs(m->phi) >= sel->min_phi)) {
+        return false;
+    }
+    return !(sel->min_lift > 0 && !(m->lift >= sel->min_lift));
+}
+
+static bool eligible(const pm_incidence_t *inc, size_t i, double min_share) {
+    return inc->count[i] > 0 && inc->count[i] < inc->N && !(pm_incidence_share(inc, i) < min_share);
+}
 
 int pm_cmd_partners(int argc, char **argv) {
-    (void)argc;
-    (void)argv;
-    fputs("pairmap: 'partners' is not available yet\n", stderr);
-    return 1;
+    pm_cli_t c;
+    static char full[16384];
+    snprintf(full, sizeof full, "%s%s\n%s", help, pm_cli_input_help, pm_cli_select_help);
+    int rc = pm_cli_parse(&c, "partners", PM_CMD_PARTNERS, argc, argv, full);
+    if (rc) {
+        return rc < 0 ? pm_cli_close_stdout() : rc;
+    }
+    size_t nnames;
+    const char *const *names = pm_cli_all(&c, "item", &nnames);
+    if (nnames == 0) {
+        return pm_cli_usage_error(&c, "'pairmap partners' needs --item NAME");
+    }
+    pm_select_opts_t sel;
+    uint64_t top;
+    int by;
+    static const char *const bys[] = {"phi", "lift", "confidence", "together", NULL};
+    unsigned th;
+    if (pm_cli_select_opts(&c, &sel) || pm_cli_uint(&c, "top", 10, 0, SIZE_MAX, &top) ||
+        pm_cli_choice(&c, "by", bys, BY_PHI, &by) || pm_cli_threads(&c, &th)) {
+        return 1;
+    }
+    bool csv = pm_cli_flag(&c, "csv");
+    pm_table_t *t = NULL;
+    pm_incidence_t *inc = NULL;
+    pm_pairs_t *pp = NULL;
+    pm_edges_t *e = NULL;
+    unsigned char *in_set = NULL;
+    row *rows = NULL;
+    double *pv = NULL;
+    anchor an = {0};
+    size_t nrows = 0;
+    rc = pm_cli_load(&c, &t, &inc, NULL);
+    if (rc) {
+        goto done;
+    }
+    const char *src = pm_table_source(t);
+    in_set = calloc(inc->n_items ? inc->n_items : 1, 1);
+    if (!in_set) {
+        rc = 4;
+        goto done;
+    }
+    size_t k = 0;
+    uint32_t first = 0;
+    for (size_t i = 0; i < nnames; i++) {
+        long it = pm_incidence_find(inc, names[i]);
+        if (it < 0) {
+            rc = unknown_item(inc, src, names[i]);
+            goto done;
+        }
+        if (!eligible(inc, (size_t)it, sel.min_share)) {
+            fprintf(stderr, "pairmap: %s: item '%s' %s: it has no association to rank\n", src,
+                    names[i],
+                    inc->count[it] >= inc->N ? "was chosen by every respondent"
+                                             : "is below --min-share");
+            rc = 2;
+            goto done;
+        }
+        if (!in_set[it]) {
+            in_set[it] = 1;
+            if (k++ == 0) {
+                first = (uint32_t)it;
+            }
+        }
+    }
+    if (anchor_scan(inc, in_set, k, &an)) {
+        rc = 4;
+        goto done;
+    }
+    rows = calloc(inc->n_items ? inc->n_items : 1, sizeof *rows);
+    pv = calloc(inc->n_items ? inc->n_items : 1, sizeof *pv);
+    if (!rows || !pv) {
+        rc = 4;
+        goto done;
+    }
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    if (k == 1) {
+        /* one item: the rows of `pairmap pairs` that contain it */
+        rc = pm_cli_score(&c, inc, &sel, &pp);
+        if (rc) {
+            goto done;
+        }
+        if (pm_select_run(pp, inc, &sel, &e, &d)) {
+            rc = pm_cli_fail(&d);
+            goto done;
+        }
+        for (size_t j = 0; j < e->n; j++) {
+            size_t idx = e->idx[j];
+            if (pp->a[idx] != first && pp->b[idx] != first) {
+                continue;
+            }
+            pm_measures_t m;
+            pm_pairs_measures(pp, inc, idx, &m);
+            row *r = &rows[nrows++];
+            r->item = pp->a[idx] == first ? pp->b[idx] : pp->a[idx];
+            r->together = m.together;
+            r->expected = m.expected;
+            r->lift = m.lift;
+            r->phi = m.phi;
+            r->q = m.q;
+            confidence(inc, &an, r->item, r);
+        }
+    } else if (an.n == 0 || an.n >= inc->N) {
+        fprintf(stderr, "pairmap: %s: %s respondent chose all %zu items: no partner to rank\n", src,
+                an.n == 0 ? "no" : "every", k);
+    } else {
+        /* a set: one test per eligible item outside it, BH over these tests */
+        size_t nf = 0;
+        pm_measures_t *ms = malloc((inc->n_items ? inc->n_items : 1) * sizeof *ms);
+        uint32_t *fam = malloc((inc->n_items ? inc->n_items : 1) * sizeof *fam);
+        if (!ms || !fam) {
+            free(ms);
+            free(fam);
+            rc = 4;
+            goto done;
+        }
+        double neff = pm_incidence_neff(inc);
+        for (size_t b = 0; b < inc->n_items; b++) {
+            if (in_set[b] || !eligible(inc, b, sel.min_share)) {
+                continue;
+            }
+            if (inc->weight) {
+                pm_assoc_weighted(inc->W, an.w, inc->wcount[b], an.wb[b], neff, sel.sign, &ms[nf]);
+            } else {
+                pm_assoc_counts(inc->N, an.n, inc->count[b], an.nb[b], sel.sign, &ms[nf]);
+            }
+            pv[nf] = ms[nf].p;
+            fam[nf++] = (uint32_t)b;
+        }
+        if (nf && pm_assoc_bh(pv, nf, pv)) {
+            free(ms);
+            free(fam);
+            rc = 4;
+            goto done;
+        }
+        for (size_t j = 0; j < nf; j++) {
+            ms[j].q = pv[j];
+            if (!passes(&sel, an.nb[fam[j]], &ms[j])) {
+                continue;
+            }
+            row *r = &rows[nrows++];
+            r->item = fam[j];
+            r->together = ms[j].together;
+            r->expected = ms[j].expected;
+            r->lift = ms[j].lift;
+            r->phi = ms[j].phi;
+            r->q = ms[j].q;
+            confidence(inc, &an, r->item, r);
+        }
+        free(ms);
+        free(fam);
+    }
+    for (size_t j = 0; j < nrows; j++) {
+        rows[j].key = rank_key(&rows[j], by, sel.sign);
+    }
+    g_rank_inc = inc;
+    qsort(rows, nrows, sizeof *rows, cmp_row);
+    size_t shown = top && top < nrows ? (size_t)top : nrows;
+    if (csv) {
+        print_csv(inc, rows, shown);
+    } else {
+        double share = inc->weight ? an.w / inc->W : (double)an.n / (double)inc->N;
+        printf("Partners of ");
+        size_t shown_names = 0;
+        for (size_t i = 0; i < inc->n_items; i++) {
+            if (in_set[i]) {
+                printf("%s'%s'", shown_names++ ? " + " : "", inc->name[i]);
+            }
+        }
+        printf(" (%llu of %llu respondents, %.1f%%)", (unsigned long long)an.n,
+               (unsigned long long)inc->N, 100 * share);
+        printf(", ranked by %s; together >= %u, q <= %g, %s associations%s\n", bys[by],
+               sel.min_count, sel.max_q, pm_sign_name(sel.sign),
+               k > 1 ? " (q over this set's own tests)" : "");
+        if (nrows == 0) {
+            printf("no partner passes the selection\n");
+        } else {
+            print_text(inc, rows, shown, inc->weight != NULL);
+            if (shown < nrows) {
+                printf("(%zu more; --top 0 shows all)\n", nrows - shown);
+            }
+        }
+    }
+    if (sel.sign == PM_SIGN_NEGATIVE && sel.min_count > 0) {
+        /* the strongest substitutes are often the pairs almost never chosen together */
+        pm_cli_note(&c, "note: partners seen together fewer than %u times are hidden by "
+                        "--min-count (small-cell suppression); --min-count 0 shows them",
+                    sel.min_count);
+    }
+    rc = pm_cli_close_stdout();
+done:
+    anchor_free(&an);
+    free(pv);
+    free(rows);
+    free(in_set);
+    pm_edges_free(e);
+    pm_pairs_free(pp);
+    pm_incidence_free(inc);
+    pm_table_free(t);
+    return rc;
 }

@@ -59,7 +59,10 @@ class RunError(Exception):
 def run(args, stdin=None):
     """Run pairmap with args; return stdout decoded as UTF-8. Raise RunError on non-zero exit."""
     cmd = [str(binary())] + [str(a) for a in args]
-    p = subprocess.run(cmd, input=stdin, capture_output=True, timeout=900)
+    try:
+        p = subprocess.run(cmd, input=stdin, capture_output=True, timeout=900)
+    except (OSError, subprocess.TimeoutExpired) as e:
+        raise RunError(f"`{' '.join(cmd)}` could not run: {e}") from e
     if p.returncode != 0:
         raise RunError(f"`{' '.join(cmd)}` exited {p.returncode}: "
                        f"{p.stderr.decode('utf-8', 'replace').strip()[:2000]}")

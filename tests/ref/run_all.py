@@ -13,7 +13,8 @@ import time
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
-CHECKS = ["worked_examples", "southern_women", "random_tests", "weighted", "jeffreys"]
+# Every check script in this folder (helpers such as common.py excluded), in name order.
+CHECKS = sorted(p.stem for p in HERE.glob("*.py") if p.stem not in ("common", "run_all"))
 
 
 def main(argv):

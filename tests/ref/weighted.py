@@ -11,6 +11,11 @@
 3. Equal weights (all 2.5): n_eff = N, so the weighted p equals the unweighted chi-square p.
 4. Random non-integer weights, all three signs: p against scipy chi2.sf(n_eff phi^2) / norm,
    q against statsmodels multipletests fdr_bh over all eligible pairs; test column always chi2.
+5. `items` with weights (pairmap --help: "the share is weighted and the interval uses Kish's
+   effective sample size"): share = weighted share s, interval = Jeffreys interval of
+   x = s n_eff successes in n_eff trials, scipy.stats.beta.ppf([.025, .975], s n_eff + .5,
+   (1 - s) n_eff + .5) (effective-sample-size interval: common practice for weighted
+   proportions); respondents = the unweighted count.
 """
 
 import math
@@ -172,6 +177,37 @@ def random_weights(chk, td):
                                  weighted=True)
 
 
+def weighted_items(chk, td):
+    M, rng = random_matrix(15, 400, 6, (0.1, 0.7))
+    names = [f"stand{j}" for j in range(M.shape[1])]
+    w = np.round(rng.uniform(0.3, 4.0, M.shape[0]), 2)
+    f = td / "witems.csv"
+    C.write_long(f, C.incidence_rows(M, names, weights=w), header=("id", "item", "weight"))
+    try:
+        it = C.read_csv(C.run(["items", f, "--weight-col", "weight"]), C.ITEM_COLUMNS)
+    except C.RunError as e:
+        chk.fail(f"weighted items: {e}")
+        return
+    got = {r.item: r for r in it.itertuples(index=False)}
+    neff = w.sum() ** 2 / (w * w).sum()
+    for j, name in enumerate(names):
+        if name not in got:
+            chk.fail(f"weighted items: {name} missing")
+            continue
+        r = got[name]
+        s = float(w[M[:, j]].sum() / w.sum())
+        lo, hi = stats.beta.ppf([0.025, 0.975], s * neff + 0.5, (1 - s) * neff + 0.5)
+        where = f"{name} share={s:.6g} n_eff={neff:.6g}"
+        chk.equal("weighted items respondents == unweighted count", int(r.respondents),
+                  int(M[:, j].sum()), where)
+        chk.close("weighted items share vs numpy weighted share", float(r.share), s,
+                  rtol=1e-13, where=where)
+        chk.close("weighted items share_low vs scipy beta.ppf(0.025, s n_eff+.5, (1-s) n_eff+.5)",
+                  float(r.share_low), lo, rtol=1e-9, where=where)
+        chk.close("weighted items share_high vs scipy beta.ppf(0.975, s n_eff+.5, (1-s) n_eff+.5)",
+                  float(r.share_high), hi, rtol=1e-9, where=where)
+
+
 def main():
     C.require_binary()
     chk = C.Checker("weighted (repeated rows; Kish 1965 n_eff via scipy chi2.sf; fdr_bh)")
@@ -181,6 +217,7 @@ def main():
         kish_worked_case(chk, td)
         equal_weights(chk, td)
         random_weights(chk, td)
+        weighted_items(chk, td)
     return chk.finish()
 
 

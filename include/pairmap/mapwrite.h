@@ -1,0 +1,88 @@
+/* Writers of the map's files: nodes.csv and map.graphml (src/write_graphml.c), and a small
+ * JSON emitter for run.json (src/write_json.c). Each writes to an open stream and reports a
+ * stream error as PM_EIO; placing the files atomically is outfile.h's job. */
+#ifndef PAIRMAP_MAPWRITE_H
+#define PAIRMAP_MAPWRITE_H
+
+#include <stdbool.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+
+#include "pairmap/assoc.h"
+#include "pairmap/incidence.h"
+#include "pairmap/network.h"
+#include "pairmap/select.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* The nodes.csv columns of DESIGN.md (contract). */
+#define PM_NODES_HEADER "item,category,respondents,share,share_low,share_high,cluster,degree,x,y"
+
+/* Everything the map's writers read. Vertex v is incidence item item[v]; vertices are in
+ * canonical order (item[] increasing). Edge k is selected edge k of edges, joining vertices
+ * ea[k] < eb[k]. All borrowed. */
+typedef struct {
+    const pm_incidence_t *inc;
+    const pm_pairs_t *pairs;
+    const pm_edges_t *edges;
+    pm_measure_t measure; /* the edge weight written as `weight` */
+    size_t n;             /* vertices */
+    const uint32_t *item; /* [n] */
+    const pm_clusters_t *clusters;
+    const uint32_t *degree;  /* [n] kept edges at the vertex (negative ones included) */
+    const double *xy;        /* [2n] layout, unit box (isolated items on a ring outside) */
+    const uint32_t *ea, *eb; /* [edges->n] */
+    const char *title;       /* graph-level data (NULL: none) */
+} pm_map_t;
+
+/* nodes.csv: one row per vertex, rows ordered by cluster, then share descending, then name
+ * (bytes). share and its 95% Jeffreys interval as `pairmap items` prints them. */
+pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag);
+
+/* map.graphml: GraphML 1.0, undirected, node ids n0.. in vertex order, typed keys with distinct
+ * ids (v_* for nodes, e_* for edges, g_* for the graph): node data name, category,
+ * respondents, share, cluster, x, y; edge data together, phi, lift, jaccard, q_value, weight.
+ * Numbers are printed as in the CSV files (NaN and infinities as NaN, INF, -INF, the
+ * xs:double spellings). Names are escaped for XML; control characters other than tab, line
+ * feed and carriage return cannot appear in XML 1.0 at all and are written as U+FFFD. */
+pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag);
+
+/* Writes s with XML escaping (& < > " ' and character references for tab, LF, CR). */
+void pm_write_xml_text(FILE *fp, const char *s);
+
+/* ---- JSON --------------------------------------------------------------------------------- */
+/* A streaming JSON writer, two-space indented, keys in the order written. Inside an object
+ * every value needs a key; inside an array (and at the top) key is NULL. Nesting is limited to
+ * PM_JSON_DEPTH levels (deeper calls are ignored and make pm_json_finish fail). */
+#define PM_JSON_DEPTH 32
+typedef struct {
+    FILE *fp;
+    int depth;
+    bool first[PM_JSON_DEPTH + 1];
+    bool bad;
+} pm_json_t;
+
+void pm_json_init(pm_json_t *j, FILE *fp);
+void pm_json_begin_object(pm_json_t *j, const char *key);
+void pm_json_end_object(pm_json_t *j);
+void pm_json_begin_array(pm_json_t *j, const char *key);
+void pm_json_end_array(pm_json_t *j);
+void pm_json_string(pm_json_t *j, const char *key, const char *v); /* NULL: null */
+void pm_json_number(pm_json_t *j, const char *key, double v);      /* not finite: null */
+void pm_json_uint(pm_json_t *j, const char *key, uint64_t v);
+void pm_json_int(pm_json_t *j, const char *key, int64_t v);
+void pm_json_bool(pm_json_t *j, const char *key, bool v);
+void pm_json_null(pm_json_t *j, const char *key);
+/* Ends the document with a newline. PM_EIO on a stream error, PM_EINTERNAL on unbalanced
+ * nesting. */
+pm_err_t pm_json_finish(pm_json_t *j, pm_diag_t *diag);
+/* Writes s as a JSON string literal (UTF-8 passed through, controls as \u00XX). */
+void pm_json_write_string(FILE *fp, const char *s);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

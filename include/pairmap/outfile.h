@@ -1,0 +1,68 @@
+/* Atomic output into a directory (src/outfile.c): every output file is first written to a
+ * temporary file in the same directory, flushed, synced and closed with each step checked;
+ * only when all of them are complete are they renamed into place, one after another. A run
+ * that fails before that, or is interrupted, leaves the files already in the directory as they
+ * were and no temporary file behind.
+ *
+ * Typical use:
+ *   pm_outdir_t *od;  FILE *fp;
+ *   pm_outdir_open("out", &od, &diag);              creates "out" (and parents) if missing
+ *   pm_outdir_create(od, "nodes.csv", &fp, &diag);  -> out/.nodes.csv.<pid>.<k>.tmp
+ *   ... write to fp ...
+ *   pm_outdir_finish(od, fp, &diag);                fflush, fsync, fclose (checked)
+ *   pm_outdir_commit(od, &diag);                    all renamed into place
+ *   pm_outdir_free(od);                             removes whatever was not committed
+ *
+ * Temporary file names are kept in a process-wide registry so that a signal handler can remove
+ * them (pm_outdir_remove_temporaries, async-signal-safe). The registry holds at most
+ * PM_OUTDIR_MAX_FILES files at a time. Not thread-safe: one thread writes the outputs. */
+#ifndef PAIRMAP_OUTFILE_H
+#define PAIRMAP_OUTFILE_H
+
+#include <stdio.h>
+
+#include "pairmap/error.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#define PM_OUTDIR_MAX_FILES 16
+
+typedef struct pm_outdir pm_outdir_t;
+
+/* Opens dir for output, creating it and its missing parents (mode 0777 & ~umask). Fails with
+ * PM_EIO when dir exists but is not a directory, or cannot be created or written (checked by
+ * creating and removing a probe file). *out owns the handle (pm_outdir_free). Directories it
+ * created are removed again by pm_outdir_free when nothing was committed and they are empty. */
+pm_err_t pm_outdir_open(const char *dir, pm_outdir_t **out, pm_diag_t *diag);
+
+/* Creates the temporary file for output name (a plain file name, no '/') and opens it for
+ * writing (mode 0666 & ~umask, as an ordinary new file). *fp belongs to od: close it with
+ * pm_outdir_finish, never fclose. Errors: PM_EIO, PM_EUSAGE (bad or repeated name, too many
+ * files). */
+pm_err_t pm_outdir_create(pm_outdir_t *od, const char *name, FILE **fp, pm_diag_t *diag);
+
+/* Completes the file fp of od: fflush, ferror, fsync and fclose, each checked. After an error
+ * the file is closed all the same and the run cannot be committed. PM_EIO names the file. */
+pm_err_t pm_outdir_finish(pm_outdir_t *od, FILE *fp, pm_diag_t *diag);
+
+/* Renames every temporary file into place, in the order created, then syncs the directory.
+ * Requires every file to be finished without error (else PM_EUSAGE/PM_EIO and nothing is
+ * renamed). Should a rename fail part way, the files already replaced are restored from hard
+ * links taken beforehand (where the file system allows them) and PM_EIO is returned. SIGINT
+ * and SIGTERM are held back during the renames. */
+pm_err_t pm_outdir_commit(pm_outdir_t *od, pm_diag_t *diag);
+
+/* Removes the temporary files not committed (closing any still open), directories created and
+ * left empty, and frees od. Accepts NULL. */
+void pm_outdir_free(pm_outdir_t *od);
+
+/* Removes every registered temporary file with unlink(2) only: safe to call from a signal
+ * handler. The CLI's SIGINT/SIGTERM handler calls it before _exit. */
+void pm_outdir_remove_temporaries(void);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

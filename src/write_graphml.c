@@ -1,0 +1,151 @@
+/* map.graphml: a small GraphML 1.0 writer of our own (igraph's leaves a truncated file on a
+ * control character and prints doubles with 15 digits; see API-NOTES.md). Values are printed
+ * exactly as in the CSV files. */
+#include <errno.h>
+#include <math.h>
+#include <string.h>
+
+#include "pairmap/mapwrite.h"
+#include "pairmap/write.h"
+#include "util.h"
+
+void pm_write_xml_text(FILE *fp, const char *s) {
+    for (const unsigned char *p = (const unsigned char *)s; *p; p++) {
+        switch (*p) {
+        case '&':
+            fputs("&amp;", fp);
+            break;
+        case '<':
+            fputs("&lt;", fp);
+            break;
+        case '>':
+            fputs("&gt;", fp);
+            break;
+        case '"':
+            fputs("&quot;", fp);
+            break;
+        case '\'':
+            fputs("&apos;", fp);
+            break;
+        case '\t':
+            fputs("&#9;", fp);
+            break;
+        case '\n':
+            fputs("&#10;", fp);
+            break;
+        case '\r':
+            fputs("&#13;", fp); /* a raw CR would be normalised away by the reader */
+            break;
+        default:
+            if (*p < 0x20 || *p == 0x7f) {
+                fputs("\xef\xbf\xbd", fp); /* not allowed in XML 1.0: U+FFFD */
+            } else {
+                fputc(*p, fp);
+            }
+        }
+    }
+}
+
+/* A number as the CSV files print it; xs:double spellings for NaN and infinities. */
+static void xml_number(FILE *fp, double v) {
+    if (isnan(v)) {
+        fputs("NaN", fp);
+    } else if (isinf(v)) {
+        fputs(v > 0 ? "INF" : "-INF", fp);
+    } else {
+        pm_write_number(fp, v);
+    }
+}
+
+static void data_str(FILE *fp, const char *key, const char *v) {
+    fprintf(fp, "      <data key=\"%s\">", key);
+    pm_write_xml_text(fp, v);
+    fputs("</data>\n", fp);
+}
+
+static void data_num(FILE *fp, const char *key, double v) {
+    fprintf(fp, "      <data key=\"%s\">", key);
+    xml_number(fp, v);
+    fputs("</data>\n", fp);
+}
+
+static void data_uint(FILE *fp, const char *key, unsigned long long v) {
+    fprintf(fp, "      <data key=\"%s\">%llu</data>\n", key, v);
+}
+
+static const struct {
+    const char *id, *domain, *name, *type;
+} KEYS[] = {
+    {"g_title", "graph", "title", "string"},
+    {"g_measure", "graph", "measure", "string"},
+    {"v_name", "node", "name", "string"},
+    {"v_category", "node", "category", "string"},
+    {"v_respondents", "node", "respondents", "long"},
+    {"v_share", "node", "share", "double"},
+    {"v_cluster", "node", "cluster", "int"},
+    {"v_x", "node", "x", "double"},
+    {"v_y", "node", "y", "double"},
+    {"e_together", "edge", "together", "double"},
+    {"e_phi", "edge", "phi", "double"},
+    {"e_lift", "edge", "lift", "double"},
+    {"e_jaccard", "edge", "jaccard", "double"},
+    {"e_q_value", "edge", "q_value", "double"},
+    {"e_weight", "edge", "weight", "double"},
+};
+
+pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
+    const pm_incidence_t *inc = map->inc;
+    fputs("<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n"
+          "<graphml xmlns=\"http://graphml.graphdrawing.org/xmlns\"\n"
+          "         xmlns:xsi=\"http://www.w3.org/2001/XMLSchema-instance\"\n"
+          "         xsi:schemaLocation=\"http://graphml.graphdrawing.org/xmlns "
+          "http://graphml.graphdrawing.org/xmlns/1.0/graphml.xsd\">\n",
+          fp);
+    for (size_t k = 0; k < sizeof KEYS / sizeof KEYS[0]; k++) {
+        fprintf(fp, "  <key id=\"%s\" for=\"%s\" attr.name=\"%s\" attr.type=\"%s\"/>\n", KEYS[k].id,
+                KEYS[k].domain, KEYS[k].name, KEYS[k].type);
+    }
+    fputs("  <graph id=\"G\" edgedefault=\"undirected\">\n", fp);
+    if (map->title) {
+        fputs("    <data key=\"g_title\">", fp);
+        pm_write_xml_text(fp, map->title);
+        fputs("</data>\n", fp);
+    }
+    fprintf(fp, "    <data key=\"g_measure\">%s</data>\n", pm_measure_name(map->measure));
+    for (size_t v = 0; v < map->n; v++) {
+        size_t i = map->item[v];
+        fprintf(fp, "    <node id=\"n%zu\">\n", v);
+        data_str(fp, "v_name", inc->name[i]);
+        if (inc->category[i] && inc->category[i][0]) { /* no category: no data (GraphML default) */
+            data_str(fp, "v_category", inc->category[i]);
+        }
+        data_uint(fp, "v_respondents", (unsigned long long)inc->count[i]);
+        data_num(fp, "v_share", pm_incidence_share(inc, i));
+        data_uint(fp, "v_cluster", map->clusters->cluster[v]);
+        data_num(fp, "v_x", map->xy[2 * v]);
+        data_num(fp, "v_y", map->xy[2 * v + 1]);
+        fputs("    </node>\n", fp);
+        if ((v & 1023) == 0 && ferror(fp)) {
+            break;
+        }
+    }
+    for (size_t k = 0; k < map->edges->n && !ferror(fp); k++) {
+        pm_measures_t m;
+        pm_pairs_measures(map->pairs, inc, map->edges->idx[k], &m);
+        fprintf(fp, "    <edge id=\"e%zu\" source=\"n%u\" target=\"n%u\">\n", k, map->ea[k],
+                map->eb[k]);
+        data_num(fp, "e_together", m.together);
+        data_num(fp, "e_phi", m.phi);
+        data_num(fp, "e_lift", m.lift);
+        data_num(fp, "e_jaccard", m.jaccard);
+        data_num(fp, "e_q_value", m.q);
+        data_num(fp, "e_weight", map->edges->weight[k]);
+        fputs("    </edge>\n", fp);
+    }
+    fputs("  </graph>\n</graphml>\n", fp);
+    if (ferror(fp)) {
+        return pm_diag_set(diag, PM_EIO, NULL, 0, "cannot write map.graphml: %s",
+                           strerror(errno ? errno : EIO));
+    }
+    return PM_OK;
+}

@@ -1,0 +1,131 @@
+# Shared helpers of tests/cli/test_errors_*.sh (sourced, not a test itself).
+# Each test script is run as `bash test_errors_x.sh /path/to/pairmap`.
+#
+# expect_fail STATUS PREFIX NEEDLE -- ARGS...
+#   Runs `pairmap ARGS...` and checks that it exits with STATUS, writes nothing to stdout, and
+#   writes exactly one line to stderr besides "pairmap: note: ..."/"pairmap: warning: ..." lines.
+#   That line must read "pairmap: PREFIXmessage" where PREFIX is "FILE:LINE: " or "FILE: " (or
+#   empty where no file applies), the message must contain the fixed string NEEDLE and follow
+#   STYLE.md section 5: lowercase start, no closing full stop, a single line.
+# expect_ok ARGS...       the command succeeds (exit 0)
+# Sets FAILS; call finish at the end.
+
+set -u
+PAIRMAP="${1:?usage: bash $0 /path/to/pairmap}"
+case "$PAIRMAP" in /*) ;; *) PAIRMAP="$(pwd)/$PAIRMAP" ;; esac
+HERE="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
+DATA="$(cd "$HERE/../data" && pwd)"
+DEMO="$(cd "$HERE/../../demo" && pwd)"
+TMP="$(mktemp -d "${TMPDIR:-/tmp}/pm-errors.XXXXXX")"
+trap 'rm -rf "$TMP"' EXIT
+FAILS=0
+CASES=0
+
+fail() {
+    printf 'FAIL: %s\n' "$*" >&2
+    FAILS=$((FAILS + 1))
+}
+
+# The one error line of $TMP/err (notes and warnings set aside); empty when there is not
+# exactly one.
+error_line() {
+    grep -v -e '^pairmap: note: ' -e '^pairmap: warning: ' "$TMP/err" >"$TMP/err.other" || true
+    if [ "$(wc -l <"$TMP/err.other")" -eq 1 ]; then
+        cat "$TMP/err.other"
+    fi
+}
+
+# style_ok MESSAGE: STYLE.md section 5 on the text after the location.
+style_ok() {
+    local m="$1"
+    case "$m" in
+    [A-Z]*) return 1 ;;     # lowercase start (an option name or a quote may open it)
+    *.) return 1 ;;          # no closing full stop
+    "") return 1 ;;
+    esac
+    # no control characters (an escaped byte is shown as \xHH)
+    if printf '%s' "$m" | LC_ALL=C grep -q '[[:cntrl:]]'; then
+        return 1
+    fi
+    return 0
+}
+
+expect_fail() {
+    local status="$1" prefix="$2" needle="$3"
+    shift 3
+    [ "$1" = "--" ] && shift
+    CASES=$((CASES + 1))
+    local what="pairmap $*"
+    "$PAIRMAP" "$@" >"$TMP/out" 2>"$TMP/err" </dev/null
+    local rc=$?
+    if [ "$rc" -ne "$status" ]; then
+        fail "$what: exit $rc, expected $status; stderr: $(head -c 600 "$TMP/err")"
+        return
+    fi
+    if [ -s "$TMP/out" ]; then
+        fail "$what: wrote $(wc -c <"$TMP/out") bytes to stdout on failure"
+    fi
+    local line
+    line="$(error_line)"
+    if [ -z "$line" ]; then
+        fail "$what: expected exactly one error line on stderr, got: $(cat "$TMP/err")"
+        return
+    fi
+    local want="pairmap: $prefix"
+    if [ "${line:0:${#want}}" != "$want" ]; then
+        fail "$what: message does not start with '$want': $line"
+        return
+    fi
+    local msg="${line:${#want}}"
+    # the prefix must be the whole location: the message itself starts with no "N:" part
+    if [[ "$msg" =~ ^[0-9]+: ]]; then
+        fail "$what: unexpected location part in: $line"
+    fi
+    if ! style_ok "$msg"; then
+        fail "$what: message breaks STYLE.md section 5: $line"
+    fi
+    if [ -n "$needle" ] && [[ "$msg" != *"$needle"* ]]; then
+        fail "$what: message lacks '$needle': $line"
+    fi
+}
+
+# expect_fail_stdin STATUS PREFIX NEEDLE FILE -- ARGS...: as expect_fail with FILE on stdin.
+expect_fail_stdin() {
+    local status="$1" prefix="$2" needle="$3" file="$4"
+    shift 4
+    [ "$1" = "--" ] && shift
+    CASES=$((CASES + 1))
+    "$PAIRMAP" "$@" <"$file" >"$TMP/out" 2>"$TMP/err"
+    local rc=$?
+    local line
+    line="$(error_line)"
+    if [ "$rc" -ne "$status" ] || [ -s "$TMP/out" ] || [ "${line#pairmap: "$prefix"}" = "$line" ] ||
+        [[ "$line" != *"$needle"* ]]; then
+        fail "pairmap $* < $file: exit $rc (want $status), line '$line' (want prefix '$prefix', '$needle')"
+    fi
+}
+
+expect_ok() {
+    CASES=$((CASES + 1))
+    "$PAIRMAP" "$@" >"$TMP/out" 2>"$TMP/err" </dev/null
+    local rc=$?
+    if [ "$rc" -ne 0 ]; then
+        fail "pairmap $*: exit $rc, expected 0; stderr: $(head -c 600 "$TMP/err")"
+        return 1
+    fi
+    return 0
+}
+
+# True when `pairmap CMD` is implemented (its --help succeeds).
+have_command() {
+    "$PAIRMAP" "$1" --help >/dev/null 2>&1
+}
+
+finish() {
+    if [ "$FAILS" -ne 0 ]; then
+        printf '%s: %d of %d cases failed\n' "$(basename "$0")" "$FAILS" "$CASES" >&2
+        exit 1
+    fi
+    printf '%s: %d cases passed\n' "$(basename "$0")" "$CASES"
+    exit 0
+}

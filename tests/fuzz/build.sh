@@ -1,0 +1,27 @@
+#!/bin/sh
+# Builds the libFuzzer harnesses of tests/fuzz/ with clang (ASan + UBSan) into DIR (default
+# build-fuzz/): fuzz_input (the input reader and the stages after it) and fuzz_cli (the
+# command-line parser, src/cli/cli.c compiled in). Usage: sh tests/fuzz/build.sh [DIR]
+set -eu
+cd "$(dirname "$0")/../.."
+out="${1:-build-fuzz}"
+mkdir -p "$out/obj"
+CC="${CC_FUZZ:-clang}"
+san="-fsanitize=address,undefined -fno-sanitize-recover=undefined -fno-omit-frame-pointer"
+cflags="-std=c11 -g -O1 $san -D_POSIX_C_SOURCE=200809L -DPM_VERSION_STRING=\"fuzz\" \
+ -Iinclude -Isrc $(pkg-config --cflags igraph gsl)"
+libs="$(pkg-config --libs igraph gsl) -lcsv -lpthread -lm"
+objs=""
+for f in src/*.c src/cli/cli.c; do
+    o="$out/obj/$(echo "$f" | tr / _).o"
+    if [ ! -f "$o" ] || [ "$f" -nt "$o" ] || [ "$0" -nt "$o" ]; then
+        # shellcheck disable=SC2086
+        $CC $cflags -fsanitize=fuzzer-no-link -c "$f" -o "$o"
+    fi
+    objs="$objs $o"
+done
+lib_objs=$(echo "$objs" | tr ' ' '\n' | grep -v src_cli_cli.c.o | tr '\n' ' ')
+# shellcheck disable=SC2086
+$CC $cflags -fsanitize=fuzzer tests/fuzz/fuzz_input.c $lib_objs $libs -o "$out/fuzz_input"
+# shellcheck disable=SC2086
+$CC $cflags -fsanitize=fuzzer tests/fuzz/fuzz_cli.c $objs $libs -o "$out/fuzz_cli"

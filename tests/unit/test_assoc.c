@@ -1,0 +1,675 @@
+/* Unit tests of src/assoc.c: the measures of a 2x2 table on published worked examples,
+ * Fisher's exact test against exact hypergeometric sums in integer arithmetic, the Jeffreys
+ * interval, Benjamini-Hochberg on hand-computed cases, and pm_assoc_run: the family of
+ * hypotheses, and q-values that do not depend on --min-count. */
+#include "unit.h"
+
+#include <gsl/gsl_cdf.h>
+#include <math.h>
+
+#include "pairmap/assoc.h"
+#include "pairmap/cooccur.h"
+#include "util.h"
+
+/* |got - want| <= tol * max(|want|, tiny) */
+static void near_rel(double got, double want, double tol, const char *what) {
+    double scale = fabs(want) > 1e-300 ? fabs(want) : 1e-300;
+    if (!(fabs(got - want) <= tol * scale)) {
+        fail_msg("%s: got %.17g, expected %.17g (relative error %.3g)", what, got, want,
+                 fabs(got - want) / scale);
+    }
+}
+
+/* ==== worked examples ======================================================================== */
+
+/* Tan, Steinbach & Kumar, Introduction to Data Mining, the tea/coffee table (from memory):
+ * N = 1000, tea 200, coffee 800, both 150. */
+static void test_assoc_counts_tea_coffee(void **state) {
+    (void)state;
+    pm_measures_t m;
+    pm_assoc_counts(1000, 200, 800, 150, PM_SIGN_BOTH, &m);
+    assert_float_equal(m.together, 150, 0);
+    assert_float_equal(m.support, 0.15, 1e-15);       /* Tan et al. */
+    assert_float_equal(m.confidence_ab, 0.75, 1e-15); /* tea -> coffee, Tan et al. */
+    assert_float_equal(m.lift, 0.9375, 1e-15);        /* Tan et al. */
+    assert_float_equal(m.phi, -0.0625, 1e-15);        /* Tan et al. */
+    /* the rest by the definitions of DESIGN.md, computed by hand */
+    assert_float_equal(m.confidence_ba, 150.0 / 800.0, 1e-15);
+    assert_float_equal(m.jaccard, 150.0 / 850.0, 1e-15);
+    assert_float_equal(m.expected, 160.0, 1e-12);
+    /* the smallest expected cell is 40 (Cochran's rule, common practice): chi-square; chi2 =
+     * N phi^2 = 3.90625 and p = 0.04810682788851937 from
+     * scipy.stats.chi2_contingency([[150, 50], [650, 150]], correction=False) */
+    assert_int_equal(m.test, PM_TEST_CHI2);
+    near_rel(m.p, 0.04810682788851937, 1e-12, "tea/coffee two-sided p");
+    assert_true(isnan(m.q));
+    /* one-sided: phi < 0, so "positive" gets the large tail and "negative" the small half */
+    pm_assoc_counts(1000, 200, 800, 150, PM_SIGN_NEGATIVE, &m);
+    near_rel(m.p, 0.04810682788851937 / 2, 1e-12, "tea/coffee one-sided negative p");
+    pm_assoc_counts(1000, 200, 800, 150, PM_SIGN_POSITIVE, &m);
+    near_rel(m.p, 1 - 0.04810682788851937 / 2, 1e-12, "tea/coffee one-sided positive p");
+    /* the same table with the items swapped: symmetric measures, swapped confidences */
+    pm_measures_t s;
+    pm_assoc_counts(1000, 800, 200, 150, PM_SIGN_BOTH, &s);
+    assert_float_equal(s.phi, -0.0625, 1e-15);
+    assert_float_equal(s.confidence_ab, 150.0 / 800.0, 1e-15);
+    assert_float_equal(s.confidence_ba, 0.75, 1e-15);
+}
+
+/* Fisher (1935), The Design of Experiments: the lady tasting tea, 8 cups, 4 with milk first,
+ * 3 of her 4 "milk first" picks right. Two-sided p = 34/70 = 0.485714...; one-sided
+ * (greater) 17/70 (both from the hypergeometric counts 1, 16, 36, 16, 1 of 70). */
+static void test_assoc_fisher_tea_tasting(void **state) {
+    (void)state;
+    near_rel(pm_assoc_fisher(8, 4, 4, 3, 0), 34.0 / 70.0, 1e-13, "two-sided");
+    near_rel(pm_assoc_fisher(8, 4, 4, 3, 1), 17.0 / 70.0, 1e-13, "greater");
+    near_rel(pm_assoc_fisher(8, 4, 4, 3, -1), 69.0 / 70.0, 1e-13, "less");
+    near_rel(pm_assoc_fisher(8, 4, 4, 4, 1), 1.0 / 70.0, 1e-13, "all four right");
+    near_rel(pm_assoc_fisher(8, 4, 4, 4, 0), 2.0 / 70.0, 1e-13, "all four right, two-sided");
+    near_rel(pm_assoc_fisher(8, 4, 4, 2, 0), 1.0, 1e-15, "the mode");
+    /* through pm_assoc_counts: the smallest expected cell is 2 < 5, so Fisher */
+    pm_measures_t m;
+    pm_assoc_counts(8, 4, 4, 3, PM_SIGN_BOTH, &m);
+    assert_int_equal(m.test, PM_TEST_FISHER);
+    near_rel(m.p, 34.0 / 70.0, 1e-13, "pm_assoc_counts two-sided");
+    pm_assoc_counts(8, 4, 4, 3, PM_SIGN_POSITIVE, &m);
+    near_rel(m.p, 17.0 / 70.0, 1e-13, "pm_assoc_counts greater");
+    assert_float_equal(m.phi, 0.5, 1e-15); /* (8*3 - 16) / sqrt(4*4*4*4), by hand */
+}
+
+/* Binomial coefficients as exact integers (Pascal's triangle), up to C(60, 30) < 2^57. */
+#define BMAX 60
+static uint64_t binom[BMAX + 1][BMAX + 1];
+
+static void binom_init(void) {
+    for (int n = 0; n <= BMAX; n++) {
+        binom[n][0] = binom[n][n] = 1;
+        for (int k = 1; k < n; k++) {
+            binom[n][k] = binom[n - 1][k - 1] + binom[n - 1][k];
+        }
+    }
+}
+
+/* Fisher's p-values by exact hypergeometric sums: the number of tables C(K,k) C(N-K,n-k) in
+ * integers, divided once by C(N,n). Two-sided: tables whose count is at most the observed one
+ * times 1 + 1e-7 (the relative tolerance of assoc.h, as scipy's fisher_exact uses), decided
+ * exactly as c - obs <= floor(obs / 10^7). */
+static void exact_fisher(int N, int K, int n, int x, double *greater, double *less, double *two) {
+    int lo = n - (N - K) > 0 ? n - (N - K) : 0, hi = K < n ? K : n;
+    uint64_t tot = binom[N][n], g = 0, l = 0, t = 0;
+    uint64_t obs = binom[K][x] * binom[N - K][n - x];
+    uint64_t slack = obs / 10000000u;
+    for (int k = lo; k <= hi; k++) {
+        uint64_t c = binom[K][k] * binom[N - K][n - k];
+        if (k >= x) {
+            g += c;
+        }
+        if (k <= x) {
+            l += c;
+        }
+        if (c <= obs || c - obs <= slack) {
+            t += c;
+        }
+    }
+    *greater = (double)((long double)g / (long double)tot);
+    *less = (double)((long double)l / (long double)tot);
+    *two = (double)((long double)t / (long double)tot);
+}
+
+static void test_assoc_fisher_exact_sums(void **state) {
+    (void)state;
+    binom_init();
+    static const int sizes[] = {2, 3, 4, 5, 6, 7, 8, 9, 10, 12, 15, 20, 24, 31, 40, 47, 60};
+    double worst = 0;
+    long checked = 0;
+    for (size_t si = 0; si < sizeof sizes / sizeof sizes[0]; si++) {
+        int N = sizes[si];
+        int step = N > 30 ? 3 : 1;
+        for (int K = 1; K < N; K += step) {
+            for (int n = 1; n < N; n += step) {
+                int lo = n - (N - K) > 0 ? n - (N - K) : 0, hi = K < n ? K : n;
+                for (int x = lo; x <= hi; x++) {
+                    double g, l, t;
+                    exact_fisher(N, K, n, x, &g, &l, &t);
+                    double pg =
+                        pm_assoc_fisher((uint64_t)N, (uint64_t)K, (uint64_t)n, (uint64_t)x, 1);
+                    double pl =
+                        pm_assoc_fisher((uint64_t)N, (uint64_t)K, (uint64_t)n, (uint64_t)x, -1);
+                    double pt =
+                        pm_assoc_fisher((uint64_t)N, (uint64_t)K, (uint64_t)n, (uint64_t)x, 0);
+                    double e[3] = {fabs(pg - g) / g, fabs(pl - l) / l, fabs(pt - t) / t};
+                    for (int q = 0; q < 3; q++) {
+                        if (!(e[q] <= 1e-11)) {
+                            fail_msg("N=%d na=%d nb=%d nab=%d: greater %.17g/%.17g less "
+                                     "%.17g/%.17g two-sided %.17g/%.17g",
+                                     N, K, n, x, pg, g, pl, l, pt, t);
+                        }
+                        worst = e[q] > worst ? e[q] : worst;
+                    }
+                    checked++;
+                }
+            }
+        }
+    }
+    print_message("fisher: %ld tables, largest relative deviation %.3g\n", checked, worst);
+}
+
+/* Large tables: the tails stay in [0, 1] and overlap in the point probability, and the
+ * two-sided p is at least the smaller tail (that tail's terms are all below the observed
+ * one, the distribution being unimodal). */
+static void test_assoc_fisher_large_tables(void **state) {
+    (void)state;
+    static const uint64_t tabs[][4] = {
+        {1000000, 20, 30, 0},
+        {1000000, 20, 30, 5},
+        {10000000, 5000, 4000, 2},
+        {10000000, 5000, 4000, 40},
+        {5000000, 2500000, 3, 3},
+        {200000, 100000, 100000, 50000},
+        {200000, 100000, 100000, 50500},
+    };
+    for (size_t i = 0; i < sizeof tabs / sizeof tabs[0]; i++) {
+        uint64_t N = tabs[i][0], a = tabs[i][1], b = tabs[i][2], x = tabs[i][3];
+        double g = pm_assoc_fisher(N, a, b, x, 1), l = pm_assoc_fisher(N, a, b, x, -1);
+        double t = pm_assoc_fisher(N, a, b, x, 0);
+        assert_true(g >= 0 && g <= 1 && l >= 0 && l <= 1 && t >= 0 && t <= 1);
+        /* P(X >= x) + P(X <= x) = 1 + P(X = x) >= 1 */
+        assert_true(g + l >= 1 - 1e-12);
+        double small = g < l ? g : l;
+        assert_true(t >= small * (1 - 1e-9));
+    }
+    /* x at the extremes of the support */
+    assert_true(pm_assoc_fisher(100, 10, 20, 0, 1) == 1.0);
+    assert_true(pm_assoc_fisher(100, 10, 20, 10, -1) == 1.0);
+}
+
+/* ==== weighted measures ====================================================================== */
+
+/* Integer weights give the point measures of the rows repeated that many times (issue 2);
+ * the test is chi-square with Kish's neff in place of N. */
+static void test_assoc_weighted_matches_counts(void **state) {
+    (void)state;
+    /* weight 2 on a table of N = 500: counts 100, 400, 75 become 200, 800, 150 of 1000 */
+    pm_measures_t w, c;
+    pm_assoc_weighted(1000, 200, 800, 150, 500, PM_SIGN_BOTH, &w);
+    pm_assoc_counts(1000, 200, 800, 150, PM_SIGN_BOTH, &c);
+    assert_float_equal(w.support, c.support, 1e-15);
+    assert_float_equal(w.confidence_ab, c.confidence_ab, 1e-15);
+    assert_float_equal(w.confidence_ba, c.confidence_ba, 1e-15);
+    assert_float_equal(w.lift, c.lift, 1e-15);
+    assert_float_equal(w.phi, c.phi, 1e-15);
+    assert_float_equal(w.jaccard, c.jaccard, 1e-15);
+    assert_float_equal(w.expected, c.expected, 1e-12);
+    assert_int_equal(w.test, PM_TEST_CHI2);
+    /* chi2 = neff phi^2 = 500 * 0.0625^2 */
+    near_rel(w.p, gsl_cdf_chisq_Q(500 * 0.0625 * 0.0625, 1), 1e-14, "weighted p");
+    /* with neff = W it is the unweighted chi-square */
+    pm_assoc_weighted(1000, 200, 800, 150, 1000, PM_SIGN_BOTH, &w);
+    near_rel(w.p, c.p, 1e-14, "weighted p with neff = N");
+}
+
+/* ==== Jeffreys interval ====================================================================== */
+
+static void test_assoc_jeffreys_edges(void **state) {
+    (void)state;
+    double lo, hi;
+    /* Brown, Cai & DasGupta (2001): lower bound 0 at x = 0, upper bound 1 at x = n */
+    pm_assoc_jeffreys(0, 10, 0.05, &lo, &hi);
+    assert_true(lo == 0.0);
+    near_rel(hi, 0.21719626750921053, 1e-9, "hi(0, 10)"); /* scipy.stats.beta.ppf(.975, .5, 10.5) */
+    pm_assoc_jeffreys(10, 10, 0.05, &lo, &hi);
+    assert_true(hi == 1.0);
+    near_rel(lo, 0.7828037324907894, 1e-9, "lo(10, 10)"); /* beta.ppf(.025, 10.5, .5) */
+    /* interior values from scipy.stats.beta.ppf([0.025, 0.975], x + 0.5, n - x + 0.5) */
+    static const double ref[][4] = {
+        {3, 10, 0.09269459393815316, 0.6058183181486713},
+        {150, 1000, 0.12889304420708794, 0.17312933343625642},
+        /* x = 1 of 10^6: gsl_cdf_beta_Pinv returns NaN here (API-NOTES.md, GSL) */
+        {1, 1000000, 1.0789766246541867e-07, 4.6741920467298275e-06},
+        /* n = 10^7: gsl_cdf_beta_P gives NaN close to the mean, where the solver steps */
+        {8487500, 10000000, 0.8485278312302241, 0.8489719668919768},
+        {2112500, 10000000, 0.2109970861500742, 0.21150308099604895},
+    };
+    for (size_t i = 0; i < sizeof ref / sizeof ref[0]; i++) {
+        pm_assoc_jeffreys(ref[i][0], ref[i][1], 0.05, &lo, &hi);
+        near_rel(lo, ref[i][2], 1e-9, "jeffreys lower");
+        near_rel(hi, ref[i][3], 1e-9, "jeffreys upper");
+    }
+    /* n = 1 */
+    pm_assoc_jeffreys(0, 1, 0.05, &lo, &hi);
+    assert_true(lo == 0.0 && hi > 0 && hi < 1);
+    pm_assoc_jeffreys(1, 1, 0.05, &lo, &hi);
+    assert_true(hi == 1.0 && lo > 0 && lo < 1);
+}
+
+/* lo < x/n < hi inside, both bounds increasing in x, the bounds mirror under x -> n - x
+ * (Beta quantile symmetry), and the bounds are the alpha/2 and 1 - alpha/2 points of
+ * Beta(x + 1/2, n - x + 1/2) (the definition, checked with GSL's CDF). */
+static void test_assoc_jeffreys_properties(void **state) {
+    (void)state;
+    static const double ns[] = {2, 7, 50, 1000, 123457, 1e6, 1e7};
+    for (size_t i = 0; i < sizeof ns / sizeof ns[0]; i++) {
+        double n = ns[i];
+        double plo = -1, phi = -1;
+        int steps = 40;
+        for (int s = 0; s <= steps; s++) {
+            /* x from 0 to n, denser near both ends */
+            double u = (double)s / steps;
+            double x = floor(n * (u < 0.5 ? 2 * u * u : 1 - 2 * (1 - u) * (1 - u)));
+            if (s > 0 && s < steps && (x <= 0 || x >= n)) {
+                continue;
+            }
+            double lo, hi;
+            pm_assoc_jeffreys(x, n, 0.05, &lo, &hi);
+            assert_true(isfinite(lo) && isfinite(hi));
+            assert_true(lo >= 0 && hi <= 1);
+            if (x > 0 && x < n) {
+                if (!(lo < x / n && x / n < hi)) {
+                    fail_msg("x=%g n=%g: [%.17g, %.17g] misses %.17g", x, n, lo, hi, x / n);
+                }
+                near_rel(gsl_cdf_beta_P(lo, x + 0.5, n - x + 0.5), 0.025, 1e-6, "cdf(lo)");
+                near_rel(gsl_cdf_beta_Q(hi, x + 0.5, n - x + 0.5), 0.025, 1e-6, "1 - cdf(hi)");
+                double mlo, mhi;
+                pm_assoc_jeffreys(n - x, n, 0.05, &mlo, &mhi);
+                near_rel(mlo, 1 - hi, 1e-8, "mirror lower");
+                near_rel(mhi, 1 - lo, 1e-8, "mirror upper");
+            }
+            if (!(lo >= plo && hi >= phi)) {
+                fail_msg("n=%g: bounds decrease at x=%g", n, x);
+            }
+            plo = lo;
+            phi = hi;
+        }
+    }
+    /* fractional counts (weighted shares, effective sizes) */
+    double lo, hi;
+    pm_assoc_jeffreys(2.5, 10.2, 0.05, &lo, &hi);
+    assert_true(lo > 0 && lo < 2.5 / 10.2 && hi > 2.5 / 10.2 && hi < 1);
+    /* the 90% interval lies inside the 95% one */
+    double lo90, hi90;
+    pm_assoc_jeffreys(30, 100, 0.10, &lo90, &hi90);
+    pm_assoc_jeffreys(30, 100, 0.05, &lo, &hi);
+    assert_true(lo < lo90 && hi90 < hi);
+}
+
+/* ==== Benjamini-Hochberg ===================================================================== */
+
+/* Hand-computed with q_(i) = min_{j >= i} p_(j) m / j; statsmodels'
+ * multipletests(method="fdr_bh") gives the same values (checked when writing this test). */
+static void test_assoc_bh_hand_cases(void **state) {
+    (void)state;
+    static const struct {
+        size_t n;
+        double p[10], q[10];
+    } cases[] = {
+        /* ties at 0.04: the raw values 0.05, 0.075, 0.0667, 0.05, 0.2 fold down to 0.05 */
+        {5, {0.01, 0.04, 0.03, 0.04, 0.20}, {0.05, 0.05, 0.05, 0.05, 0.2}},
+        /* tied smallest pair: both get 0.02 * 4 / 2, not 0.02 * 4 / 1 */
+        {4, {0.02, 0.5, 0.02, 0.9}, {0.04, 2.0 / 3.0, 0.04, 0.9}},
+        {3, {0.5, 0.5, 0.5}, {0.5, 0.5, 0.5}},
+        {10,
+         {0.216, 0.001, 0.008, 0.039, 0.041, 0.042, 0.06, 0.074, 0.205, 0.212},
+         {0.216, 0.01, 0.04, 0.084, 0.084, 0.084, 0.1, 0.10571428571428572, 0.216, 0.216}},
+        {1, {0.3}, {0.3}},
+        {2, {1.0, 1.0}, {1.0, 1.0}},
+        {3, {0.0, 0.0, 0.7}, {0.0, 0.0, 0.7}},
+    };
+    for (size_t c = 0; c < sizeof cases / sizeof cases[0]; c++) {
+        double q[10];
+        assert_int_equal(pm_assoc_bh(cases[c].p, cases[c].n, q), PM_OK);
+        for (size_t i = 0; i < cases[c].n; i++) {
+            if (fabs(q[i] - cases[c].q[i]) > 1e-15) {
+                fail_msg("case %zu, p[%zu] = %g: q %.17g, expected %.17g", c, i, cases[c].p[i],
+                         q[i], cases[c].q[i]);
+            }
+        }
+        /* in place (q may equal p) */
+        double pq[10];
+        memcpy(pq, cases[c].p, sizeof pq);
+        assert_int_equal(pm_assoc_bh(pq, cases[c].n, pq), PM_OK);
+        assert_memory_equal(pq, q, cases[c].n * sizeof *q);
+    }
+    assert_int_equal(pm_assoc_bh(NULL, 0, NULL), PM_OK);
+    /* allocation failure */
+    double p[3] = {0.1, 0.2, 0.3}, q[3];
+    pm_i_alloc_fail_after(1);
+    assert_int_equal(pm_assoc_bh(p, 3, q), PM_ENOMEM);
+    pm_i_alloc_fail_after(0);
+}
+
+/* ==== pm_assoc_run
+ * ================================================================================ */
+
+/* Joint counts by the definition. */
+static void naive_pairs(const pm_incidence_t *inc, uint32_t *n, double *w) {
+    size_t E = inc->n_items;
+    memset(n, 0, E * E * sizeof *n);
+    if (w) {
+        memset(w, 0, E * E * sizeof *w);
+    }
+    for (size_t r = 0; r < inc->n_resp; r++) {
+        for (uint64_t i = inc->row_ptr[r]; i < inc->row_ptr[r + 1]; i++) {
+            for (uint64_t j = i + 1; j < inc->row_ptr[r + 1]; j++) {
+                size_t at = (size_t)inc->col[i] * E + inc->col[j];
+                n[at]++;
+                if (w) {
+                    w[at] += inc->weight[r];
+                }
+            }
+        }
+    }
+}
+
+static pm_pairs_t *run(const pm_incidence_t *inc, pm_sign_t sign, uint32_t min_count,
+                       double min_share, unsigned threads, int kernel) {
+    pm_assoc_opts_t o;
+    pm_assoc_opts_init(&o);
+    o.sign = sign;
+    o.min_count = min_count;
+    o.min_share = min_share;
+    o.threads = threads;
+    o.kernel = kernel;
+    pm_pairs_t *pp = NULL;
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    pm_err_t rc = pm_assoc_run(inc, &o, &pp, &d);
+    if (rc != PM_OK) {
+        fail_msg("pm_assoc_run: %s", d.msg);
+    }
+    return pp;
+}
+
+/* An incidence whose item 0 nobody chose and item 1 everybody chose, with a random rest. */
+static pm_incidence_t *family_inc(uint64_t seed, size_t R, size_t E) {
+    pm_incidence_t *base = unit_inc_random(seed, R, E - 2, 0);
+    uint64_t *rp = malloc((R + 1) * sizeof *rp);
+    uint32_t *col = malloc((base->row_ptr[R] + R) * sizeof *col);
+    assert_true(rp && col);
+    size_t nnz = 0;
+    for (size_t r = 0; r < R; r++) {
+        rp[r] = nnz;
+        col[nnz++] = 1; /* everybody */
+        for (uint64_t k = base->row_ptr[r]; k < base->row_ptr[r + 1]; k++) {
+            col[nnz++] = base->col[k] + 2;
+        }
+    }
+    rp[R] = nnz;
+    pm_incidence_t *inc = unit_inc_new(E, R, rp, col, NULL, 0);
+    free(rp);
+    free(col);
+    pm_incidence_free(base);
+    return inc;
+}
+
+static void test_assoc_run_family_counts(void **state) {
+    (void)state;
+    size_t E = 70, R = 1200;
+    pm_incidence_t *inc = family_inc(3, R, E);
+    uint32_t *nn = malloc(E * E * sizeof *nn);
+    assert_non_null(nn);
+    naive_pairs(inc, nn, NULL);
+    static const uint32_t mins[] = {0, 1, 3, 10};
+    static const double shares[] = {0, 0.02};
+    for (size_t si = 0; si < 2; si++) {
+        /* eligible: 0 < n < N and share >= min_share */
+        unsigned char el[70];
+        size_t ne = 0, none = 0, all = 0, low = 0;
+        for (size_t i = 0; i < E; i++) {
+            el[i] = 0;
+            if (inc->count[i] == 0) {
+                none++;
+            } else if (inc->count[i] == inc->N) {
+                all++;
+            } else if ((double)inc->count[i] / (double)inc->N < shares[si]) {
+                low++;
+            } else {
+                el[i] = 1;
+                ne++;
+            }
+        }
+        assert_true(none >= 1 && all == 1);
+        for (size_t mi = 0; mi < sizeof mins / sizeof mins[0]; mi++) {
+            uint64_t seen = 0, below = 0;
+            for (size_t a = 0; a < E; a++) {
+                for (size_t b = a + 1; b < E; b++) {
+                    uint32_t n = nn[a * E + b];
+                    if (el[a] && el[b] && n) {
+                        seen++;
+                        below += n < mins[mi];
+                    }
+                }
+            }
+            for (int sign = PM_SIGN_POSITIVE; sign <= PM_SIGN_BOTH; sign++) {
+                pm_pairs_t *pp = run(inc, (pm_sign_t)sign, mins[mi], shares[si], 2, 0);
+                assert_int_equal(pp->n_eligible, ne);
+                assert_int_equal(pp->hypotheses, (uint64_t)ne * (ne - 1) / 2);
+                assert_int_equal(pp->excluded_none, none);
+                assert_int_equal(pp->excluded_all, all);
+                assert_int_equal(pp->excluded_share, low);
+                assert_int_equal(pp->seen, seen);
+                assert_int_equal(pp->below_count, below);
+                assert_int_equal(pp->unseen, pp->hypotheses - seen);
+                for (size_t i = 0; i < E; i++) {
+                    assert_int_equal(pp->eligible[i], el[i]);
+                }
+                /* listed: the kept seen pairs; all pairs under negative with min-count 0 */
+                uint64_t listed = seen - below;
+                if (sign == PM_SIGN_NEGATIVE && mins[mi] == 0) {
+                    listed = pp->hypotheses;
+                }
+                assert_int_equal(pp->n, listed);
+                for (size_t k = 0; k < pp->n; k++) {
+                    assert_true(el[pp->a[k]] && el[pp->b[k]] && pp->a[k] < pp->b[k]);
+                    assert_int_equal(pp->n_ab[k], nn[pp->a[k] * E + pp->b[k]]);
+                    if (k > 0) {
+                        assert_true(pp->a[k - 1] < pp->a[k] ||
+                                    (pp->a[k - 1] == pp->a[k] && pp->b[k - 1] < pp->b[k]));
+                    }
+                    assert_int_equal(pm_pairs_find(pp, pp->a[k], pp->b[k]), (long)k);
+                }
+                pm_pairs_free(pp);
+            }
+        }
+    }
+    free(nn);
+    pm_incidence_free(inc);
+}
+
+/* The p-value of every pair of the family, computed here pair by pair: pm_assoc_counts or
+ * pm_assoc_weighted, and 1 for never-seen pairs under "positive" (DESIGN.md). */
+static double family_p(const pm_incidence_t *inc, pm_sign_t sign, size_t a, size_t b, uint32_t nab,
+                       double wab) {
+    if (nab == 0 && sign == PM_SIGN_POSITIVE) {
+        return 1.0;
+    }
+    pm_measures_t m;
+    if (inc->wcount) {
+        pm_assoc_weighted(inc->W, inc->wcount[a], inc->wcount[b], wab, pm_incidence_neff(inc), sign,
+                          &m);
+    } else {
+        pm_assoc_counts(inc->N, inc->count[a], inc->count[b], nab, sign, &m);
+    }
+    return m.p;
+}
+
+/* q-values of pm_assoc_run against pm_assoc_bh over the whole family computed here, and the
+ * same q for the pairs kept by a run with --min-count 3 (thresholds never change the family). */
+static void test_assoc_run_qvalues_min_count(void **state) {
+    (void)state;
+    int failures = 0;
+    for (int weighted = 0; weighted <= 1; weighted++) {
+        size_t E = 400, R = 900;
+        pm_incidence_t *inc = unit_inc_random(17 + (uint64_t)weighted, R, E, weighted);
+        uint32_t *nn = malloc(E * E * sizeof *nn);
+        double *ww = weighted ? malloc(E * E * sizeof *ww) : NULL;
+        assert_non_null(nn);
+        naive_pairs(inc, nn, ww);
+        size_t *idx = malloc(E * E * sizeof *idx);
+        double *fp = malloc(E * E * sizeof *fp), *fq = malloc(E * E * sizeof *fq);
+        assert_true(idx && fp && fq);
+        for (int sign = PM_SIGN_POSITIVE; sign <= PM_SIGN_BOTH; sign++) {
+            size_t m = 0;
+            for (size_t a = 0; a < E; a++) {
+                for (size_t b = a + 1; b < E; b++) {
+                    if (inc->count[a] == 0 || inc->count[a] == inc->N || inc->count[b] == 0 ||
+                        inc->count[b] == inc->N) {
+                        continue;
+                    }
+                    idx[a * E + b] = m;
+                    fp[m++] =
+                        family_p(inc, (pm_sign_t)sign, a, b, nn[a * E + b], ww ? ww[a * E + b] : 0);
+                }
+            }
+            assert_int_equal(pm_assoc_bh(fp, m, fq), PM_OK);
+            pm_pairs_t *all = run(inc, (pm_sign_t)sign, 0, 0, 2, 0);
+            assert_int_equal(all->hypotheses, m);
+            double worst = 0;
+            for (size_t k = 0; k < all->n; k++) {
+                size_t at = idx[all->a[k] * E + all->b[k]];
+                near_rel(all->p[k], fp[at], 1e-13, "p of a listed pair");
+                near_rel(all->q[k], fq[at], 1e-12, "q against pm_assoc_bh over the family");
+                double e = fabs(all->q[k] - fq[at]) / fq[at];
+                worst = e > worst ? e : worst;
+                /* the lookup for any p of the family */
+                near_rel(pm_pairs_qvalue(all, all->p[k]), all->q[k], 1e-15, "qvalue lookup");
+            }
+            print_message("sign %d, weighted %d: %zu hypotheses, %zu listed, largest q "
+                          "deviation from pm_assoc_bh %.3g\n",
+                          sign, weighted, m, all->n, worst);
+            for (unsigned th = 1; th <= 3; th += 2) {
+                pm_pairs_t *pruned = run(inc, (pm_sign_t)sign, 3, 0, th, 0);
+                assert_true(pruned->below_count > 0);
+                assert_int_equal(pruned->hypotheses, all->hypotheses);
+                size_t matched = 0, differ = 0;
+                double dev = 0;
+                for (size_t k = 0; k < pruned->n; k++) {
+                    long j = pm_pairs_find(all, pruned->a[k], pruned->b[k]);
+                    assert_true(j >= 0);
+                    assert_true(pruned->p[k] == all->p[j]);
+                    if (pruned->q[k] != all->q[j]) {
+                        if (!differ) {
+                            print_message("sign %d, weighted %d, %u threads: pair (%u, %u) "
+                                          "p=%.17g has q %.17g with --min-count 3 but %.17g "
+                                          "with --min-count 0\n",
+                                          sign, weighted, th, pruned->a[k], pruned->b[k],
+                                          pruned->p[k], pruned->q[k], all->q[j]);
+                        }
+                        differ++;
+                        double e = fabs(pruned->q[k] - all->q[j]) / all->q[j];
+                        dev = e > dev ? e : dev;
+                    }
+                    matched++;
+                }
+                assert_true(matched > 0);
+                if (differ) {
+                    print_message("sign %d, weighted %d, %u threads: %zu of %zu kept pairs "
+                                  "change q under --min-count 3 (largest relative change "
+                                  "%.3g)\n",
+                                  sign, weighted, th, differ, matched, dev);
+                    failures++;
+                }
+                pm_pairs_free(pruned);
+            }
+            pm_pairs_free(all);
+        }
+        free(idx);
+        free(fp);
+        free(fq);
+        free(nn);
+        free(ww);
+        pm_incidence_free(inc);
+    }
+    if (failures) {
+        fail_msg("%d runs with --min-count 3 changed q-values of kept pairs", failures);
+    }
+}
+
+/* Same results for every thread count and kernel. */
+static void test_assoc_run_threads_identical(void **state) {
+    (void)state;
+    pm_incidence_t *inc = unit_inc_random(23, 2000, 90, 0);
+    pm_pairs_t *ref = run(inc, PM_SIGN_BOTH, 2, 0, 1, PM_COUNTS_DENSE);
+    for (unsigned th = 1; th <= 4; th++) {
+        for (int k = PM_COUNTS_AUTO; k <= PM_COUNTS_SPARSE; k++) {
+            pm_pairs_t *pp = run(inc, PM_SIGN_BOTH, 2, 0, th, k);
+            assert_int_equal(pp->n, ref->n);
+            assert_memory_equal(pp->a, ref->a, ref->n * sizeof *pp->a);
+            assert_memory_equal(pp->b, ref->b, ref->n * sizeof *pp->b);
+            assert_memory_equal(pp->p, ref->p, ref->n * sizeof *pp->p);
+            assert_memory_equal(pp->q, ref->q, ref->n * sizeof *pp->q);
+            pm_pairs_free(pp);
+        }
+    }
+    pm_pairs_free(ref);
+    pm_incidence_free(inc);
+}
+
+/* pm_pairs_measures and pm_pairs_measure_any agree with pm_assoc_counts. */
+static void test_assoc_pairs_measures(void **state) {
+    (void)state;
+    pm_incidence_t *inc = unit_inc_random(29, 800, 40, 0);
+    pm_pairs_t *pp = run(inc, PM_SIGN_BOTH, 1, 0, 2, 0);
+    assert_true(pp->n > 10);
+    for (size_t k = 0; k < pp->n; k++) {
+        pm_measures_t m, c, any;
+        pm_pairs_measures(pp, inc, k, &m);
+        pm_assoc_counts(inc->N, inc->count[pp->a[k]], inc->count[pp->b[k]], pp->n_ab[k],
+                        PM_SIGN_BOTH, &c);
+        assert_true(m.phi == c.phi && m.lift == c.lift && m.p == c.p && m.test == c.test);
+        assert_true(m.q == pp->q[k]);
+        pm_pairs_measure_any(pp, inc, pp->a[k], pp->b[k], pp->n_ab[k], 0, &any);
+        assert_true(any.p == c.p && any.q == pp->q[k]);
+    }
+    pm_pairs_free(pp);
+    pm_incidence_free(inc);
+}
+
+static void test_assoc_run_alloc_failure(void **state) {
+    (void)state;
+    pm_incidence_t *inc = unit_inc_random(37, 300, 25, 0);
+    for (int sign = PM_SIGN_POSITIVE; sign <= PM_SIGN_BOTH; sign++) {
+        int failures = 0, done = 0;
+        for (long n = 1; n < 2000 && !done; n++) {
+            pm_assoc_opts_t o;
+            pm_assoc_opts_init(&o);
+            o.sign = (pm_sign_t)sign;
+            o.min_count = 2;
+            o.threads = 1; /* the hook is not thread-safe */
+            pm_pairs_t *pp = (pm_pairs_t *)&o;
+            pm_diag_t d;
+            pm_diag_clear(&d);
+            pm_i_alloc_fail_after(n);
+            pm_err_t rc = pm_assoc_run(inc, &o, &pp, &d);
+            pm_i_alloc_fail_after(0);
+            if (rc == PM_OK) {
+                pm_pairs_free(pp);
+                done = 1;
+            } else {
+                assert_int_equal(rc, PM_ENOMEM);
+                assert_null(pp);
+                failures++;
+            }
+        }
+        assert_true(done);
+        assert_true(failures >= 10);
+    }
+    pm_incidence_free(inc);
+}
+
+static const struct CMUnitTest tests[] = {
+    cmocka_unit_test(test_assoc_counts_tea_coffee),
+    cmocka_unit_test(test_assoc_fisher_tea_tasting),
+    cmocka_unit_test(test_assoc_fisher_exact_sums),
+    cmocka_unit_test(test_assoc_fisher_large_tables),
+    cmocka_unit_test(test_assoc_weighted_matches_counts),
+    cmocka_unit_test(test_assoc_jeffreys_edges),
+    cmocka_unit_test(test_assoc_jeffreys_properties),
+    cmocka_unit_test(test_assoc_bh_hand_cases),
+    cmocka_unit_test(test_assoc_run_family_counts),
+    cmocka_unit_test(test_assoc_run_qvalues_min_count),
+    cmocka_unit_test(test_assoc_run_threads_identical),
+    cmocka_unit_test(test_assoc_pairs_measures),
+    cmocka_unit_test(test_assoc_run_alloc_failure),
+};
+
+UNIT_MAIN("assoc", tests)

@@ -1,0 +1,97 @@
+/* Replays the inputs the fuzzers found (tests/fuzz/regressions/<harness>/) and their seed
+ * corpora (tests/fuzz/corpus/<harness>/) through the harnesses' own code, so every case a
+ * fuzzer once crashed on stays a test: under the sanitizer build (scripts/test-hardening,
+ * build-asan) a memory error fails it, and in every build the harnesses' contract checks
+ * (abort on a broken invariant) do. */
+#define _GNU_SOURCE /* memfd_create in fuzz_input.c */
+#include "unit.h"
+
+#include <dirent.h>
+
+/* the command-line parser lives in the executable, not the library: compile it in */
+#include "../../src/cli/cli.c"
+
+/* the harnesses, with their libFuzzer entry points renamed */
+#define LLVMFuzzerInitialize fuzz_input_init
+#define LLVMFuzzerTestOneInput fuzz_input_one
+#include "../fuzz/fuzz_input.c"
+#undef LLVMFuzzerInitialize
+#undef LLVMFuzzerTestOneInput
+#define LLVMFuzzerInitialize fuzz_cli_init
+#define LLVMFuzzerTestOneInput fuzz_cli_one
+#include "../fuzz/fuzz_cli.c"
+#undef LLVMFuzzerInitialize
+#undef LLVMFuzzerTestOneInput
+
+/* tests/fuzz/ from this file's path (CMake compiles it by absolute path) */
+static void fuzz_dir(char *buf, size_t size, const char *sub) {
+    const char *f = __FILE__;
+    const char *slash = strrchr(f, '/');
+    assert_non_null(slash);
+    snprintf(buf, size, "%.*s/../fuzz/%s", (int)(slash - f), f, sub);
+}
+
+/* Runs every file of dir through fn; returns the number of files. */
+static size_t replay(const char *sub, int (*fn)(const uint8_t *, size_t)) {
+    char dir[4096];
+    fuzz_dir(dir, sizeof dir, sub);
+    DIR *d = opendir(dir);
+    if (!d) {
+        fail_msg("cannot open %s", dir);
+    }
+    size_t n = 0;
+    struct dirent *e;
+    while ((e = readdir(d)) != NULL) {
+        if (e->d_name[0] == '.') {
+            continue;
+        }
+        char path[4352];
+        snprintf(path, sizeof path, "%s/%s", dir, e->d_name);
+        FILE *fp = fopen(path, "rb");
+        assert_non_null(fp);
+        static uint8_t buf[1 << 20];
+        size_t len = fread(buf, 1, sizeof buf, fp);
+        fclose(fp);
+        fprintf(stderr, "replay %s/%s (%zu bytes)\n", sub, e->d_name, len);
+        assert_int_equal(fn(buf, len), 0);
+        n++;
+    }
+    closedir(d);
+    return n;
+}
+
+static void test_fuzz_regressions_input(void **state) {
+    (void)state;
+    /* at least the two cases of issue 6 (cooccur.c row buffer, assoc.c qsort of NULL) */
+    assert_true(replay("regressions/fuzz_input", fuzz_input_one) >= 2);
+}
+
+static void test_fuzz_regressions_cli(void **state) {
+    (void)state;
+    replay("regressions/fuzz_cli", fuzz_cli_one); /* may be empty: nothing found there yet */
+}
+
+static void test_fuzz_regressions_corpus(void **state) {
+    (void)state;
+    assert_true(replay("corpus/fuzz_input", fuzz_input_one) >= 5);
+    assert_true(replay("corpus/fuzz_cli", fuzz_cli_one) >= 5);
+}
+
+static int setup(void **state) {
+    (void)state;
+    int argc = 0;
+    char **argv = NULL;
+    return fuzz_input_init(&argc, &argv); /* not fuzz_cli_init: it closes stdout */
+}
+
+int main(int argc, char **argv) {
+    if (argc > 1) {
+        cmocka_set_test_filter(argv[1]);
+    }
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_fuzz_regressions_input),
+        cmocka_unit_test(test_fuzz_regressions_cli),
+        cmocka_unit_test(test_fuzz_regressions_corpus),
+    };
+    return cmocka_run_group_tests_name("fuzz_regressions", tests, setup, NULL);
+}

@@ -236,6 +236,51 @@ int pm_i_bytecmp(const char *a, const char *b) {
     return strcmp(a, b); /* C11 7.24.4: strcmp compares as unsigned char */
 }
 
+/* Exact powers of ten as doubles (10^0 .. 10^22 are representable). */
+static const double P10[23] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
+                               1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
+                               1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+
+/* Does the decimal digits[0..n) x 10^(x - n + 1) read back as v? With an integer part below
+ * 2^53 and a small exponent, both operands of one IEEE multiplication or division are exact, so the
+ * result is correctly rounded, as strtod's is (Clinger's fast path); otherwise ask strtod. */
+static int reads_back(const char *digits, int n, int x, double v) {
+    int k = x - n + 1;
+    if (n <= 16 && k >= -22 && k <= 22) {
+        uint64_t mi = 0;
+        for (int i = 0; i < n; i++) {
+            mi = mi * 10 + (uint64_t)(digits[i] - '0');
+        }
+        if (mi <= (1ULL << 53)) { /* the integer is exact as a double */
+            double m = (double)mi;
+            double r = k >= 0 ? m * P10[k] : m / P10[-k];
+            return r == v;
+        }
+    }
+    char tmp[40];
+    snprintf(tmp, sizeof tmp, "%.*se%d", n, digits, k);
+    return strtod(tmp, NULL) == v;
+}
+
+/* Rounds the 17 digits d to n digits (half up), writing into out; may carry into a new
+ * leading digit, in which case *x grows by one. */
+static void round_digits(const char *d, int n, char *out, int *x) {
+    memcpy(out, d, (size_t)n);
+    if (d[n] >= '5') {
+        int i = n - 1;
+        while (i >= 0 && out[i] == '9') {
+            out[i--] = '0';
+        }
+        if (i >= 0) {
+            out[i]++;
+        } else {
+            memmove(out + 1, out, (size_t)n - 1);
+            out[0] = '1';
+            (*x)++;
+        }
+    }
+}
+
 int pm_i_fmt_double(char *buf, size_t size, double v) {
     if (isnan(v)) {
         return snprintf(buf, size, "nan");
@@ -246,13 +291,77 @@ int pm_i_fmt_double(char *buf, size_t size, double v) {
     if (v == 0) {
         return snprintf(buf, size, "0");
     }
-    for (int prec = 15; prec <= 17; prec++) {
-        int n = snprintf(buf, size, "%.*g", prec, v);
-        if (strtod(buf, NULL) == v || prec == 17) {
-            return n;
+    /* 17 significant digits always read back; try 15 and 16 first (shortest of the three).
+     * The digits come from one conversion to 25 significant digits; rounding those to 15 or 16
+     * gives what %.15g / %.16g give, except when the dropped digits are a tie at 25 digits
+     * (5000... or 4999...), where the candidate is converted afresh. */
+    char e25[48];
+    snprintf(e25, sizeof e25, "%.24e", fabs(v));
+    char d25[26];
+    d25[0] = e25[0];
+    memcpy(d25 + 1, e25 + 2, 24);
+    d25[25] = '\0';
+    int x25 = atoi(e25 + 27);
+    char dig[26];
+    int n = 0, x = x25;
+    for (int p = 15; p <= 17; p++) {
+        int xp = x25, tie = 1;
+        for (int i = p + 1; i < 25 && tie; i++) {
+            tie = d25[i] == (d25[p] == '5' ? '0' : '9');
+        }
+        tie = tie && (d25[p] == '5' || d25[p] == '4');
+        if (tie) {
+            char ep[40];
+            snprintf(ep, sizeof ep, "%.*e", p - 1, fabs(v));
+            dig[0] = ep[0];
+            memcpy(dig + 1, ep + 2, (size_t)p - 1);
+            xp = atoi(strchr(ep, 'e') + 1);
+        } else {
+            round_digits(d25, p, dig, &xp);
+        }
+        if (p == 17 || reads_back(dig, p, xp, fabs(v))) {
+            n = p;
+            x = xp;
+            break;
         }
     }
-    return 0;
+    int P = n; /* %g semantics with precision P */
+    while (n > 1 && dig[n - 1] == '0') {
+        n--;
+    }
+    char out[48];
+    int o = 0;
+    if (v < 0) {
+        out[o++] = '-';
+    }
+    if (x < -4 || x >= P) {
+        out[o++] = dig[0];
+        if (n > 1) {
+            out[o++] = '.';
+            memcpy(out + o, dig + 1, (size_t)n - 1);
+            o += n - 1;
+        }
+        o += snprintf(out + o, sizeof out - (size_t)o, "e%c%02d", x < 0 ? '-' : '+', x < 0 ? -x : x);
+    } else if (x < 0) {
+        out[o++] = '0';
+        out[o++] = '.';
+        for (int i = 0; i < -x - 1; i++) {
+            out[o++] = '0';
+        }
+        memcpy(out + o, dig, (size_t)n);
+        o += n;
+    } else {
+        for (int i = 0; i <= x; i++) {
+            out[o++] = i < n ? dig[i] : '0';
+        }
+        if (n > x + 1) {
+            out[o++] = '.';
+            memcpy(out + o, dig + x + 1, (size_t)(n - x - 1));
+            o += n - x - 1;
+        }
+    }
+    out[o] = '\0';
+    return snprintf(buf, size, "%s", out);
 }
 
 double pm_i_now(void) {

@@ -257,8 +257,24 @@ static int reads_back(const char *digits, int n, int x, double v) {
             return r == v;
         }
     }
-    char tmp[40];
-    snprintf(tmp, sizeof tmp, "%.*se%d", n, digits, k);
+    char tmp[40]; /* digits "e" exponent, built by hand (printf with '*' is slow in glibc) */
+    memcpy(tmp, digits, (size_t)n);
+    int o = n;
+    tmp[o++] = 'e';
+    if (k < 0) {
+        tmp[o++] = '-';
+        k = -k;
+    }
+    char rev[8];
+    int r = 0;
+    do {
+        rev[r++] = (char)('0' + k % 10);
+        k /= 10;
+    } while (k);
+    while (r) {
+        tmp[o++] = rev[--r];
+    }
+    tmp[o] = '\0';
     return strtod(tmp, NULL) == v;
 }
 

@@ -3,6 +3,7 @@
  * map.svg, edges.csv, nodes.csv and run.json atomically; a summary goes to stdout. */
 #include <math.h>
 #include <stdbool.h>
+#include <pthread.h>
 #include <signal.h>
 #include <stdlib.h>
 #include <string.h>
@@ -426,6 +427,20 @@ static void thresholds_text(char *buf, size_t size, const pm_select_opts_t *sel)
     }
 }
 
+typedef struct {
+    const pm_map_t *map;
+    FILE *graphml, *nodes;
+    pm_err_t *rc_graphml, *rc_nodes;
+    pm_diag_t *d_graphml, *d_nodes;
+} side_job;
+
+static void *side_writer(void *arg) {
+    side_job *j = arg;
+    *j->rc_graphml = pm_write_graphml(j->graphml, j->map, j->d_graphml);
+    *j->rc_nodes = pm_write_nodes_csv(j->nodes, j->map, j->d_nodes);
+    return NULL;
+}
+
 static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_opts_t *sel,
                        run_state *s) {
     static const char *const files[] = {"map.graphml", "map.svg", "edges.csv", "nodes.csv",
@@ -483,28 +498,41 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
     so.color_by_category = no->color_by == 1;
     so.seed = no->seed;
     so.iterations = (int)no->iterations;
+    /* The four files are created here, then written on two threads: GraphML and nodes.csv on
+     * a second thread (plain text, no igraph), the SVG (whose layout calls igraph, which is
+     * not thread-safe) and edges.csv on this one. They are finished in order afterwards. */
     pm_err_t rc = PM_OK;
+    FILE *fps[4] = {NULL, NULL, NULL, NULL};
     for (size_t k = 0; k < 4 && !rc; k++) {
-        FILE *fp;
-        rc = pm_outdir_create(s->od, files[k], &fp, &d);
-        if (rc) {
-            break;
+        rc = pm_outdir_create(s->od, files[k], &fps[k], &d);
+    }
+    pm_err_t wrc[4] = {PM_OK, PM_OK, PM_OK, PM_OK};
+    pm_diag_t wd[4];
+    for (size_t k = 0; k < 4; k++) {
+        pm_diag_clear(&wd[k]);
+    }
+    if (!rc) {
+        side_job job = {&map, fps[0], fps[3], &wrc[0], &wrc[3], &wd[0], &wd[3]};
+        pthread_t th;
+        int threaded = pthread_create(&th, NULL, side_writer, &job) == 0;
+        if (!threaded) {
+            side_writer(&job);
         }
-        switch (k) {
-        case 0:
-            rc = pm_write_graphml(fp, &map, &d);
-            break;
-        case 1:
-            rc = pm_svg_write(fp, &sd, &so, &s->svg, &d);
-            break;
-        case 2:
-            rc = pm_write_edges_csv(fp, s->pp, s->inc, s->e, &d);
-            break;
-        default:
-            rc = pm_write_nodes_csv(fp, &map, &d);
-            break;
+        wrc[1] = pm_svg_write(fps[1], &sd, &so, &s->svg, &wd[1]);
+        wrc[2] = pm_write_edges_csv(fps[2], s->pp, s->inc, s->e, &wd[2]);
+        if (threaded) {
+            pthread_join(th, NULL);
         }
-        pm_err_t rc2 = pm_outdir_finish(s->od, fp, rc ? NULL : &d);
+    }
+    for (size_t k = 0; k < 4; k++) {
+        if (!fps[k]) {
+            continue;
+        }
+        if (!rc && wrc[k]) {
+            rc = wrc[k];
+            d = wd[k];
+        }
+        pm_err_t rc2 = pm_outdir_finish(s->od, fps[k], rc ? NULL : &d);
         if (!rc) {
             rc = rc2;
         }

@@ -240,8 +240,13 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
             pm_i_sha256_update(o->sha, blk + have, n);
         }
         o->bytes += n;
+        if (o->progress) {
+            o->progress(o->progress_ud, "reading", o->bytes, o->total ? o->total : o->bytes);
+        }
         size_t nul_at = SIZE_MAX;
-        const char *nul = n ? memchr(blk + have, '\0', n) : NULL;
+        /* from 0, not from blk + have: the partial line kept from the last read may hold the
+         * NUL (a line across the block boundary, issue 6) */
+        const char *nul = have + n ? memchr(blk, '\0', have + n) : NULL;
         if (nul) {
             nul_at = (size_t)(nul - blk);
         }
@@ -316,6 +321,12 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
             have -= pos;
         } else if (have == cap && !eof) {
             /* one line longer than the buffer: hand it to libcsv piecewise */
+            if (nul_at < have) {
+                rc = pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
+                                 "found a NUL byte: the file is binary or UTF-16 text; save it "
+                                 "as UTF-8 CSV");
+                goto done;
+            }
             if (p.pstate == 0 && !st.in_record) {
                 pending_line = st.cur_line; /* a record starts here (issue 6: line numbers) */
                 st.row_line = st.cur_line;

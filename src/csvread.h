@@ -29,6 +29,9 @@ typedef struct {
     uint64_t lines;       /* out: physical lines */
     char sep_used;        /* out: the delimiter */
     pm_i_sha256 *sha;     /* optional: updated with every byte read */
+    uint64_t total;       /* size of the input when known (progress), else 0 */
+    void (*progress)(void *ud, const char *stage, uint64_t done, uint64_t total);
+    void *progress_ud;
 } pm_i_csv_opts;
 
 /* Reads fp to its end, calling fn for every record. Errors: PM_EDATA (malformed quoting,

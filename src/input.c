@@ -8,6 +8,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 void pm_input_opts_init(pm_input_opts_t *o) {
     memset(o, 0, sizeof *o);
@@ -626,6 +627,14 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
     co.sep = o->sep;
     co.display = display;
     co.sha = &sha;
+    co.progress = o->progress;
+    co.progress_ud = o->progress_ud;
+    {
+        struct stat stt;
+        if (fstat(fileno(fp), &stt) == 0 && S_ISREG(stt.st_mode)) {
+            co.total = (uint64_t)stt.st_size;
+        }
+    }
     if (o->format == PM_FORMAT_WIDE) {
         rc = pm_i_read_wide(fp, o, t, &co, diag);
     } else {
@@ -634,6 +643,11 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
         rd.t = t;
         rd.o = o;
         rc = pm_i_csv_stream(fp, &co, on_rec, &rd, diag);
+        if (rc == PM_OK && !rd.started && co.bytes > 0) { /* not "no data after the header" */
+            rc = pm_diag_set(diag, PM_EDATA, display, 0,
+                             "the file holds only blank lines; expected rows of respondent and "
+                             "item");
+        }
     }
     if (rc == PM_OK && ferror(fp)) {
         rc = pm_diag_set(diag, PM_EIO, display, 0, "cannot read");

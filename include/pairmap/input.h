@@ -42,6 +42,9 @@ typedef struct {
     size_t n_skip_cols;
     bool base_all; /* wide: keep respondents who chose nothing in N */
     const char *display_name; /* name used in messages; NULL: the path ("-" shows "stdin") */
+    /* progress while reading: done and total bytes (total = done when the size is unknown) */
+    void (*progress)(void *ud, const char *stage, uint64_t done, uint64_t total);
+    void *progress_ud;
 } pm_input_opts_t;
 
 /* Sets every option to its default. */

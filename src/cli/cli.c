@@ -476,7 +476,7 @@ void pm_cli_progress(void *ud, const char *stage, uint64_t done, uint64_t total)
     if (t - g_progress.last < 0.2 && done < total) {
         return;
     }
-    if (t - g_progress.start < 1.0 && done < total) {
+    if (t - g_progress.start < 1.0 && !g_progress.shown) {
         return; /* short work: no bar */
     }
     g_progress.last = t;
@@ -487,8 +487,9 @@ void pm_cli_progress(void *ud, const char *stage, uint64_t done, uint64_t total)
         bar[i] = i < filled ? '#' : '.';
     }
     bar[w] = '\0';
-    double rate = (double)done / (t - g_progress.start + 1e-9);
-    fprintf(stderr, "\r%-16s [%s] %3.0f%%  %.3g/s ", stage, bar, frac * 100, rate);
+    double rate = (double)done / (t - g_progress.start + 1e-9) / 1e6;
+    fprintf(stderr, "\r%-16s [%s] %3.0f%%  %.1f %s ", stage, bar, frac * 100, rate,
+            strcmp(stage, "reading") == 0 ? "MB/s" : "M pairs/s");
     g_progress.shown = 1;
 }
 
@@ -520,7 +521,11 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     struct timespec ts;
     clock_gettime(CLOCK_MONOTONIC, &ts);
     double t0 = now_s();
+    if (pm_cli_show_progress(c)) {
+        io.progress = pm_cli_progress;
+    }
     pm_err_t rc = pm_input_read(c->input, &io, table, &d);
+    pm_cli_progress_end(c);
     if (rc) {
         return pm_cli_fail(&d);
     }

@@ -76,6 +76,10 @@ void pm_table_free(pm_table_t *t) {
     free(t->resp_line);
     free(t->resp_has_item);
     free(t->last_id);
+    free(t->run_buf);
+    free(t->run_off);
+    free(t->run_len);
+    free((void *)t->rstr);
     free(t);
 }
 
@@ -219,6 +223,35 @@ pm_err_t pm_i_table_respondent(pm_table_t *t, const char *id, size_t len, uint64
     if (t->n_anon) {
         return pm_diag_set(diag, PM_EINTERNAL, t->source, (long)line,
                            "respondents with and without ids mixed");
+    }
+    if (t->defer) {
+        size_t rr = t->run_n;
+        if (rr >= UINT32_MAX - 1) {
+            return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
+                               "more than %u runs of respondent rows", (unsigned)(UINT32_MAX - 2));
+        }
+        size_t c2 = t->run_off_cap;
+        if (pm_i_grow((void **)&t->run_buf, &t->run_cap, t->run_used + len + 1, 1) ||
+            pm_i_grow((void **)&t->run_off, &t->run_off_cap, rr + 1, sizeof *t->run_off) ||
+            pm_i_grow((void **)&t->run_len, &c2, rr + 1, sizeof *t->run_len) ||
+            pm_i_grow((void **)&t->last_id, &t->last_cap, len + 1, 1)) {
+            return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
+        }
+        memcpy(t->run_buf + t->run_used, id, len);
+        t->run_buf[t->run_used + len] = '\0';
+        t->run_off[rr] = t->run_used;
+        t->run_len[rr] = (uint32_t)len;
+        t->run_used += len + 1;
+        t->run_n++;
+        pm_err_t rc = new_respondent(t, rr, line, diag);
+        if (rc) {
+            return rc;
+        }
+        memcpy(t->last_id, id, len);
+        t->last_len = len;
+        t->last_r = (int64_t)rr;
+        *r = (uint32_t)rr;
+        return PM_OK;
     }
     bool added;
     int64_t id_ = pm_i_strtab_intern(&t->resp, id, len, &added);
@@ -372,12 +405,137 @@ pm_err_t pm_i_table_weight(pm_table_t *t, uint32_t r, const char *w, size_t len,
     return PM_OK;
 }
 
+/* Merges the runs of deferred respondent ids that share an id (see struct pm_table): hashes
+ * sorted with a stable radix sort, equal strings found within equal hashes, then respondents
+ * renumbered in order of first appearance and the rows remapped. */
+static pm_err_t merge_runs(pm_table_t *t, pm_diag_t *diag) {
+    size_t n = t->run_n;
+    pm_err_t rc = PM_ENOMEM;
+    uint64_t *h = pm_i_malloc(n ? n : 1, sizeof *h), *h2 = pm_i_malloc(n ? n : 1, sizeof *h2);
+    uint32_t *ix = pm_i_malloc(n ? n : 1, sizeof *ix), *ix2 = pm_i_malloc(n ? n : 1, sizeof *ix2);
+    uint32_t *canon = pm_i_malloc(n ? n : 1, sizeof *canon);
+    size_t *cnt = pm_i_malloc(65537, sizeof *cnt);
+    t->rstr = pm_i_malloc(n ? n : 1, sizeof *t->rstr);
+    if (!h || !h2 || !ix || !ix2 || !canon || !cnt || !t->rstr) {
+        goto done;
+    }
+    for (size_t r = 0; r < n; r++) {
+        h[r] = pm_i_hash(t->run_buf + t->run_off[r], t->run_len[r]);
+        ix[r] = (uint32_t)r;
+        canon[r] = (uint32_t)r;
+    }
+    for (int shift = 0; shift < 64; shift += 16) { /* stable LSD: equal hashes keep run order */
+        memset(cnt, 0, 65537 * sizeof *cnt);
+        for (size_t i = 0; i < n; i++) {
+            cnt[((h[i] >> shift) & 0xffff) + 1]++;
+        }
+        for (int b = 0; b < 65536; b++) {
+            cnt[b + 1] += cnt[b];
+        }
+        for (size_t i = 0; i < n; i++) {
+            size_t at = cnt[(h[i] >> shift) & 0xffff]++;
+            h2[at] = h[i];
+            ix2[at] = ix[i];
+        }
+        uint64_t *th = h;
+        h = h2;
+        h2 = th;
+        uint32_t *ti = ix;
+        ix = ix2;
+        ix2 = ti;
+    }
+    size_t dups = 0;
+    for (size_t i = 0; i < n;) {
+        size_t j = i + 1;
+        while (j < n && h[j] == h[i]) {
+            j++;
+        }
+        for (size_t a = i + 1; a < j; a++) { /* groups are tiny: pairwise */
+            uint32_t ra = ix[a];
+            for (size_t b = i; b < a; b++) {
+                uint32_t rb = ix[b];
+                if (canon[rb] == rb && t->run_len[ra] == t->run_len[rb] &&
+                    memcmp(t->run_buf + t->run_off[ra], t->run_buf + t->run_off[rb],
+                           t->run_len[ra]) == 0) {
+                    canon[ra] = rb; /* rb < ra: groups are in run order */
+                    dups++;
+                    break;
+                }
+            }
+        }
+        i = j;
+    }
+    if (dups) {
+        /* fold each later run into its first: weights must agree */
+        for (size_t r = 0; r < n; r++) {
+            uint32_t c = canon[r];
+            if (c == r) {
+                continue;
+            }
+            double wc = t->resp_weight[c], wr = t->resp_weight[r];
+            if (!isnan(wr)) {
+                if (isnan(wc)) {
+                    t->resp_weight[c] = wr;
+                } else if (wc != wr) {
+                    rc = pm_diag_set(diag, PM_EDATA, t->source, (long)t->resp_line[r],
+                                     "weight %.17g differs from the weight %.17g this respondent "
+                                     "has on line %llu; give each respondent one weight",
+                                     wr, wc, (unsigned long long)t->resp_line[c]);
+                    goto done;
+                }
+            }
+            t->resp_has_item[c] |= t->resp_has_item[r];
+        }
+        /* renumber: first appearances in order; ix is reused as the new index */
+        size_t k = 0;
+        for (size_t r = 0; r < n; r++) {
+            if (canon[r] == r) {
+                ix[r] = (uint32_t)k;
+                t->resp_weight[k] = t->resp_weight[r];
+                t->resp_line[k] = t->resp_line[r];
+                t->resp_has_item[k] = t->resp_has_item[r];
+                t->rstr[k] = t->run_buf + t->run_off[r];
+                k++;
+            } else {
+                ix[r] = ix[canon[r]];
+            }
+        }
+        for (size_t i = 0; i < t->n_rows; i++) {
+            t->row_resp[i] = ix[t->row_resp[i]];
+        }
+        t->stats.respondents = k;
+    } else {
+        for (size_t r = 0; r < n; r++) {
+            t->rstr[r] = t->run_buf + t->run_off[r];
+        }
+    }
+    rc = PM_OK;
+done:
+    free(h);
+    free(h2);
+    free(ix);
+    free(ix2);
+    free(canon);
+    free(cnt);
+    if (rc == PM_ENOMEM) {
+        pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
+    }
+    return rc;
+}
+
 pm_err_t pm_i_table_finish(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *diag) {
+    if (t->defer && t->run_n) {
+        pm_err_t rc = merge_runs(t, diag);
+        if (rc) {
+            return rc;
+        }
+    }
     if (t->stats.respondents == 0) {
         return pm_diag_set(diag, PM_EDATA, t->source, 0,
                            t->stats.lines == 0 ? "the file is empty; expected rows of "
                                                  "respondent and item"
-                                               : "no data rows after the header");
+                                               : "no data rows after the header; expected rows of "
+                                                 "respondent and item");
     }
     if (o->respondents) {
         if (o->respondents < t->stats.respondents) {
@@ -642,6 +800,7 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
         memset(&rd, 0, sizeof rd);
         rd.t = t;
         rd.o = o;
+        t->defer = true;
         rc = pm_i_csv_stream(fp, &co, on_rec, &rd, diag);
         if (rc == PM_OK && !rd.started && co.bytes > 0) { /* not "no data after the header" */
             rc = pm_diag_set(diag, PM_EDATA, display, 0,
@@ -693,7 +852,7 @@ size_t pm_table_nrows(const pm_table_t *t) {
 void pm_table_row(const pm_table_t *t, size_t i, const char **respondent, const char **item,
                   const char **category) {
     uint32_t r = t->row_resp[i], it = t->row_item[i];
-    *respondent = t->n_anon ? NULL : t->resp.str[r];
+    *respondent = t->n_anon ? NULL : t->rstr ? t->rstr[r] : t->resp.str[r];
     *item = t->items.str[it];
     *category = t->item_cat[it] >= 0 ? t->cats.str[t->item_cat[it]] : NULL;
 }
@@ -701,7 +860,7 @@ size_t pm_table_nrespondents(const pm_table_t *t) {
     return (size_t)t->stats.respondents;
 }
 const char *pm_table_respondent(const pm_table_t *t, size_t r) {
-    return t->n_anon ? NULL : t->resp.str[r];
+    return t->n_anon ? NULL : t->rstr ? t->rstr[r] : t->resp.str[r];
 }
 bool pm_table_respondent_empty(const pm_table_t *t, size_t r) {
     return !t->resp_has_item[r];

@@ -33,6 +33,16 @@ struct pm_table {
     pm_i_strtab merge_from;
     int64_t *merge_to;     /* merge_from id -> id in merge_to_names */
     pm_i_strtab merge_to_names;
+    /* deferred respondent ids (long and lines readers): each run of rows with one id gets a
+     * provisional index; runs with the same id are merged by pm_i_table_finish, which sorts
+     * their hashes instead of probing a hash table once per run */
+    bool defer;
+    char *run_buf;
+    size_t run_used, run_cap;
+    uint64_t *run_off;
+    uint32_t *run_len;
+    size_t run_n, run_off_cap;
+    const char **rstr; /* after finish: respondent -> id (deferred mode) */
     /* fast path: the last respondent seen */
     char *last_id;
     size_t last_len, last_cap;

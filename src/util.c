@@ -86,19 +86,38 @@ struct pm_i_arena_block {
     char data[];
 };
 
-uint64_t pm_i_hash(const char *s, size_t len) {
-    /* FNV-1a, 64-bit, then a final avalanche (splitmix64) so linear probing spreads well. */
-    uint64_t h = 1469598103934665603ULL;
-    for (size_t i = 0; i < len; i++) {
-        h ^= (unsigned char)s[i];
-        h *= 1099511628211ULL;
-    }
+static inline uint64_t load64(const char *p) {
+    uint64_t v;
+    memcpy(&v, p, 8);
+    return v;
+}
+
+static inline uint64_t mix64(uint64_t h) { /* the splitmix64 finaliser */
     h ^= h >> 30;
     h *= 0xbf58476d1ce4e5b9ULL;
     h ^= h >> 27;
     h *= 0x94d049bb133111ebULL;
     h ^= h >> 31;
     return h;
+}
+
+uint64_t pm_i_hash(const char *s, size_t len) {
+    /* Eight bytes at a time (the last word overlapping), then an avalanche. Only used to place
+     * strings in the table: ids are given in first-seen order, so no result depends on it. */
+    uint64_t h = 0x9E3779B97F4A7C15ULL ^ (uint64_t)len;
+    if (len >= 8) {
+        size_t i = 0;
+        for (; i + 8 < len; i += 8) {
+            h = (h ^ load64(s + i)) * 0xff51afd7ed558ccdULL;
+            h ^= h >> 32;
+        }
+        h = (h ^ load64(s + len - 8)) * 0xc4ceb9fe1a85ec53ULL;
+    } else {
+        uint64_t w = 0;
+        memcpy(&w, s, len);
+        h = (h ^ w) * 0xc4ceb9fe1a85ec53ULL;
+    }
+    return mix64(h);
 }
 
 void pm_i_strtab_init(pm_i_strtab *t) {
@@ -142,8 +161,14 @@ static char *arena_copy(pm_i_strtab *t, const char *s, size_t len) {
     return p;
 }
 
+/* A slot holds id + 1 in its low 32 bits (0 = empty) and the top 32 bits of the string's hash,
+ * so that most probes that miss never touch the string arrays. */
+#define SLOT(id, h) (((h) & 0xffffffff00000000ULL) | (uint64_t)((id) + 1))
+#define SLOT_ID(v) ((uint32_t)(v) - 1)
+#define SLOT_TAG_EQ(v, h) ((((v) ^ (h)) >> 32) == 0)
+
 static int rehash(pm_i_strtab *t, size_t ncap) {
-    uint32_t *ns = pm_i_calloc(ncap, sizeof *ns);
+    uint64_t *ns = pm_i_calloc(ncap, sizeof *ns);
     if (!ns) {
         return -1;
     }
@@ -152,7 +177,7 @@ static int rehash(pm_i_strtab *t, size_t ncap) {
         while (ns[i]) {
             i = (i + 1) & (ncap - 1);
         }
-        ns[i] = (uint32_t)(id + 1);
+        ns[i] = SLOT(id, t->hash[id]);
     }
     free(t->slots);
     t->slots = ns;
@@ -167,9 +192,12 @@ int64_t pm_i_strtab_find(const pm_i_strtab *t, const char *s, size_t len) {
     uint64_t h = pm_i_hash(s, len);
     size_t i = (size_t)h & (t->cap - 1);
     while (t->slots[i]) {
-        uint32_t id = t->slots[i] - 1;
-        if (t->hash[id] == h && t->len[id] == len && memcmp(t->str[id], s, len) == 0) {
-            return id;
+        uint64_t v = t->slots[i];
+        if (SLOT_TAG_EQ(v, h)) {
+            uint32_t id = SLOT_ID(v);
+            if (t->len[id] == len && memcmp(t->str[id], s, len) == 0) {
+                return id;
+            }
         }
         i = (i + 1) & (t->cap - 1);
     }
@@ -191,9 +219,12 @@ int64_t pm_i_strtab_intern(pm_i_strtab *t, const char *s, size_t len, bool *adde
     uint64_t h = pm_i_hash(s, len);
     size_t i = (size_t)h & (t->cap - 1);
     while (t->slots[i]) {
-        uint32_t id = t->slots[i] - 1;
-        if (t->hash[id] == h && t->len[id] == len && memcmp(t->str[id], s, len) == 0) {
-            return id;
+        uint64_t v = t->slots[i];
+        if (SLOT_TAG_EQ(v, h)) {
+            uint32_t id = SLOT_ID(v);
+            if (t->len[id] == len && memcmp(t->str[id], s, len) == 0) {
+                return id;
+            }
         }
         i = (i + 1) & (t->cap - 1);
     }
@@ -224,7 +255,7 @@ int64_t pm_i_strtab_intern(pm_i_strtab *t, const char *s, size_t len, bool *adde
     t->str[id] = copy;
     t->len[id] = (uint32_t)len;
     t->hash[id] = h;
-    t->slots[i] = (uint32_t)(id + 1);
+    t->slots[i] = SLOT(id, h);
     if (added) {
         *added = true;
     }

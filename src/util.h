@@ -26,7 +26,7 @@ int pm_i_grow(void **p, size_t *cap, size_t need, size_t size);
  * NUL-terminated; their addresses are stable. */
 typedef struct pm_i_arena_block pm_i_arena_block;
 typedef struct {
-    uint32_t *slots;     /* id + 1, 0 = empty */
+    uint64_t *slots;     /* id + 1 in the low half, 0 = empty; hash tag in the high half */
     size_t cap;          /* number of slots, a power of two */
     const char **str;    /* id -> string */
     uint32_t *len;       /* id -> length in bytes */

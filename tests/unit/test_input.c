@@ -262,9 +262,15 @@ static void test_input_read_weight_differs(void **state) {
     rd r;
     rd_init(&r);
     r.o.weight_col = "3";
-    /* the respondent's rows need not be adjacent; the message names the first row's line */
+    /* the respondent's rows need not be adjacent; the message names a line where the
+     * respondent has the other weight (the first row of the current run of its rows) */
     expect_error(&r, "id,item,w\nr1,tea,2\nr2,tea,1\nr1,jam,2.0\nr1,cake,3\n", PM_EDATA, 5,
-                 "weight '3' differs from the weight 2 ", "on line 2");
+                 "weight '3' differs from the weight 2 ", "on line 4");
+    /* runs of one respondent far apart: checked when the runs are merged */
+    rd_init(&r);
+    r.o.weight_col = "3";
+    expect_error(&r, "id,item,w\nr1,tea,2\nr2,tea,1\nr1,jam,3\n", PM_EDATA, 4,
+                 "weight 3 differs from the weight 2 ", "on line 2");
     /* numerically equal spellings are the same weight */
     rd_init(&r);
     r.o.weight_col = "3";

@@ -464,6 +464,58 @@ static int cmp_pgroup(const void *x, const void *y) {
 
 static int cmp_double(const void *x, const void *y);
 
+/* Stable LSD radix sort of (p, index) by p (non-negative, so its bits order as integers):
+ * ties keep index order, the order cmp_pidx gives. */
+static int radix_pidx(pidx *v, size_t n) {
+    for (size_t i = 0; i < n; i++) {
+        if (!(v[i].p > 0)) {
+            v[i].p = isnan(v[i].p) ? 1.0 : 0.0;
+        }
+    }
+    if (n < 4096) {
+        qsort(v, n, sizeof *v, cmp_pidx);
+        return 0;
+    }
+    pidx *tmp = pm_i_malloc(n, sizeof *tmp);
+    size_t *cnt = pm_i_malloc(65537, sizeof *cnt);
+    if (!tmp || !cnt) {
+        free(tmp);
+        free(cnt);
+        return -1;
+    }
+    pidx *src = v, *dst = tmp;
+    for (int shift = 0; shift < 64; shift += 16) {
+        memset(cnt, 0, 65537 * sizeof *cnt);
+        for (size_t i = 0; i < n; i++) {
+            uint64_t k;
+            memcpy(&k, &src[i].p, 8);
+            cnt[((k >> shift) & 0xffff) + 1]++;
+        }
+        uint64_t k0;
+        memcpy(&k0, &src[0].p, 8);
+        if (cnt[((k0 >> shift) & 0xffff) + 1] == n) {
+            continue;
+        }
+        for (int b = 0; b < 65536; b++) {
+            cnt[b + 1] += cnt[b];
+        }
+        for (size_t i = 0; i < n; i++) {
+            uint64_t k;
+            memcpy(&k, &src[i].p, 8);
+            dst[cnt[(k >> shift) & 0xffff]++] = src[i];
+        }
+        pidx *t = src;
+        src = dst;
+        dst = t;
+    }
+    if (src != v) {
+        memcpy(v, src, n * sizeof *v);
+    }
+    free(tmp);
+    free(cnt);
+    return 0;
+}
+
 /* LSD radix sort of non-negative doubles (16-bit digits): their bit patterns sort as unsigned
  * integers. */
 static int radix_doubles(double *v, size_t n) {
@@ -883,7 +935,9 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
         lv[k].p = pp->p[k];
         lv[k].i = k;
     }
-    qsort(lv, pp->n, sizeof *lv, cmp_pidx);
+    if (radix_pidx(lv, pp->n)) {
+        goto cleanup;
+    }
     for (size_t i = 0; i < npf; i++) {
         if (!(pf[i] > 0)) { /* -0.0 or NaN would break the bit-pattern order */
             pf[i] = isnan(pf[i]) ? 1.0 : 0.0;

@@ -388,7 +388,14 @@ int pm_i_fmt_double(char *buf, size_t size, double v) {
             memcpy(out + o, dig + 1, (size_t)n - 1);
             o += n - 1;
         }
-        o += snprintf(out + o, sizeof out - (size_t)o, "e%c%02d", x < 0 ? '-' : '+', x < 0 ? -x : x);
+        int ax = x < 0 ? -x : x;
+        out[o++] = 'e';
+        out[o++] = x < 0 ? '-' : '+';
+        if (ax >= 100) {
+            out[o++] = (char)('0' + ax / 100);
+        }
+        out[o++] = (char)('0' + ax / 10 % 10);
+        out[o++] = (char)('0' + ax % 10);
     } else if (x < 0) {
         out[o++] = '0';
         out[o++] = '.';
@@ -408,7 +415,12 @@ int pm_i_fmt_double(char *buf, size_t size, double v) {
         }
     }
     out[o] = '\0';
-    return snprintf(buf, size, "%s", out);
+    if (size) {
+        size_t c = (size_t)o < size - 1 ? (size_t)o : size - 1;
+        memcpy(buf, out, c);
+        buf[c] = '\0';
+    }
+    return o;
 }
 
 double pm_i_now(void) {

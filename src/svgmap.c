@@ -12,14 +12,14 @@
 #include "util.h"
 
 /* ==== constants ============================================================================= */
-/* Text is measured conservatively: every code point is CHAR_EM (bold: CHAR_EM_BOLD) times the
- * font size wide, East Asian wide characters twice that; a line's box runs from ASCENT font
- * sizes above the baseline to DESCENT below it. tests/ref/svg_geometry.py measures the same
- * way, so its overlap check is the one used here. DejaVu Sans's lowercase letters are about
- * 0.55 em on average, its capitals up to 0.8 em: the padding CLEAR around every box covers
- * the odd wide word. */
-#define CHAR_EM 0.6
-#define CHAR_EM_BOLD 0.7
+/* Text is measured conservatively, per code point (char_em): at least 0.6 font sizes (em)
+ * each, more for the glyphs DejaVu Sans draws wider (capitals 0.8, m and w 1.0, digits 0.65,
+ * the ellipsis 1.0, East Asian wide characters 1.2), bold text BOLD times that; a line's box
+ * runs from ASCENT font sizes above the baseline to DESCENT below it. Its lowercase letters
+ * are about 0.55 em on average (from memory), so real text ends inside its box.
+ * tests/ref/svg_geometry.py measures the same way, so its overlap check is the one used here;
+ * the padding CLEAR around every box is extra. */
+#define BOLD (7.0 / 6.0)
 #define ASCENT 0.95
 #define DESCENT 0.25
 #define CLEAR 1.5 /* px kept free around label boxes and circles */
@@ -28,8 +28,8 @@
 #define DEFAULT_H 1100
 #define MIN_W 400
 #define MIN_H 300
-#define QUOTA 3       /* members per sizeable cluster taken before the strongest remaining */
-#define SIZEABLE 3    /* a cluster of this many members or more is shown */
+#define QUOTA 3    /* members per sizeable cluster taken before the strongest remaining */
+#define SIZEABLE 3 /* a cluster of this many members or more is shown */
 #define N_PAL 7
 #define MAX_ATTEMPTS 40
 #define PI 3.14159265358979323846
@@ -263,27 +263,25 @@ static int wide(uint32_t cp) {
            (cp >= 0x20000 && cp <= 0x3FFFD);
 }
 
-/* Width of clean text in character widths (code points, wide ones twice). */
-static double text_units(const char *s) {
-    double u = 0;
-    const unsigned char *p = (const unsigned char *)s;
-    while (*p) {
-        uint32_t cp = 0;
-        size_t len = utf8_decode(p, &cp);
-        if (len == 0) { /* cannot happen on clean text */
-            len = 1;
-        }
-        u += wide(cp) ? 2 : 1;
-        p += len;
+/* Width of one code point in font sizes (see the note on text at the top). */
+static double char_em(uint32_t cp) {
+    if (wide(cp)) {
+        return 1.2;
     }
-    return u;
+    if (cp == 'm' || cp == 'w' || cp == 'M' || cp == 'W' || cp == '%' || cp == '@' ||
+        cp == 0x2026) {
+        return 1.0;
+    }
+    if ((cp >= 'A' && cp <= 'Z') || cp == '&' || cp == '#') {
+        return 0.8;
+    }
+    if (cp >= '0' && cp <= '9') {
+        return 0.65;
+    }
+    return 0.6;
 }
 
-static double text_width(const char *s, double fs, int bold) {
-    return text_units(s) * fs * (bold ? CHAR_EM_BOLD : CHAR_EM);
-}
-
-/* Width in character widths of the first len bytes of clean text s. */
+/* Width of the first len bytes of clean text s, in font sizes. */
 static double prefix_units(const char *s, size_t len) {
     double u = 0;
     const unsigned char *p = (const unsigned char *)s;
@@ -291,10 +289,19 @@ static double prefix_units(const char *s, size_t len) {
     while (i < len && p[i]) {
         uint32_t cp = 0;
         size_t l = utf8_decode(p + i, &cp);
-        u += wide(cp) ? 2 : 1;
-        i += l ? l : 1;
+        u += char_em(cp);
+        i += l ? l : 1; /* l is never 0 on clean text */
     }
     return u;
+}
+
+/* Width of clean text in font sizes (regular weight). */
+static double text_units(const char *s) {
+    return prefix_units(s, strlen(s));
+}
+
+static double text_width(const char *s, double fs, int bold) {
+    return text_units(s) * fs * (bold ? BOLD : 1.0);
 }
 
 static char *concat(const char *s, size_t len, const char *tail) {
@@ -307,7 +314,7 @@ static char *concat(const char *s, size_t len, const char *tail) {
     return c;
 }
 
-/* A copy of clean text s shortened to at most max_units character widths and ending in an
+/* A copy of clean text s shortened to at most max_units font sizes wide and ending in an
  * ellipsis; a plain copy when it fits. Cuts where a reader expects it: after a whole part of
  * a list separated by middle dots whenever one part fits (then it ends in a middle dot and
  * the ellipsis), else after a whole word when that keeps at least 60% of the room, else after
@@ -317,19 +324,21 @@ static char *shorten(const char *s, double max_units) {
     if (text_units(s) <= max_units) {
         return concat(s, n, "");
     }
-    if (max_units < 2) {
+    static const char dot_tail[] = " \xc2\xb7 \xe2\x80\xa6", word_tail[] = " \xe2\x80\xa6";
+    double dot_u = text_units(dot_tail), word_u = text_units(word_tail), ell_u = char_em(0x2026);
+    if (max_units < ell_u + 0.6) {
         return NULL;
     }
     static const char dot[] = " \xc2\xb7 "; /* " · " */
     size_t best = 0;
     for (const char *q = strstr(s, dot); q; q = strstr(q + 1, dot)) {
         size_t len = (size_t)(q - s);
-        if (prefix_units(s, len) + 3 <= max_units) { /* " · …" */
+        if (prefix_units(s, len) + dot_u <= max_units) {
             best = len;
         }
     }
     if (best > 0) { /* never half a part of a list */
-        return concat(s, best, " \xc2\xb7 \xe2\x80\xa6");
+        return concat(s, best, dot_tail);
     }
     best = 0;
     for (size_t i = 1; i < n; i++) {
@@ -338,13 +347,13 @@ static char *shorten(const char *s, double max_units) {
             while (len > 0 && (s[len - 1] == ',' || s[len - 1] == '-' || s[len - 1] == ':')) {
                 len--;
             }
-            if (len > 0 && prefix_units(s, len) + 2 <= max_units) { /* " …" */
+            if (len > 0 && prefix_units(s, len) + word_u <= max_units) {
                 best = len;
             }
         }
     }
-    if (best > 0 && prefix_units(s, best) + 2 >= 0.6 * max_units) {
-        return concat(s, best, " \xe2\x80\xa6");
+    if (best > 0 && prefix_units(s, best) + word_u >= 0.6 * max_units) {
+        return concat(s, best, word_tail);
     }
     const unsigned char *p = (const unsigned char *)s;
     double u = 0;
@@ -352,8 +361,8 @@ static char *shorten(const char *s, double max_units) {
     while (p[cut]) {
         uint32_t cp = 0;
         size_t len = utf8_decode(p + cut, &cp);
-        double cu = wide(cp) ? 2 : 1;
-        if (u + cu > max_units - 1) {
+        double cu = char_em(cp);
+        if (u + cu > max_units - ell_u) {
             break;
         }
         u += cu;
@@ -488,6 +497,7 @@ typedef struct {
     int anchor;  /* 0 start, 1 middle, 2 end */
     int placed;
     int strained; /* placed two lines out, or shortened to find a place */
+    int ring;     /* 0 beside the node, 1 or 2 lines further out (drawn with a leader) */
 } lab_t;
 
 typedef struct {
@@ -512,7 +522,7 @@ typedef struct {
     group_t *g;
     size_t *gm;
     size_t ne;
-    size_t *edge;  /* into d's edges, both ends drawn */
+    size_t *edge;      /* into d's edges, both ends drawn */
     uint32_t *ea, *eb; /* drawn indices of the ends */
     size_t fails, cfails, strained;
     int max_ring; /* label candidates: 0 beside the node only, 1 and 2 further out */
@@ -532,19 +542,19 @@ typedef struct {
     char **name; /* clean names */
     char **cat;  /* clean categories, NULL entries for none */
     double *share, *strength;
-    int *colour;       /* per item: palette index, -1 grey */
-    int *ccolour;      /* per cluster (0-based): palette index, -1 grey */
-    size_t *csize;     /* per cluster: members */
-    size_t *corder;    /* all items grouped by cluster, by strength within: cluster c is */
-    size_t *cfirst;    /* corder[cfirst[c] .. cfirst[c+1]) */
-    size_t *order;     /* priority order of all items */
-    size_t *rank;      /* item -> position in order */
-    int *negative;     /* per edge */
+    int *colour;    /* per item: palette index, -1 grey */
+    int *ccolour;   /* per cluster (0-based): palette index, -1 grey */
+    size_t *csize;  /* per cluster: members */
+    size_t *corder; /* all items grouped by cluster, by strength within: cluster c is */
+    size_t *cfirst; /* corder[cfirst[c] .. cfirst[c+1]) */
+    size_t *order;  /* priority order of all items */
+    size_t *rank;   /* item -> position in order */
+    int *negative;  /* per edge */
     size_t ncat;
-    char **cats;       /* distinct categories by drawn count (category colouring) */
+    const char **cats; /* distinct categories by drawn count (category colouring), borrowed */
     int *catcolour;
     char *title, *thresholds, *measure;
-    char **cname;      /* clean cluster names */
+    char **cname; /* clean cluster names */
 } ctx_t;
 
 static double item_r(const ctx_t *c, size_t i) {
@@ -618,48 +628,70 @@ static void ctx_free(ctx_t *c) {
 }
 
 /* ==== preparation: clean text, sizes, colours, priority ==================================== */
-static const ctx_t *g_sort; /* comparator context; pm_svg_write is not re-entrant anyway
-                             * (igraph's state is process-global) */
+/* Sort records carry their keys, so comparators need no context (qsort has none). */
+typedef struct {
+    int cluster;
+    double strength, share;
+    const char *name;
+    size_t i;
+} member_key;
 
-/* Strength descending, share descending, name by bytes, index. */
-static int cmp_strength(const void *pa, const void *pb) {
-    size_t a = *(const size_t *)pa, b = *(const size_t *)pb;
-    const ctx_t *c = g_sort;
-    if (c->strength[a] != c->strength[b]) {
-        return c->strength[a] > c->strength[b] ? -1 : 1;
+/* Cluster, then strength descending, share descending, name by bytes, index. */
+static int cmp_member(const void *pa, const void *pb) {
+    const member_key *a = pa, *b = pb;
+    if (a->cluster != b->cluster) {
+        return a->cluster < b->cluster ? -1 : 1;
     }
-    if (c->share[a] != c->share[b]) {
-        return c->share[a] > c->share[b] ? -1 : 1;
+    if (a->strength != b->strength) {
+        return a->strength > b->strength ? -1 : 1;
     }
-    int k = pm_i_bytecmp(c->name[a], c->name[b]);
+    if (a->share != b->share) {
+        return a->share > b->share ? -1 : 1;
+    }
+    int k = pm_i_bytecmp(a->name, b->name);
     if (k) {
         return k;
     }
-    return a < b ? -1 : (a > b);
+    return a->i < b->i ? -1 : (a->i > b->i);
 }
 
-static int cmp_cluster_then_strength(const void *pa, const void *pb) {
-    size_t a = *(const size_t *)pa, b = *(const size_t *)pb;
-    int ca = g_sort->d->cluster[a], cb = g_sort->d->cluster[b];
-    if (ca != cb) {
-        return ca < cb ? -1 : 1;
-    }
-    return cmp_strength(pa, pb);
-}
+typedef struct {
+    unsigned long long size; /* members of cluster k */
+    size_t k, t;             /* the t-th member of cluster k */
+} slot_key;
 
-/* Slots (cluster k, t-th member) by size_k / (t + 1) descending, compared exactly in integers;
- * ties by cluster, then t. */
+/* Slots by size / (t + 1) descending, compared exactly in integers; ties by cluster, then t. */
 static int cmp_slot(const void *pa, const void *pb) {
-    const size_t *a = pa, *b = pb;
-    unsigned long long l = (unsigned long long)g_sort->csize[a[0]] * (b[1] + 1);
-    unsigned long long r = (unsigned long long)g_sort->csize[b[0]] * (a[1] + 1);
+    const slot_key *a = pa, *b = pb;
+    unsigned long long l = a->size * (b->t + 1), r = b->size * (a->t + 1);
     if (l != r) {
         return l > r ? -1 : 1;
     }
-    if (a[0] != b[0]) {
-        return a[0] < b[0] ? -1 : 1;
+    if (a->k != b->k) {
+        return a->k < b->k ? -1 : 1;
     }
-    return a[1] < b[1] ? -1 : (a[1] > b[1]);
+    return a->t < b->t ? -1 : (a->t > b->t);
+}
+
+typedef struct {
+    double v;
+    size_t i;
+} num_key;
+
+static int cmp_num_up(const void *pa, const void *pb) {
+    const num_key *a = pa, *b = pb;
+    if (a->v != b->v) {
+        return a->v < b->v ? -1 : 1;
+    }
+    return a->i < b->i ? -1 : (a->i > b->i);
+}
+
+static int cmp_num_down(const void *pa, const void *pb) {
+    const num_key *a = pa, *b = pb;
+    if (a->v != b->v) {
+        return a->v > b->v ? -1 : 1;
+    }
+    return a->i < b->i ? -1 : (a->i > b->i);
 }
 
 static int cmp_size(const void *pa, const void *pb) {
@@ -750,8 +782,7 @@ static pm_err_t prepare(ctx_t *c) {
     c->measure = clean_text(d->measure ? d->measure : "edge weight");
     if (!c->name || !c->cat || !c->cname || !c->share || !c->strength || !c->colour ||
         !c->ccolour || !c->csize || !c->corder || !c->cfirst || !c->order || !c->rank ||
-        !c->negative || !c->cats || !c->catcolour || !c->title || !c->thresholds ||
-        !c->measure) {
+        !c->negative || !c->cats || !c->catcolour || !c->title || !c->thresholds || !c->measure) {
         return nomem(c);
     }
     for (size_t i = 0; i < n; i++) {
@@ -811,11 +842,18 @@ static pm_err_t prepare(ctx_t *c) {
         c->ccolour[k] = (c->csize[k] >= 2 && next < N_PAL) ? next++ : -1;
     }
     /* members of each cluster by strength */
-    for (size_t i = 0; i < n; i++) {
-        c->corder[i] = i;
+    member_key *mk = pm_i_malloc(n ? n : 1, sizeof *mk);
+    if (!mk) {
+        return nomem(c);
     }
-    g_sort = c;
-    qsort(c->corder, n, sizeof *c->corder, cmp_cluster_then_strength);
+    for (size_t i = 0; i < n; i++) {
+        mk[i] = (member_key){d->cluster[i], c->strength[i], c->share[i], c->name[i], i};
+    }
+    qsort(mk, n, sizeof *mk, cmp_member);
+    for (size_t i = 0; i < n; i++) {
+        c->corder[i] = mk[i].i;
+    }
+    pm_i_free(mk);
     for (size_t k = 0, i = 0; k < nc; k++) {
         c->cfirst[k] = i;
         while (i < n && (size_t)d->cluster[c->corder[i]] == k + 1) {
@@ -829,7 +867,7 @@ static pm_err_t prepare(ctx_t *c) {
      * goes to the cluster with the largest size / (taken + 1)), each cluster giving its
      * strongest remaining member. By strength alone the densest cluster would take every
      * remaining slot; items on their own (clusters of one) come last. */
-    size_t *slot = pm_i_malloc(n ? 2 * n : 2, sizeof *slot);
+    slot_key *slot = pm_i_malloc(n ? n : 1, sizeof *slot);
     if (!slot) {
         return nomem(c);
     }
@@ -844,14 +882,12 @@ static pm_err_t prepare(ctx_t *c) {
     for (size_t k = 0; k < nc; k++) {
         size_t t0 = c->csize[k] >= SIZEABLE ? (c->csize[k] < QUOTA ? c->csize[k] : QUOTA) : 0;
         for (size_t t = t0; t < c->csize[k]; t++) {
-            slot[2 * ns] = k;
-            slot[2 * ns + 1] = t;
-            ns++;
+            slot[ns++] = (slot_key){c->csize[k], k, t};
         }
     }
-    qsort(slot, ns, 2 * sizeof *slot, cmp_slot);
+    qsort(slot, ns, sizeof *slot, cmp_slot);
     for (size_t j = 0; j < ns; j++) {
-        c->order[no++] = c->corder[c->cfirst[slot[2 * j]] + slot[2 * j + 1]];
+        c->order[no++] = c->corder[c->cfirst[slot[j].k] + slot[j].t];
     }
     pm_i_free(slot);
     for (size_t i = 0; i < n; i++) {
@@ -875,10 +911,10 @@ static size_t auto_budget(const ctx_t *c) {
     }
     double u = 0;
     for (size_t k = 0; k < probe; k++) {
-        u += fmin(text_units(c->name[c->order[k]]), 30);
+        u += fmin(text_units(c->name[c->order[k]]), 18);
     }
     u = probe ? u / (double)probe : 10;
-    double lw = u * CHAR_EM * c->fs_label + 2 * 12 * c->s + 8;
+    double lw = u * c->fs_label + 2 * 12 * c->s + 8;
     double lh = (ASCENT + DESCENT) * c->fs_label;
     double area = (c->map.x1 - c->map.x0) * (c->map.y1 - c->map.y0);
     size_t b = (size_t)(area / (lw * lh * 4.5));
@@ -904,8 +940,7 @@ static pm_err_t pic_init(ctx_t *c, pic_t *p, size_t nd) {
     p->lab = pm_i_calloc(a, sizeof *p->lab);
     p->gm = pm_i_calloc(a, sizeof *p->gm);
     long *pos = pm_i_malloc(c->n ? c->n : 1, sizeof *pos);
-    if (!p->item || !p->x || !p->y || !p->r || !p->grp || !p->prio || !p->lab || !p->gm ||
-        !pos) {
+    if (!p->item || !p->x || !p->y || !p->r || !p->grp || !p->prio || !p->lab || !p->gm || !pos) {
         pm_i_free(pos);
         return nomem(c);
     }
@@ -999,7 +1034,7 @@ static pm_err_t pic_init(ctx_t *c, pic_t *p, size_t nd) {
 /* Space one item needs in the picture: its node and label box with some air around. */
 static double footprint(const ctx_t *c, const pic_t *p, size_t k) {
     double lh = (ASCENT + DESCENT) * c->fs_label;
-    double lw = fmin(text_units(c->name[p->item[k]]), 28) * CHAR_EM * c->fs_label;
+    double lw = fmin(text_units(c->name[p->item[k]]), 17) * c->fs_label;
     double w = 2 * p->r[k] + lw + 0.8 * lh;
     double h = fmax(2 * p->r[k], lh) + 1.4 * lh;
     return w * h;
@@ -1043,17 +1078,15 @@ static void separate_nodes(const ctx_t *c, pic_t *p, int iters) {
                     continue;
                 }
                 double dist = sqrt(dd);
+                double push = 0.5 * (need - dist) * 1.02;
                 if (dist < 1e-6) { /* coincident: a fixed direction by index */
                     double ang = 2.399963229728653 * (double)(a + b);
                     dx = cos(ang);
                     dy = sin(ang);
-                    dist = 1;
-                    dd = 0;
                 } else {
                     dx /= dist;
                     dy /= dist;
                 }
-                double push = 0.5 * (need - sqrt(dd)) * 1.02;
                 p->x[a] -= dx * push;
                 p->y[a] -= dy * push;
                 p->x[b] += dx * push;
@@ -1109,9 +1142,9 @@ static void pack_groups(const ctx_t *c, pic_t *p) {
                 group_t *q = &p->g[g];
                 double R = q->R;
                 q->cx = (m->x1 - m->x0 > 2 * R) ? clampd(q->cx, m->x0 + R, m->x1 - R)
-                                                 : 0.5 * (m->x0 + m->x1);
+                                                : 0.5 * (m->x0 + m->x1);
                 q->cy = (m->y1 - m->y0 > 2 * R) ? clampd(q->cy, m->y0 + R, m->y1 - R)
-                                                 : 0.5 * (m->y0 + m->y1);
+                                                : 0.5 * (m->y0 + m->y1);
             }
             if (!moved) {
                 break;
@@ -1191,8 +1224,12 @@ static pm_err_t layout(ctx_t *c, pic_t *p) {
     pm_i_free(lw);
     if (rc) {
         pm_i_free(xy);
-        return rc == PM_ENOMEM ? rc : pm_diag_set(c->diag, PM_EINTERNAL, NULL, 0,
-                                                   "map layout failed: %s", c->diag->msg);
+        if (rc == PM_ENOMEM) {
+            return rc;
+        }
+        char why[sizeof c->diag->msg];
+        snprintf(why, sizeof why, "%s", c->diag->msg);
+        return pm_diag_set(c->diag, PM_EINTERNAL, NULL, 0, "map layout failed: %s", why);
     }
     /* groups: centroids in layout units, discs in pixels */
     const box_t *m = &c->map;
@@ -1300,8 +1337,8 @@ static pm_err_t make_hulls(ctx_t *c, pic_t *p) {
             double rr = p->r[k] + pad;
             for (int s = 0; s < HULL_STEPS; s++) {
                 double a = 2 * PI * s / HULL_STEPS;
-                pts[j * HULL_STEPS + (size_t)s] = (pt_t){p->x[k] + rr * cos(a),
-                                                         p->y[k] + rr * sin(a)};
+                pts[j * HULL_STEPS + (size_t)s] =
+                    (pt_t){p->x[k] + rr * cos(a), p->y[k] + rr * sin(a)};
             }
         }
         q->nh = convex_hull(pts, np, q->hull);
@@ -1332,8 +1369,8 @@ static void cand_add(cand_t *cs, int *nc, double x0, double y0, double w, double
 
 /* Positions beside a node of radius r at (cx, cy) for a box w x h: right, left, the four
  * diagonals, above and below, then the same one and two lines further out. */
-static int node_cands(double cx, double cy, double r, double w, double h, double fs,
-                      int max_ring, cand_t *cs) {
+static int node_cands(double cx, double cy, double r, double w, double h, double fs, int max_ring,
+                      cand_t *cs) {
     int nc = 0;
     double g0 = 0.25 * h + 2;
     for (int ring = 0; ring <= max_ring && ring < 3; ring++) {
@@ -1377,7 +1414,15 @@ static int label_conflicts(const ctx_t *c, const pic_t *p, const box_t *b, const
     }
     for (size_t j = 0; j < p->nd; j++) {
         const lab_t *l = &p->lab[j];
-        if (l != self && l->placed && box_hit(b, &l->b, CLEAR)) {
+        if (l == self || !l->placed) {
+            continue;
+        }
+        int hit = box_hit(b, &l->b, CLEAR);
+        if (!hit && l->ring > 0) { /* its leader */
+            hit = segment_hits_box(p->x[j], p->y[j], clampd(p->x[j], l->b.x0, l->b.x1),
+                                   clampd(p->y[j], l->b.y0, l->b.y1), b);
+        }
+        if (hit) {
             bad++;
             if (!count_all) {
                 return bad;
@@ -1397,8 +1442,8 @@ static int label_conflicts(const ctx_t *c, const pic_t *p, const box_t *b, const
         double s = 0;
         if (p->ne <= 20000) {
             for (size_t k = 0; k < p->ne; k++) {
-                if (segment_hits_box(p->x[p->ea[k]], p->y[p->ea[k]], p->x[p->eb[k]],
-                                     p->y[p->eb[k]], b)) {
+                if (segment_hits_box(p->x[p->ea[k]], p->y[p->ea[k]], p->x[p->eb[k]], p->y[p->eb[k]],
+                                     b)) {
                     s += 1.0;
                 }
             }
@@ -1409,8 +1454,38 @@ static int label_conflicts(const ctx_t *c, const pic_t *p, const box_t *b, const
 }
 
 /* The best free candidate for label l at node k (or cluster box); 1 when found. */
+/* A label set further out gets a leader from its node to the nearest point of its box: the
+ * leader must cross no other label and no other node. */
+static int leader_blocked(const pic_t *p, size_t k, const box_t *b, const lab_t *self) {
+    double tx = clampd(p->x[k], b->x0, b->x1), ty = clampd(p->y[k], b->y0, b->y1);
+    double x0 = p->x[k], y0 = p->y[k];
+    for (size_t j = 0; j < p->nd; j++) {
+        const lab_t *l = &p->lab[j];
+        if (l != self && l->placed && segment_hits_box(x0, y0, tx, ty, &l->b)) {
+            return 1;
+        }
+        if (j == k) {
+            continue;
+        }
+        /* distance from node j to the segment */
+        double ex = tx - x0, ey = ty - y0, ll = ex * ex + ey * ey;
+        double t = ll > 0 ? clampd(((p->x[j] - x0) * ex + (p->y[j] - y0) * ey) / ll, 0, 1) : 0;
+        double dx = p->x[j] - x0 - t * ex, dy = p->y[j] - y0 - t * ey;
+        if (dx * dx + dy * dy < (p->r[j] + 1) * (p->r[j] + 1)) {
+            return 1;
+        }
+    }
+    for (size_t g = 0; g < p->ng; g++) {
+        const lab_t *l = &p->g[g].lab;
+        if (l->placed && segment_hits_box(x0, y0, tx, ty, &l->b)) {
+            return 1;
+        }
+    }
+    return 0;
+}
+
 static int best_free(const ctx_t *c, const pic_t *p, const cand_t *cs, int nc, const lab_t *l,
-                     int own_group, cand_t *out) {
+                     int own_group, long node, cand_t *out) {
     int found = 0;
     double best = INFINITY;
     for (int i = 0; i < nc; i++) {
@@ -1419,6 +1494,9 @@ static int best_free(const ctx_t *c, const pic_t *p, const cand_t *cs, int nc, c
         }
         double soft = 0;
         if (label_conflicts(c, p, &cs[i].b, l, 0, &soft)) {
+            continue;
+        }
+        if (node >= 0 && cs[i].cost >= 3.9 && leader_blocked(p, (size_t)node, &cs[i].b, l)) {
             continue;
         }
         double cost = cs[i].cost + soft;
@@ -1453,6 +1531,7 @@ static void lab_put(lab_t *l, const cand_t *k) {
     l->anchor = k->anchor;
     l->placed = 1;
     l->strained = k->cost >= 7.9; /* the outermost ring (see node_cands) */
+    l->ring = k->cost >= 7.9 ? 2 : (k->cost >= 3.9 ? 1 : 0);
 }
 
 static int try_node_label(const ctx_t *c, pic_t *p, size_t k) {
@@ -1460,7 +1539,7 @@ static int try_node_label(const ctx_t *c, pic_t *p, size_t k) {
     cand_t cs[MAX_CANDS], best;
     double h = (ASCENT + DESCENT) * l->fs;
     int nc = node_cands(p->x[k], p->y[k], p->r[k], l->w, h, l->fs, p->max_ring, cs);
-    if (best_free(c, p, cs, nc, l, (int)p->grp[k], &best)) {
+    if (best_free(c, p, cs, nc, l, (int)p->grp[k], (long)k, &best)) {
         lab_put(l, &best);
         return 1;
     }
@@ -1507,7 +1586,7 @@ static int try_cluster_label(const ctx_t *c, pic_t *p, size_t g) {
     cand_add(cs, &nc, xc - 0.5 * w, y0 - 2 * h - 1, w, h, 1, fs, 3.0);
     cand_add(cs, &nc, xc - 0.5 * w, y1 + h + 1, w, h, 1, fs, 3.2);
     cand_t best;
-    if (best_free(c, p, cs, nc, l, -1, &best)) {
+    if (best_free(c, p, cs, nc, l, -1, -1, &best)) {
         lab_put(l, &best);
         return 1;
     }
@@ -1549,6 +1628,9 @@ static int repair_label(const ctx_t *c, pic_t *p, size_t k) {
         if (other < 0) {
             continue; /* free (cannot be: k would have taken it) or several in the way */
         }
+        if (cs[i].cost >= 3.9 && leader_blocked(p, k, b, l)) {
+            continue;
+        }
         lab_t *o = &p->lab[other];
         lab_t saved = *o;
         o->placed = 0;
@@ -1582,7 +1664,7 @@ static pm_err_t place_labels(ctx_t *c, pic_t *p, int allow_short) {
     double mapw = c->map.x1 - c->map.x0;
     for (size_t k = 0; k < p->nd; k++) {
         /* a name longer than the map is never drawn whole */
-        double maxu = floor((0.6 * mapw) / (CHAR_EM * c->fs_label));
+        double maxu = 0.6 * mapw / c->fs_label;
         if (set_label_text(&p->lab[k], c->name[p->item[k]], c->fs_label, 0, maxu)) {
             return nomem(c);
         }
@@ -1601,9 +1683,8 @@ static pm_err_t place_labels(ctx_t *c, pic_t *p, int allow_short) {
                 }
                 rw = x1 - x0;
             }
-            double maxu = floor(fmin(fmax(1.2 * rw, 16 * CHAR_EM_BOLD * c->fs_cluster),
-                                     0.5 * mapw) /
-                                (CHAR_EM_BOLD * c->fs_cluster));
+            double maxu = fmin(fmax(1.2 * rw, 10 * BOLD * c->fs_cluster), 0.5 * mapw) /
+                          (BOLD * c->fs_cluster);
             if (set_label_text(&p->g[g].lab, c->cname[p->g[g].cluster - 1], c->fs_cluster, 1,
                                maxu)) {
                 return nomem(c);
@@ -1640,8 +1721,8 @@ static pm_err_t place_labels(ctx_t *c, pic_t *p, int allow_short) {
             }
             double u = text_units(c->name[p->item[k]]);
             for (double f = 0.8; f > 0.25 && !l->placed; f -= 0.15) {
-                double mu = floor(u * f);
-                if (mu < 7) {
+                double mu = u * f;
+                if (mu < 4.5) {
                     break;
                 }
                 if (set_label_text(l, c->name[p->item[k]], c->fs_label, 0, mu)) {
@@ -1652,8 +1733,7 @@ static pm_err_t place_labels(ctx_t *c, pic_t *p, int allow_short) {
                 }
                 l->strained = 1;
             }
-            if (!l->placed &&
-                set_label_text(l, c->name[p->item[k]], c->fs_label, 0, INFINITY)) {
+            if (!l->placed && set_label_text(l, c->name[p->item[k]], c->fs_label, 0, INFINITY)) {
                 return nomem(c);
             }
         }
@@ -1725,6 +1805,37 @@ static void repel(const ctx_t *c, pic_t *p) {
         dx[k] -= 0.3 * h * (bx - p->x[k]) / (fabs(bx - p->x[k]) + fabs(by - p->y[k]) + 1e-9);
         dy[k] -= 0.3 * h * (by - p->y[k]) / (fabs(bx - p->x[k]) + fabs(by - p->y[k]) + 1e-9);
     }
+    /* a cluster's name that found no place wants the spot above its region */
+    for (size_t g = 0; g < p->ng; g++) {
+        const group_t *q = &p->g[g];
+        if (!q->region || q->lab.placed || q->nh == 0 || !q->lab.text) {
+            continue;
+        }
+        double top = INFINITY, topx = 0;
+        for (size_t i = 0; i < q->nh; i++) {
+            if (q->hull[i].y < top) {
+                top = q->hull[i].y;
+                topx = q->hull[i].x;
+            }
+        }
+        double w = q->lab.w, hh = (ASCENT + DESCENT) * q->lab.fs;
+        box_t b = {topx - 0.5 * w, top - hh - 1, topx + 0.5 * w, top - 1};
+        double bx = topx, by = top - 0.5 * hh;
+        for (size_t j = 0; j < p->nd; j++) {
+            int hit = circle_hit(p->x[j], p->y[j], p->r[j], &b, CLEAR + 2) ||
+                      (p->lab[j].placed && box_hit(&b, &p->lab[j].b, CLEAR + 2));
+            if (hit && p->grp[j] != g) {
+                double ux = p->x[j] - bx, uy = p->y[j] - by, dd = sqrt(ux * ux + uy * uy);
+                dx[j] += dd > 1e-6 ? 0.6 * h * ux / dd : 0;
+                dy[j] += dd > 1e-6 ? 0.6 * h * uy / dd : 0.6 * h;
+            }
+        }
+        if (b.y0 < c->map.y0) { /* no room above the region: the cluster moves down */
+            for (size_t j = 0; j < q->n; j++) {
+                dy[p->gm[q->first + j]] += c->map.y0 - b.y0;
+            }
+        }
+    }
     for (size_t k = 0; k < p->nd; k++) {
         p->x[k] += clampd(dx[k], -2 * h, 2 * h);
         p->y[k] += clampd(dy[k], -2 * h, 2 * h);
@@ -1732,6 +1843,61 @@ static void repel(const ctx_t *c, pic_t *p) {
     }
     pm_i_free(dx);
     pm_i_free(dy);
+}
+
+/* Moves every node that lies in (or touches) another cluster's region out of it, across the
+ * region's nearest side; returns the number moved. Regions are convex, so the nearest side
+ * is the shortest way out. */
+static size_t evict(const ctx_t *c, pic_t *p) {
+    size_t moved = 0;
+    double m = 0.8 * hull_pad(c); /* clear air, so that a neighbour does not look a member */
+    for (size_t k = 0; k < p->nd; k++) {
+        for (size_t g = 0; g < p->ng; g++) {
+            const group_t *q = &p->g[g];
+            if (g == p->grp[k] || q->nh < 3) {
+                continue;
+            }
+            double best = INFINITY, nx = 0, ny = 0;
+            int in = 1;
+            for (size_t i = 0; i < q->nh && in; i++) {
+                pt_t a = q->hull[i], b = q->hull[(i + 1) % q->nh];
+                double ex = b.x - a.x, ey = b.y - a.y, len = sqrt(ex * ex + ey * ey);
+                if (len < 1e-9) {
+                    continue;
+                }
+                double ix = -ey / len, iy = ex / len; /* inward normal */
+                double dist = ix * (p->x[k] - a.x) + iy * (p->y[k] - a.y);
+                if (dist <= -(p->r[k] + m)) {
+                    in = 0; /* clear of this side: outside */
+                } else if (dist < best) {
+                    best = dist;
+                    nx = -ix;
+                    ny = -iy;
+                }
+            }
+            if (in && isfinite(best)) {
+                double step = best + p->r[k] + m + 0.5;
+                p->x[k] += nx * step;
+                p->y[k] += ny * step;
+                clamp_node(c, p, k);
+                moved++;
+            }
+        }
+    }
+    return moved;
+}
+
+/* Regions, keeping other clusters' nodes out of them. */
+static pm_err_t regions(ctx_t *c, pic_t *p) {
+    pm_err_t rc = make_hulls(c, p);
+    for (int round = 0; !rc && round < 4; round++) {
+        if (evict(c, p) == 0) {
+            break;
+        }
+        separate_nodes(c, p, 20);
+        rc = make_hulls(c, p);
+    }
+    return rc;
 }
 
 /* One picture of the first nd items: layout, regions, labels, with repulsion passes. */
@@ -1744,7 +1910,7 @@ static pm_err_t attempt(ctx_t *c, pic_t *p, size_t nd) {
      * shortened names and a second line out only in the last passes */
     static const int ring_of_pass[6] = {0, 0, 0, 1, 2, 2};
     for (int pass = 0; !rc && pass < 6; pass++) {
-        rc = make_hulls(c, p);
+        rc = regions(c, p);
         p->max_ring = ring_of_pass[pass];
         if (!rc) {
             rc = place_labels(c, p, pass >= 4);
@@ -1771,7 +1937,6 @@ static pm_err_t fit(ctx_t *c, pic_t *p, size_t nd) {
     pm_err_t rc = PM_OK;
     for (int a = 0; a < MAX_ATTEMPTS; a++) {
         rc = attempt(c, &cur, nd);
-        if (getenv("PM_SVG_DEBUG")) fprintf(stderr, "attempt %zu: fails %zu cfails %zu strained %zu\n", nd, cur.fails, cur.cfails, cur.strained);
         if (rc) {
             break;
         }
@@ -1789,6 +1954,9 @@ static pm_err_t fit(ctx_t *c, pic_t *p, size_t nd) {
             size_t cut = miss > nd / 4 ? nd / 4 : (miss < nd / 50 ? nd / 50 : miss);
             pic_free(&cur);
             if (!have) {
+                if (a >= MAX_ATTEMPTS / 2 && cut < nd / 4) {
+                    cut = nd / 4; /* running out of attempts: shrink faster */
+                }
                 nd -= cut > 0 ? cut : 1;
                 if (nd == 0) {
                     break;
@@ -1858,12 +2026,12 @@ static void fmt_count(char *buf, size_t size, uint64_t v) {
 
 static void fmt_percent(char *buf, size_t size, double share) {
     double v = share * 100;
-    if (v >= 10) {
+    if (v >= 10 || v == floor(v)) {
         snprintf(buf, size, "%.0f%%", v);
     } else if (v >= 1) {
-        snprintf(buf, size, "%.0f%%", v);
-    } else {
         snprintf(buf, size, "%.1f%%", v);
+    } else {
+        snprintf(buf, size, "%.2g%%", v);
     }
 }
 
@@ -1892,8 +2060,8 @@ static void swatch_region(sbuf *b, double x, double y, double w, double h, const
 
 /* Nice share values for the size key: up to three of 1-2-5 steps within the drawn range. */
 static size_t size_key_values(double lo, double hi, double *v) {
-    static const double steps[] = {0.001, 0.002, 0.005, 0.01, 0.02, 0.05, 0.1,
-                                   0.2,   0.3,   0.5,   0.75, 1.0};
+    static const double steps[] = {0.001, 0.002, 0.005, 0.01, 0.02, 0.05,
+                                   0.1,   0.2,   0.3,   0.5,  0.75, 1.0};
     size_t ns = sizeof steps / sizeof *steps, a = ns, z = ns;
     for (size_t i = 0; i < ns; i++) {
         if (a == ns && steps[i] >= lo * 0.999) {
@@ -1955,10 +2123,10 @@ static long wrap_text(const char *text, double max_u, char **out, size_t max_lin
             w[j - i] = '\0';
             double wu = text_units(w);
             pm_i_free(w);
-            if (end > start && u + 1 + wu > max_u) {
+            if (end > start && u + 0.6 + wu > max_u) {
                 break;
             }
-            u += (end > start ? 1 : 0) + wu;
+            u += (end > start ? 0.6 : 0) + wu;
             end = j;
             i = j;
             while (i < n && text[i] == ' ') {
@@ -1989,14 +2157,13 @@ static long wrap_text(const char *text, double max_u, char **out, size_t max_lin
 }
 
 static double max_units(double w, double fs, int bold) {
-    return floor(w / (fs * (bold ? CHAR_EM_BOLD : CHAR_EM)));
+    return w / (fs * (bold ? BOLD : 1.0));
 }
 
 /* A paragraph of at most max_lines lines in the legend from (x, y); returns the lines drawn
  * through *drawn. */
 static pm_err_t legend_para(ctx_t *c, sbuf *b, double x, double y, double fs, int bold,
-                            const char *fill, const char *text, size_t max_lines,
-                            size_t *drawn) {
+                            const char *fill, const char *text, size_t max_lines, size_t *drawn) {
     char *lines[4] = {NULL, NULL, NULL, NULL};
     if (max_lines > 4) {
         max_lines = 4;
@@ -2010,8 +2177,7 @@ static pm_err_t legend_para(ctx_t *c, sbuf *b, double x, double y, double fs, in
     }
     size_t k = (size_t)nl < max_lines ? (size_t)nl : max_lines;
     for (size_t i = 0; i < k; i++) {
-        write_text(b, "legend", x, y + (double)i * 1.25 * fs, fs, 0, bold, fill, lines[i], NULL,
-                   0);
+        write_text(b, "legend", x, y + (double)i * 1.25 * fs, fs, 0, bold, fill, lines[i], NULL, 0);
         pm_i_free(lines[i]);
     }
     *drawn = k;
@@ -2030,8 +2196,8 @@ static size_t para_lines(const ctx_t *c, double x, double fs, int bold, const ch
 
 /* The leading members of items[0..n): as many names as fit in max_lines lines of the
  * legend, then "+K more". Writes into s. */
-static void members_text(const ctx_t *c, const size_t *items, size_t n, size_t total,
-                         double x, double fs, long max_lines, char *s, size_t size) {
+static void members_text(const ctx_t *c, const size_t *items, size_t n, size_t total, double x,
+                         double fs, long max_lines, char *s, size_t size) {
     size_t best = 1;
     for (size_t m = 1; m <= n && m <= 12; m++) {
         size_t len = 0;
@@ -2069,8 +2235,8 @@ static int name_lists(const char *cname, const char *member) {
         int head = q == cname || (q - cname >= 2 && q[-1] == ' ' &&
                                   (q[-2] == ',' || (unsigned char)q[-2] == 0xB7 || q[-2] == '&'));
         const char *e = q + ml;
-        int tail = *e == '\0' || *e == ',' || (e[0] == ' ' && ((unsigned char)e[1] == 0xC2 ||
-                                                               e[1] == '&'));
+        int tail = *e == '\0' || *e == ',' ||
+                   (e[0] == ' ' && ((unsigned char)e[1] == 0xC2 || e[1] == '&'));
         if (head && tail) {
             return 1;
         }
@@ -2083,9 +2249,8 @@ static int name_lists(const char *cname, const char *member) {
  * gives names two lines and members two; mode 1 members one line; mode 2 names one line and
  * no members. b NULL: measure only. Returns the y below the list; *unlisted counts the
  * coloured clusters that found no room. */
-static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y,
-                           double keys_top, const size_t *drawn_in, size_t *tmp,
-                           size_t *unlisted, pm_err_t *err) {
+static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y, double keys_top,
+                           const size_t *drawn_in, size_t *tmp, size_t *unlisted, pm_err_t *err) {
     const pm_svg_data_t *d = c->d;
     double x = c->legend.x0, xi = x + 1.4 * c->fs_leg;
     double fs = c->fs_leg, fs2 = c->fs_small;
@@ -2161,8 +2326,7 @@ static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y
         } else {
             swatch_circle(b, x + 0.45 * fs, y - 0.35 * fs, 0.45 * fs, PAL_FILL[col]);
         }
-        rc = legend_para(c, b, xi, y, fs, 1, cat_mode ? INK : PAL_TEXT[col], head, head_lines,
-                         &nl);
+        rc = legend_para(c, b, xi, y, fs, 1, cat_mode ? INK : PAL_TEXT[col], head, head_lines, &nl);
         y += (double)nl * 1.15 * lh;
         nl = 0;
         if (!rc && cnt && mem_lines) {
@@ -2242,15 +2406,14 @@ static pm_err_t write_legend(ctx_t *c, const pic_t *p, sbuf *b, double wmin, dou
     snprintf(neg_text, sizeof neg_text, "dashed: chosen instead of each other");
     snprintf(foot, sizeof foot, "Layout: Fruchterman-Reingold, seed %llu \xc2\xb7 pairmap %s",
              (unsigned long long)c->o->seed, pm_version());
-    double size_h = nv ? para_lines(c, x, fs, 1, size_head, 2) * lh + 0.3 * lh + 2 * rbig +
-                             1.4 * fs2 + 0.9 * lh
-                       : 0;
-    double line_h = p->ne ? para_lines(c, x, fs, 1, line_head, 2) * lh + 2 * lh2 +
-                                (any_negative ? para_lines(c, x + 3.6 * fs, fs2, 0, neg_text, 2)
-                                                * lh2
-                                              : 0) +
-                                0.9 * lh
-                          : 0;
+    double size_h =
+        nv ? para_lines(c, x, fs, 1, size_head, 2) * lh + 0.3 * lh + 2 * rbig + 1.4 * fs2 + 0.9 * lh
+           : 0;
+    double line_h =
+        p->ne ? para_lines(c, x, fs, 1, line_head, 2) * lh + 2 * lh2 +
+                    (any_negative ? para_lines(c, x + 3.6 * fs, fs2, 0, neg_text, 2) * lh2 : 0) +
+                    0.9 * lh
+              : 0;
     double foot_h = para_lines(c, x, fs2, 0, foot, 2) * lh2;
     double keys_top = bottom - foot_h - line_h - size_h;
     double y = L->y0 + ASCENT * fh;
@@ -2265,8 +2428,8 @@ static pm_err_t write_legend(ctx_t *c, const pic_t *p, sbuf *b, double wmin, dou
             int col = c->catcolour[k];
             swatch_circle(b, x + 0.45 * fs, y - 0.35 * fs, 0.45 * fs,
                           col >= 0 ? PAL_FILL[col] : GREY_FILL);
-            rc = legend_para(c, b, xi, y, fs, 0, INK, col >= 0 ? c->cats[k] : "other categories",
-                             1, &nl);
+            rc = legend_para(c, b, xi, y, fs, 0, INK, col >= 0 ? c->cats[k] : "other categories", 1,
+                             &nl);
             y += 1.15 * lh;
             if (col < 0) {
                 break;
@@ -2378,42 +2541,13 @@ static pm_err_t write_legend(ctx_t *c, const pic_t *p, sbuf *b, double wmin, dou
     return rc;
 }
 
-static const ctx_t *g_edge_ctx;
-static const pic_t *g_edge_pic;
-
-/* Edges drawn weakest first, so strong ones lie on top; ties by index. */
-static int cmp_edge_draw(const void *pa, const void *pb) {
-    size_t a = *(const size_t *)pa, b = *(const size_t *)pb;
-    const double *w = g_edge_ctx->d->weight;
-    double wa = fabs(w[g_edge_pic->edge[a]]), wb = fabs(w[g_edge_pic->edge[b]]);
-    if (!isfinite(wa)) {
-        wa = 0;
-    }
-    if (!isfinite(wb)) {
-        wb = 0;
-    }
-    if (wa != wb) {
-        return wa < wb ? -1 : 1;
-    }
-    return a < b ? -1 : (a > b);
-}
-
-/* Nodes drawn largest first, so small ones stay visible on top. */
-static int cmp_node_draw(const void *pa, const void *pb) {
-    size_t a = *(const size_t *)pa, b = *(const size_t *)pb;
-    double ra = g_edge_pic->r[a], rb = g_edge_pic->r[b];
-    if (ra != rb) {
-        return ra > rb ? -1 : 1;
-    }
-    return a < b ? -1 : (a > b);
-}
-
-static void categories(ctx_t *c, const pic_t *p) {
-    /* distinct categories of the drawn items, most drawn first, ties by name */
+/* Colours by category: the distinct categories of the drawn items, most drawn first (ties
+ * by name), get the palette in turn; past it, "other categories" in grey. */
+static pm_err_t categories(ctx_t *c, const pic_t *p) {
     size_t nc = 0;
     size_t *cnt = pm_i_calloc(c->n ? c->n : 1, sizeof *cnt);
     if (!cnt) {
-        return;
+        return nomem(c);
     }
     for (size_t k = 0; k < p->nd; k++) {
         const char *ct = c->cat[p->item[k]] ? c->cat[p->item[k]] : "(no category)";
@@ -2422,7 +2556,7 @@ static void categories(ctx_t *c, const pic_t *p) {
             j++;
         }
         if (j == nc) {
-            c->cats[nc++] = (char *)ct;
+            c->cats[nc++] = ct;
         }
         cnt[j]++;
     }
@@ -2435,7 +2569,7 @@ static void categories(ctx_t *c, const pic_t *p) {
                 best = b;
             }
         }
-        char *t = c->cats[a];
+        const char *t = c->cats[a];
         c->cats[a] = c->cats[best];
         c->cats[best] = t;
         size_t u = cnt[a];
@@ -2457,6 +2591,7 @@ static void categories(ctx_t *c, const pic_t *p) {
         }
     }
     pm_i_free(cnt);
+    return PM_OK;
 }
 
 static void write_header(const ctx_t *c, sbuf *b) {
@@ -2480,8 +2615,8 @@ static void write_header(const ctx_t *c, sbuf *b) {
 static pm_err_t write_svg(ctx_t *c, pic_t *p, sbuf *b, pm_svg_stats_t *st) {
     const pm_svg_data_t *d = c->d;
     char line[2048], num[64];
-    if (c->o->color_by_category) {
-        categories(c, p);
+    if (c->o->color_by_category && categories(c, p)) {
+        return PM_ENOMEM;
     }
     write_header(c, b);
     /* the subtitle doubles as the description */
@@ -2558,26 +2693,27 @@ static pm_err_t write_svg(ctx_t *c, pic_t *p, sbuf *b, pm_svg_stats_t *st) {
     if (!(wmin <= wmax)) {
         wmin = wmax = 0;
     }
-    size_t *eo = pm_i_malloc(p->ne ? p->ne : 1, sizeof *eo);
-    size_t *no = pm_i_malloc(p->nd ? p->nd : 1, sizeof *no);
+    /* edges weakest first, so that strong ones lie on top; nodes largest first, so that small
+     * ones stay visible; ties by index */
+    num_key *eo = pm_i_malloc(p->ne ? p->ne : 1, sizeof *eo);
+    num_key *no = pm_i_malloc(p->nd ? p->nd : 1, sizeof *no);
     if (!eo || !no) {
         pm_i_free(eo);
         pm_i_free(no);
         return nomem(c);
     }
     for (size_t e = 0; e < p->ne; e++) {
-        eo[e] = e;
+        double w = fabs(d->weight[p->edge[e]]);
+        eo[e] = (num_key){isfinite(w) ? w : 0, e};
     }
     for (size_t j = 0; j < p->nd; j++) {
-        no[j] = j;
+        no[j] = (num_key){p->r[j], j};
     }
-    g_edge_ctx = c;
-    g_edge_pic = p;
-    qsort(eo, p->ne, sizeof *eo, cmp_edge_draw);
-    qsort(no, p->nd, sizeof *no, cmp_node_draw);
+    qsort(eo, p->ne, sizeof *eo, cmp_num_up);
+    qsort(no, p->nd, sizeof *no, cmp_num_down);
     sb_puts(b, "<g id=\"edges\" stroke-linecap=\"round\">\n");
     for (size_t j = 0; j < p->ne; j++) {
-        size_t e = eo[j], ke = p->edge[e];
+        size_t e = eo[j].i, ke = p->edge[e];
         size_t a = p->ea[e], z = p->eb[e];
         double w = d->weight[ke], aw = isfinite(w) ? fabs(w) : wmin;
         double t = wmax > wmin ? (aw - wmin) / (wmax - wmin) : 1;
@@ -2599,7 +2735,7 @@ static pm_err_t write_svg(ctx_t *c, pic_t *p, sbuf *b, pm_svg_stats_t *st) {
         sb_attr_num(b, "y2", p->y[z]);
         sb_attr(b, "stroke", stroke);
         sb_attr_num(b, "stroke-width", (0.6 + 3.9 * t) * c->s + 0.2);
-        sb_attr_num(b, "stroke-opacity", neg ? 0.75 : 0.25 + 0.55 * t);
+        sb_attr_num(b, "stroke-opacity", neg ? 0.2 + 0.45 * t : 0.25 + 0.55 * t);
         if (neg) {
             sb_puts(b, " stroke-dasharray=\"6 4\"");
         }
@@ -2610,10 +2746,33 @@ static pm_err_t write_svg(ctx_t *c, pic_t *p, sbuf *b, pm_svg_stats_t *st) {
         sb_puts(b, "\"/>\n");
     }
     sb_puts(b, "</g>\n");
+    /* leaders: a thin line from a label set further out to its node */
+    sb_puts(b, "<g id=\"leaders\" stroke=\"#6B6B6B\" stroke-opacity=\"0.8\"");
+    sb_attr_num(b, "stroke-width", 0.8 * c->s);
+    sb_puts(b, ">\n");
+    for (size_t kk = 0; kk < p->nd; kk++) {
+        const lab_t *l = &p->lab[kk];
+        if (!l->placed || l->ring == 0) {
+            continue;
+        }
+        double tx = clampd(p->x[kk], l->b.x0, l->b.x1), ty = clampd(p->y[kk], l->b.y0, l->b.y1);
+        double dx = tx - p->x[kk], dy = ty - p->y[kk], dd = sqrt(dx * dx + dy * dy);
+        if (dd <= p->r[kk] + 1) {
+            continue;
+        }
+        sb_puts(b, "<line class=\"leader\"");
+        sb_attr_num(b, "x1", p->x[kk] + dx / dd * (p->r[kk] + 1));
+        sb_attr_num(b, "y1", p->y[kk] + dy / dd * (p->r[kk] + 1));
+        sb_attr_num(b, "x2", tx - dx / dd);
+        sb_attr_num(b, "y2", ty - dy / dd);
+        sb_attr(b, "data-item", c->name[p->item[kk]]);
+        sb_puts(b, "/>\n");
+    }
+    sb_puts(b, "</g>\n");
     /* nodes */
     sb_puts(b, "<g id=\"nodes\" stroke=\"#222222\">\n");
     for (size_t j = 0; j < p->nd; j++) {
-        size_t kk = no[j], i = p->item[kk];
+        size_t kk = no[j].i, i = p->item[kk];
         sb_puts(b, "<circle class=\"node\"");
         sb_attr_num(b, "cx", p->x[kk]);
         sb_attr_num(b, "cy", p->y[kk]);
@@ -2674,13 +2833,13 @@ static pm_err_t write_svg(ctx_t *c, pic_t *p, sbuf *b, pm_svg_stats_t *st) {
     sb_puts(b, "</g>\n");
     /* title and subtitle */
     double m = c->map.x0, tw = c->W - 2 * m;
-    char *t = shorten(c->title, floor(tw / (CHAR_EM_BOLD * c->fs_title)));
+    char *t = shorten(c->title, tw / (BOLD * c->fs_title));
     double title_base = fmax(12, round(22 * c->s)) + ASCENT * c->fs_title;
     if (t) {
         write_text(b, "title", m, title_base, c->fs_title, 0, 1, INK, t, NULL, 0);
         pm_i_free(t);
     }
-    t = shorten(line, floor(tw / (CHAR_EM * c->fs_sub)));
+    t = shorten(line, tw / c->fs_sub);
     if (t) {
         write_text(b, "subtitle", m, title_base + 0.5 * c->fs_title + ASCENT * c->fs_sub + 2,
                    c->fs_sub, 0, 0, "#444444", t, NULL, 0);
@@ -2734,8 +2893,8 @@ pm_err_t pm_svg_write(FILE *fp, const pm_svg_data_t *d, const pm_svg_opts_t *o,
     if ((o->width > 0 && o->width < MIN_W) || (o->height > 0 && o->height < MIN_H) ||
         o->width > 20000 || o->height > 20000) {
         return pm_diag_set(diag, PM_EUSAGE, NULL, 0,
-                           "map canvas %dx%d is out of range (%dx%d to 20000x20000 px)",
-                           o->width, o->height, MIN_W, MIN_H);
+                           "map canvas %dx%d is out of range (%dx%d to 20000x20000 px)", o->width,
+                           o->height, MIN_W, MIN_H);
     }
     pm_err_t rc = check_data(&c);
     if (rc) {

@@ -14,9 +14,13 @@
 extern "C" {
 #endif
 
-/* What to draw. Node i: name, category (NULL: none), share in [0,1], cluster 1..n_clusters
- * (1 = largest), strength (sum of positive edge weights). Edge k joins ea[k] and eb[k] with
- * the edge measure weight[k]; negative weight = a negative (substitute) edge. */
+/* What to draw. Node i: name, category (the array or an entry NULL: none), share in [0,1],
+ * cluster 1..n_clusters (1 = largest; clusters of one are items on their own), strength (sum
+ * of positive edge weights; the array NULL: summed from the edges). Edge k joins ea[k] and
+ * eb[k] with the edge measure weight[k]; negative weight = a negative (substitute) edge.
+ * cluster_name NULL, or an entry NULL: "Cluster c". Text is UTF-8; ill-formed bytes and
+ * control characters are repaired in the picture, never passed through. Everything is
+ * borrowed for the duration of the call. */
 typedef struct {
     size_t n_nodes;
     const char *const *name;
@@ -40,26 +44,39 @@ typedef struct {
 } pm_svg_data_t;
 
 typedef struct {
-    const char *title;   /* NULL: a default title */
-    int width, height;   /* canvas in px; 0: defaults */
-    size_t draw;         /* items to draw; 0: sized from the canvas */
+    const char *title;     /* NULL: a default title */
+    int width, height;     /* canvas in px; 0: defaults */
+    size_t draw;           /* items to draw; 0: sized from the canvas */
     int color_by_category; /* 0: fill by cluster */
-    uint64_t seed;
-    int iterations;      /* layout iterations; 0: default */
+    uint64_t seed;         /* of the layout */
+    int iterations;        /* layout iterations; 0: default */
 } pm_svg_opts_t;
 
 typedef struct {
-    size_t drawn;        /* items drawn */
-    size_t left_out;     /* items not drawn */
+    size_t drawn;    /* items drawn */
+    size_t left_out; /* items not drawn */
     size_t edges_drawn;
 } pm_svg_stats_t;
 
+/* Defaults: seed 1, everything else 0. */
 void pm_svg_opts_init(pm_svg_opts_t *o);
 
-/* Writes the SVG to fp. Deterministic for the same data and options. Draws at most o->draw
- * items (fewer when their labels cannot all fit without overlap); stats says how many were
- * drawn and left out. Errors: PM_EUSAGE (canvas below 400x300 or above 20000 px), PM_EIO
- * (stream), PM_ENOMEM, PM_EINTERNAL (layout; data that breaks the invariants above). */
+/* Machine-readable marks in the SVG (for scripts and tests/ref/svg_geometry.py): node
+ * circles have class "node" with data-item, data-cluster, data-share (round-trip) and
+ * data-category; their labels class "label" with data-item (a label's box is computable from
+ * x, y, font-size, text-anchor and font-weight as src/svgmap.c measures text); edges class
+ * "edge" (negative ones "edge negative") with data-a, data-b, data-weight; regions class
+ * "region" and cluster names class "cluster-label" with data-cluster; legend entries of
+ * clusters class "legend-cluster" with data-cluster, data-size, data-drawn.
+ *
+ * Writes the SVG to fp in one piece (nothing on error). Deterministic for the same data and
+ * options. Draws at most o->draw items (fewer when their labels cannot all fit without
+ * overlap), chosen by structure: each sizeable cluster's most connected members first, then
+ * more members of each cluster in proportion to its size; stats says how many were drawn and
+ * left out. o NULL: defaults; stats and diag may be NULL. Cost: a few layouts of the drawn
+ * items (Fruchterman-Reingold, O(iterations * drawn^2) each). Errors: PM_EUSAGE (canvas below
+ * 400x300 or above 20000 px), PM_EIO (stream), PM_ENOMEM, PM_EINTERNAL (layout; data that breaks
+ * the invariants above). */
 pm_err_t pm_svg_write(FILE *fp, const pm_svg_data_t *d, const pm_svg_opts_t *o,
                       pm_svg_stats_t *stats, pm_diag_t *diag);
 

@@ -641,7 +641,14 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
                "partitions; 1 = all agree)\n",
                cl->stability, (unsigned long long)no->restarts);
     }
-    printf("written       %s/: map.graphml, map.svg, edges.csv, nodes.csv, run.json\n", no->dir);
+    printf("picture       %zu of %zu items drawn, %zu edges", s->svg.drawn, s->n,
+           s->svg.edges_drawn);
+    if (s->svg.left_out) {
+        printf(" (%zu items left out of map.svg so that labels fit; the GraphML and CSV files "
+               "keep all; --draw and --width/--height change it)",
+               s->svg.left_out);
+    }
+    printf("\nwritten       %s/: map.graphml, map.svg, edges.csv, nodes.csv, run.json\n", no->dir);
 }
 
 /* ---- command ----------------------------------------------------------------------------------

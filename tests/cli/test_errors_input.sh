@@ -87,6 +87,19 @@ expect_fail 2 "$TMP/bad_category_line2.csv:2: " "invalid UTF-8 in category" -- \
 } >"$TMP/nul_byte_line120002.csv"
 expect_fail 2 "$TMP/nul_byte_line120002.csv:120002: " "found a NUL byte" -- items "$TMP/nul_byte_line120002.csv"
 
+# a NUL byte in a line that crosses the reader's 1 MiB block boundary, just before and just
+# after it (header 11 bytes + 65535 lines of 16 bytes end at byte 1048571)
+for at in before after; do
+    {
+        printf 'order,item\n'
+        awk 'BEGIN { for (i = 0; i < 65535; i++) printf "R%07d,Item %d\n", i, i % 7 }'
+        if [ "$at" = before ]; then printf 'R9,B\000item%s\n' "$(printf '%040d' 0)"; else
+            printf 'R9,Bag of nu\000ts\n'; fi
+        printf 'R8,Item 1\n'
+    } >"$TMP/nul_at_block_$at.csv"
+    expect_fail 2 "$TMP/nul_at_block_$at.csv:65537: " "found a NUL byte" -- items "$TMP/nul_at_block_$at.csv"
+done
+
 # ---- a field over the size limit (PM_INPUT_MAX_FIELD = 65536 bytes) -----------------------------
 {
     printf 'order,item\nA1,Espresso\nA2,'
@@ -100,7 +113,33 @@ run_all 2 "$TMP/field_too_long_line3.csv:3: " "over the limit of 65536 bytes" "$
     awk 'BEGIN { l = sprintf("%99s", ""); gsub(/ /, "y", l); for (i = 0; i < 700; i++) print l }'
     printf '"\n'
 } >"$TMP/quoted_field_too_long_line3.csv"
-run_all 2 "$TMP/quoted_field_too_long_line3.csv:3: " "over the limit of 65536 bytes" "$TMP/quoted_field_too_long_line3.csv"
+run_all 2 "$TMP/quoted_field_too_long_line3.csv:3: " "quoted field 2 runs past the limit of 65536 bytes" \
+    "$TMP/quoted_field_too_long_line3.csv"
+# a quote opened early in a big file and never closed: stopped at the limit, not buffered to
+# the end of the file (50 MB of rows after it; the run stays far below that in memory)
+{
+    printf 'order,item\nA1,Espresso\nA2,"Tea\n'
+    awk 'BEGIN { for (i = 0; i < 3000000; i++) printf "R%07d,Item %d\n", i, i % 50 }'
+} >"$TMP/runaway_quote_line3.csv"
+if [ -x /usr/bin/time ]; then
+    CASES=$((CASES + 1))
+    /usr/bin/time -f '%M' -o "$TMP/rss" "$PAIRMAP" items "$TMP/runaway_quote_line3.csv" >/dev/null 2>"$TMP/err"
+    rss=$(tail -n 1 "$TMP/rss")
+    [ "$rss" -lt 48000 ] || fail "a runaway quoted field used $rss kB"
+fi
+expect_fail 2 "$TMP/runaway_quote_line3.csv:3: " "a closing quote is probably missing" -- items "$TMP/runaway_quote_line3.csv"
+# an unquoted field longer than the reader's 1 MiB block, and a line of 300,000 short fields
+{
+    printf 'order,item\nA1,a\nA2,b\nA3,c\nA4,'
+    head -c 2000000 /dev/zero | tr '\0' x
+    printf '\nA5,d\n'
+} >"$TMP/huge_field_line5.csv"
+expect_fail 2 "$TMP/huge_field_line5.csv:5: " "field 2 is over the limit of 65536 bytes" -- items "$TMP/huge_field_line5.csv"
+{
+    printf 'order,item\nA1,a\nA2,b\nA3,c\n'
+    awk 'BEGIN { for (i = 0; i < 300000; i++) printf "f%d,", i; print "x" }'
+} >"$TMP/many_fields_line5.csv"
+expect_fail 2 "$TMP/many_fields_line5.csv:5: " "found 300001 fields, expected 2" -- items "$TMP/many_fields_line5.csv"
 # exactly at the limit is accepted
 {
     printf 'order,item\nA1,Espresso\nA1,'

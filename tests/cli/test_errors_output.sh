@@ -157,4 +157,59 @@ for sig in INT TERM; do
     [ -z "$left" ] || fail "map stopped by SIG$sig left temporary files: $left"
 done
 
+# ---- a signal at any moment: the directory holds the old set or the new set, never a mix ----
+# Reference results for --seed 1 (the "old" run) and --seed 2 (the "new" one): the layout
+# differs, so nodes.csv, map.graphml and map.svg tell the two apart (run.json by its seed).
+ref1="$TMP/ref1" ref2="$TMP/ref2" mix="$TMP/mix"
+expect_ok map "$D" -q -o "$ref1" --seed 1 --restarts 2
+expect_ok map "$D" -q -o "$ref2" --seed 2 --restarts 2
+cmp -s "$ref1/nodes.csv" "$ref2/nodes.csv" && fail "seeds 1 and 2 gave the same nodes.csv: the check below would be blind"
+start=$(date +%s%N)
+"$PAIRMAP" map "$D" -q -o "$TMP/timing" --seed 2 --restarts 2 >/dev/null 2>&1
+span=$((($(date +%s%N) - start) / 1000000 + 50)) # ms: the whole run and a bit
+version_of() { # FILE: 1, 2 or ? (which reference it matches)
+    local f="$1" b
+    b="$(basename "$f")"
+    if [ "$b" = run.json ]; then
+        grep -q '"seed": 2,' "$f" && { echo 2; return; }
+        grep -q '"seed": 1,' "$f" && { echo 1; return; }
+        echo '?'
+        return
+    fi
+    cmp -s "$f" "$ref2/$b" && { echo 2; return; }
+    cmp -s "$f" "$ref1/$b" && { echo 1; return; }
+    echo '?'
+}
+stopped=0 finished=0
+for i in $(seq 1 20); do
+    CASES=$((CASES + 1))
+    rm -rf "$mix" && cp -a "$ref1" "$mix"
+    "$PAIRMAP" map "$D" -q -o "$mix" --seed 2 --restarts 2 >/dev/null 2>"$TMP/err" &
+    pid=$!
+    delay=$((span * i / 20))
+    sleep "$((delay / 1000)).$(printf '%03d' $((delay % 1000)))"
+    kill -s TERM "$pid" 2>/dev/null
+    wait "$pid"
+    rc=$?
+    case "$rc" in
+    0) finished=$((finished + 1)) ;;
+    130 | 143) stopped=$((stopped + 1)) ;;
+    *) fail "map stopped after ${delay} ms: exit $rc: $(cat "$TMP/err")" ;;
+    esac
+    versions=""
+    for f in edges.csv nodes.csv map.graphml map.svg run.json; do
+        versions="$versions$(version_of "$mix/$f")"
+    done
+    # edges.csv does not depend on the seed: it matches either reference
+    case "${versions:1}" in
+    1111 | 2222) ;;
+    *) fail "map stopped after ${delay} ms (exit $rc): files from different runs or broken ($versions for edges nodes graphml svg json)" ;;
+    esac
+    [ "$rc" -eq 0 ] && [ "${versions:1}" != 2222 ] && fail "map exited 0 after ${delay} ms but the files are the old ones"
+    left="$(find "$mix" -name '.*' -type f)"
+    [ -z "$left" ] || fail "map stopped after ${delay} ms left temporary files: $left"
+done
+echo "signals at any moment: $stopped runs stopped, $finished finished first"
+[ "$stopped" -gt 0 ] || fail "no run was stopped by the signal: the check above proved nothing"
+
 finish

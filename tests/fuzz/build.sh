@@ -1,14 +1,16 @@
 #!/bin/sh
 # Builds the libFuzzer harnesses of tests/fuzz/ with clang (ASan + UBSan) into DIR (default
 # build-fuzz/): fuzz_input (the input reader and the stages after it) and fuzz_cli (the
-# command-line parser, src/cli/cli.c compiled in). Usage: sh tests/fuzz/build.sh [DIR]
+# command-line parser, src/cli/cli.c compiled in). The CSV reader reads 128-byte blocks here
+# (PM_CSV_BLOCK) instead of 1 MiB, so that lines across reads are fuzzed too.
+# Usage: sh tests/fuzz/build.sh [DIR]
 set -eu
 cd "$(dirname "$0")/../.."
 out="${1:-build-fuzz}"
 mkdir -p "$out/obj"
 CC="${CC_FUZZ:-clang}"
 san="-fsanitize=address,undefined -fno-sanitize-recover=undefined -fno-omit-frame-pointer"
-cflags="-std=c11 -g -O1 $san -D_POSIX_C_SOURCE=200809L -DPM_VERSION_STRING=\"fuzz\" \
+cflags="-std=c11 -g -O1 $san -D_POSIX_C_SOURCE=200809L -DPM_VERSION_STRING=\"fuzz\" -DPM_CSV_BLOCK=128 \
  -Iinclude -Isrc $(pkg-config --cflags igraph gsl)"
 libs="$(pkg-config --libs igraph gsl) -lcsv -lpthread -lm"
 objs=""

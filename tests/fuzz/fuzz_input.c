@@ -60,8 +60,19 @@ static void put(int fd, const uint8_t *p, size_t n) {
 
 /* Column selectors the option bytes choose from: numbers, header names of the seeds, a name
  * that never exists. */
-static const char *const SEL[] = {NULL, "1", "2", "3", "4", "order", "item", "category",
-                                  "weight", "id", "nope", "0", "99999999999999999999"};
+static const char *const SEL[] = {NULL,
+                                  "1",
+                                  "2",
+                                  "3",
+                                  "4",
+                                  "order",
+                                  "item",
+                                  "category",
+                                  "weight",
+                                  "id",
+                                  "nope",
+                                  "0",
+                                  "99999999999999999999"};
 #define NSEL (sizeof SEL / sizeof SEL[0])
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size) {

@@ -13,12 +13,13 @@ drawn from comes from CSV files beside it (items with cluster and share; kept ed
   - node radii are monotone in share and areas proportional to it (above the smallest radius);
   - every cluster of 3 or more members has a drawn member; the subtitle's "D of N items
     drawn" and the legend's cluster sizes agree with the data;
-  - each region encloses its cluster's drawn members.
-Text boxes are measured as src/svgmap.c measures them (its constants CHAR_EM, ASCENT...):
-each code point 0.6 font sizes wide (0.7 when bold; East Asian wide characters twice that),
-from 0.95 font sizes above the baseline to 0.25 below. This is common practice for a
-conservative estimate of DejaVu Sans, whose lowercase letters average about 0.55 em (from
-memory).
+  - each region encloses its cluster's drawn members, no other cluster's node touches it, and
+    it carries its cluster's name.
+Text boxes are measured as src/svgmap.c measures them (char_em, BOLD, ASCENT, DESCENT): each
+code point at least 0.6 font sizes wide (capitals 0.8, m and w 1.0, digits 0.65, the ellipsis
+1.0, East Asian wide characters 1.2; bold text 7/6 of that), from 0.95 font sizes above the
+baseline to 0.25 below. A conservative estimate of DejaVu Sans, whose lowercase letters
+average about 0.55 em (from memory); 0.6 em per character is common practice.
 
 Usage: svg_geometry.py [SVG NODES_CSV EDGES_CSV]
 Without arguments it draws the pictures of the unit-test driver (build/test_svgmap --write
@@ -40,7 +41,7 @@ from pathlib import Path
 
 REPO = Path(__file__).resolve().parents[2]
 NS = "{http://www.w3.org/2000/svg}"
-CHAR_EM, CHAR_EM_BOLD, ASCENT, DESCENT = 0.6, 0.7, 0.95, 0.25
+BOLD, ASCENT, DESCENT = 7 / 6, 0.95, 0.25
 ELLIPSIS = "\u2026"
 EPS = 0.011  # coordinates are written with two decimals
 
@@ -51,15 +52,28 @@ def wide(cp):
             or 0xFFE0 <= cp <= 0xFFE6 or 0x1F300 <= cp <= 0x1FAFF or 0x20000 <= cp <= 0x3FFFD)
 
 
+def char_em(ch):
+    cp = ord(ch)
+    if wide(cp):
+        return 1.2
+    if ch in "mwMW%@\u2026":
+        return 1.0
+    if "A" <= ch <= "Z" or ch in "&#":
+        return 0.8
+    if "0" <= ch <= "9":
+        return 0.65
+    return 0.6
+
+
 def units(text):
-    return sum(2 if wide(ord(ch)) else 1 for ch in text)
+    return sum(char_em(ch) for ch in text)
 
 
 def text_box(el):
     fs = float(el.get("font-size"))
     x, y = float(el.get("x")), float(el.get("y"))
     text = "".join(el.itertext())
-    w = units(text) * fs * (CHAR_EM_BOLD if el.get("font-weight") == "bold" else CHAR_EM)
+    w = units(text) * fs * (BOLD if el.get("font-weight") == "bold" else 1.0)
     anchor = el.get("text-anchor", "start")
     x0 = {"start": x, "middle": x - w / 2, "end": x - w}[anchor]
     return (x0, y - ASCENT * fs, x0 + w, y + DESCENT * fs), fs, text
@@ -112,6 +126,17 @@ def inside(poly, x, y):
         if (bx - ax) * (y - ay) - (by - ay) * (x - ax) < -1e-6:
             return False
     return True
+
+
+def poly_dist(poly, x, y):
+    """Distance from (x, y) to the boundary of the polygon."""
+    best = math.inf
+    for i in range(len(poly)):
+        (ax, ay), (bx, by) = poly[i], poly[(i + 1) % len(poly)]
+        ll = (bx - ax) ** 2 + (by - ay) ** 2
+        t = 0 if ll == 0 else max(0, min(1, ((x - ax) * (bx - ax) + (y - ay) * (by - ay)) / ll))
+        best = min(best, math.hypot(x - ax - t * (bx - ax), y - ay - t * (by - ay)))
+    return best
 
 
 def check_svg(svg_path, nodes_csv, edges_csv):
@@ -250,7 +275,12 @@ def check_svg(svg_path, nodes_csv, edges_csv):
     want = f"{len(nodes)} of {len(data)} items drawn"
     if len(sub) != 1 or want not in sub[0]:
         fail(f"subtitle {sub} does not say {want!r}")
-    # -- regions enclose their members
+    # -- regions enclose their members, and each is labelled with its cluster's name
+    named = {int(el.get("data-cluster")) for el in root.iter(NS + "text")
+             if el.get("class") == "cluster-label"}
+    for el in root.iter(NS + "path"):
+        if el.get("class") == "region" and int(el.get("data-cluster")) not in named:
+            fail(f"the region of cluster {el.get('data-cluster')} has no name on the map")
     for el in root.iter(NS + "path"):
         if el.get("class") != "region":
             continue
@@ -261,6 +291,8 @@ def check_svg(svg_path, nodes_csv, edges_csv):
         for item, (cx, cy, r, cl, _) in nodes.items():
             if cl == c and not inside(poly, cx, cy):
                 fail(f"node {item!r} lies outside the region of its cluster {c}")
+            if cl != c and (inside(poly, cx, cy) or poly_dist(poly, cx, cy) < r - EPS):
+                fail(f"node {item!r} of cluster {cl} touches the region of cluster {c}")
     return fails
 
 

@@ -129,9 +129,8 @@ static void demo_data(mapdata *md) {
     pm_pairs_t *pp = NULL;
     pm_edges_t *e = NULL;
     pm_diag_t dg;
-    assert_int_equal(pm_input_read(repo_path("demo/cafe-orders.csv", path, sizeof path), &io,
-                                   &t, &dg),
-                     PM_OK);
+    assert_int_equal(
+        pm_input_read(repo_path("demo/cafe-orders.csv", path, sizeof path), &io, &t, &dg), PM_OK);
     assert_int_equal(pm_incidence_build(t, &inc, &dg), PM_OK);
     pm_select_opts_t so;
     pm_select_opts_init(&so);
@@ -209,11 +208,11 @@ static void demo_data(mapdata *md) {
 /* Invented scale data: n items in planted clusters of falling size plus loose items, dense
  * positive edges inside clusters, a few weak ones and some negative ones between. */
 static void synth_data(mapdata *md, size_t n, size_t nc, uint64_t seed) {
-    static const char *const a[] = {"Spiced", "Smoked", "Roasted", "Frozen", "Sweet",
+    static const char *const a[] = {"Spiced", "Smoked", "Roasted", "Frozen",  "Sweet",
                                     "Sour",   "Herbal", "Salted",  "Toasted", "Fresh"};
-    static const char *const b[] = {"pear tart",   "oat bar",    "lemon cake", "bean stew",
-                                    "corn bread",  "berry tea",  "plum jam",   "nut crunch",
-                                    "beet salad",  "ginger ale", "rice bowl",  "leek pie"};
+    static const char *const b[] = {"pear tart",  "oat bar",    "lemon cake", "bean stew",
+                                    "corn bread", "berry tea",  "plum jam",   "nut crunch",
+                                    "beet salad", "ginger ale", "rice bowl",  "leek pie"};
     memset(md, 0, sizeof *md);
     unit_rng r = {seed};
     md->n = n;
@@ -554,6 +553,101 @@ static void test_svgmap_write_crowded(void **state) {
     mapdata_free(&md);
 }
 
+/* Negative pairs: dashed in dark grey and explained in the legend, whether flagged by a
+ * negative weight or by the negative array (a lift stays positive for substitutes). */
+static void test_svgmap_write_negative(void **state) {
+    (void)state;
+    const char *names[4] = {"Tea", "Coffee", "Milk", "Sugar"};
+    const double share[4] = {0.3, 0.4, 0.2, 0.1};
+    const int cluster[4] = {1, 1, 2, 2};
+    const uint32_t ea[3] = {0, 2, 0}, eb[3] = {2, 3, 1};
+    double w[3] = {0.3, 0.2, -0.25};
+    pm_svg_data_t d;
+    memset(&d, 0, sizeof d);
+    d.n_nodes = 4;
+    d.name = names;
+    d.share = share;
+    d.cluster = cluster;
+    d.n_edges = 3;
+    d.ea = ea;
+    d.eb = eb;
+    d.weight = w;
+    d.n_clusters = 2;
+    d.respondents = 500;
+    pm_svg_stats_t st;
+    char *svg = render(&d, NULL, &st, NULL);
+    assert_int_equal(count_of(svg, "<line class=\"edge negative\""), 1);
+    assert_int_equal(count_of(svg, "<line class=\"edge\""), 2);
+    const char *neg = strstr(svg, "<line class=\"edge negative\"");
+    char v[64];
+    assert_true(attr_of(neg, "stroke-dasharray", v, sizeof v));
+    assert_true(attr_of(neg, "data-a", v, sizeof v));
+    assert_string_equal(v, "Tea");
+    assert_non_null(strstr(svg, "chosen instead of each other"));
+    assert_non_null(strstr(svg, "Cluster 1")); /* default cluster names */
+    free(svg);
+    /* lift-like weights, all positive, with the negative flags */
+    const unsigned char flag[3] = {0, 0, 1};
+    w[2] = 0.6;
+    d.negative = flag;
+    d.measure = "lift";
+    svg = render(&d, NULL, &st, NULL);
+    neg = strstr(svg, "<line class=\"edge negative\"");
+    assert_non_null(neg);
+    assert_true(attr_of(neg, "data-b", v, sizeof v));
+    assert_string_equal(v, "Coffee");
+    assert_non_null(strstr(svg, "Line width: lift"));
+    free(svg);
+    /* no negative pair drawn: no dashes, no legend line for them */
+    w[2] = 0.1;
+    d.negative = NULL;
+    svg = render(&d, NULL, &st, NULL);
+    assert_null(strstr(svg, "stroke-dasharray"));
+    assert_null(strstr(svg, "chosen instead of each other"));
+    free(svg);
+}
+
+/* --color-by category: the fill follows the category, the legend lists the categories. */
+static void test_svgmap_write_category(void **state) {
+    (void)state;
+    mapdata md;
+    demo_data(&md);
+    pm_svg_opts_t o;
+    pm_svg_opts_init(&o);
+    o.color_by_category = 1;
+    pm_svg_stats_t st;
+    char *svg = render(&md.d, &o, &st, NULL);
+    assert_non_null(strstr(svg, ">Categories</text>"));
+    /* one fill per category, different fills for different categories */
+    char fills[16][16], cats[16][64];
+    size_t nf = 0;
+    const char *key = "<circle class=\"node\"";
+    for (const char *p = strstr(svg, key); p; p = strstr(p + 1, key)) {
+        char f[16], ct[64];
+        assert_true(attr_of(p, "fill", f, sizeof f));
+        assert_true(attr_of(p, "data-category", ct, sizeof ct));
+        size_t j = 0;
+        while (j < nf && strcmp(cats[j], ct) != 0) {
+            j++;
+        }
+        if (j == nf) {
+            assert_true(nf < 16);
+            strcpy(cats[nf], ct);
+            strcpy(fills[nf], f);
+            nf++;
+        }
+        assert_string_equal(fills[j], f);
+    }
+    assert_int_equal(nf, 6); /* the demo's six categories */
+    for (size_t a = 0; a < nf; a++) {
+        for (size_t b = a + 1; b < nf; b++) {
+            assert_string_not_equal(fills[a], fills[b]);
+        }
+    }
+    free(svg);
+    mapdata_free(&md);
+}
+
 static void test_svgmap_write_empty(void **state) {
     (void)state;
     pm_svg_data_t d;
@@ -678,8 +772,7 @@ static void write_one(const char *dir, const char *name, const mapdata *md,
     assert_int_equal(rc, PM_OK);
     assert_int_equal(fclose(fp), 0);
     write_csvs(base, md);
-    printf("%s: %zu drawn, %zu left out, %zu edges\n", path, st.drawn, st.left_out,
-           st.edges_drawn);
+    printf("%s: %zu drawn, %zu left out, %zu edges\n", path, st.drawn, st.left_out, st.edges_drawn);
 }
 
 static void tool_write(void **state) {
@@ -726,6 +819,8 @@ int main(int argc, char **argv) {
         cmocka_unit_test(test_svgmap_write_escaping),
         cmocka_unit_test(test_svgmap_write_draw_limit),
         cmocka_unit_test(test_svgmap_write_crowded),
+        cmocka_unit_test(test_svgmap_write_negative),
+        cmocka_unit_test(test_svgmap_write_category),
         cmocka_unit_test(test_svgmap_write_empty),
         cmocka_unit_test(test_svgmap_write_errors),
     };

@@ -544,7 +544,11 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
         pm_cli_note(c, "warning: %llu duplicate respondent-item rows merged (each counts once)",
                     (unsigned long long)ic->duplicates);
     }
-    if (s->empty_items) {
+    if (s->empty_items && io.format == PM_FORMAT_WIDE) {
+        pm_cli_note(c, "note: %llu respondents chose nothing in the selected questions and are "
+                       "kept in N (--base all)",
+                    (unsigned long long)s->empty_items);
+    } else if (s->empty_items) {
         pm_cli_note(c, "note: %llu rows named no item (their respondents count in N)",
                     (unsigned long long)s->empty_items);
     }

@@ -759,6 +759,50 @@ static void set_canvas(ctx_t *c) {
     c->rmin = 1.5;
 }
 
+/* The priority order of items to draw (see prepare). */
+static pm_err_t make_order(ctx_t *c, int cluster_major) {
+    size_t n = c->n, nc = c->d->n_clusters;
+    slot_key *slot = pm_i_malloc(n ? n : 1, sizeof *slot);
+    if (!slot) {
+        return nomem(c);
+    }
+    size_t no = 0, ns = 0;
+    if (cluster_major) {
+        /* a budget too small for every sizeable cluster: the largest clusters (1 = largest)
+         * with QUOTA members each, rather than one member of many */
+        for (size_t k = 0; k < nc; k++) {
+            for (size_t round = 0; round < QUOTA; round++) {
+                if (c->csize[k] >= SIZEABLE && c->csize[k] > round) {
+                    c->order[no++] = c->corder[c->cfirst[k] + round];
+                }
+            }
+        }
+    } else {
+        for (size_t round = 0; round < QUOTA; round++) {
+            for (size_t k = 0; k < nc; k++) {
+                if (c->csize[k] >= SIZEABLE && c->csize[k] > round) {
+                    c->order[no++] = c->corder[c->cfirst[k] + round];
+                }
+            }
+        }
+    }
+    for (size_t k = 0; k < nc; k++) {
+        size_t t0 = c->csize[k] >= SIZEABLE ? (c->csize[k] < QUOTA ? c->csize[k] : QUOTA) : 0;
+        for (size_t t = t0; t < c->csize[k]; t++) {
+            slot[ns++] = (slot_key){c->csize[k], k, t};
+        }
+    }
+    qsort(slot, ns, sizeof *slot, cmp_slot);
+    for (size_t j = 0; j < ns; j++) {
+        c->order[no++] = c->corder[c->cfirst[slot[j].k] + slot[j].t];
+    }
+    pm_i_free(slot);
+    for (size_t i = 0; i < n; i++) {
+        c->rank[c->order[i]] = i;
+    }
+    return PM_OK;
+}
+
 static pm_err_t prepare(ctx_t *c) {
     const pm_svg_data_t *d = c->d;
     size_t n = c->n = d->n_nodes, nc = d->n_clusters, m = d->n_edges;
@@ -867,31 +911,9 @@ static pm_err_t prepare(ctx_t *c) {
      * goes to the cluster with the largest size / (taken + 1)), each cluster giving its
      * strongest remaining member. By strength alone the densest cluster would take every
      * remaining slot; items on their own (clusters of one) come last. */
-    slot_key *slot = pm_i_malloc(n ? n : 1, sizeof *slot);
-    if (!slot) {
-        return nomem(c);
-    }
-    size_t no = 0, ns = 0;
-    for (size_t round = 0; round < QUOTA; round++) {
-        for (size_t k = 0; k < nc; k++) {
-            if (c->csize[k] >= SIZEABLE && c->csize[k] > round) {
-                c->order[no++] = c->corder[c->cfirst[k] + round];
-            }
-        }
-    }
-    for (size_t k = 0; k < nc; k++) {
-        size_t t0 = c->csize[k] >= SIZEABLE ? (c->csize[k] < QUOTA ? c->csize[k] : QUOTA) : 0;
-        for (size_t t = t0; t < c->csize[k]; t++) {
-            slot[ns++] = (slot_key){c->csize[k], k, t};
-        }
-    }
-    qsort(slot, ns, sizeof *slot, cmp_slot);
-    for (size_t j = 0; j < ns; j++) {
-        c->order[no++] = c->corder[c->cfirst[slot[j].k] + slot[j].t];
-    }
-    pm_i_free(slot);
-    for (size_t i = 0; i < n; i++) {
-        c->rank[c->order[i]] = i;
+    pm_err_t orc = make_order(c, 0);
+    if (orc) {
+        return orc;
     }
     /* node size: the largest share of all items gets the largest radius */
     double smax = 0;
@@ -2909,6 +2931,15 @@ pm_err_t pm_svg_write(FILE *fp, const pm_svg_data_t *d, const pm_svg_opts_t *o,
         goto cleanup;
     }
     size_t nd = o->draw ? (o->draw < c.n ? o->draw : c.n) : auto_budget(&c);
+    {
+        size_t sizeable = 0;
+        for (size_t k = 0; k < c.d->n_clusters; k++) {
+            sizeable += c.csize[k] >= SIZEABLE;
+        }
+        if (sizeable > nd && (rc = make_order(&c, 1)) != PM_OK) {
+            goto cleanup;
+        }
+    }
     rc = fit(&c, &p, nd);
     if (rc) {
         goto cleanup;

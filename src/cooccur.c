@@ -284,6 +284,47 @@ static int dense_sum_chunk(void *ud, size_t c, unsigned th) {
     return 0;
 }
 
+/* ---- parallel transpose ------------------------------------------------------------------ */
+typedef struct {
+    kstate *k;
+    unsigned parts;
+    int phase;        /* 0: count, 1: fill */
+    uint64_t *cnt;    /* parts x E: entries per item, then fill offsets */
+    uint64_t *pcost;  /* parts x E: work per item */
+} tjob;
+
+static int transpose_part(void *ud, size_t part, unsigned th) {
+    (void)th;
+    tjob *j = ud;
+    kstate *k = j->k;
+    size_t per = (k->R + j->parts - 1) / j->parts;
+    size_t r0 = part * per, r1 = r0 + per < k->R ? r0 + per : k->R;
+    uint64_t *cnt = j->cnt + part * k->E;
+    if (j->phase == 0) {
+        uint64_t *pc = j->pcost + part * k->E;
+        for (size_t r = r0; r < r1; r++) {
+            uint64_t e = k->rp[r + 1];
+            for (uint64_t q = k->rp[r]; q < e; q++) {
+                cnt[k->ci[q]]++;
+                pc[k->ci[q]] += e - q - 1;
+            }
+        }
+        return 0;
+    }
+    for (size_t r = r0; r < r1; r++) {
+        uint64_t e = k->rp[r + 1];
+        for (uint64_t q = k->rp[r]; q < e; q++) {
+            uint64_t at = cnt[k->ci[q]]++;
+            k->tbeg[at] = (uint32_t)(q + 1);
+            k->tend[at] = (uint32_t)e;
+            if (k->trow) {
+                k->trow[at] = (uint32_t)r;
+            }
+        }
+    }
+    return 0;
+}
+
 /* Splits 0..n into at most nch chunks of similar cost. */
 static size_t make_chunks(const uint64_t *cost, size_t n, size_t nch, size_t *beg) {
     uint64_t total = 0;
@@ -416,31 +457,45 @@ pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o,
         if (!k.tp || !k.tbeg || !k.tend || (k.wt && !k.trow) || !cost) {
             goto cleanup;
         }
-        for (uint64_t q = 0; q < nnz; q++) {
-            k.tp[k.ci[q] + 1]++;
-        }
-        for (size_t e = 0; e < k.E; e++) {
-            k.tp[e + 1] += k.tp[e];
-        }
-        uint64_t *fill = pm_i_malloc(k.E ? k.E : 1, sizeof *fill);
-        if (!fill) {
-            goto cleanup;
-        }
-        memcpy(fill, k.tp, k.E * sizeof *fill);
-        for (size_t r = 0; r < R; r++) {
-            uint64_t b = k.rp[r], e = k.rp[r + 1];
-            for (uint64_t q = b; q < e; q++) {
-                uint32_t it = k.ci[q];
-                uint64_t at = fill[it]++;
-                k.tbeg[at] = (uint32_t)(q + 1);
-                k.tend[at] = (uint32_t)e;
-                if (k.trow) {
-                    k.trow[at] = (uint32_t)r;
+        /* parallel transpose: thread t takes rows [T t, T (t+1)), counts its entries per item,
+         * then fills from offsets that follow the threads before it, so each item's list is in
+         * row order whatever the number of threads */
+        {
+            tjob tj;
+            memset(&tj, 0, sizeof tj);
+            tj.k = &k;
+            tj.parts = k.threads;
+            tj.cnt = pm_i_calloc((size_t)tj.parts * (k.E ? k.E : 1), sizeof *tj.cnt);
+            tj.pcost = pm_i_calloc((size_t)tj.parts * (k.E ? k.E : 1), sizeof *tj.pcost);
+            if (!tj.cnt || !tj.pcost) {
+                free(tj.cnt);
+                free(tj.pcost);
+                goto cleanup;
+            }
+            tj.phase = 0;
+            int prc = pm_i_parallel(k.threads, tj.parts, transpose_part, &tj);
+            if (!prc) {
+                uint64_t at = 0;
+                for (size_t e = 0; e < k.E; e++) {
+                    k.tp[e] = at;
+                    for (unsigned t = 0; t < tj.parts; t++) {
+                        uint64_t c = tj.cnt[(size_t)t * k.E + e];
+                        tj.cnt[(size_t)t * k.E + e] = at; /* becomes the fill offset */
+                        at += c;
+                        cost[e] += tj.pcost[(size_t)t * k.E + e];
+                    }
                 }
-                cost[it] += e - q - 1;
+                k.tp[k.E] = at;
+                tj.phase = 1;
+                prc = pm_i_parallel(k.threads, tj.parts, transpose_part, &tj);
+            }
+            free(tj.cnt);
+            free(tj.pcost);
+            if (prc) {
+                rc = PM_EINTERNAL;
+                goto cleanup;
             }
         }
-        free(fill);
         k.cbeg = pm_i_malloc(want + 2, sizeof *k.cbeg);
         if (!k.cbeg) {
             goto cleanup;

@@ -128,6 +128,7 @@ typedef struct {
     uint32_t **touched;
     uint32_t **tri;   /* dense triangles */
     unsigned nacc, ntri; /* scratch buffers allocated */
+    int borrowed;     /* rp, ci, wt belong to the incidence */
     atomic_uint_fast64_t done;
     uint64_t total;
     atomic_int progress_lock;
@@ -379,9 +380,23 @@ pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o,
             eidx[i] = -1;
         }
     }
-    /* filtered rows */
+    /* filtered rows; when every item is eligible the incidence's own rows are used as they
+     * are (rows with fewer than two items simply yield no pair) */
     uint64_t nnz = 0;
     size_t R = 0;
+    if (k.E == inc->n_items) {
+        k.borrowed = 1;
+        k.R = R = inc->n_resp;
+        k.rp = (uint64_t *)inc->row_ptr; /* read only */
+        k.ci = (uint32_t *)inc->col;
+        k.wt = (double *)inc->weight;
+        nnz = inc->row_ptr[inc->n_resp];
+        for (size_t r = 0; r < R; r++) {
+            uint64_t m = k.rp[r + 1] - k.rp[r];
+            k.total += m * (m - 1) / 2;
+        }
+        goto rows_ready;
+    }
     for (size_t r = 0; r < inc->n_resp; r++) {
         size_t m = 0;
         for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
@@ -430,6 +445,7 @@ pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o,
             k.total += m * (m - 1) / 2;
         }
     }
+rows_ready:
     res->work = k.total;
     int kernel = o->kernel;
     size_t dmax = o->dense_max_items ? o->dense_max_items : 2048;
@@ -672,9 +688,11 @@ cleanup:
     free(k.trow);
     free(k.tbeg);
     free(k.tend);
-    free(k.rp);
-    free(k.ci);
-    free(k.wt);
+    if (!k.borrowed) {
+        free(k.rp);
+        free(k.ci);
+        free(k.wt);
+    }
     free(k.gidx);
     free(eidx);
     if (rc != PM_OK) {

@@ -531,6 +531,13 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         if (!rc && wrc[k]) {
             rc = wrc[k];
             d = wd[k];
+            if (d.code == PM_EIO) { /* one shape for every file: DIR/NAME: cannot write ... */
+                snprintf(d.file, sizeof d.file, "%s/%s", no->dir, files[k]);
+                size_t ml = strlen(d.msg);
+                snprintf(d.msg + ml, sizeof d.msg - ml,
+                         "; check the free space and permissions there (no earlier output "
+                         "was replaced)");
+            }
         }
         pm_err_t rc2 = pm_outdir_finish(s->od, fps[k], rc ? NULL : &d);
         if (!rc) {

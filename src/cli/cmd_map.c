@@ -514,7 +514,9 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
     if (!rc) {
         side_job job = {&map, fps[0], fps[3], &wrc[0], &wrc[3], &wd[0], &wd[3]};
         pthread_t th;
-        int threaded = pthread_create(&th, NULL, side_writer, &job) == 0;
+        unsigned nthreads = 0;
+        (void)pm_cli_threads(c, &nthreads); /* validated earlier */
+        int threaded = nthreads != 1 && pthread_create(&th, NULL, side_writer, &job) == 0;
         if (!threaded) {
             side_writer(&job);
         }

@@ -414,3 +414,28 @@ int pm_i_utf8_valid(const char *str, size_t len) {
     }
     return 1;
 }
+
+/* Copies s[0..len) into buf for a message, with every byte that is not part of valid UTF-8
+ * (or is a control byte) written as \xHH, cut at about 60 bytes: the user sees which name it
+ * is and where the bad byte sits (issue 6). */
+const char *pm_i_shown(const char *s, size_t len, char *buf, size_t size) {
+    size_t o = 0;
+    for (size_t i = 0; i < len && o + 8 < size; i++) {
+        unsigned char c = (unsigned char)s[i];
+        size_t n = c < 0x80 ? 1 : c < 0xE0 ? 2 : c < 0xF0 ? 3 : 4;
+        if (o > 60) {
+            memcpy(buf + o, "...", 3);
+            o += 3;
+            break;
+        }
+        if (c >= 0x20 && c != 0x7F && (c < 0x80 || (i + n <= len && pm_i_utf8_valid(s + i, n)))) {
+            memcpy(buf + o, s + i, n);
+            o += n;
+            i += n - 1;
+        } else {
+            o += (size_t)snprintf(buf + o, size - o, "\\x%02X", c);
+        }
+    }
+    buf[o] = '\0';
+    return buf;
+}

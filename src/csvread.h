@@ -43,4 +43,8 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
 /* True when s[0..len) is valid UTF-8 (no overlong forms, no surrogates). */
 int pm_i_utf8_valid(const char *s, size_t len);
 
+/* Copies s[0..len) into buf (size bytes) for a message, every byte that is not valid UTF-8 or
+ * is a control byte written as \xHH, cut at about 60 bytes. Returns buf. */
+const char *pm_i_shown(const char *s, size_t len, char *buf, size_t size);
+
 #endif

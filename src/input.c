@@ -31,31 +31,6 @@ void pm_i_trim(const char **s, size_t *len) {
     *len = n;
 }
 
-/* Copies s[0..len) into buf for a message, with every byte that is not part of valid UTF-8
- * (or is a control byte) written as \xHH, cut at about 60 bytes: the user sees which name it
- * is and where the bad byte sits (issue 6). */
-static const char *shown(const char *s, size_t len, char *buf, size_t size) {
-    size_t o = 0;
-    for (size_t i = 0; i < len && o + 8 < size; i++) {
-        unsigned char c = (unsigned char)s[i];
-        size_t n = c < 0x80 ? 1 : c < 0xE0 ? 2 : c < 0xF0 ? 3 : 4;
-        if (o > 60) {
-            memcpy(buf + o, "...", 3);
-            o += 3;
-            break;
-        }
-        if (c >= 0x20 && c != 0x7F && (c < 0x80 || (i + n <= len && pm_i_utf8_valid(s + i, n)))) {
-            memcpy(buf + o, s + i, n);
-            o += n;
-            i += n - 1;
-        } else {
-            o += (size_t)snprintf(buf + o, size - o, "\\x%02X", c);
-        }
-    }
-    buf[o] = '\0';
-    return buf;
-}
-
 void pm_table_free(pm_table_t *t) {
     if (!t) {
         return;
@@ -115,8 +90,8 @@ static pm_err_t merge_record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
         char b[96];
         return pm_diag_set(diag, PM_EDATA, m->file, (long)r->line,
                            "invalid UTF-8 in the name '%s'; save the merge file as UTF-8",
-                           pm_i_utf8_valid(a, al) ? shown(g, gl, b, sizeof b)
-                                                  : shown(a, al, b, sizeof b));
+                           pm_i_utf8_valid(a, al) ? pm_i_shown(g, gl, b, sizeof b)
+                                                  : pm_i_shown(a, al, b, sizeof b));
     }
     bool added;
     int64_t id = pm_i_strtab_intern(&m->t->merge_from, a, al, &added);
@@ -317,7 +292,7 @@ pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len,
             char b[96];
             return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
                                "invalid UTF-8 in item name '%s'; save the file as UTF-8",
-                               shown(item, len, b, sizeof b));
+                               pm_i_shown(item, len, b, sizeof b));
         }
         it = pm_i_strtab_intern(&t->items, item, len, &added);
         if (it < 0) {
@@ -343,7 +318,7 @@ pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len,
                 char b[96];
                 return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
                                    "invalid UTF-8 in category name '%s'; save the file as UTF-8",
-                                   shown(cat, catlen, b, sizeof b));
+                                   pm_i_shown(cat, catlen, b, sizeof b));
             }
             c = pm_i_strtab_intern(&t->cats, cat, catlen, NULL);
             if (c < 0) {
@@ -383,7 +358,8 @@ pm_err_t pm_i_table_weight(pm_table_t *t, uint32_t r, const char *w, size_t len,
     char buf[64];
     if (len == 0 || len >= sizeof buf) {
         return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
-                           "expected a weight (a number > 0), got '%.*s'", (int)(len < 40 ? len : 40), w);
+                           "expected a weight (a number > 0), got '%.*s'",
+                           (int)(len < 40 ? len : 40), w);
     }
     memcpy(buf, w, len);
     buf[len] = '\0';

@@ -124,29 +124,6 @@ static int not_chosen(wide *w, const char *s, size_t n) {
     return pm_i_strtab_find(&w->dropv, p, n) >= 0;
 }
 
-/* s[0..len) for a message: bytes outside valid UTF-8 and control bytes as \xHH, about 60
- * bytes at most. */
-static const char *shown(const char *s, size_t len, char *buf, size_t size) {
-    size_t o = 0;
-    for (size_t i = 0; i < len && o + 8 < size; i++) {
-        unsigned char c = (unsigned char)s[i];
-        size_t n = c < 0x80 ? 1 : c < 0xE0 ? 2 : c < 0xF0 ? 3 : 4;
-        if (o > 60) {
-            memcpy(buf + o, "...", 3);
-            o += 3;
-            break;
-        }
-        if (c >= 0x20 && c != 0x7F && (c < 0x80 || (i + n <= len && pm_i_utf8_valid(s + i, n)))) {
-            memcpy(buf + o, s + i, n);
-            o += n;
-            i += n - 1;
-        } else {
-            o += (size_t)snprintf(buf + o, size - o, "\\x%02X", c);
-        }
-    }
-    buf[o] = '\0';
-    return buf;
-}
 
 static pm_err_t oom(const wide *w, pm_diag_t *diag) {
     return pm_diag_set(diag, PM_ENOMEM, w->t->source, 0, "out of memory");
@@ -492,8 +469,8 @@ static pm_err_t add_choice(wide *w, uint32_t resp, size_t ci, const pm_i_record 
             char b1[96], b2[96];
             return pm_diag_set(diag, PM_EDATA, t->source, (long)r->line,
                                "invalid UTF-8 in '%s' (column '%s'); save the file as UTF-8",
-                               shown(label, ll, b1, sizeof b1),
-                               shown(c->name, strlen(c->name), b2, sizeof b2));
+                               pm_i_shown(label, ll, b1, sizeof b1),
+                               pm_i_shown(c->name, strlen(c->name), b2, sizeof b2));
         }
         size_t kl;
         bool added;
@@ -538,7 +515,8 @@ static pm_err_t row(wide *w, const pm_i_record *r, pm_diag_t *diag) {
         char b[96];
         const char *h = w->cols[w->id].name;
         return pm_diag_set(diag, PM_EDATA, t->source, (long)r->line,
-                           "empty respondent id in column '%s'", shown(h, strlen(h), b, sizeof b));
+                           "empty respondent id in column '%s'",
+                           pm_i_shown(h, strlen(h), b, sizeof b));
     }
     w->nchosen = 0;
     for (size_t k = 0; k < w->nopt; k++) {
@@ -554,7 +532,7 @@ static pm_err_t row(wide *w, const pm_i_record *r, pm_diag_t *diag) {
         if (c->kind == KIND_NONE) {
             c->kind = kind;
             c->kind_line = r->line;
-            shown(s, l, c->kind_val, sizeof c->kind_val);
+            pm_i_shown(s, l, c->kind_val, sizeof c->kind_val);
         } else if (c->kind != kind) {
             char b1[96], b2[96];
             return pm_diag_set(diag, PM_EDATA, t->source, (long)r->line,
@@ -562,8 +540,8 @@ static pm_err_t row(wide *w, const pm_i_record *r, pm_diag_t *diag) {
                                "flags: '%s' here but '%s' on line %llu; a column holds "
                                "either its option's label or a flag (give --drop-value for a "
                                "value that means 'not chosen')",
-                               shown(c->name, strlen(c->name), b1, sizeof b1),
-                               shown(s, l, b2, sizeof b2), c->kind_val,
+                               pm_i_shown(c->name, strlen(c->name), b1, sizeof b1),
+                               pm_i_shown(s, l, b2, sizeof b2), c->kind_val,
                                (unsigned long long)c->kind_line);
         }
         w->chosen[w->nchosen++] = ci;

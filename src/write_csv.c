@@ -68,25 +68,29 @@ pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t
     return check(fp, diag);
 }
 
+void pm_write_item_fields(FILE *fp, const pm_incidence_t *inc, size_t i) {
+    double share = pm_incidence_share(inc, i), lo, hi;
+    if (inc->wcount) {
+        double neff = pm_incidence_neff(inc);
+        pm_assoc_jeffreys(share * neff, neff, 0.05, &lo, &hi);
+    } else {
+        pm_assoc_jeffreys((double)inc->count[i], (double)inc->N, 0.05, &lo, &hi);
+    }
+    pm_write_csv_field(fp, inc->name[i]);
+    fputc(',', fp);
+    pm_write_csv_field(fp, inc->category[i] ? inc->category[i] : "");
+    fprintf(fp, ",%llu,", (unsigned long long)inc->count[i]);
+    pm_write_number(fp, share);
+    fputc(',', fp);
+    pm_write_number(fp, lo);
+    fputc(',', fp);
+    pm_write_number(fp, hi);
+}
+
 pm_err_t pm_write_items_csv(FILE *fp, const pm_incidence_t *inc, pm_diag_t *diag) {
     fputs("item,category,respondents,share,share_low,share_high\n", fp);
-    double neff = pm_incidence_neff(inc);
     for (size_t i = 0; i < inc->n_items; i++) {
-        double share = pm_incidence_share(inc, i), lo, hi;
-        if (inc->wcount) {
-            pm_assoc_jeffreys(share * neff, neff, 0.05, &lo, &hi);
-        } else {
-            pm_assoc_jeffreys((double)inc->count[i], (double)inc->N, 0.05, &lo, &hi);
-        }
-        pm_write_csv_field(fp, inc->name[i]);
-        fputc(',', fp);
-        pm_write_csv_field(fp, inc->category[i] ? inc->category[i] : "");
-        fprintf(fp, ",%llu,", (unsigned long long)inc->count[i]);
-        pm_write_number(fp, share);
-        fputc(',', fp);
-        pm_write_number(fp, lo);
-        fputc(',', fp);
-        pm_write_number(fp, hi);
+        pm_write_item_fields(fp, inc, i);
         fputc('\n', fp);
     }
     return check(fp, diag);

@@ -39,25 +39,10 @@ pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
         k[v].v = v;
     }
     qsort(k, map->n, sizeof *k, cmp_node);
-    double neff = pm_incidence_neff(inc);
     fputs(PM_NODES_HEADER "\n", fp);
     for (size_t r = 0; r < map->n; r++) {
-        size_t v = k[r].v, i = map->item[v];
-        double share = k[r].share, lo, hi;
-        if (inc->wcount) {
-            pm_assoc_jeffreys(share * neff, neff, 0.05, &lo, &hi);
-        } else {
-            pm_assoc_jeffreys((double)inc->count[i], (double)inc->N, 0.05, &lo, &hi);
-        }
-        pm_write_csv_field(fp, inc->name[i]);
-        fputc(',', fp);
-        pm_write_csv_field(fp, inc->category[i] ? inc->category[i] : "");
-        fprintf(fp, ",%llu,", (unsigned long long)inc->count[i]);
-        pm_write_number(fp, share);
-        fputc(',', fp);
-        pm_write_number(fp, lo);
-        fputc(',', fp);
-        pm_write_number(fp, hi);
+        size_t v = k[r].v;
+        pm_write_item_fields(fp, inc, map->item[v]);
         fprintf(fp, ",%u,%u,", map->clusters->cluster[v], map->degree[v]);
         pm_write_number(fp, map->xy[2 * v]);
         fputc(',', fp);

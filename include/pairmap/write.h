@@ -27,6 +27,10 @@ pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t
  * interval; weighted input: share of the weight, interval on Kish's effective size). */
 pm_err_t pm_write_items_csv(FILE *fp, const pm_incidence_t *inc, pm_diag_t *diag);
 
+/* Writes the fields item,category,respondents,share,share_low,share_high of item i (no line
+ * end): the `items` row, and the start of a nodes.csv row. */
+void pm_write_item_fields(FILE *fp, const pm_incidence_t *inc, size_t i);
+
 /* Writes s as one CSV field, quoted when it holds a delimiter, quote, line break or edge
  * spaces. */
 void pm_write_csv_field(FILE *fp, const char *s);

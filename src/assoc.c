@@ -462,104 +462,20 @@ static int cmp_pgroup(const void *x, const void *y) {
     return a->p < b->p ? -1 : a->p > b->p;
 }
 
-static int cmp_double(const void *x, const void *y);
-
-/* Stable LSD radix sort of (p, index) by p (non-negative, so its bits order as integers):
- * ties keep index order, the order cmp_pidx gives. */
-static int radix_pidx(pidx *v, size_t n) {
+/* Sorts records whose first member is a p-value (a double) by it, stably. p-values are >= 0,
+ * so their bit patterns order as unsigned integers (pm_i_radix_sort); -0.0 becomes 0 and a NaN
+ * (impossible for eligible items) 1, which would otherwise break that order. */
+static int sort_pvalues(void *base, size_t n, size_t size) {
+    unsigned char *b = base;
     for (size_t i = 0; i < n; i++) {
-        if (!(v[i].p > 0)) {
-            v[i].p = isnan(v[i].p) ? 1.0 : 0.0;
+        double p;
+        memcpy(&p, b + i * size, sizeof p);
+        if (!(p > 0)) {
+            p = isnan(p) ? 1.0 : 0.0;
+            memcpy(b + i * size, &p, sizeof p);
         }
     }
-    if (n < 4096) {
-        qsort(v, n, sizeof *v, cmp_pidx);
-        return 0;
-    }
-    pidx *tmp = pm_i_malloc(n, sizeof *tmp);
-    size_t *cnt = pm_i_malloc(65537, sizeof *cnt);
-    if (!tmp || !cnt) {
-        free(tmp);
-        free(cnt);
-        return -1;
-    }
-    pidx *src = v, *dst = tmp;
-    for (int shift = 0; shift < 64; shift += 16) {
-        memset(cnt, 0, 65537 * sizeof *cnt);
-        for (size_t i = 0; i < n; i++) {
-            uint64_t k;
-            memcpy(&k, &src[i].p, 8);
-            cnt[((k >> shift) & 0xffff) + 1]++;
-        }
-        uint64_t k0;
-        memcpy(&k0, &src[0].p, 8);
-        if (cnt[((k0 >> shift) & 0xffff) + 1] == n) {
-            continue;
-        }
-        for (int b = 0; b < 65536; b++) {
-            cnt[b + 1] += cnt[b];
-        }
-        for (size_t i = 0; i < n; i++) {
-            uint64_t k;
-            memcpy(&k, &src[i].p, 8);
-            dst[cnt[(k >> shift) & 0xffff]++] = src[i];
-        }
-        pidx *t = src;
-        src = dst;
-        dst = t;
-    }
-    if (src != v) {
-        memcpy(v, src, n * sizeof *v);
-    }
-    free(tmp);
-    free(cnt);
-    return 0;
-}
-
-/* LSD radix sort of non-negative doubles (16-bit digits): their bit patterns sort as unsigned
- * integers. */
-static int radix_doubles(double *v, size_t n) {
-    if (n < 4096) {
-        qsort(v, n, sizeof *v, cmp_double);
-        return 0;
-    }
-    uint64_t *a = (uint64_t *)(void *)v, *tmp = pm_i_malloc(n, sizeof *tmp);
-    size_t *cnt = pm_i_malloc(65537, sizeof *cnt);
-    if (!tmp || !cnt) {
-        free(tmp);
-        free(cnt);
-        return -1;
-    }
-    uint64_t *src = a, *dst = tmp;
-    for (int shift = 0; shift < 64; shift += 16) {
-        memset(cnt, 0, 65537 * sizeof *cnt);
-        for (size_t i = 0; i < n; i++) {
-            cnt[((src[i] >> shift) & 0xffff) + 1]++;
-        }
-        if (cnt[((src[0] >> shift) & 0xffff) + 1] == n) {
-            continue; /* every key has this digit */
-        }
-        for (int b = 0; b < 65536; b++) {
-            cnt[b + 1] += cnt[b];
-        }
-        for (size_t i = 0; i < n; i++) {
-            dst[cnt[(src[i] >> shift) & 0xffff]++] = src[i];
-        }
-        uint64_t *t = src;
-        src = dst;
-        dst = t;
-    }
-    if (src != a) {
-        memcpy(a, src, n * sizeof *a);
-    }
-    free(tmp);
-    free(cnt);
-    return 0;
-}
-
-static int cmp_double(const void *x, const void *y) {
-    double a = *(const double *)x, b = *(const double *)y;
-    return a < b ? -1 : a > b;
+    return pm_i_radix_sort(base, n, size);
 }
 
 /* key -> count, open addressing, for seen pairs per class combination */
@@ -935,23 +851,9 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
         lv[k].p = pp->p[k];
         lv[k].i = k;
     }
-    if (radix_pidx(lv, pp->n)) {
-        goto cleanup;
-    }
-    for (size_t i = 0; i < npf; i++) {
-        if (!(pf[i] > 0)) { /* -0.0 or NaN would break the bit-pattern order */
-            pf[i] = isnan(pf[i]) ? 1.0 : 0.0;
-        }
-    }
-    if (radix_doubles(pf, npf)) {
-        goto cleanup;
-    }
-    for (size_t i = 0; i < npd; i++) {
-        if (!(pd[i] > 0)) {
-            pd[i] = isnan(pd[i]) ? 1.0 : 0.0;
-        }
-    }
-    if (radix_doubles(pd, npd)) {
+    /* listed pairs stay in index order among equal p-values (the order cmp_pidx gives) */
+    if (sort_pvalues(lv, pp->n, sizeof *lv) || sort_pvalues(pf, npf, sizeof *pf) ||
+        sort_pvalues(pd, npd, sizeof *pd)) {
         goto cleanup;
     }
     if (ngroups) { /* groups may be NULL: qsort's pointer must not be (UBSan, issue 6) */

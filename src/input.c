@@ -384,52 +384,39 @@ pm_err_t pm_i_table_weight(pm_table_t *t, uint32_t r, const char *w, size_t len,
 /* Merges the runs of deferred respondent ids that share an id (see struct pm_table): hashes
  * sorted with a stable radix sort, equal strings found within equal hashes, then respondents
  * renumbered in order of first appearance and the rows remapped. */
+typedef struct {
+    uint64_t h; /* the sort key: first */
+    uint32_t r;
+} run_key;
+
 static pm_err_t merge_runs(pm_table_t *t, pm_diag_t *diag) {
     size_t n = t->run_n;
     pm_err_t rc = PM_ENOMEM;
-    uint64_t *h = pm_i_malloc(n ? n : 1, sizeof *h), *h2 = pm_i_malloc(n ? n : 1, sizeof *h2);
-    uint32_t *ix = pm_i_malloc(n ? n : 1, sizeof *ix), *ix2 = pm_i_malloc(n ? n : 1, sizeof *ix2);
+    run_key *rk = pm_i_malloc(n ? n : 1, sizeof *rk);
+    uint32_t *ix = pm_i_malloc(n ? n : 1, sizeof *ix); /* the new index of each run */
     uint32_t *canon = pm_i_malloc(n ? n : 1, sizeof *canon);
-    size_t *cnt = pm_i_malloc(65537, sizeof *cnt);
     t->rstr = pm_i_malloc(n ? n : 1, sizeof *t->rstr);
-    if (!h || !h2 || !ix || !ix2 || !canon || !cnt || !t->rstr) {
+    if (!rk || !ix || !canon || !t->rstr) {
         goto done;
     }
     for (size_t r = 0; r < n; r++) {
-        h[r] = pm_i_hash(t->run_buf + t->run_off[r], t->run_len[r]);
-        ix[r] = (uint32_t)r;
+        rk[r].h = pm_i_hash(t->run_buf + t->run_off[r], t->run_len[r]);
+        rk[r].r = (uint32_t)r;
         canon[r] = (uint32_t)r;
     }
-    for (int shift = 0; shift < 64; shift += 16) { /* stable LSD: equal hashes keep run order */
-        memset(cnt, 0, 65537 * sizeof *cnt);
-        for (size_t i = 0; i < n; i++) {
-            cnt[((h[i] >> shift) & 0xffff) + 1]++;
-        }
-        for (int b = 0; b < 65536; b++) {
-            cnt[b + 1] += cnt[b];
-        }
-        for (size_t i = 0; i < n; i++) {
-            size_t at = cnt[(h[i] >> shift) & 0xffff]++;
-            h2[at] = h[i];
-            ix2[at] = ix[i];
-        }
-        uint64_t *th = h;
-        h = h2;
-        h2 = th;
-        uint32_t *ti = ix;
-        ix = ix2;
-        ix2 = ti;
+    if (pm_i_radix_sort(rk, n, sizeof *rk)) { /* stable: equal hashes keep run order */
+        goto done;
     }
     size_t dups = 0;
     for (size_t i = 0; i < n;) {
         size_t j = i + 1;
-        while (j < n && h[j] == h[i]) {
+        while (j < n && rk[j].h == rk[i].h) {
             j++;
         }
         for (size_t a = i + 1; a < j; a++) { /* groups are tiny: pairwise */
-            uint32_t ra = ix[a];
+            uint32_t ra = rk[a].r;
             for (size_t b = i; b < a; b++) {
-                uint32_t rb = ix[b];
+                uint32_t rb = rk[b].r;
                 if (canon[rb] == rb && t->run_len[ra] == t->run_len[rb] &&
                     memcmp(t->run_buf + t->run_off[ra], t->run_buf + t->run_off[rb],
                            t->run_len[ra]) == 0) {
@@ -462,7 +449,7 @@ static pm_err_t merge_runs(pm_table_t *t, pm_diag_t *diag) {
             }
             t->resp_has_item[c] |= t->resp_has_item[r];
         }
-        /* renumber: first appearances in order; ix is reused as the new index */
+        /* renumber: first appearances in order */
         size_t k = 0;
         for (size_t r = 0; r < n; r++) {
             if (canon[r] == r) {
@@ -487,12 +474,9 @@ static pm_err_t merge_runs(pm_table_t *t, pm_diag_t *diag) {
     }
     rc = PM_OK;
 done:
-    free(h);
-    free(h2);
+    free(rk);
     free(ix);
-    free(ix2);
     free(canon);
-    free(cnt);
     if (rc == PM_ENOMEM) {
         pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
     }

@@ -262,6 +262,52 @@ int64_t pm_i_strtab_intern(pm_i_strtab *t, const char *s, size_t len, bool *adde
     return (int64_t)id;
 }
 
+/* ==== sorting =============================================================================== */
+static inline uint64_t key_of(const unsigned char *rec) {
+    uint64_t k;
+    memcpy(&k, rec, sizeof k);
+    return k;
+}
+
+int pm_i_radix_sort(void *base, size_t n, size_t size) {
+    if (n < 2) {
+        return 0;
+    }
+    unsigned char *tmp = pm_i_malloc(n, size);
+    size_t *cnt = pm_i_malloc(65537, sizeof *cnt);
+    if (!tmp || !cnt) {
+        free(tmp);
+        free(cnt);
+        return -1;
+    }
+    unsigned char *src = base, *dst = tmp;
+    for (int shift = 0; shift < 64; shift += 16) {
+        memset(cnt, 0, 65537 * sizeof *cnt);
+        for (size_t i = 0; i < n; i++) {
+            cnt[((key_of(src + i * size) >> shift) & 0xffff) + 1]++;
+        }
+        if (cnt[((key_of(src) >> shift) & 0xffff) + 1] == n) {
+            continue; /* every key has this digit */
+        }
+        for (int b = 0; b < 65536; b++) {
+            cnt[b + 1] += cnt[b];
+        }
+        for (size_t i = 0; i < n; i++) {
+            size_t at = cnt[(key_of(src + i * size) >> shift) & 0xffff]++;
+            memcpy(dst + at * size, src + i * size, size);
+        }
+        unsigned char *t = src;
+        src = dst;
+        dst = t;
+    }
+    if (src != (unsigned char *)base) {
+        memcpy(base, src, n * size);
+    }
+    free(tmp);
+    free(cnt);
+    return 0;
+}
+
 /* ==== misc ================================================================================== */
 int pm_i_bytecmp(const char *a, const char *b) {
     return strcmp(a, b); /* C11 7.24.4: strcmp compares as unsigned char */

@@ -44,6 +44,12 @@ int64_t pm_i_strtab_intern(pm_i_strtab *t, const char *s, size_t len, bool *adde
 int64_t pm_i_strtab_find(const pm_i_strtab *t, const char *s, size_t len);
 uint64_t pm_i_hash(const char *s, size_t len);
 
+/* ---- sorting ------------------------------------------------------------------------------ */
+/* Sorts n records of size bytes (size >= 8) by the uint64_t their first 8 bytes hold, stably
+ * (LSD radix, 16-bit digits; a pass whose digit is the same everywhere is skipped). O(n) time,
+ * n records of extra memory. Returns 0, or -1 when memory runs out (base unchanged). */
+int pm_i_radix_sort(void *base, size_t n, size_t size);
+
 /* ---- misc ---------------------------------------------------------------------------------- */
 /* Byte-wise comparison of two NUL-terminated strings as unsigned bytes (strcmp semantics). */
 int pm_i_bytecmp(const char *a, const char *b);

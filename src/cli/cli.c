@@ -461,7 +461,7 @@ bool pm_cli_show_progress(const pm_cli_t *c) {
     return !pm_cli_flag(c, "quiet") && isatty(STDERR_FILENO);
 }
 
-static double now_s(void) {
+double pm_cli_now(void) {
     struct timespec ts;
     clock_gettime(CLOCK_MONOTONIC, &ts);
     return (double)ts.tv_sec + (double)ts.tv_nsec * 1e-9;
@@ -469,7 +469,7 @@ static double now_s(void) {
 
 void pm_cli_progress(void *ud, const char *stage, uint64_t done, uint64_t total) {
     (void)ud;
-    double t = now_s();
+    double t = pm_cli_now();
     if (!g_progress.start) {
         g_progress.start = t;
     }
@@ -518,9 +518,7 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     }
     pm_diag_t d;
     pm_diag_clear(&d);
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    double t0 = now_s();
+    double t0 = pm_cli_now();
     if (pm_cli_show_progress(c)) {
         io.progress = pm_cli_progress;
     }
@@ -536,7 +534,7 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
         return pm_cli_fail(&d);
     }
     if (t_read) {
-        *t_read = now_s() - t0;
+        *t_read = pm_cli_now() - t0;
     }
     const pm_input_stats_t *s = pm_table_stats(*table);
     const pm_incidence_t *ic = *inc;

@@ -95,6 +95,9 @@ void pm_cli_progress(void *ud, const char *stage, uint64_t done, uint64_t total)
 void pm_cli_progress_end(const pm_cli_t *c);
 bool pm_cli_show_progress(const pm_cli_t *c);
 
+/* Monotonic clock in seconds, for the stage timings. */
+double pm_cli_now(void);
+
 /* Closes stdout and reports a write error (full disk, closed pipe). Returns 0 or 3. */
 int pm_cli_close_stdout(void);
 

@@ -7,7 +7,6 @@
 #include <signal.h>
 #include <stdlib.h>
 #include <string.h>
-#include <time.h>
 #include <unistd.h>
 
 #include "cli.h"
@@ -76,12 +75,6 @@ static void catch_signals(void) {
     sigemptyset(&sa.sa_mask);
     sigaction(SIGINT, &sa, NULL);
     sigaction(SIGTERM, &sa, NULL);
-}
-
-static double now_s(void) {
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (double)ts.tv_sec + (double)ts.tv_nsec * 1e-9;
 }
 
 /* ---- the run ------------------------------------------------------------------------------ */
@@ -447,7 +440,7 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
                                         "run.json"};
     pm_diag_t d;
     pm_diag_clear(&d);
-    double t0 = now_s();
+    double t0 = pm_cli_now();
     pm_map_t map = {
         .inc = s->inc,
         .pairs = s->pp,
@@ -553,7 +546,7 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         }
         return pm_cli_fail(&d);
     }
-    s->t_write = now_s() - t0;
+    s->t_write = pm_cli_now() - t0;
     FILE *fp;
     rc = pm_outdir_create(s->od, files[4], &fp, &d);
     if (!rc) {
@@ -718,19 +711,19 @@ int pm_cmd_map(int argc, char **argv) {
     if (rc) {
         goto done;
     }
-    double t0 = now_s();
+    double t0 = pm_cli_now();
     if (pm_select_run(s.pp, s.inc, &sel, &s.e, &d)) {
         rc = pm_cli_fail(&d);
         goto done;
     }
     s.t_count = s.pp->t_count;
-    s.t_measures = s.pp->t_measures + (now_s() - t0);
-    t0 = now_s();
+    s.t_measures = s.pp->t_measures + (pm_cli_now() - t0);
+    t0 = pm_cli_now();
     rc = build_network(&c, &no, &sel, &s);
     if (rc) {
         goto done;
     }
-    s.t_graph = now_s() - t0;
+    s.t_graph = pm_cli_now() - t0;
     rc = write_files(&c, &no, &sel, &s);
     if (rc) {
         goto done;

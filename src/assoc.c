@@ -556,6 +556,23 @@ static int cmp_item_total(const void *x, const void *y) {
  * distinct item totals under --sign negative|both). */
 #define MAX_CLASS_COMBOS 400000000ULL
 
+/* The log-factorial table, filled in chunks on all threads (each entry from GSL alone, so
+ * the table does not depend on the number of threads). */
+typedef struct {
+    double *lf;
+    size_t n, chunks;
+} lf_job;
+
+static int lf_chunk(void *ud, size_t c, unsigned th) {
+    (void)th;
+    lf_job *j = ud;
+    size_t i0 = j->n * c / j->chunks, i1 = j->n * (c + 1) / j->chunks;
+    for (size_t i = i0; i < i1; i++) {
+        j->lf[i] = gsl_sf_lnfact((unsigned)i);
+    }
+    return 0;
+}
+
 pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pairs_t **out,
                       pm_diag_t *diag) {
     *out = NULL;
@@ -606,8 +623,11 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
         if (!lf) {
             goto cleanup;
         }
-        for (uint64_t i = 0; i <= inc->N; i++) {
-            lf[i] = gsl_sf_lnfact((unsigned)i);
+        lf_job lj = {lf, (size_t)inc->N + 1, 64};
+        if (pm_i_parallel(threads, lj.chunks, lf_chunk, &lj) != 0) {
+            for (size_t i = 0; i < lj.n; i++) { /* no thread could start: here */
+                lf[i] = gsl_sf_lnfact((unsigned)i);
+            }
         }
     }
 

@@ -7,6 +7,7 @@
 #include <errno.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "pairmap/input.h"
 #include "util.h"
@@ -172,10 +173,9 @@ static pm_err_t fast_line(state *st, char *line, size_t len, char sep) {
         len--;
     }
     size_t nf = 0, b = 0;
-    for (size_t i = 0; i <= len; i++) {
-        if (i < len && line[i] != sep) {
-            continue;
-        }
+    for (;;) {
+        const char *d = memchr(line + b, sep, len - b);
+        size_t i = d ? (size_t)(d - line) : len;
         size_t fb = b, fe = i;
         while (fb < fe && (line[fb] == ' ' || line[fb] == '\t') && line[fb] != sep) {
             fb++;
@@ -189,14 +189,19 @@ static pm_err_t fast_line(state *st, char *line, size_t len, char sep) {
                                "the delimiter and quoting",
                                nf + 1, fe - fb, (unsigned)PM_INPUT_MAX_FIELD);
         }
-        if (pm_i_grow((void **)&st->ptr, &st->ptr_cap, nf + 1, sizeof *st->ptr) ||
-            pm_i_grow((void **)&st->len, &st->len_cap, nf + 1, sizeof *st->len)) {
+        if ((nf >= st->ptr_cap &&
+             pm_i_grow((void **)&st->ptr, &st->ptr_cap, nf + 1, sizeof *st->ptr)) ||
+            (nf >= st->len_cap &&
+             pm_i_grow((void **)&st->len, &st->len_cap, nf + 1, sizeof *st->len))) {
             return pm_diag_set(st->diag, PM_ENOMEM, st->display, 0, "out of memory");
         }
         line[fe] = '\0'; /* fe <= i: a delimiter, the line end or inside trimmed space */
         st->ptr[nf] = line + fb;
         st->len[nf] = (uint32_t)(fe - fb);
         nf++;
+        if (!d) {
+            break;
+        }
         b = i + 1;
     }
     if (nf == 1 && st->len[0] == 0) {
@@ -230,22 +235,59 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
     uint64_t pending_line = 1;
     size_t have = 0, pos = 0;
     o->bytes = 0;
+    uint64_t at = o->start; /* ranged reads: the next offset */
+    if (o->ranged && o->start > 0) {
+        first = 0; /* mid-file: no BOM, the delimiter is given */
+        csv_set_delim(&p, (unsigned char)(o->sep ? o->sep : ','));
+    }
     while (!eof) {
-        size_t n = fread(blk + have, 1, cap - have, fp);
-        if (n == 0) {
-            if (ferror(fp)) {
-                rc = pm_diag_set(diag, PM_EIO, o->display, 0, "cannot read: %s",
-                                 strerror(errno ? errno : EIO));
-                goto done;
+        size_t n;
+        if (o->ranged) {
+            size_t want = cap - have;
+            if (o->end != UINT64_MAX) {
+                want = o->end - at < want ? (size_t)(o->end - at) : want;
             }
-            eof = 1;
+            n = 0;
+            while (n < want) {
+                ssize_t k = pread(o->fd, blk + have + n, want - n, (off_t)(at + n));
+                if (k < 0 && errno == EINTR) {
+                    continue;
+                }
+                if (k < 0) {
+                    rc = pm_diag_set(diag, PM_EIO, o->display, 0, "cannot read: %s",
+                                     strerror(errno));
+                    goto done;
+                }
+                if (k == 0) {
+                    break;
+                }
+                n += (size_t)k;
+            }
+            at += n;
+            if (n == 0) {
+                eof = 1;
+            }
+        } else {
+            n = fread(blk + have, 1, cap - have, fp);
+            if (n == 0) {
+                if (ferror(fp)) {
+                    rc = pm_diag_set(diag, PM_EIO, o->display, 0, "cannot read: %s",
+                                     strerror(errno ? errno : EIO));
+                    goto done;
+                }
+                eof = 1;
+            }
         }
         if (o->sha && n) {
             pm_i_sha256_update(o->sha, blk + have, n);
         }
         o->bytes += n;
+        uint64_t done_all = o->bytes;
+        if (o->shared_done) {
+            done_all = atomic_fetch_add_explicit(o->shared_done, n, memory_order_relaxed) + n;
+        }
         if (o->progress) {
-            o->progress(o->progress_ud, "reading", o->bytes, o->total ? o->total : o->bytes);
+            o->progress(o->progress_ud, "reading", done_all, o->total ? o->total : done_all);
         }
         size_t nul_at = SIZE_MAX;
         /* from 0, not from blk + have: the partial line kept from the last read may hold the
@@ -266,7 +308,10 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
             }
             csv_set_delim(&p, (unsigned char)o->sep);
         }
-        /* whole lines in the buffer */
+        /* whole lines in the buffer; where the next quote and CR are (SIZE_MAX: none), so
+         * that lines without either are not searched for them one by one */
+        size_t next_q = 0, next_cr = 0;
+        int q_valid = 0, cr_valid = 0;
         for (;;) {
             char *nl = memchr(blk + pos, '\n', have - pos);
             size_t end = nl ? (size_t)(nl - blk) + 1 : (eof ? have : pos);
@@ -278,8 +323,18 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
                 break;
             }
             size_t len = end - pos;
-            if (p.pstate == 0 && !st.in_record && !memchr(blk + pos, '"', len) &&
-                !inner_cr(blk + pos, len)) {
+            if (!q_valid || (next_q != SIZE_MAX && next_q < pos)) {
+                const char *q = memchr(blk + pos, '"', have - pos);
+                next_q = q ? (size_t)(q - blk) : SIZE_MAX;
+                q_valid = 1;
+            }
+            if (!cr_valid || (next_cr != SIZE_MAX && next_cr < pos)) {
+                const char *q = memchr(blk + pos, '\r', have - pos);
+                next_cr = q ? (size_t)(q - blk) : SIZE_MAX;
+                cr_valid = 1;
+            }
+            if (p.pstate == 0 && !st.in_record && !(next_q < end) &&
+                !(next_cr < end && inner_cr(blk + pos, len))) {
                 last_nl = blk[end - 1] == '\n';
                 rc = fast_line(&st, blk + pos, len, o->sep);
             } else {

@@ -4,6 +4,8 @@
 #ifndef PM_CSVREAD_H
 #define PM_CSVREAD_H
 
+#include <stdatomic.h>
+#include <stdbool.h>
 #include <stdint.h>
 #include <stdio.h>
 
@@ -32,6 +34,15 @@ typedef struct {
     uint64_t total;       /* size of the input when known (progress), else 0 */
     void (*progress)(void *ud, const char *stage, uint64_t done, uint64_t total);
     void *progress_ud;
+    /* Ranged reads (the parallel reader in src/input.c): with ranged set, fp is ignored and
+     * the bytes [start, end) of the file fd are read with pread (end UINT64_MAX: to the end of
+     * the file). start must be 0 or just past a '\n'; a BOM is looked for, and the delimiter
+     * detected, only when start is 0. Line numbers count from 1 at start. */
+    bool ranged;
+    int fd;
+    uint64_t start, end;
+    /* optional: bytes read by every stream of one file, for progress across threads */
+    _Atomic uint64_t *shared_done;
 } pm_i_csv_opts;
 
 /* Reads fp to its end, calling fn for every record. Errors: PM_EDATA (malformed quoting,

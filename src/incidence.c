@@ -5,8 +5,10 @@
 
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "input_internal.h"
+#include "parallel.h"
 #include "util.h"
 
 void pm_incidence_free(pm_incidence_t *inc) {
@@ -52,8 +54,128 @@ static void sort_small(uint32_t *v, size_t n) {
     }
 }
 
+/* Sorting and deduplicating the rows, in chunks of respondents on several threads: each
+ * chunk compacts its rows in place from its own first row; the chunks are then moved together
+ * in order, so the result is the serial one. */
+typedef struct {
+    pm_incidence_t *inc;
+    size_t nr, nchunks, ni;
+    uint64_t *out_len;  /* [nchunks] entries kept by the chunk */
+    uint64_t *dups;     /* [nchunks] */
+    uint64_t *singles;  /* [nchunks] */
+    uint64_t *empties;  /* [nchunks] */
+    uint32_t *rowlen;   /* [nr] kept entries of each respondent */
+    uint64_t **counts;  /* [threads][ni] item counts per thread */
+} rows_job;
+
+static int rows_chunk(void *ud, size_t c, unsigned thread) {
+    rows_job *j = ud;
+    pm_incidence_t *inc = j->inc;
+    size_t r0 = j->nr * c / j->nchunks, r1 = j->nr * (c + 1) / j->nchunks;
+    uint64_t *count = j->counts[thread];
+    uint64_t w = inc->row_ptr[r0], start = w, dups = 0, singles = 0, empties = 0;
+    for (size_t r = r0; r < r1; r++) {
+        uint64_t b = inc->row_ptr[r], e = inc->row_ptr[r + 1];
+        sort_small(inc->col + b, (size_t)(e - b));
+        uint64_t w0 = w;
+        for (uint64_t k = b; k < e; k++) {
+            if (k > b && inc->col[k] == inc->col[k - 1]) {
+                dups++;
+                continue;
+            }
+            inc->col[w++] = inc->col[k];
+            count[inc->col[k]]++;
+        }
+        uint64_t len = w - w0;
+        j->rowlen[r] = (uint32_t)len;
+        empties += len == 0;
+        singles += len == 1;
+    }
+    j->out_len[c] = w - start;
+    j->dups[c] = dups;
+    j->singles[c] = singles;
+    j->empties[c] = empties;
+    return 0;
+}
+
+static pm_err_t sort_rows(pm_incidence_t *inc, size_t nr, size_t ni, unsigned threads) {
+    rows_job j;
+    memset(&j, 0, sizeof j);
+    j.inc = inc;
+    j.nr = nr;
+    j.ni = ni;
+    j.nchunks = nr < 4096 ? 1 : (threads > 1 ? 16 * (size_t)threads : 1);
+    pm_err_t rc = PM_ENOMEM;
+    j.out_len = pm_i_calloc(j.nchunks, sizeof *j.out_len);
+    j.dups = pm_i_calloc(j.nchunks, sizeof *j.dups);
+    j.singles = pm_i_calloc(j.nchunks, sizeof *j.singles);
+    j.empties = pm_i_calloc(j.nchunks, sizeof *j.empties);
+    j.rowlen = pm_i_malloc(nr ? nr : 1, sizeof *j.rowlen);
+    j.counts = pm_i_calloc(threads, sizeof *j.counts);
+    if (!j.out_len || !j.dups || !j.singles || !j.empties || !j.rowlen || !j.counts) {
+        goto done;
+    }
+    j.counts[0] = inc->count; /* thread 0 counts into the result */
+    for (unsigned k = 1; k < threads; k++) {
+        if (!(j.counts[k] = pm_i_calloc(ni ? ni : 1, sizeof **j.counts))) {
+            goto done;
+        }
+    }
+    int prc = pm_i_parallel(j.nchunks > 1 ? threads : 1, j.nchunks, rows_chunk, &j);
+    if (prc) {
+        goto done;
+    }
+    /* move the chunks together and set the row pointers */
+    uint64_t w = 0;
+    for (size_t c = 0; c < j.nchunks; c++) {
+        size_t r0 = nr * c / j.nchunks;
+        uint64_t from = inc->row_ptr[r0];
+        if (from != w && j.out_len[c]) {
+            memmove(inc->col + w, inc->col + from, j.out_len[c] * sizeof *inc->col);
+        }
+        w += j.out_len[c];
+        inc->duplicates += j.dups[c];
+        inc->single_item += j.singles[c];
+        inc->no_item += j.empties[c];
+    }
+    w = 0;
+    for (size_t r = 0; r < nr; r++) {
+        inc->row_ptr[r] = w;
+        w += j.rowlen[r];
+    }
+    inc->row_ptr[nr] = w;
+    for (unsigned k = 1; k < threads; k++) {
+        for (size_t i = 0; i < ni; i++) {
+            inc->count[i] += j.counts[k][i];
+        }
+    }
+    rc = PM_OK;
+done:
+    if (j.counts) {
+        for (unsigned k = 1; k < threads; k++) {
+            free(j.counts[k]);
+        }
+    }
+    free(j.counts);
+    free(j.out_len);
+    free(j.dups);
+    free(j.singles);
+    free(j.empties);
+    free(j.rowlen);
+    return rc;
+}
+
 pm_err_t pm_incidence_build(const pm_table_t *t, pm_incidence_t **out, pm_diag_t *diag) {
+    return pm_incidence_build_threads(t, 1, out, diag);
+}
+
+pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_incidence_t **out,
+                                    pm_diag_t *diag) {
     *out = NULL;
+    if (threads == 0) {
+        long np = sysconf(_SC_NPROCESSORS_ONLN);
+        threads = np > 0 ? (unsigned)np : 1;
+    }
     pm_err_t rc = PM_OK;
     size_t ni = t->items.count, nr = (size_t)t->stats.respondents;
     uint32_t *order = NULL, *rank = NULL;
@@ -108,14 +230,21 @@ pm_err_t pm_incidence_build(const pm_table_t *t, pm_incidence_t **out, pm_diag_t
             p += t->cats.len[c] + 1;
         }
     }
-    /* counting sort of rows by respondent */
+    /* counting sort of rows by respondent; when every respondent's rows are together and in
+     * order (one run each: the usual file), the sort is the identity */
+    int grouped = 1;
     for (size_t k = 0; k < t->n_rows; k++) {
         inc->row_ptr[t->row_resp[k] + 1]++;
+        grouped &= k == 0 || t->row_resp[k] >= t->row_resp[k - 1];
     }
     for (size_t r = 0; r < nr; r++) {
         inc->row_ptr[r + 1] += inc->row_ptr[r];
     }
-    {
+    if (grouped) {
+        for (size_t k = 0; k < t->n_rows; k++) {
+            inc->col[k] = rank[t->row_item[k]];
+        }
+    } else {
         uint64_t *fill = pm_i_malloc(nr ? nr : 1, sizeof *fill);
         if (!fill) {
             rc = PM_ENOMEM;
@@ -128,27 +257,9 @@ pm_err_t pm_incidence_build(const pm_table_t *t, pm_incidence_t **out, pm_diag_t
         free(fill);
     }
     /* sort and deduplicate each row, compacting in place */
-    uint64_t w = 0;
-    for (size_t r = 0; r < nr; r++) {
-        uint64_t b = inc->row_ptr[r], e = inc->row_ptr[r + 1];
-        sort_small(inc->col + b, (size_t)(e - b));
-        inc->row_ptr[r] = w;
-        for (uint64_t k = b; k < e; k++) {
-            if (k > b && inc->col[k] == inc->col[k - 1]) {
-                inc->duplicates++;
-                continue;
-            }
-            inc->col[w++] = inc->col[k];
-            inc->count[inc->col[k]]++;
-        }
-        uint64_t len = w - inc->row_ptr[r];
-        if (len == 0) {
-            inc->no_item++;
-        } else if (len == 1) {
-            inc->single_item++;
-        }
+    if ((rc = sort_rows(inc, nr, ni, threads)) != PM_OK) {
+        goto cleanup;
     }
-    inc->row_ptr[nr] = w;
     inc->n_items = ni;
     inc->n_resp = nr;
     inc->N = t->respondents_override ? t->respondents_override : nr;

@@ -9,17 +9,29 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <pthread.h>
+#include <stdatomic.h>
+#include <unistd.h>
 
 void pm_input_opts_init(pm_input_opts_t *o) {
     memset(o, 0, sizeof *o);
     o->format = PM_FORMAT_LONG;
+    o->threads = 1;
 }
 
 /* ==== table builder ========================================================================= */
 
+/* isspace in the C locale, without the locale lookup (this runs for every field) */
+static inline int is_ws(unsigned char c) {
+    return c == ' ' || (c >= '\t' && c <= '\r');
+}
+
 void pm_i_trim(const char **s, size_t *len) {
     const char *p = *s;
     size_t n = *len;
+    if (n && !is_ws((unsigned char)p[0]) && !is_ws((unsigned char)p[n - 1])) {
+        return; /* the usual case */
+    }
     while (n && isspace((unsigned char)p[0])) {
         p++;
         n--;
@@ -54,6 +66,7 @@ void pm_table_free(pm_table_t *t) {
     free(t->run_buf);
     free(t->run_off);
     free(t->run_len);
+    free(t->run_hash);
     free((void *)t->rstr);
     free(t);
 }
@@ -145,6 +158,7 @@ pm_err_t pm_i_table_new(const pm_input_opts_t *o, const char *display, pm_table_
     pm_i_strtab_init(&t->merge_from);
     pm_i_strtab_init(&t->merge_to_names);
     t->last_r = -1;
+    t->read_chunks = 1;
     t->source = strdup(display);
     if (!t->source) {
         pm_table_free(t);
@@ -189,9 +203,22 @@ static pm_err_t new_respondent(pm_table_t *t, size_t r, uint64_t line, pm_diag_t
     return PM_OK;
 }
 
+/* id == last over len bytes (the same respondent as the row before: most rows) */
+static inline int same_id(const char *a, const char *b, size_t len) {
+    if (len >= 8 && len <= 16) {
+        uint64_t x, y, u, v;
+        memcpy(&x, a, 8);
+        memcpy(&y, b, 8);
+        memcpy(&u, a + len - 8, 8);
+        memcpy(&v, b + len - 8, 8);
+        return x == y && u == v;
+    }
+    return memcmp(a, b, len) == 0;
+}
+
 pm_err_t pm_i_table_respondent(pm_table_t *t, const char *id, size_t len, uint64_t line,
                                uint32_t *r, pm_diag_t *diag) {
-    if (t->last_r >= 0 && len == t->last_len && memcmp(id, t->last_id, len) == 0) {
+    if (t->last_r >= 0 && len == t->last_len && same_id(id, t->last_id, len)) {
         *r = (uint32_t)t->last_r;
         return PM_OK;
     }
@@ -205,10 +232,11 @@ pm_err_t pm_i_table_respondent(pm_table_t *t, const char *id, size_t len, uint64
             return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
                                "more than %u runs of respondent rows", (unsigned)(UINT32_MAX - 2));
         }
-        size_t c2 = t->run_off_cap;
+        size_t c2 = t->run_off_cap, c3 = t->run_off_cap;
         if (pm_i_grow((void **)&t->run_buf, &t->run_cap, t->run_used + len + 1, 1) ||
             pm_i_grow((void **)&t->run_off, &t->run_off_cap, rr + 1, sizeof *t->run_off) ||
             pm_i_grow((void **)&t->run_len, &c2, rr + 1, sizeof *t->run_len) ||
+            pm_i_grow((void **)&t->run_hash, &c3, rr + 1, sizeof *t->run_hash) ||
             pm_i_grow((void **)&t->last_id, &t->last_cap, len + 1, 1)) {
             return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
         }
@@ -216,6 +244,7 @@ pm_err_t pm_i_table_respondent(pm_table_t *t, const char *id, size_t len, uint64
         t->run_buf[t->run_used + len] = '\0';
         t->run_off[rr] = t->run_used;
         t->run_len[rr] = (uint32_t)len;
+        t->run_hash[rr] = pm_i_hash(id, len);
         t->run_used += len + 1;
         t->run_n++;
         pm_err_t rc = new_respondent(t, rr, line, diag);
@@ -400,7 +429,7 @@ static pm_err_t merge_runs(pm_table_t *t, pm_diag_t *diag) {
         goto done;
     }
     for (size_t r = 0; r < n; r++) {
-        rk[r].h = pm_i_hash(t->run_buf + t->run_off[r], t->run_len[r]);
+        rk[r].h = t->run_hash[r];
         rk[r].r = (uint32_t)r;
         canon[r] = (uint32_t)r;
     }
@@ -549,6 +578,8 @@ void pm_i_column_list(const char *const *hdr, size_t n, char *buf, size_t size) 
 
 /* ==== long and lines readers ================================================================= */
 
+typedef struct par_shared par_shared;
+
 typedef struct {
     pm_table_t *t;
     const pm_input_opts_t *o;
@@ -556,7 +587,12 @@ typedef struct {
     int have_header;
     long id, item, cat, weight; /* column indices, -1 = none */
     size_t ncols;               /* fields per row (long format, from the header) */
+    par_shared *par;            /* parallel read: NULL when serial */
+    int publisher;              /* the stream of the file's first chunk */
 } reader;
+
+static void par_publish(par_shared *ps, const reader *rd, int ok);
+static int par_stopped(par_shared *ps);
 
 static pm_err_t resolve(reader *rd, const char *opt, const char *sel, long dflt, long *out,
                         const pm_i_record *r, pm_diag_t *diag) {
@@ -705,15 +741,428 @@ static pm_err_t on_rec(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     if (!rd->started) { /* first record: resolve columns */
         rd->started = 1;
         pm_err_t rc = first_record(rd, r, diag);
+        if (rd->par) {
+            par_publish(rd->par, rd, rc == PM_OK); /* the other chunks can start */
+        }
         if (rc) {
             return rc;
         }
         if (rd->have_header) {
             return PM_OK;
         }
+    } else if (rd->par && !rd->publisher && par_stopped(rd->par)) {
+        return pm_diag_set(diag, PM_EINTERNAL, rd->t->source, 0, "stopped");
     }
     rd->t->stats.records++;
     return rd->o->format == PM_FORMAT_LONG ? long_row(rd, r, diag) : lines_row(rd, r, diag);
+}
+
+/* ==== parallel reading of a regular file ======================================================
+ * A long or lines file of some size is cut into chunks at line ends and each chunk is read by
+ * its own thread into its own table; the tables are then appended in file order, which gives
+ * exactly the table one serial pass builds (rows, item and respondent order, first lines).
+ * Anything unusual (a chunk that fails for any reason, a record that spans a cut, an item with
+ * two categories in different chunks) makes the caller read the whole file again serially, so
+ * every message and exit status stays what the serial reader gives. The SHA-256 of the file is
+ * computed by one more thread reading it in order. */
+
+#define PAR_MIN_CHUNK (8u << 20) /* bytes per chunk at least */
+#define PAR_MAX 16
+
+struct par_shared {
+    pthread_mutex_t mu;
+    pthread_cond_t cv;
+    int state; /* 0: columns not known yet, 1: known (tmpl, sep), -1: stop */
+    reader tmpl;
+    char sep;
+    const pm_i_csv_opts *co0; /* the first chunk's options: its delimiter, once detected */
+    atomic_int stop;
+};
+
+static void par_publish(par_shared *ps, const reader *rd, int ok) {
+    pthread_mutex_lock(&ps->mu);
+    if (ps->state == 0) { /* later calls change nothing */
+        ps->state = ok ? 1 : -1;
+        ps->tmpl = *rd;
+        ps->sep = ps->co0->sep ? ps->co0->sep : ',';
+        if (!ok) {
+            atomic_store(&ps->stop, 1);
+        }
+    }
+    pthread_cond_broadcast(&ps->cv);
+    pthread_mutex_unlock(&ps->mu);
+}
+
+static int par_stopped(par_shared *ps) {
+    return atomic_load_explicit(&ps->stop, memory_order_relaxed);
+}
+
+typedef struct {
+    par_shared *ps;
+    const pm_input_opts_t *o;
+    const char *display;
+    int fd;
+    uint64_t start, end;
+    pm_table_t *t;
+    reader rd;
+    pm_i_csv_opts co;
+    pm_diag_t diag;
+    pm_err_t rc;
+} par_chunk;
+
+static void *par_chunk_main(void *arg) {
+    par_chunk *c = arg;
+    par_shared *ps = c->ps;
+    pthread_mutex_lock(&ps->mu);
+    while (ps->state == 0) {
+        pthread_cond_wait(&ps->cv, &ps->mu);
+    }
+    int state = ps->state;
+    if (state == 1) {
+        c->rd = ps->tmpl; /* columns and delimiter found by the first chunk */
+        c->co.sep = ps->sep;
+    }
+    pthread_mutex_unlock(&ps->mu);
+    if (state != 1) {
+        c->rc = PM_EINTERNAL;
+        return NULL;
+    }
+    c->rd.t = c->t;
+    c->rd.publisher = 0;
+    c->rd.started = 1;
+    c->rc = pm_i_csv_stream(NULL, &c->co, on_rec, &c->rd, &c->diag);
+    if (c->rc) {
+        atomic_store(&ps->stop, 1);
+    }
+    return NULL;
+}
+
+typedef struct {
+    int fd;
+    pm_i_sha256 *sha;
+    uint64_t bytes;
+    int failed;
+} par_hash;
+
+static void *par_hash_main(void *arg) {
+    par_hash *h = arg;
+    size_t cap = 1u << 20;
+    char *buf = malloc(cap);
+    if (!buf) {
+        h->failed = 1;
+        return NULL;
+    }
+    for (;;) {
+        ssize_t k = pread(h->fd, buf, cap, (off_t)h->bytes);
+        if (k < 0 && errno == EINTR) {
+            continue;
+        }
+        if (k < 0) {
+            h->failed = 1;
+            break;
+        }
+        if (k == 0) {
+            break;
+        }
+        pm_i_sha256_update(h->sha, buf, (size_t)k);
+        h->bytes += (uint64_t)k;
+    }
+    free(buf);
+    return NULL;
+}
+
+/* The first cut point at or after want: just past a '\n'. 0 when there is none before limit. */
+static uint64_t par_cut(int fd, uint64_t want, uint64_t limit) {
+    char buf[1 << 16];
+    uint64_t at = want - 1; /* a '\n' right before want makes want itself a line start */
+    while (at < limit) {
+        ssize_t k = pread(fd, buf, sizeof buf, (off_t)at);
+        if (k < 0 && errno == EINTR) {
+            continue;
+        }
+        if (k <= 0) {
+            return 0;
+        }
+        const char *nl = memchr(buf, '\n', (size_t)k);
+        if (nl) {
+            uint64_t cut = at + (uint64_t)(nl - buf) + 1;
+            return cut < limit ? cut : 0;
+        }
+        at += (uint64_t)k;
+    }
+    return 0;
+}
+
+/* Appends chunk table c to t (see above). base: lines before the chunk. Returns PM_OK,
+ * PM_ENOMEM, or PM_EINTERNAL when the chunks disagree (read serially then). */
+static pm_err_t par_append(pm_table_t *t, pm_table_t *c, uint64_t base) {
+    pm_err_t rc = PM_ENOMEM;
+    int64_t *cat_map = pm_i_malloc(c->cats.count ? c->cats.count : 1, sizeof *cat_map);
+    uint32_t *item_map = pm_i_malloc(c->items.count ? c->items.count : 1, sizeof *item_map);
+    if (!cat_map || !item_map) {
+        goto done;
+    }
+    for (size_t k = 0; k < c->cats.count; k++) {
+        if ((cat_map[k] = pm_i_strtab_intern(&t->cats, c->cats.str[k], c->cats.len[k], NULL)) <
+            0) {
+            goto done;
+        }
+    }
+    for (size_t i = 0; i < c->items.count; i++) {
+        int64_t g = pm_i_strtab_find(&t->items, c->items.str[i], c->items.len[i]);
+        int32_t lc = c->item_cat[i] >= 0 ? (int32_t)cat_map[c->item_cat[i]] : -1;
+        if (g < 0) {
+            if ((g = pm_i_strtab_intern(&t->items, c->items.str[i], c->items.len[i], NULL)) < 0) {
+                goto done;
+            }
+            if ((size_t)g >= t->item_cap) {
+                size_t c2 = t->item_cap;
+                if (pm_i_grow((void **)&t->item_cat, &t->item_cap, (size_t)g + 1,
+                              sizeof(int32_t)) ||
+                    pm_i_grow((void **)&t->item_line, &c2, (size_t)g + 1, sizeof(uint64_t))) {
+                    goto done;
+                }
+            }
+            t->item_cat[g] = lc;
+            t->item_line[g] = c->item_line[i] + base;
+        } else if (lc >= 0) {
+            if (t->item_cat[g] < 0) {
+                t->item_cat[g] = lc;
+                t->item_line[g] = c->item_line[i] + base;
+            } else if (t->item_cat[g] != lc) {
+                rc = PM_EINTERNAL; /* two categories: the serial reader names the lines */
+                goto done;
+            }
+        }
+        item_map[i] = (uint32_t)g;
+    }
+    /* respondents: runs of ids (or anonymous lines) numbered after t's */
+    size_t r0 = (size_t)t->stats.respondents, nr = (size_t)c->stats.respondents;
+    if (r0 + nr >= UINT32_MAX - 1 || (t->n_anon && c->run_n) || (t->run_n && c->n_anon)) {
+        rc = PM_EINTERNAL;
+        goto done;
+    }
+    if (r0 + nr > t->resp_cap) {
+        size_t c1 = t->resp_cap, c2 = t->resp_cap, c3 = t->resp_cap;
+        if (pm_i_grow((void **)&t->resp_weight, &c1, r0 + nr, sizeof(double)) ||
+            pm_i_grow((void **)&t->resp_line, &c2, r0 + nr, sizeof(uint64_t)) ||
+            pm_i_grow((void **)&t->resp_has_item, &c3, r0 + nr, 1)) {
+            goto done;
+        }
+        t->resp_cap = c1 < c2 ? (c1 < c3 ? c1 : c3) : (c2 < c3 ? c2 : c3);
+    }
+    if (nr) {
+        memcpy(t->resp_weight + r0, c->resp_weight, nr * sizeof(double));
+        memcpy(t->resp_has_item + r0, c->resp_has_item, nr);
+        for (size_t r = 0; r < nr; r++) {
+            t->resp_line[r0 + r] = c->resp_line[r] + base;
+        }
+    }
+    if (c->run_n) {
+        size_t c2 = t->run_off_cap, c3 = t->run_off_cap, rn = t->run_n;
+        if (pm_i_grow((void **)&t->run_buf, &t->run_cap, t->run_used + c->run_used, 1) ||
+            pm_i_grow((void **)&t->run_off, &t->run_off_cap, rn + c->run_n, sizeof *t->run_off) ||
+            pm_i_grow((void **)&t->run_len, &c2, rn + c->run_n, sizeof *t->run_len) ||
+            pm_i_grow((void **)&t->run_hash, &c3, rn + c->run_n, sizeof *t->run_hash)) {
+            goto done;
+        }
+        memcpy(t->run_hash + rn, c->run_hash, c->run_n * sizeof *t->run_hash);
+        memcpy(t->run_buf + t->run_used, c->run_buf, c->run_used);
+        for (size_t r = 0; r < c->run_n; r++) {
+            t->run_off[rn + r] = c->run_off[r] + t->run_used;
+        }
+        memcpy(t->run_len + rn, c->run_len, c->run_n * sizeof *t->run_len);
+        t->run_used += c->run_used;
+        t->run_n += c->run_n;
+    }
+    t->n_anon += c->n_anon;
+    if (c->n_rows) {
+        size_t need = t->n_rows + c->n_rows;
+        if (need > t->rows_cap) {
+            size_t c1 = t->rows_cap, c2 = t->rows_cap;
+            if (pm_i_grow((void **)&t->row_resp, &c1, need, sizeof(uint32_t)) ||
+                pm_i_grow((void **)&t->row_item, &c2, need, sizeof(uint32_t))) {
+                goto done;
+            }
+            t->rows_cap = c1 < c2 ? c1 : c2;
+        }
+        uint32_t *rr = t->row_resp + t->n_rows, *ri = t->row_item + t->n_rows;
+        for (size_t i = 0; i < c->n_rows; i++) {
+            rr[i] = c->row_resp[i] + (uint32_t)r0;
+            ri[i] = item_map[c->row_item[i]];
+        }
+        t->n_rows = need;
+    }
+    t->stats.respondents += c->stats.respondents;
+    t->stats.records += c->stats.records;
+    t->stats.rows += c->stats.rows;
+    t->stats.empty_items += c->stats.empty_items;
+    t->stats.dropped_rows += c->stats.dropped_rows;
+    t->stats.merged_rows += c->stats.merged_rows;
+    rc = PM_OK;
+done:
+    free(cat_map);
+    free(item_map);
+    return rc;
+}
+
+/* Tries the parallel read of the regular file fp (size bytes) into t. Returns 1 when it
+ * succeeded (t filled, co->bytes, co->lines, sha set), 0 when the caller must read serially
+ * (nothing of t has changed then), -1 when out of memory (diag set). */
+static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_t *t,
+                    pm_i_csv_opts *co, pm_i_sha256 *sha, pm_diag_t *diag) {
+    unsigned threads = o->threads;
+    if (threads == 0) {
+        long n = sysconf(_SC_NPROCESSORS_ONLN);
+        threads = n > 0 ? (unsigned)n : 1;
+    }
+    uint64_t nc = size / (o->chunk_bytes ? o->chunk_bytes : PAR_MIN_CHUNK);
+    nc = nc < threads ? nc : threads;
+    nc = nc < PAR_MAX ? nc : PAR_MAX;
+    if (nc < 2 || o->format == PM_FORMAT_WIDE) {
+        return 0;
+    }
+    int fd = fileno(fp);
+    uint64_t cut[PAR_MAX + 1];
+    size_t n = 0;
+    cut[n++] = 0;
+    for (uint64_t k = 1; k < nc; k++) {
+        uint64_t want = size / nc * k;
+        if (want <= cut[n - 1]) {
+            continue;
+        }
+        uint64_t c = par_cut(fd, want, size);
+        if (c > cut[n - 1]) {
+            cut[n++] = c;
+        }
+    }
+    if (n < 2) {
+        return 0;
+    }
+    cut[n] = UINT64_MAX; /* the last chunk reads to the end, as a serial read would */
+    par_shared ps;
+    memset(&ps, 0, sizeof ps);
+    pthread_mutex_init(&ps.mu, NULL);
+    pthread_cond_init(&ps.cv, NULL);
+    atomic_init(&ps.stop, 0);
+    _Atomic uint64_t done_bytes;
+    atomic_init(&done_bytes, 0);
+    par_chunk ch[PAR_MAX];
+    pthread_t th[PAR_MAX];
+    int started[PAR_MAX];
+    memset(ch, 0, sizeof ch);
+    memset(started, 0, sizeof started);
+    int result = 0;
+    for (size_t k = 0; k < n; k++) {
+        ch[k].ps = &ps;
+        ch[k].o = o;
+        ch[k].fd = fd;
+        ch[k].start = cut[k];
+        ch[k].end = cut[k + 1];
+        pm_diag_clear(&ch[k].diag);
+        if (k == 0) {
+            ch[k].t = t;
+        } else if (pm_i_table_new(o, t->source, &ch[k].t, &ch[k].diag)) {
+            goto stop;
+        }
+        ch[k].t->defer = true;
+        ch[k].co = *co;
+        ch[k].co.sha = NULL;
+        ch[k].co.ranged = true;
+        ch[k].co.fd = fd;
+        ch[k].co.start = cut[k];
+        ch[k].co.end = cut[k + 1];
+        ch[k].co.shared_done = &done_bytes;
+        if (k) {
+            ch[k].co.progress = NULL; /* the first chunk's thread reports for all */
+        }
+    }
+    ps.co0 = &ch[0].co;
+    pm_i_sha256_init(sha);
+    par_hash hj = {fd, sha, 0, 0};
+    pthread_t hth;
+    int hash_started = pthread_create(&hth, NULL, par_hash_main, &hj) == 0;
+    if (!hash_started) {
+        goto stop;
+    }
+    for (size_t k = 1; k < n; k++) {
+        started[k] = pthread_create(&th[k], NULL, par_chunk_main, &ch[k]) == 0;
+        if (!started[k]) {
+            atomic_store(&ps.stop, 1);
+            break;
+        }
+    }
+    /* the first chunk on this thread: it resolves the columns and lets the others start */
+    ps.co0 = &ch[0].co;
+    memset(&ch[0].rd, 0, sizeof ch[0].rd);
+    ch[0].rd.t = t;
+    ch[0].rd.o = o;
+    ch[0].rd.par = &ps;
+    ch[0].rd.publisher = 1;
+    ch[0].rc = pm_i_csv_stream(NULL, &ch[0].co, on_rec, &ch[0].rd, &ch[0].diag);
+    par_publish(&ps, &ch[0].rd, 0); /* no-op when published; else stop the others */
+    if (ch[0].rc) {
+        atomic_store(&ps.stop, 1);
+    }
+    for (size_t k = 1; k < n; k++) {
+        if (started[k]) {
+            pthread_join(th[k], NULL);
+        }
+    }
+    pthread_join(hth, NULL);
+    int ok = !hj.failed && ch[0].rc == PM_OK && ch[0].rd.started;
+    for (size_t k = 1; k < n && ok; k++) {
+        ok = started[k] && ch[k].rc == PM_OK;
+    }
+    if (ok) {
+        uint64_t base = ch[0].co.lines, bytes = ch[0].co.bytes;
+        for (size_t k = 1; k < n && ok; k++) {
+            pm_err_t rc = par_append(t, ch[k].t, base);
+            if (rc == PM_ENOMEM) {
+                pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+                result = -1;
+                ok = 0;
+                break;
+            }
+            ok = rc == PM_OK;
+            base += ch[k].co.lines;
+            bytes += ch[k].co.bytes;
+            pm_table_free(ch[k].t);
+            ch[k].t = NULL;
+        }
+        if (ok) {
+            co->bytes = bytes;
+            co->lines = base;
+            co->sep_used = ch[0].co.sep_used;
+            if (hj.bytes != bytes) {
+                ok = 0; /* the file changed while it was read */
+            }
+        }
+        if (ok) { /* merging runs of ids can fail (weights); the serial read says where */
+            pm_diag_t fdg;
+            pm_diag_clear(&fdg);
+            t->stats.bytes = bytes;
+            t->stats.lines = base;
+            if (pm_i_table_finish(t, o, &fdg) != PM_OK) {
+                ok = 0;
+                if (fdg.code == PM_ENOMEM) {
+                    *diag = fdg;
+                    result = -1;
+                }
+            }
+        }
+        if (ok) {
+            t->read_chunks = (unsigned)n;
+            result = 1;
+        }
+    }
+stop:
+    for (size_t k = 1; k < n; k++) {
+        pm_table_free(ch[k].t);
+    }
+    pthread_cond_destroy(&ps.cv);
+    pthread_mutex_destroy(&ps.mu);
+    return result;
 }
 
 pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **out,
@@ -739,6 +1188,7 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
     if (rc) {
         goto done;
     }
+    int par = 0; /* 1: read in parallel and finished */
     pm_i_sha256 sha;
     pm_i_sha256_init(&sha);
     pm_i_csv_opts co = {0};
@@ -756,12 +1206,29 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
     if (o->format == PM_FORMAT_WIDE) {
         rc = pm_i_read_wide(fp, o, t, &co, diag);
     } else {
+        if (!is_stdin && co.total > 0) {
+            par = par_read(fp, co.total, o, t, &co, &sha, diag);
+            if (par == 0) { /* read serially from a fresh table */
+                pm_table_free(t);
+                t = NULL;
+                pm_i_sha256_init(&sha);
+                if ((rc = pm_i_table_new(o, display, &t, diag)) != PM_OK) {
+                    goto done;
+                }
+            }
+        }
         reader rd;
         memset(&rd, 0, sizeof rd);
         rd.t = t;
         rd.o = o;
         t->defer = true;
-        rc = pm_i_csv_stream(fp, &co, on_rec, &rd, diag);
+        if (par < 0) {
+            rc = PM_ENOMEM;
+        } else if (par > 0) {
+            rd.started = 1;
+        } else {
+            rc = pm_i_csv_stream(fp, &co, on_rec, &rd, diag);
+        }
         if (rc == PM_OK && !rd.started && co.bytes > 0) { /* not "no data after the header" */
             rc = pm_diag_set(diag, PM_EDATA, display, 0,
                              "the file holds only blank lines; expected rows of respondent and "
@@ -777,7 +1244,7 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
     t->stats.bytes = co.bytes;
     t->stats.lines = co.lines;
     pm_i_sha256_final(&sha, t->stats.sha256);
-    if (rc == PM_OK) {
+    if (rc == PM_OK && par <= 0) {
         rc = pm_i_table_finish(t, o, diag);
     }
 done:

@@ -41,12 +41,15 @@ struct pm_table {
     size_t run_used, run_cap;
     uint64_t *run_off;
     uint32_t *run_len;
+    uint64_t *run_hash; /* pm_i_hash of each run's id, taken while reading */
     size_t run_n, run_off_cap;
     const char **rstr; /* after finish: respondent -> id (deferred mode) */
     /* fast path: the last respondent seen */
     char *last_id;
     size_t last_len, last_cap;
     int64_t last_r;
+    /* how the file was read: 1 serially, else the number of chunks read in parallel */
+    unsigned read_chunks;
 };
 
 /* Creates an empty table for the source display name, with the hygiene options of o loaded

@@ -1558,7 +1558,7 @@ static void lab_put(lab_t *l, const cand_t *k) {
 
 static int try_node_label(const ctx_t *c, pic_t *p, size_t k) {
     lab_t *l = &p->lab[k];
-    cand_t cs[MAX_CANDS], best;
+    cand_t cs[MAX_CANDS], best = {0};
     double h = (ASCENT + DESCENT) * l->fs;
     int nc = node_cands(p->x[k], p->y[k], p->r[k], l->w, h, l->fs, p->max_ring, cs);
     if (best_free(c, p, cs, nc, l, (int)p->grp[k], (long)k, &best)) {
@@ -1607,7 +1607,7 @@ static int try_cluster_label(const ctx_t *c, pic_t *p, size_t g) {
     cand_add(cs, &nc, x0 - 2 - w, 0.5 * (y0 + y1) - 0.5 * h, w, h, 2, fs, 2.5);
     cand_add(cs, &nc, xc - 0.5 * w, y0 - 2 * h - 1, w, h, 1, fs, 3.0);
     cand_add(cs, &nc, xc - 0.5 * w, y1 + h + 1, w, h, 1, fs, 3.2);
-    cand_t best;
+    cand_t best = {0};
     if (best_free(c, p, cs, nc, l, -1, -1, &best)) {
         lab_put(l, &best);
         return 1;

@@ -40,6 +40,9 @@ typedef struct {
 /* Builds the incidence of table t. On success *out owns a new incidence (pm_incidence_free).
  * Cost O(rows log k + items log items). Errors: PM_ENOMEM. */
 pm_err_t pm_incidence_build(const pm_table_t *t, pm_incidence_t **out, pm_diag_t *diag);
+/* The same on `threads` threads (0: all cores); the result does not depend on the number. */
+pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_incidence_t **out,
+                                    pm_diag_t *diag);
 void pm_incidence_free(pm_incidence_t *inc);
 
 /* Index of item name, or -1. O(log items). */

@@ -45,6 +45,10 @@ typedef struct {
     /* progress while reading: done and total bytes (total = done when the size is unknown) */
     void (*progress)(void *ud, const char *stage, uint64_t done, uint64_t total);
     void *progress_ud;
+    /* threads for reading a long or lines file (0: all cores; 1: one). A regular file of some
+     * size is read in chunks in parallel; the table is the same for every value. */
+    unsigned threads;
+    uint64_t chunk_bytes; /* least bytes per chunk of a parallel read (0: 8 MiB; tests) */
 } pm_input_opts_t;
 
 /* Sets every option to its default. */

@@ -341,6 +341,9 @@ int pm_cli_input_opts(const pm_cli_t *c, pm_input_opts_t *o) {
         return 1;
     }
     o->format = (pm_format_t)f;
+    if (pm_cli_threads(c, &o->threads)) {
+        return 1;
+    }
     o->id_col = pm_cli_get(c, "id-col");
     o->item_col = pm_cli_get(c, "item-col");
     o->category_col = pm_cli_get(c, "category-col");
@@ -527,7 +530,7 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     if (rc) {
         return pm_cli_fail(&d);
     }
-    rc = pm_incidence_build(*table, inc, &d);
+    rc = pm_incidence_build_threads(*table, io.threads, inc, &d);
     if (rc) {
         pm_table_free(*table);
         *table = NULL;

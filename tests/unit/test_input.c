@@ -7,6 +7,7 @@
 
 #include "pairmap/incidence.h"
 #include "pairmap/input.h"
+#include "input_internal.h"
 #include "util.h"
 
 /* ---- helpers ------------------------------------------------------------------------------ */
@@ -24,7 +25,51 @@ static void rd_init(rd *r) {
     r->o.display_name = "in.csv";
 }
 
-/* Reads text with the options in r->o. */
+/* The parallel reader (chunks at line ends, one table per chunk, appended in file order)
+ * must give exactly the serial reader's table, or exactly its error. */
+static void same_table(const pm_table_t *a, const pm_table_t *b) {
+    assert_memory_equal(pm_table_stats(a), pm_table_stats(b), sizeof(pm_input_stats_t));
+    assert_int_equal(pm_table_nrows(a), pm_table_nrows(b));
+    assert_int_equal(pm_table_nitems(a), pm_table_nitems(b));
+    assert_int_equal(pm_table_nrespondents(a), pm_table_nrespondents(b));
+    for (size_t i = 0; i < pm_table_nrows(a); i++) {
+        const char *ra, *ia, *ca, *rb, *ib, *cb;
+        size_t xa, ya, xb, yb;
+        pm_table_row(a, i, &ra, &ia, &ca);
+        pm_table_row(b, i, &rb, &ib, &cb);
+        pm_table_row_index(a, i, &xa, &ya);
+        pm_table_row_index(b, i, &xb, &yb);
+        assert_true((ra == NULL) == (rb == NULL));
+        if (ra) {
+            assert_string_equal(ra, rb);
+        }
+        assert_string_equal(ia, ib);
+        assert_true((ca == NULL) == (cb == NULL));
+        if (ca) {
+            assert_string_equal(ca, cb);
+        }
+        assert_int_equal(xa, xb);
+        assert_int_equal(ya, yb);
+    }
+    for (size_t r = 0; r < pm_table_nrespondents(a); r++) {
+        const char *sa = pm_table_respondent(a, r), *sb = pm_table_respondent(b, r);
+        assert_true((sa == NULL) == (sb == NULL));
+        if (sa) {
+            assert_string_equal(sa, sb);
+        }
+        assert_int_equal(pm_table_respondent_empty(a, r), pm_table_respondent_empty(b, r));
+        double wa = pm_table_respondent_weight(a, r), wb = pm_table_respondent_weight(b, r);
+        assert_true((wa != wa && wb != wb) || wa == wb);
+        assert_int_equal(a->resp_line[r], b->resp_line[r]);
+    }
+    for (size_t i = 0; i < pm_table_nitems(a); i++) {
+        assert_int_equal(a->item_cat[i], b->item_cat[i]);
+        assert_int_equal(a->item_line[i], b->item_line[i]);
+    }
+}
+
+/* Reads text with the options in r->o; then again in parallel chunks of a few bytes on 2, 3
+ * and 16 threads, which must give the same table or the same error. */
 static pm_err_t rd_run(rd *r, const char *text) {
     r->path = unit_tmpfile_str(text);
     pm_diag_clear(&r->d);
@@ -32,6 +77,34 @@ static pm_err_t rd_run(rd *r, const char *text) {
     if (rc != PM_OK) {
         assert_null(r->t); /* a failed read hands back nothing */
         assert_int_equal(r->d.code, rc);
+    }
+    static const unsigned threads[3] = {2, 3, 16};
+    for (int k = 0; k < 3 && r->o.format != PM_FORMAT_WIDE; k++) {
+        pm_input_opts_t po = r->o;
+        po.threads = threads[k];
+        po.chunk_bytes = 1;
+        pm_table_t *pt = NULL;
+        pm_diag_t pd;
+        pm_diag_clear(&pd);
+        pm_err_t prc = pm_input_read(r->path, &po, &pt, &pd);
+        assert_int_equal(prc, rc);
+        if (rc == PM_OK) {
+            same_table(r->t, pt);
+            /* a file without quotes and with a few lines is really read in chunks */
+            size_t lines = 0;
+            for (const char *c = text; *c; c++) {
+                lines += *c == '\n';
+            }
+            if (!strchr(text, '"') && !strchr(text, '\r') && lines >= 4) {
+                assert_true(pt->read_chunks >= 2);
+            }
+        } else {
+            assert_int_equal(pd.code, r->d.code);
+            assert_int_equal(pd.line, r->d.line);
+            assert_string_equal(pd.msg, r->d.msg);
+            assert_string_equal(pd.file, r->d.file);
+        }
+        pm_table_free(pt);
     }
     return rc;
 }

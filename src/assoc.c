@@ -8,6 +8,7 @@
 #include <gsl/gsl_sf_gamma.h>
 #include <limits.h>
 #include <math.h>
+#include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -478,6 +479,18 @@ static int sort_pvalues(void *base, size_t n, size_t size) {
     return pm_i_radix_sort(base, n, size);
 }
 
+typedef struct {
+    void *base;
+    size_t n, size;
+    int rc;
+} sort_job;
+
+static void *sort_main(void *arg) {
+    sort_job *j = arg;
+    j->rc = sort_pvalues(j->base, j->n, j->size);
+    return NULL;
+}
+
 /* key -> count, open addressing, for seen pairs per class combination */
 typedef struct {
     uint64_t *key, *val;
@@ -872,9 +885,20 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
         lv[k].i = k;
     }
     /* listed pairs stay in index order among equal p-values (the order cmp_pidx gives) */
-    if (sort_pvalues(lv, pp->n, sizeof *lv) || sort_pvalues(pf, npf, sizeof *pf) ||
-        sort_pvalues(pd, npd, sizeof *pd)) {
-        goto cleanup;
+    {
+        /* the three sorts are independent: the pruned p-values on a second thread */
+        sort_job sj = {pf, npf, sizeof *pf, 0};
+        pthread_t sth;
+        int sthreaded = threads > 1 && npf > 100000 && pthread_create(&sth, NULL, sort_main, &sj) == 0;
+        int src = sort_pvalues(lv, pp->n, sizeof *lv) | sort_pvalues(pd, npd, sizeof *pd);
+        if (sthreaded) {
+            pthread_join(sth, NULL);
+        } else {
+            sort_main(&sj);
+        }
+        if (src || sj.rc) {
+            goto cleanup;
+        }
     }
     if (ngroups) { /* groups may be NULL: qsort's pointer must not be (UBSan, issue 6) */
         qsort(groups, ngroups, sizeof *groups, cmp_pgroup);

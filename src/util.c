@@ -2,6 +2,7 @@
 #include "util.h"
 
 #include <math.h>
+#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -90,6 +91,14 @@ static inline uint64_t load64(const char *p) {
     uint64_t v;
     memcpy(&v, p, 8);
     return v;
+}
+
+/* a == b over len bytes; short strings (most names) by two overlapping word loads */
+static inline int bytes_eq(const char *a, const char *b, size_t len) {
+    if (len >= 8 && len <= 16) {
+        return load64(a) == load64(b) && load64(a + len - 8) == load64(b + len - 8);
+    }
+    return memcmp(a, b, len) == 0;
 }
 
 static inline uint64_t mix64(uint64_t h) { /* the splitmix64 finaliser */
@@ -195,7 +204,7 @@ int64_t pm_i_strtab_find(const pm_i_strtab *t, const char *s, size_t len) {
         uint64_t v = t->slots[i];
         if (SLOT_TAG_EQ(v, h)) {
             uint32_t id = SLOT_ID(v);
-            if (t->len[id] == len && memcmp(t->str[id], s, len) == 0) {
+            if (t->len[id] == len && bytes_eq(t->str[id], s, len)) {
                 return id;
             }
         }
@@ -269,32 +278,64 @@ static inline uint64_t key_of(const unsigned char *rec) {
     return k;
 }
 
+/* One record from src to dst; the common sizes without a call to memcpy. */
+static inline void rec_copy(unsigned char *dst, const unsigned char *src, size_t size) {
+    if (size == 16) {
+        uint64_t a, b;
+        memcpy(&a, src, 8);
+        memcpy(&b, src + 8, 8);
+        memcpy(dst, &a, 8);
+        memcpy(dst + 8, &b, 8);
+    } else if (size == 8) {
+        uint64_t a;
+        memcpy(&a, src, 8);
+        memcpy(dst, &a, 8);
+    } else {
+        memcpy(dst, src, size);
+    }
+}
+
+/* LSD radix with 11-bit digits (six passes at most; 2048 buckets keep the scatter within the
+ * caches), every histogram taken in one read of the keys. */
+#define RADIX_BITS 11
+#define RADIX_N (1u << RADIX_BITS)
+#define RADIX_PASSES ((64 + RADIX_BITS - 1) / RADIX_BITS)
+
 int pm_i_radix_sort(void *base, size_t n, size_t size) {
     if (n < 2) {
         return 0;
     }
     unsigned char *tmp = pm_i_malloc(n, size);
-    size_t *cnt = pm_i_malloc(65537, sizeof *cnt);
+    size_t *cnt = pm_i_calloc((size_t)RADIX_PASSES * RADIX_N, sizeof *cnt);
     if (!tmp || !cnt) {
         free(tmp);
         free(cnt);
         return -1;
     }
     unsigned char *src = base, *dst = tmp;
-    for (int shift = 0; shift < 64; shift += 16) {
-        memset(cnt, 0, 65537 * sizeof *cnt);
-        for (size_t i = 0; i < n; i++) {
-            cnt[((key_of(src + i * size) >> shift) & 0xffff) + 1]++;
+    for (size_t i = 0; i < n; i++) {
+        uint64_t k = key_of(src + i * size);
+        for (int p = 0; p < RADIX_PASSES; p++) {
+            cnt[(size_t)p * RADIX_N + ((k >> (p * RADIX_BITS)) & (RADIX_N - 1))]++;
         }
-        if (cnt[((key_of(src) >> shift) & 0xffff) + 1] == n) {
+    }
+    uint64_t k0 = key_of(src);
+    for (int p = 0; p < RADIX_PASSES; p++) {
+        int shift = p * RADIX_BITS;
+        size_t *c = cnt + (size_t)p * RADIX_N;
+        if (c[(k0 >> shift) & (RADIX_N - 1)] == n) {
             continue; /* every key has this digit */
         }
-        for (int b = 0; b < 65536; b++) {
-            cnt[b + 1] += cnt[b];
+        size_t sum = 0;
+        for (unsigned b = 0; b < RADIX_N; b++) {
+            size_t x = c[b];
+            c[b] = sum;
+            sum += x;
         }
         for (size_t i = 0; i < n; i++) {
-            size_t at = cnt[(key_of(src + i * size) >> shift) & 0xffff]++;
-            memcpy(dst + at * size, src + i * size, size);
+            const unsigned char *r = src + i * size;
+            size_t at = c[(key_of(r) >> shift) & (RADIX_N - 1)]++;
+            rec_copy(dst + at * size, r, size);
         }
         unsigned char *t = src;
         src = dst;
@@ -311,6 +352,245 @@ int pm_i_radix_sort(void *base, size_t n, size_t size) {
 /* ==== misc ================================================================================== */
 int pm_i_bytecmp(const char *a, const char *b) {
     return strcmp(a, b); /* C11 7.24.4: strcmp compares as unsigned char */
+}
+
+/* ---- number formatting ---------------------------------------------------------------------
+ * pm_i_fmt_double prints the lowest of the precisions 15, 16, 17 whose %g text reads back
+ * (strtod) as the same double, in %g's spelling. Two routes give the same text:
+ *
+ * fast (finite v with |v| < 2^57, about 1.4e17, subnormals included): exact integer arithmetic.
+ * With |v| = m 2^q (m an integer), pick k = 16 - E' (E' = floor(log10 2^e2) <= log10|v|, e2 the
+ * binary exponent) so that X = |v| 10^k = m 5^k / 2^t (t = -(q + k)) lies in [10^16, 10^18).
+ * The integer part of X (< 2^60) and the class of its fraction (zero, below, exactly or above
+ * one half) are exact: 5^k is odd, so the low t bits of m 5^k are zero exactly as far as m's
+ * trailing zero bits go. Rounding that (ties to even, as glibc's printf in the default rounding
+ * mode) to 15, 16 or 17 digits gives what %.Pg gives. A candidate D 10^j reads back as v iff it
+ * lies inside the interval that strtod rounds to v: ((2m-1) 5^k / 2^(t+1), (2m+1) 5^k / 2^(t+1))
+ * in units of X, with the lower end at (4m-1) 5^k / 2^(t+2) when v is a power of two above
+ * the smallest normal, and the ends themselves included when m is even (ties to even). The
+ * ends are odd numbers over a power of two, so only their integer parts are needed, plus
+ * whether they are integers (only when the shift is not positive). 5^k has at most 13 limbs.
+ *
+ * slow (|v| >= 2^57, where k would be negative): glibc's printf to 25 digits, rounding those,
+ * and strtod. */
+
+enum { P5_MAXK = 340, P5_LIMBS = 13 }; /* 5^340 (k of the smallest subnormal) < 2^790 */
+
+/* 5^0 .. 5^P5_MAXK in 64-bit limbs, least significant first, computed on first use. Written
+ * only inside pthread_once, read-only afterwards. */
+static uint64_t p5_tab[P5_MAXK + 1][P5_LIMBS];
+static unsigned char p5_len[P5_MAXK + 1];
+static pthread_once_t p5_once = PTHREAD_ONCE_INIT;
+
+__extension__ typedef unsigned __int128 pm_u128; /* a GCC/Clang extension (-Wpedantic) */
+
+static void p5_build(void) {
+    uint64_t cur[P5_LIMBS] = {1};
+    int n = 1;
+    for (int k = 0; k <= P5_MAXK; k++) {
+        memcpy(p5_tab[k], cur, (size_t)n * sizeof cur[0]);
+        p5_len[k] = (unsigned char)n;
+        uint64_t carry = 0;
+        for (int i = 0; i < n; i++) {
+            pm_u128 p = (pm_u128)cur[i] * 5 + carry;
+            cur[i] = (uint64_t)p;
+            carry = (uint64_t)(p >> 64);
+        }
+        if (carry && n < P5_LIMBS) { /* only 5^341, never stored, would need a 14th limb */
+            cur[n++] = carry;
+        }
+    }
+}
+
+static const uint64_t POW10U[19] = {1ULL,
+                                    10ULL,
+                                    100ULL,
+                                    1000ULL,
+                                    10000ULL,
+                                    100000ULL,
+                                    1000000ULL,
+                                    10000000ULL,
+                                    100000000ULL,
+                                    1000000000ULL,
+                                    10000000000ULL,
+                                    100000000000ULL,
+                                    1000000000000ULL,
+                                    10000000000000ULL,
+                                    100000000000000ULL,
+                                    1000000000000000ULL,
+                                    10000000000000000ULL,
+                                    100000000000000000ULL,
+                                    1000000000000000000ULL};
+
+static const char DIGITS2[201] =
+    "00010203040506070809101112131415161718192021222324252627282930313233"
+    "34353637383940414243444546474849505152535455565758596061626364656667"
+    "6869707172737475767778798081828384858687888990919293949596979899";
+
+/* Writes the 8 digits of v < 10^8, zero-padded, in four independent pairs. */
+static void put8(char *d, uint32_t v) {
+    uint32_t a = v / 10000, b = v % 10000;
+    memcpy(d, DIGITS2 + 2 * (a / 100), 2);
+    memcpy(d + 2, DIGITS2 + 2 * (a % 100), 2);
+    memcpy(d + 4, DIGITS2 + 2 * (b / 100), 2);
+    memcpy(d + 6, DIGITS2 + 2 * (b % 100), 2);
+}
+
+enum { FRAC_ZERO, FRAC_BELOW, FRAC_HALF, FRAC_ABOVE }; /* the fraction against one half */
+
+/* floor(y / 2^t) for the n-limb y, t >= 0, when the result is known to be below 2^64. */
+static uint64_t limbs_shr(const uint64_t *y, int n, int t) {
+    int i = t >> 6, sh = t & 63;
+    uint64_t lo = i < n ? y[i] : 0, hi = i + 1 < n ? y[i + 1] : 0;
+    return sh ? (lo >> sh) | (hi << (64 - sh)) : lo;
+}
+
+/* floor(y / 2^t) for any t (t < 0 multiplies; the result is known to be below 2^64). */
+static uint64_t u128_shr(pm_u128 y, int t) {
+    if (t <= 0) {
+        return (uint64_t)y << -t;
+    }
+    return t < 128 ? (uint64_t)(y >> t) : 0;
+}
+
+/* floor(c f / 2^T) for the n-limb f, c < 2^55 and T >= 0, when the result is known to be below
+ * 2^64. Only the limbs of f from s0 = T/64 - 1 up are multiplied: the lower ones add less than
+ * c < 2^55 to the product's limb s0 (their part of c f is below c 2^(64 s0)), which can reach
+ * the bits wanted (64 and up, counted from limb s0) only when that limb is 2^64 - 2^55 or more;
+ * then, about once in 500 calls, the whole product is taken. */
+static uint64_t mul_shr(const uint64_t *f, int n, uint64_t c, int T) {
+    int s0 = T >= 64 ? (T >> 6) - 1 : 0;
+    if (s0 >= n) {
+        return 0; /* c f < 2^(64 (n + 1)) <= 2^T */
+    }
+    for (;;) {
+        uint64_t p[P5_LIMBS + 1], carry = 0;
+        for (int i = s0; i < n; i++) {
+            pm_u128 x = (pm_u128)f[i] * c + carry;
+            p[i - s0] = (uint64_t)x;
+            carry = (uint64_t)(x >> 64);
+        }
+        p[n - s0] = carry;
+        if (s0 == 0 || p[0] >> 55 != 0x1FF) {
+            return limbs_shr(p, n - s0 + 1, T - 64 * s0);
+        }
+        s0 = 0;
+    }
+}
+
+/* x / 10^j (j = 0..3) rounded to nearest, ties to even, where x is the integer part of the exact
+ * value and frac the class of its fraction. */
+static uint64_t round_pow10(uint64_t x, int frac, int j) {
+    if (j == 0) {
+        return x + (frac == FRAC_ABOVE || (frac == FRAC_HALF && (x & 1)));
+    }
+    uint64_t d; /* constant divisors, so that the compiler multiplies instead of dividing */
+    switch (j) {
+    case 1:
+        d = x / 10;
+        break;
+    case 2:
+        d = x / 100;
+        break;
+    default:
+        d = x / 1000;
+        break;
+    }
+    uint64_t p = POW10U[j], r = x - d * p, h = p / 2;
+    if (r > h || (r == h && frac != FRAC_ZERO)) {
+        return d + 1;
+    }
+    return r == h ? d + (d & 1) : d;
+}
+
+/* floor(e2 log10(2)) for |e2| <= 1100, from floor(e2 78913 / 2^18): 78913 / 2^18 is log10(2)
+ * less 8e-7, and the two floors agree for every e2 in that range (checked for each one when this
+ * was written; were one wrong, X would fall outside [10^16, 10^18) and the slow route run). */
+static int floor_log10_pow2(int e2) {
+    return e2 >= 0 ? (int)(((int64_t)e2 * 78913) >> 18)
+                   : -(int)(((int64_t)-e2 * 78913 + 262143) >> 18);
+}
+
+/* The fast route: writes the P (15..17) digits of |v| (finite, non-zero) to dig and its
+ * decimal exponent to *x, returns P; returns 0 when |v| is too large for it. */
+static int fmt_exact(double a, char *dig, int *x) {
+    uint64_t bits;
+    memcpy(&bits, &a, sizeof bits);
+    int be = (int)(bits >> 52) & 0x7ff;
+    uint64_t m = bits & ((1ULL << 52) - 1);
+    int q = -1074;
+    if (be) {
+        m |= 1ULL << 52;
+        q = be - 1075;
+    }
+    int e2 = q + 63 - __builtin_clzll(m); /* 2^e2 <= |v| < 2^(e2+1) */
+    int E = floor_log10_pow2(e2);         /* floor(log10 |v|) is E or E + 1 */
+    int k = 16 - E;
+    if (k < 0 || k > P5_MAXK) {
+        return 0;
+    }
+    int t = -(q + k);                       /* X = m 5^k / 2^t */
+    int narrow = m == 1ULL << 52 && be > 1; /* the gap below is half the gap above */
+    uint64_t c_lo = narrow ? 4 * m - 1 : 2 * m - 1;
+    int t_lo = narrow ? t + 2 : t + 1;
+    uint64_t fx, f_hi, f_lo; /* integer parts of X and of the two ends */
+    int bit;                 /* bit t-1 of m 5^k: the fraction's first binary digit */
+    pthread_once(&p5_once, p5_build);
+    const uint64_t *p5 = p5_tab[k];
+    int n5 = p5_len[k];
+    if (n5 == 1) { /* 5^k < 2^64: every product fits in 118 bits */
+        pm_u128 f = p5[0], b = f * m;
+        fx = u128_shr(b, t);
+        bit = t >= 1 && t <= 128 ? (int)((b >> (t - 1)) & 1) : 0;
+        f_hi = u128_shr(f * (2 * m + 1), t + 1);
+        f_lo = u128_shr(f * c_lo, t_lo);
+    } else {
+        if (t < 1 || t > 1100) {
+            return 0; /* not reached: 5^k >= 2^64 > X needs t >= 5; t <= 1074 - k */
+        }
+        uint64_t b2 = mul_shr(p5, n5, m, t - 1); /* floor(m 5^k / 2^(t-1)) < 2^61 */
+        fx = b2 >> 1;
+        bit = (int)(b2 & 1);
+        f_hi = mul_shr(p5, n5, 2 * m + 1, t + 1);
+        f_lo = mul_shr(p5, n5, c_lo, t_lo);
+    }
+    if (fx < POW10U[16] || fx >= POW10U[18]) {
+        return 0; /* not reached (E is floor(log10 |v|) or one less) */
+    }
+    int frac = FRAC_ZERO;
+    if (t > 0) {
+        int z = __builtin_ctzll(m); /* m 5^k has the trailing zero bits of m */
+        frac = z >= t ? FRAC_ZERO : z == t - 1 ? FRAC_HALF : bit ? FRAC_ABOVE : FRAC_BELOW;
+    }
+    int base = fx >= POW10U[17]; /* X has 18 digits: |v| is 10^(E+1) or more */
+    int even = !(m & 1), hi_int = t + 1 <= 0, lo_int = t_lo <= 0;
+    int P = 15;
+    uint64_t d = 0;
+    for (; P <= 17; P++) {
+        int j = 17 - P + base;
+        d = round_pow10(fx, frac, j);
+        if (P == 17) {
+            break; /* 17 digits always read back */
+        }
+        uint64_t dx = d * POW10U[j]; /* the candidate in units of X (at most 10^18) */
+        int above_lo = dx > f_lo || (lo_int && even && dx == f_lo);
+        int below_hi = hi_int ? dx < f_hi || (even && dx == f_hi) : dx <= f_hi;
+        if (above_lo && below_hi) {
+            break;
+        }
+    }
+    *x = E + base;
+    if (d == POW10U[P]) { /* rounded up to a new leading digit */
+        d = POW10U[P - 1];
+        (*x)++;
+    }
+    /* the 17 digits of d (zero-padded; d < 10^17) as 1 + 8 + 8, the last P of them kept */
+    char t17[40] = {0};
+    t17[0] = (char)('0' + d / POW10U[16]);
+    put8(t17 + 1, (uint32_t)(d / POW10U[8] % POW10U[8]));
+    put8(t17 + 9, (uint32_t)(d % POW10U[8]));
+    memcpy(dig, t17 + 17 - P, 17);
+    return P;
 }
 
 /* Exact powers of ten as doubles (10^0 .. 10^22 are representable). */
@@ -374,29 +654,18 @@ static void round_digits(const char *d, int n, char *out, int *x) {
     }
 }
 
-int pm_i_fmt_double(char *buf, size_t size, double v) {
-    if (isnan(v)) {
-        return snprintf(buf, size, "nan");
-    }
-    if (isinf(v)) {
-        return snprintf(buf, size, v > 0 ? "inf" : "-inf");
-    }
-    if (v == 0) {
-        return snprintf(buf, size, "0");
-    }
-    /* 17 significant digits always read back; try 15 and 16 first (shortest of the three).
-     * The digits come from one conversion to 25 significant digits; rounding those to 15 or 16
-     * gives what %.15g / %.16g give, except when the dropped digits are a tie at 25 digits
-     * (5000... or 4999...), where the candidate is converted afresh. */
+/* The slow route, for any finite non-zero |v|: the digits come from one conversion to 25
+ * significant digits; rounding those to 15 or 16 gives what %.15g / %.16g give, except when the
+ * dropped digits are a tie at 25 digits (5000... or 4999...), where the candidate is converted
+ * afresh. Writes the P digits to dig and the decimal exponent to *x, returns P. */
+static int fmt_slow(double a, char *dig, int *x) {
     char e25[48];
-    snprintf(e25, sizeof e25, "%.24e", fabs(v));
+    snprintf(e25, sizeof e25, "%.24e", a);
     char d25[26];
     d25[0] = e25[0];
     memcpy(d25 + 1, e25 + 2, 24);
     d25[25] = '\0';
     int x25 = atoi(e25 + 27);
-    char dig[26];
-    int n = 0, x = x25;
     for (int p = 15; p <= 17; p++) {
         int xp = x25, tie = 1;
         for (int i = p + 1; i < 25 && tie; i++) {
@@ -405,24 +674,55 @@ int pm_i_fmt_double(char *buf, size_t size, double v) {
         tie = tie && (d25[p] == '5' || d25[p] == '4');
         if (tie) {
             char ep[40];
-            snprintf(ep, sizeof ep, "%.*e", p - 1, fabs(v));
+            snprintf(ep, sizeof ep, "%.*e", p - 1, a);
             dig[0] = ep[0];
             memcpy(dig + 1, ep + 2, (size_t)p - 1);
             xp = atoi(strchr(ep, 'e') + 1);
         } else {
             round_digits(d25, p, dig, &xp);
         }
-        if (p == 17 || reads_back(dig, p, xp, fabs(v))) {
-            n = p;
-            x = xp;
-            break;
+        if (p == 17 || reads_back(dig, p, xp, a)) {
+            *x = xp;
+            return p;
         }
     }
-    int P = n; /* %g semantics with precision P */
+    return 17; /* not reached */
+}
+
+/* Copies the word s to buf as snprintf(buf, size, "%s", s) would; returns its length. */
+static int put_word(char *buf, size_t size, const char *s) {
+    size_t n = strlen(s);
+    if (size) {
+        size_t c = n < size - 1 ? n : size - 1;
+        memcpy(buf, s, c);
+        buf[c] = '\0';
+    }
+    return (int)n;
+}
+
+int pm_i_fmt_double(char *buf, size_t size, double v) {
+    if (isnan(v)) {
+        return put_word(buf, size, "nan");
+    }
+    if (isinf(v)) {
+        return put_word(buf, size, v > 0 ? "inf" : "-inf");
+    }
+    if (v == 0) {
+        return put_word(buf, size, "0"); /* -0 too */
+    }
+    char dig[40] = {0}; /* P digits, then room for the fixed-size copies below */
+    int x = 0;
+    int P = fmt_exact(fabs(v), dig, &x);
+    if (!P) {
+        P = fmt_slow(fabs(v), dig, &x);
+    }
+    int n = P; /* %g semantics with precision P */
     while (n > 1 && dig[n - 1] == '0') {
         n--;
     }
-    char out[48];
+    /* Built in out with fixed-size copies (dig has room past its P digits), so that no copy
+     * has a variable length; the text is at most 25 bytes. */
+    char out[64] = {0};
     int o = 0;
     if (v < 0) {
         out[o++] = '-';
@@ -431,7 +731,7 @@ int pm_i_fmt_double(char *buf, size_t size, double v) {
         out[o++] = dig[0];
         if (n > 1) {
             out[o++] = '.';
-            memcpy(out + o, dig + 1, (size_t)n - 1);
+            memcpy(out + o, dig + 1, 16);
             o += n - 1;
         }
         int ax = x < 0 ? -x : x;
@@ -448,20 +748,25 @@ int pm_i_fmt_double(char *buf, size_t size, double v) {
         for (int i = 0; i < -x - 1; i++) {
             out[o++] = '0';
         }
-        memcpy(out + o, dig, (size_t)n);
+        memcpy(out + o, dig, 17);
         o += n;
     } else {
-        for (int i = 0; i <= x; i++) {
-            out[o++] = i < n ? dig[i] : '0';
-        }
-        if (n > x + 1) {
-            out[o++] = '.';
-            memcpy(out + o, dig + x + 1, (size_t)(n - x - 1));
-            o += n - x - 1;
+        memcpy(out + o, dig, 17);
+        if (n > x + 1) { /* a fraction: the digits after the point move one place right */
+            out[o + x + 1] = '.';
+            memcpy(out + o + x + 2, dig + x + 1, 16);
+            o += n + 1;
+        } else {
+            for (int i = n; i <= x; i++) {
+                out[o + i] = '0';
+            }
+            o += x + 1;
         }
     }
     out[o] = '\0';
-    if (size) {
+    if (size >= 32) {
+        memcpy(buf, out, 32); /* the text, its terminator, then filler (util.h) */
+    } else if (size) {
         size_t c = (size_t)o < size - 1 ? (size_t)o : size - 1;
         memcpy(buf, out, c);
         buf[c] = '\0';

@@ -46,7 +46,7 @@ uint64_t pm_i_hash(const char *s, size_t len);
 
 /* ---- sorting ------------------------------------------------------------------------------ */
 /* Sorts n records of size bytes (size >= 8) by the uint64_t their first 8 bytes hold, stably
- * (LSD radix, 16-bit digits; a pass whose digit is the same everywhere is skipped). O(n) time,
+ * (LSD radix, 11-bit digits; a pass whose digit is the same everywhere is skipped). O(n) time,
  * n records of extra memory. Returns 0, or -1 when memory runs out (base unchanged). */
 int pm_i_radix_sort(void *base, size_t n, size_t size);
 
@@ -54,7 +54,10 @@ int pm_i_radix_sort(void *base, size_t n, size_t size);
 /* Byte-wise comparison of two NUL-terminated strings as unsigned bytes (strcmp semantics). */
 int pm_i_bytecmp(const char *a, const char *b);
 /* Formats a double so that it round-trips (shortest of %.15g..%.17g that reads back equal),
- * "nan"/"inf"/"-inf" for non-finite values. Returns the length. */
+ * "nan"/"inf"/"-inf" for non-finite values, "0" for both zeros. Returns the length; the text is
+ * at most 25 bytes and is cut to size - 1 bytes as snprintf does. When size >= 32, all of
+ * buf[0..32) may be written (filler after the terminator). Exact integer arithmetic for
+ * |v| < 2^57 (about 1.4e17), glibc's printf and strtod above (util.c). */
 int pm_i_fmt_double(char *buf, size_t size, double v);
 /* Monotonic clock in seconds. */
 double pm_i_now(void);

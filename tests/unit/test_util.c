@@ -318,6 +318,65 @@ static void test_util_fmt_double_roundtrip(void **state) {
     }
 }
 
+/* pm_i_radix_sort against qsort with the original position as the second key (a stable sort
+ * gives exactly that order), for 8-, 12- and 16-byte records, keys with few and many distinct
+ * values and digits that are the same everywhere (the skipped passes). */
+typedef struct {
+    uint64_t key;
+    uint32_t pos;
+} radix_ref;
+
+static int cmp_radix_ref(const void *a, const void *b) {
+    const radix_ref *x = a, *y = b;
+    if (x->key != y->key) {
+        return x->key < y->key ? -1 : 1;
+    }
+    return x->pos < y->pos ? -1 : x->pos > y->pos;
+}
+
+static void test_util_radix_sort_stable(void **state) {
+    (void)state;
+    static const size_t sizes[3] = {8, 12, 16};
+    uint64_t rng = 88172645463325252ULL;
+    for (int kind = 0; kind < 4; kind++) {
+        for (int si = 0; si < 3; si++) {
+            size_t size = sizes[si], n = 1 + (size_t)(kind * 7919 + si * 3001) % 20000;
+            unsigned char *rec = malloc(n * size);
+            radix_ref *ref = malloc(n * sizeof *ref);
+            assert_non_null(rec);
+            assert_non_null(ref);
+            for (size_t i = 0; i < n; i++) {
+                rng ^= rng << 13;
+                rng ^= rng >> 7;
+                rng ^= rng << 17;
+                uint64_t k = kind == 0   ? rng                        /* all bits vary */
+                             : kind == 1 ? rng % 17                   /* many ties */
+                             : kind == 2 ? (rng & 0xFFFF00000000ULL)  /* one digit range */
+                                         : 0x3FF0000000000000ULL + (rng >> 40);
+                memcpy(rec + i * size, &k, 8);
+                uint32_t pos = (uint32_t)i;
+                memcpy(rec + i * size + 8, &pos, size - 8 < 4 ? size - 8 : 4);
+                ref[i].key = k;
+                ref[i].pos = pos;
+            }
+            assert_int_equal(pm_i_radix_sort(rec, n, size), 0);
+            qsort(ref, n, sizeof *ref, cmp_radix_ref);
+            for (size_t i = 0; i < n; i++) {
+                uint64_t k;
+                memcpy(&k, rec + i * size, 8);
+                assert_true(k == ref[i].key);
+                if (size > 8) {
+                    uint32_t pos = 0;
+                    memcpy(&pos, rec + i * size + 8, 4);
+                    assert_int_equal(pos, ref[i].pos);
+                }
+            }
+            free(rec);
+            free(ref);
+        }
+    }
+}
+
 static const struct CMUnitTest tests[] = {
     cmocka_unit_test(test_util_malloc_overflow),
     cmocka_unit_test(test_util_alloc_fail_after_nth),
@@ -329,6 +388,7 @@ static const struct CMUnitTest tests[] = {
     cmocka_unit_test(test_util_bytecmp_unsigned),
     cmocka_unit_test(test_util_fmt_double_known),
     cmocka_unit_test(test_util_fmt_double_roundtrip),
+    cmocka_unit_test(test_util_radix_sort_stable),
 };
 
 UNIT_MAIN("util", tests)

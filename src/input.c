@@ -1,6 +1,7 @@
 /* Readers for the long and lines formats, the table builder shared with the wide reader, and
  * item hygiene (--drop-item, --merge-file). One pass, streaming; strings interned once. */
 #include "input_internal.h"
+#include "parallel.h"
 
 #include <ctype.h>
 #include <errno.h>
@@ -429,7 +430,8 @@ static pm_err_t merge_runs(pm_table_t *t, pm_diag_t *diag) {
         goto done;
     }
     for (size_t r = 0; r < n; r++) {
-        rk[r].h = t->run_hash[r];
+        rk[r].h = t->run_hash[r] >> 32; /* 32 bits: half the radix passes; equal keys are
+                                          * told apart by their strings below */
         rk[r].r = (uint32_t)r;
         canon[r] = (uint32_t)r;
     }
@@ -895,7 +897,29 @@ static uint64_t par_cut(int fd, uint64_t want, uint64_t limit) {
 
 /* Appends chunk table c to t (see above). base: lines before the chunk. Returns PM_OK,
  * PM_ENOMEM, or PM_EINTERNAL when the chunks disagree (read serially then). */
-static pm_err_t par_append(pm_table_t *t, pm_table_t *c, uint64_t base) {
+/* The rows of one chunk, copied into the table after every chunk is appended (on all
+ * threads): respondent numbers shifted by r0, item ids mapped. */
+typedef struct {
+    pm_table_t *t;
+    const pm_table_t *c;
+    uint32_t *item_map; /* owned */
+    size_t dst;
+    uint32_t r0;
+} par_rows;
+
+static int par_rows_copy(void *ud, size_t k, unsigned th) {
+    (void)th;
+    const par_rows *pr = (const par_rows *)ud + k;
+    uint32_t *rr = pr->t->row_resp + pr->dst, *ri = pr->t->row_item + pr->dst;
+    const uint32_t *cr = pr->c->row_resp, *ci = pr->c->row_item;
+    for (size_t i = 0; i < pr->c->n_rows; i++) {
+        rr[i] = cr[i] + pr->r0;
+        ri[i] = pr->item_map[ci[i]];
+    }
+    return 0;
+}
+
+static pm_err_t par_append(pm_table_t *t, pm_table_t *c, uint64_t base, par_rows *rows_job) {
     pm_err_t rc = PM_ENOMEM;
     int64_t *cat_map = pm_i_malloc(c->cats.count ? c->cats.count : 1, sizeof *cat_map);
     uint32_t *item_map = pm_i_malloc(c->items.count ? c->items.count : 1, sizeof *item_map);
@@ -976,23 +1000,17 @@ static pm_err_t par_append(pm_table_t *t, pm_table_t *c, uint64_t base) {
         t->run_n += c->run_n;
     }
     t->n_anon += c->n_anon;
-    if (c->n_rows) {
-        size_t need = t->n_rows + c->n_rows;
-        if (need > t->rows_cap) {
-            size_t c1 = t->rows_cap, c2 = t->rows_cap;
-            if (pm_i_grow((void **)&t->row_resp, &c1, need, sizeof(uint32_t)) ||
-                pm_i_grow((void **)&t->row_item, &c2, need, sizeof(uint32_t))) {
-                goto done;
-            }
-            t->rows_cap = c1 < c2 ? c1 : c2;
-        }
-        uint32_t *rr = t->row_resp + t->n_rows, *ri = t->row_item + t->n_rows;
-        for (size_t i = 0; i < c->n_rows; i++) {
-            rr[i] = c->row_resp[i] + (uint32_t)r0;
-            ri[i] = item_map[c->row_item[i]];
-        }
-        t->n_rows = need;
+    if (t->n_rows + c->n_rows > t->rows_cap) { /* the caller made room for every row */
+        rc = PM_EINTERNAL;
+        goto done;
     }
+    rows_job->t = t; /* copied later, on all threads */
+    rows_job->c = c;
+    rows_job->item_map = item_map;
+    item_map = NULL;
+    rows_job->dst = t->n_rows;
+    rows_job->r0 = (uint32_t)r0;
+    t->n_rows += c->n_rows;
     t->stats.respondents += c->stats.respondents;
     t->stats.records += c->stats.records;
     t->stats.rows += c->stats.rows;
@@ -1114,10 +1132,26 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     for (size_t k = 1; k < n && ok; k++) {
         ok = started[k] && ch[k].rc == PM_OK;
     }
+    par_rows rows[PAR_MAX];
+    memset(rows, 0, sizeof rows);
     if (ok) {
         uint64_t base = ch[0].co.lines, bytes = ch[0].co.bytes;
+        size_t total = t->n_rows;
+        for (size_t k = 1; k < n; k++) {
+            total += ch[k].t->n_rows;
+        }
+        size_t c1 = t->rows_cap, c2 = t->rows_cap;
+        if (total > t->rows_cap &&
+            (pm_i_grow((void **)&t->row_resp, &c1, total, sizeof(uint32_t)) ||
+             pm_i_grow((void **)&t->row_item, &c2, total, sizeof(uint32_t)))) {
+            ok = 0;
+            result = -1;
+            pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+        } else if (total > t->rows_cap) {
+            t->rows_cap = c1 < c2 ? c1 : c2;
+        }
         for (size_t k = 1; k < n && ok; k++) {
-            pm_err_t rc = par_append(t, ch[k].t, base);
+            pm_err_t rc = par_append(t, ch[k].t, base, &rows[k - 1]);
             if (rc == PM_ENOMEM) {
                 pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
                 result = -1;
@@ -1127,6 +1161,12 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
             ok = rc == PM_OK;
             base += ch[k].co.lines;
             bytes += ch[k].co.bytes;
+        }
+        if (ok) {
+            ok = pm_i_parallel(threads, n - 1, par_rows_copy, rows) == 0;
+        }
+        for (size_t k = 1; k < n; k++) {
+            free(rows[k - 1].item_map);
             pm_table_free(ch[k].t);
             ch[k].t = NULL;
         }

@@ -93,14 +93,6 @@ static inline uint64_t load64(const char *p) {
     return v;
 }
 
-/* a == b over len bytes; short strings (most names) by two overlapping word loads */
-static inline int bytes_eq(const char *a, const char *b, size_t len) {
-    if (len >= 8 && len <= 16) {
-        return load64(a) == load64(b) && load64(a + len - 8) == load64(b + len - 8);
-    }
-    return memcmp(a, b, len) == 0;
-}
-
 static inline uint64_t mix64(uint64_t h) { /* the splitmix64 finaliser */
     h ^= h >> 30;
     h *= 0xbf58476d1ce4e5b9ULL;
@@ -170,23 +162,44 @@ static char *arena_copy(pm_i_strtab *t, const char *s, size_t len) {
     return p;
 }
 
-/* A slot holds id + 1 in its low 32 bits (0 = empty) and the top 32 bits of the string's hash,
- * so that most probes that miss never touch the string arrays. */
-#define SLOT(id, h) (((h) & 0xffffffff00000000ULL) | (uint64_t)((id) + 1))
-#define SLOT_ID(v) ((uint32_t)(v) - 1)
-#define SLOT_TAG_EQ(v, h) ((((v) ^ (h)) >> 32) == 0)
+/* The key words of s (see pm_i_slot). For 8..16 bytes the first and the last eight bytes
+ * (overlapping) together with the length determine the string. */
+static inline void slot_key(const char *s, size_t len, uint64_t h, uint64_t *k0, uint64_t *k1) {
+    if (len > 16) {
+        *k0 = h;
+        *k1 = 0;
+    } else if (len >= 8) {
+        *k0 = load64(s);
+        *k1 = load64(s + len - 8);
+    } else {
+        uint64_t w = 0;
+        memcpy(&w, s, len);
+        *k0 = w;
+        *k1 = 0;
+    }
+}
+
+static inline int slot_match(const pm_i_strtab *t, const pm_i_slot *sl, const char *s, size_t len,
+                             uint64_t k0, uint64_t k1) {
+    if (sl->len != len || sl->k0 != k0 || sl->k1 != k1) {
+        return 0;
+    }
+    return len <= 16 || memcmp(t->str[sl->id1 - 1], s, len) == 0;
+}
 
 static int rehash(pm_i_strtab *t, size_t ncap) {
-    uint64_t *ns = pm_i_calloc(ncap, sizeof *ns);
+    pm_i_slot *ns = pm_i_calloc(ncap, sizeof *ns);
     if (!ns) {
         return -1;
     }
     for (size_t id = 0; id < t->count; id++) {
         size_t i = (size_t)t->hash[id] & (ncap - 1);
-        while (ns[i]) {
+        while (ns[i].id1) {
             i = (i + 1) & (ncap - 1);
         }
-        ns[i] = SLOT(id, t->hash[id]);
+        slot_key(t->str[id], t->len[id], t->hash[id], &ns[i].k0, &ns[i].k1);
+        ns[i].len = t->len[id];
+        ns[i].id1 = (uint32_t)id + 1;
     }
     free(t->slots);
     t->slots = ns;
@@ -195,18 +208,15 @@ static int rehash(pm_i_strtab *t, size_t ncap) {
 }
 
 int64_t pm_i_strtab_find(const pm_i_strtab *t, const char *s, size_t len) {
-    if (!t->cap) {
+    if (!t->cap || len > UINT32_MAX) {
         return -1;
     }
-    uint64_t h = pm_i_hash(s, len);
+    uint64_t h = pm_i_hash(s, len), k0, k1;
+    slot_key(s, len, h, &k0, &k1);
     size_t i = (size_t)h & (t->cap - 1);
-    while (t->slots[i]) {
-        uint64_t v = t->slots[i];
-        if (SLOT_TAG_EQ(v, h)) {
-            uint32_t id = SLOT_ID(v);
-            if (t->len[id] == len && bytes_eq(t->str[id], s, len)) {
-                return id;
-            }
+    while (t->slots[i].id1) {
+        if (slot_match(t, &t->slots[i], s, len, k0, k1)) {
+            return t->slots[i].id1 - 1;
         }
         i = (i + 1) & (t->cap - 1);
     }
@@ -225,15 +235,12 @@ int64_t pm_i_strtab_intern(pm_i_strtab *t, const char *s, size_t len, bool *adde
             return -1;
         }
     }
-    uint64_t h = pm_i_hash(s, len);
+    uint64_t h = pm_i_hash(s, len), k0, k1;
+    slot_key(s, len, h, &k0, &k1);
     size_t i = (size_t)h & (t->cap - 1);
-    while (t->slots[i]) {
-        uint64_t v = t->slots[i];
-        if (SLOT_TAG_EQ(v, h)) {
-            uint32_t id = SLOT_ID(v);
-            if (t->len[id] == len && memcmp(t->str[id], s, len) == 0) {
-                return id;
-            }
+    while (t->slots[i].id1) {
+        if (slot_match(t, &t->slots[i], s, len, k0, k1)) {
+            return t->slots[i].id1 - 1;
         }
         i = (i + 1) & (t->cap - 1);
     }
@@ -264,7 +271,10 @@ int64_t pm_i_strtab_intern(pm_i_strtab *t, const char *s, size_t len, bool *adde
     t->str[id] = copy;
     t->len[id] = (uint32_t)len;
     t->hash[id] = h;
-    t->slots[i] = SLOT(id, h);
+    t->slots[i].k0 = k0;
+    t->slots[i].k1 = k1;
+    t->slots[i].len = (uint32_t)len;
+    t->slots[i].id1 = (uint32_t)id + 1;
     if (added) {
         *added = true;
     }

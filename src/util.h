@@ -25,8 +25,15 @@ int pm_i_grow(void **p, size_t *cap, size_t need, size_t size);
  * dense ids 0..count-1 in first-seen order. Strings live in an arena of large blocks and are
  * NUL-terminated; their addresses are stable. */
 typedef struct pm_i_arena_block pm_i_arena_block;
+/* A slot: a string of at most 16 bytes is held in k0, k1 itself (so a lookup that hits reads
+ * no other memory); a longer one has its hash in k0 and is compared with str[id]. */
 typedef struct {
-    uint64_t *slots;     /* id + 1 in the low half, 0 = empty; hash tag in the high half */
+    uint64_t k0, k1;
+    uint32_t len;
+    uint32_t id1; /* id + 1; 0 = empty */
+} pm_i_slot;
+typedef struct {
+    pm_i_slot *slots;    /* open addressing */
     size_t cap;          /* number of slots, a power of two */
     const char **str;    /* id -> string */
     uint32_t *len;       /* id -> length in bytes */

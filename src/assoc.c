@@ -177,6 +177,37 @@ static double chi2_p(double chi2, double phi, pm_sign_t sign) {
     return sign == PM_SIGN_POSITIVE ? gsl_cdf_ugaussian_Q(z) : gsl_cdf_ugaussian_P(z);
 }
 
+/* phi: numerator exact in 64-bit integers, denominator in long double (DESIGN.md) */
+static inline double phi_counts(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab) {
+    long double num;
+    if (N < (1ULL << 31)) {
+        num = (long double)((int64_t)(N * nab) - (int64_t)(na * nb));
+    } else {
+        num = (long double)N * nab - (long double)na * nb;
+    }
+    long double den = sqrtl((long double)na * nb * (long double)(N - na) * (long double)(N - nb));
+    return (double)(num / den);
+}
+
+/* Cochran's rule (common practice): the smallest expected cell below 5 -> Fisher */
+static inline double min_expected(uint64_t N, uint64_t na, uint64_t nb) {
+    uint64_t ra = na < N - na ? na : N - na, rb = nb < N - nb ? nb : N - nb;
+    return (double)ra * (double)rb / (double)N;
+}
+
+/* The p-value alone, as counts_measures computes it (phi only when chi-square needs it). */
+static double counts_p(const double *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
+                       pm_sign_t sign, unsigned char *test) {
+    if (min_expected(N, na, nb) < 5) {
+        *test = PM_TEST_FISHER;
+        return fisher(lf, N, na, nb, nab,
+                      sign == PM_SIGN_BOTH ? 0 : sign == PM_SIGN_POSITIVE ? 1 : -1);
+    }
+    *test = PM_TEST_CHI2;
+    double phi = phi_counts(N, na, nb, nab);
+    return chi2_p((double)N * phi * phi, phi, sign);
+}
+
 static void counts_measures(const double *lf, uint64_t N, uint64_t na, uint64_t nb,
                             uint64_t nab, pm_sign_t sign, pm_measures_t *m, int with_test) {
     double dN = (double)N, da = (double)na, db = (double)nb, dab = (double)nab;
@@ -187,18 +218,8 @@ static void counts_measures(const double *lf, uint64_t N, uint64_t na, uint64_t 
     m->confidence_ba = dab / db;
     m->lift = dN * dab / (da * db);
     m->jaccard = dab / (da + db - dab);
-    /* phi: numerator exact in 64-bit integers, denominator in long double */
-    long double num;
-    if (N < (1ULL << 31)) {
-        num = (long double)((int64_t)(N * nab) - (int64_t)(na * nb));
-    } else {
-        num = (long double)N * nab - (long double)na * nb;
-    }
-    long double den = sqrtl((long double)na * nb * (long double)(N - na) * (long double)(N - nb));
-    m->phi = (double)(num / den);
-    /* Cochran's rule (common practice): the smallest expected cell below 5 -> Fisher */
-    uint64_t ra = na < N - na ? na : N - na, rb = nb < N - nb ? nb : N - nb;
-    double emin = (double)ra * (double)rb / dN;
+    m->phi = phi_counts(N, na, nb, nab);
+    double emin = min_expected(N, na, nb);
     m->q = NAN;
     m->test = emin < 5 ? PM_TEST_FISHER : PM_TEST_CHI2;
     m->p = NAN;
@@ -364,12 +385,16 @@ void pm_pairs_free(pm_pairs_t *p) {
 /* A pair's p-value under the run's rules. */
 static double pair_p(const double *lf, const pm_incidence_t *inc, pm_sign_t sign, double neff,
                      uint32_t a, uint32_t b, uint32_t nab, double wab, unsigned char *test) {
-    pm_measures_t m;
-    if (inc->wcount) {
-        pm_assoc_weighted(inc->W, inc->wcount[a], inc->wcount[b], wab, neff, sign, &m);
-    } else {
-        counts_measures(lf, inc->N, inc->count[a], inc->count[b], nab, sign, &m, 1);
+    if (!inc->wcount) {
+        unsigned char t;
+        double p = counts_p(lf, inc->N, inc->count[a], inc->count[b], nab, sign, &t);
+        if (test) {
+            *test = t;
+        }
+        return p;
     }
+    pm_measures_t m;
+    pm_assoc_weighted(inc->W, inc->wcount[a], inc->wcount[b], wab, neff, sign, &m);
     if (test) {
         *test = (unsigned char)m.test;
     }
@@ -405,7 +430,7 @@ static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t
         return;
     }
     if (!c->keep_ids) {
-        if (pm_i_grow((void **)&pb->pf, &pb->cf, pb->nf + 1, sizeof *pb->pf)) {
+        if (pb->nf >= pb->cf && pm_i_grow((void **)&pb->pf, &pb->cf, pb->nf + 1, sizeof *pb->pf)) {
             pb->fail = 1;
             return;
         }

@@ -7,7 +7,9 @@
  * clustering or layout: Louvain and Fruchterman-Reingold both need positive weights.
  *
  * igraph's random generator, error handler and finally stack are process-global: these
- * functions are not thread-safe and must not run concurrently. */
+ * functions are not thread-safe and must not run concurrently. To use several cores,
+ * pm_cluster_louvain and pm_network_run share their work among forked worker processes
+ * instead (pm_cluster_opts_t.workers); results are the same for any number of workers. */
 #ifndef PAIRMAP_NETWORK_H
 #define PAIRMAP_NETWORK_H
 
@@ -28,7 +30,8 @@ void pm_init(void);
 /* Default number of Fruchterman-Reingold iterations (iterations <= 0 selects it). */
 #define PM_LAYOUT_ITERATIONS 500
 
-/* Fruchterman-Reingold layout of an undirected graph given as plain arrays.
+/* Fruchterman-Reingold layout of an undirected graph given as plain arrays, in the calling
+ * process (pm_network_run runs it in a worker process alongside the clustering).
  *   n           vertices 0 .. n-1
  *   m, ea, eb   edges (ea[k], eb[k]); self-loops and edges with w[k] not finite or <= 0 are
  *               ignored; parallel edges are allowed
@@ -63,6 +66,8 @@ typedef struct {
      * for a cluster's leading members (NULL: none). */
     const char *const *names;
     const double *share;
+    /* Processes that share the work (default 1; 0 counts as 1): see pm_network_run. */
+    unsigned workers;
 } pm_cluster_opts_t;
 
 void pm_cluster_opts_init(pm_cluster_opts_t *o);
@@ -98,13 +103,45 @@ typedef struct {
 /* Louvain (igraph_community_multilevel) with weights w (see the note at the top on unusable
  * edges), o->restarts runs from seeds derived from o->seed, the best modularity kept. Vertices
  * are taken in the order given (give them in canonical order for reproducible results).
- * *out owns the result (pm_clusters_free). Errors: PM_EUSAGE (resolution < 0, restarts 0),
- * PM_EINTERNAL (bad vertex id, igraph failure), PM_ENOMEM. Cost: restarts Louvain runs
- * (about O(m log n) each) plus O(restarts^2 n) for the stability. */
+ * With o->workers > 1 the restarts are split among worker processes as in pm_network_run,
+ * with the same results. *out owns the result (pm_clusters_free). Errors: PM_EUSAGE (resolution <
+ * 0, restarts 0), PM_EINTERNAL (bad vertex id, igraph failure), PM_ENOMEM. Cost: restarts Louvain
+ * runs (about O(m log n) each) plus O(restarts^2 n) for the stability. */
 pm_err_t pm_cluster_louvain(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
                             const double *w, const pm_cluster_opts_t *o, pm_clusters_t **out,
                             pm_diag_t *diag);
 void pm_clusters_free(pm_clusters_t *c);
+
+/* The whole network stage: pm_cluster_louvain(n, m, ea, eb, w, o, clusters, diag) followed by
+ * pm_layout_fr(n, m, ea, eb, w, layout_seed, iterations, xy, diag), with the same results,
+ * bit for bit, and the same errors in the same order (clustering first), for any
+ * o->workers.
+ *
+ * Workers: with o->workers > 1 the calling process forks up to o->workers - 1 children
+ * (never more than there are pieces of work: the o->restarts Louvain runs and the layout).
+ * With a layout the layout goes to one child and the restarts are split, in order, among the
+ * caller and the other children; each child sends its memberships, modularities or
+ * coordinates back through a pipe (or its error: code and igraph's message) and ends with
+ * _exit. The caller reads and reaps every child before returning, on every path, and
+ * computes itself any share whose child could not be started (pipe or fork failing: EAGAIN,
+ * ENOMEM, EMFILE, a sandbox without fork), died, answered short or ran out of memory; such
+ * fallbacks are silent and change nothing in the results.
+ * Children reset SIGINT and SIGTERM to their defaults (the caller's handlers, e.g. the ones
+ * that remove temporary output files, never run in a child), stay in the caller's process
+ * group (a terminal's Ctrl-C reaches them) and, on Linux, get SIGKILL when the thread that
+ * forked them ends (PR_SET_PDEATHSIG): call this from a thread that outlives the call, such
+ * as the main thread. They share the caller's memory copy-on-write: nothing large is copied.
+ * A SIGCHLD handler of the caller that reaps children itself does no harm: the answers come
+ * through the pipes, and a child already reaped counts as ended.
+ *
+ * Parameters as for the two calls; xy is out, 2n doubles. *clusters owns the result
+ * (pm_clusters_free); on error *clusters is NULL and xy unspecified. Errors: those of
+ * pm_cluster_louvain, then those of pm_layout_fr. Cost: that of the two calls, spread over
+ * the workers, plus one fork per child (copying its page tables: about 10 ms for a process of
+ * 330 MB, measured). */
+pm_err_t pm_network_run(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb, const double *w,
+                        const pm_cluster_opts_t *o, uint64_t layout_seed, int iterations,
+                        pm_clusters_t **clusters, double *xy, pm_diag_t *diag);
 
 /* Adjusted Rand index (Hubert & Arabie 1985) of two partitions of n elements given as
  * labels (any values); computed from the contingency table. 1 for identical partitions;

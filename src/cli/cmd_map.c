@@ -56,7 +56,8 @@ static const char help[] =
     "edge is a cluster of its own (a singleton) and sits on a ring outside the layout's box.\n"
     "Clusters are numbered by size (1 = largest) and named by their leading members (most\n"
     "weight on edges inside the cluster, then share). Same input, options and seed: the same\n"
-    "files, byte for byte, for any row order of the input and any --threads.\n"
+    "files, byte for byte, for any row order of the input and any --threads (the Louvain runs\n"
+    "and the layout share --threads processes).\n"
     "\n";
 
 /* ---- interruption ------------------------------------------------------------------------ */
@@ -216,12 +217,15 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
     co.restarts = (unsigned)no->restarts;
     co.names = s->names;
     co.share = s->share;
+    /* --threads: the restarts and the layout run in that many processes (igraph is not
+     * thread-safe), with the same results for any number */
+    unsigned threads = 0;
+    (void)pm_cli_threads(c, &threads); /* validated earlier */
+    co.workers = threads ? threads : pm_cpu_count();
     pm_diag_t d;
     pm_diag_clear(&d);
-    if (pm_cluster_louvain(s->n, m, s->ea, s->eb, s->wuse, &co, &s->cl, &d)) {
-        return pm_cli_fail(&d);
-    }
-    if (pm_layout_fr(s->n, m, s->ea, s->eb, s->wuse, no->seed, (int)no->iterations, s->xy, &d)) {
+    if (pm_network_run(s->n, m, s->ea, s->eb, s->wuse, &co, no->seed, (int)no->iterations, &s->cl,
+                       s->xy, &d)) {
         return pm_cli_fail(&d);
     }
     s->cluster_name = calloc(s->cl->n_clusters ? s->cl->n_clusters : 1, sizeof *s->cluster_name);
@@ -237,7 +241,6 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
     for (size_t k = 0; k < s->n; k++) {
         s->cluster_int[k] = (int)s->cl->cluster[k];
     }
-    (void)c;
     return 0;
 }
 

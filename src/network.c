@@ -256,6 +256,14 @@ static pm_err_t layout_finish(const usable *u, size_t n, const double *pos, doub
     return PM_OK;
 }
 
+int pm_layout_default_iterations(size_t laid_out) {
+    if (laid_out <= PM_LAYOUT_FULL_ITEMS) {
+        return PM_LAYOUT_ITERATIONS;
+    }
+    size_t it = (size_t)PM_LAYOUT_ITERATIONS * PM_LAYOUT_FULL_ITEMS / laid_out;
+    return it > PM_LAYOUT_MIN_ITERATIONS ? (int)it : PM_LAYOUT_MIN_ITERATIONS;
+}
+
 pm_err_t pm_layout_fr(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb, const double *w,
                       uint64_t seed, int iterations, double *xy, pm_diag_t *diag) {
     usable u;
@@ -264,7 +272,7 @@ pm_err_t pm_layout_fr(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb
         return rc;
     }
     if (iterations <= 0) {
-        iterations = PM_LAYOUT_ITERATIONS;
+        iterations = pm_layout_default_iterations(u.nv);
     }
     double *pos = NULL;
     if (u.nv > 0) {
@@ -887,10 +895,31 @@ static int failed_before(const share *sh, size_t i) {
 }
 
 /* Cuts the work into at most `workers` shares: with a layout and two or more workers, the
- * layout is a share of its own (measured on the medium benchmark file, 5,000 items and
+ * layout is a share of its own, with the last restarts when it is the lighter one (measured on the medium benchmark file, 5,000 items and
  * 149,000 edges: 0.62 s for the layout, 0.53 s for the ten restarts) and the restarts are cut
  * into the rest, in order; share 0 (the parent's) holds the first restarts, so that the parent
  * summarises the restarts while the layout's child works. Returns the number of shares. */
+/* How many of the last restarts the layout's share takes as well, so that the shares cost
+ * about the same. Cost model, in units of one Louvain run, fitted on the medium benchmark
+ * (5,000 items, 149,000 edges; grid variant): a run costs about 3.6e-7 s per edge, the grid
+ * layout about 8.7e-9 s per iteration and per vertex or edge, so the layout is worth
+ * 0.024 * iterations * (vertices + edges) / edges runs. Small graphs (exact repulsion, and
+ * only milliseconds either way) keep the layout alone. The split never changes results. */
+static unsigned layout_extra(const stage *st, unsigned workers, unsigned k) {
+    const usable *u = st->u;
+    if (u->nv <= 1000 || u->me == 0 || st->R <= k) {
+        return 0;
+    }
+    double L = 0.024 * (double)st->iterations * (double)(u->nv + u->me) / (double)u->me;
+    double per = ((double)st->R + L) / (double)workers;
+    if (per <= L) {
+        return 0;
+    }
+    double x = floor(per - L + 0.5);
+    unsigned extra = x > 0 ? (unsigned)x : 0;
+    return extra > st->R - k ? st->R - k : extra; /* every other share keeps a run */
+}
+
 static size_t plan(const stage *st, unsigned workers, share *sh) {
     unsigned units = st->R + (st->layout ? 1u : 0u);
     if (workers > units) {
@@ -910,12 +939,16 @@ static size_t plan(const stage *st, unsigned workers, share *sh) {
         return 1;
     }
     unsigned k = st->layout ? workers - 1 : workers; /* restart shares, k <= R */
+    unsigned extra = st->layout ? layout_extra(st, workers, k) : 0;
+    unsigned R = st->R - extra;
     for (unsigned i = 0; i < k; i++) {
-        sh[i].r0 = (unsigned)((uint64_t)st->R * i / k);
-        sh[i].r1 = (unsigned)((uint64_t)st->R * (i + 1) / k);
+        sh[i].r0 = (unsigned)((uint64_t)R * i / k);
+        sh[i].r1 = (unsigned)((uint64_t)R * (i + 1) / k);
     }
     if (st->layout) {
         sh[k].layout = 1;
+        sh[k].r0 = R; /* the last restarts, when the layout alone is the lighter share */
+        sh[k].r1 = st->R;
     }
     return workers;
 }
@@ -945,6 +978,9 @@ static void crew_start(crew *cw, const stage *st, unsigned workers) {
     }
     cw->ns = plan(st, workers, cw->sh);
     g_stats.shares = (unsigned)cw->ns;
+    if (cw->ns > 1 && st->layout) {
+        g_stats.layout_restarts = cw->sh[cw->ns - 1].r1 - cw->sh[cw->ns - 1].r0;
+    }
     cw->spawned = 1;
     /* after the first failure the rest are the parent's: the next fork would fail too */
     while (cw->spawned < cw->ns &&
@@ -1082,12 +1118,14 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
                 .q = c->restart_q,
                 .layout = pos != NULL,
                 .layout_seed = layout_seed,
-                .iterations = iterations > 0 ? iterations : PM_LAYOUT_ITERATIONS,
+                .iterations = iterations > 0 ? iterations : pm_layout_default_iterations(u.nv),
                 .pos = pos};
     /* the restarts' shares first; the layout's child (the last share) keeps working while
      * this process summarises the restarts */
     crew_start(&cw, &st, o->workers);
-    size_t n_restart_shares = cw.ns > 1 && st.layout ? cw.ns - 1 : cw.ns;
+    /* a layout share that also holds restarts is waited for with the restarts */
+    size_t n_restart_shares =
+        cw.ns > 1 && st.layout && cw.sh[cw.ns - 1].r1 == cw.sh[cw.ns - 1].r0 ? cw.ns - 1 : cw.ns;
     crew_finish(&cw, &st, 1, n_restart_shares);
     int in_layout;
     pm_diag_t sd;

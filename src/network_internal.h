@@ -27,6 +27,7 @@ typedef struct {
     unsigned forked;     /* child processes started */
     unsigned from_child; /* shares whose result (or error) came from a child */
     unsigned redone;     /* shares the parent computed itself after a failed spawn or child */
+    unsigned layout_restarts; /* Louvain runs the layout's share took as well */
 } pm_i_network_stats_t;
 
 void pm_i_network_get_stats(pm_i_network_stats_t *s);

@@ -44,7 +44,8 @@ static const char help[] =
     "                        first); stability is the mean adjusted Rand index between the\n"
     "                        runs' partitions (1 = every run found the same clusters)\n"
     "  --resolution F        Louvain resolution (default 1; higher gives more, smaller clusters)\n"
-    "  --iterations N        Fruchterman-Reingold iterations (default 500)\n"
+    "  --iterations N        Fruchterman-Reingold iterations (default 500 up to 1,000 items\n"
+    "                        with edges; above, 500,000 / items, at least 150)\n"
     "  --title TEXT          title of the picture (also stored in the GraphML)\n"
     "  --draw N              how many items the SVG draws (default: as many as fit); the\n"
     "                        GraphML and CSV files keep all\n"
@@ -105,6 +106,7 @@ typedef struct {
     size_t n_negative;
     double t_read, t_count, t_measures, t_graph, t_write;
     pm_svg_stats_t svg;
+    int iterations; /* the layout's, resolved */
 } run_state;
 
 static void state_free(run_state *s) {
@@ -224,7 +226,24 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
     co.workers = threads ? threads : pm_cpu_count();
     pm_diag_t d;
     pm_diag_clear(&d);
-    if (pm_network_run(s->n, m, s->ea, s->eb, s->wuse, &co, no->seed, (int)no->iterations, &s->cl,
+    /* the layout's iterations: as given, else the default for the items with edges */
+    s->iterations = (int)no->iterations;
+    if (s->iterations <= 0) {
+        unsigned char *has = calloc(s->n ? s->n : 1, 1);
+        if (!has) {
+            return oom();
+        }
+        size_t laid = 0;
+        for (size_t k = 0; k < m; k++) {
+            if (s->wuse[k] > 0 && s->ea[k] != s->eb[k]) {
+                laid += !has[s->ea[k]] + !has[s->eb[k]];
+                has[s->ea[k]] = has[s->eb[k]] = 1;
+            }
+        }
+        free(has);
+        s->iterations = pm_layout_default_iterations(laid);
+    }
+    if (pm_network_run(s->n, m, s->ea, s->eb, s->wuse, &co, no->seed, s->iterations, &s->cl,
                        s->xy, &d)) {
         return pm_cli_fail(&d);
     }
@@ -303,7 +322,7 @@ static pm_err_t write_run_json(FILE *fp, const pm_cli_t *c, const net_opts *no,
     pm_json_uint(&j, "restarts", no->restarts);
     pm_json_string(&j, "restart_seeds", "seed + r * 0x9E3779B97F4A7C15 (mod 2^64), r = 0..R-1");
     pm_json_number(&j, "resolution", no->resolution);
-    pm_json_uint(&j, "iterations", no->iterations);
+    pm_json_uint(&j, "iterations", (uint64_t)s->iterations);
     pm_json_end_object(&j);
 
     pm_json_begin_object(&j, "input_file");
@@ -669,7 +688,7 @@ static int net_options(const pm_cli_t *c, net_opts *no) {
     if (pm_cli_uint(c, "seed", 1, 0, UINT64_MAX, &no->seed) ||
         pm_cli_uint(c, "restarts", 10, 1, 10000, &no->restarts) ||
         pm_cli_double(c, "resolution", 1.0, 0, 1e6, &no->resolution) ||
-        pm_cli_uint(c, "iterations", PM_LAYOUT_ITERATIONS, 1, 1000000, &no->iterations) ||
+        pm_cli_uint(c, "iterations", 0, 1, 1000000, &no->iterations) ||
         pm_cli_uint(c, "draw", 0, 1, 100000, &no->draw) ||
         pm_cli_uint(c, "width", 0, 100, 20000, &no->width) ||
         pm_cli_uint(c, "height", 0, 100, 20000, &no->height) ||

@@ -262,6 +262,16 @@ static void test_network_par_generated(void **state) {
     graph_free(&g);
     wide(&g);
     check_workers(&g, 2, 10, WORKERS(SOME_WORKERS));
+    /* above 1,000 laid-out vertices the layout's share is balanced with the last restarts
+     * (cost model in network.c): the results stay those of the serial calls */
+    {
+        result ref = {NULL, NULL};
+        serial(&g, 3, 10, &ref);
+        pm_i_network_stats_t st = run_and_compare(&g, 3, 10, 2, &ref);
+        assert_int_equal(st.shares, 2);
+        assert_true(st.layout_restarts > 0 && st.layout_restarts < 10);
+        result_free(&ref);
+    }
     graph_free(&g);
 }
 
@@ -376,6 +386,24 @@ static void test_network_par_igraph_errors(void **state) {
             f.bad_layout = 0;
         }
     }
+    graph_free(&g);
+    /* a failing restart in the layout's share (which takes the last restarts on a graph of
+     * more than 1,000 vertices) is still the clustering's error, as in one process */
+    wide(&g);
+    opts(&o, &g, 4, 10, 1);
+    {
+        pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, 9, 0};
+        pm_i_network_set_faults(&f);
+        assert_int_equal(pm_cluster_louvain(g.n, g.m, g.ea, g.eb, g.w, &o, &c, &d), PM_EINTERNAL);
+        pm_i_network_set_faults(NULL);
+        char msg[sizeof d.msg];
+        snprintf(msg, sizeof msg, "%s", d.msg);
+        expect_error(&g, 2, &f, msg);
+        f.bad_layout = 1;
+        expect_error(&g, 2, &f, msg);
+    }
+    graph_free(&g);
+    planted(&g, 13, 800, 100, 10, 2, 30);
     /* the layout's error, from the layout call alone */
     pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, -1, 1};
     double *xy = malloc(2 * g.n * sizeof *xy);

@@ -1104,3 +1104,41 @@ void pm_pairs_measures(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k
     m->q = pp->q[k];
     m->test = (pm_test_t)pp->test[k];
 }
+
+/* ==== share intervals of many items ========================================================== */
+typedef struct {
+    const pm_incidence_t *inc;
+    const uint32_t *item;
+    size_t k, chunks;
+    double *lo, *hi;
+} share_job;
+
+static void share_interval(const pm_incidence_t *inc, size_t i, double *lo, double *hi) {
+    if (inc->wcount) {
+        double neff = pm_incidence_neff(inc);
+        pm_assoc_jeffreys(pm_incidence_share(inc, i) * neff, neff, 0.05, lo, hi);
+    } else {
+        pm_assoc_jeffreys((double)inc->count[i], (double)inc->N, 0.05, lo, hi);
+    }
+}
+
+static int share_chunk(void *ud, size_t c, unsigned th) {
+    (void)th;
+    share_job *j = ud;
+    for (size_t x = j->k * c / j->chunks; x < j->k * (c + 1) / j->chunks; x++) {
+        share_interval(j->inc, j->item[x], &j->lo[x], &j->hi[x]);
+    }
+    return 0;
+}
+
+pm_err_t pm_assoc_share_intervals(const pm_incidence_t *inc, const uint32_t *item, size_t k,
+                                  unsigned threads, double *lo, double *hi, pm_diag_t *diag) {
+    (void)diag;
+    share_job j = {inc, item, k, k < 64 ? 1 : 64, lo, hi};
+    if (pm_i_parallel(threads ? threads : pm_cpu_count(), j.chunks, share_chunk, &j) != 0) {
+        for (size_t x = 0; x < k; x++) {
+            share_interval(inc, item[x], &lo[x], &hi[x]);
+        }
+    }
+    return PM_OK;
+}

@@ -69,13 +69,15 @@ pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t
 }
 
 void pm_write_item_fields(FILE *fp, const pm_incidence_t *inc, size_t i) {
-    double share = pm_incidence_share(inc, i), lo, hi;
-    if (inc->wcount) {
-        double neff = pm_incidence_neff(inc);
-        pm_assoc_jeffreys(share * neff, neff, 0.05, &lo, &hi);
-    } else {
-        pm_assoc_jeffreys((double)inc->count[i], (double)inc->N, 0.05, &lo, &hi);
-    }
+    double lo, hi;
+    uint32_t it = (uint32_t)i;
+    (void)pm_assoc_share_intervals(inc, &it, 1, 1, &lo, &hi, NULL);
+    pm_write_item_fields_with(fp, inc, i, lo, hi);
+}
+
+void pm_write_item_fields_with(FILE *fp, const pm_incidence_t *inc, size_t i, double lo,
+                               double hi) {
+    double share = pm_incidence_share(inc, i);
     pm_write_csv_field(fp, inc->name[i]);
     fputc(',', fp);
     pm_write_csv_field(fp, inc->category[i] ? inc->category[i] : "");

@@ -47,6 +47,12 @@ double pm_assoc_fisher(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, int a
  * with 0 as lower bound at x = 0 and 1 as upper bound at x = n (Brown, Cai & DasGupta 2001).
  * x and n may be fractional (weighted, effective sizes). */
 void pm_assoc_jeffreys(double x, double n, double alpha, double *lo, double *hi);
+/* The 95% Jeffreys interval of the share of each of the k items item[0..k) (as `items` prints
+ * it: Kish's effective size when weighted) into lo[j], hi[j], on `threads` threads (0: all
+ * cores); the values do not depend on the number. Errors: PM_ENOMEM (no thread could start is
+ * not an error: then on this one). */
+pm_err_t pm_assoc_share_intervals(const pm_incidence_t *inc, const uint32_t *item, size_t k,
+                                  unsigned threads, double *lo, double *hi, pm_diag_t *diag);
 
 /* ---- scoring every pair ---------------------------------------------------------------- */
 typedef struct {

@@ -36,6 +36,9 @@ typedef struct {
     const double *xy;        /* [2n] layout, unit box (isolated items on a ring outside) */
     const uint32_t *ea, *eb; /* [edges->n] */
     const char *title;       /* graph-level data (NULL: none) */
+    /* [n] optional: the share intervals of the vertices (pm_assoc_share_intervals over
+     * item[]); NULL: nodes.csv computes them */
+    const double *share_low, *share_high;
 } pm_map_t;
 
 /* nodes.csv: one row per vertex, rows ordered by cluster, then share descending, then name

@@ -30,6 +30,9 @@ pm_err_t pm_write_items_csv(FILE *fp, const pm_incidence_t *inc, pm_diag_t *diag
 /* Writes the fields item,category,respondents,share,share_low,share_high of item i (no line
  * end): the `items` row, and the start of a nodes.csv row. */
 void pm_write_item_fields(FILE *fp, const pm_incidence_t *inc, size_t i);
+/* The same with the interval given (from pm_assoc_share_intervals). */
+void pm_write_item_fields_with(FILE *fp, const pm_incidence_t *inc, size_t i, double lo,
+                               double hi);
 
 /* Writes s as one CSV field, quoted when it holds a delimiter, quote, line break or edge
  * spaces. */

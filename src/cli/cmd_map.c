@@ -449,10 +449,19 @@ typedef struct {
     pm_diag_t *d_graphml, *d_nodes;
 } side_job;
 
+/* Pushes what a finished file has written so far to the disk from the thread that wrote it,
+ * while the other thread still writes; pm_outdir_finish flushes the stdio buffer, checks and
+ * syncs again (cheap then), so every error still shows there, with its own errno. */
+static void early_sync(FILE *fp) {
+    (void)fsync(fileno(fp));
+}
+
 static void *side_writer(void *arg) {
     side_job *j = arg;
     *j->rc_graphml = pm_write_graphml(j->graphml, j->map, j->d_graphml);
+    early_sync(j->graphml);
     *j->rc_nodes = pm_write_nodes_csv(j->nodes, j->map, j->d_nodes);
+    early_sync(j->nodes);
     return NULL;
 }
 
@@ -478,9 +487,20 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         .title = no->title,
     };
     const char **cats = malloc((s->n ? s->n : 1) * sizeof *cats);
-    if (!cats) {
+    double *slo = malloc((s->n ? s->n : 1) * sizeof *slo);
+    double *shi = malloc((s->n ? s->n : 1) * sizeof *shi);
+    if (!cats || !slo || !shi) {
+        free(cats);
+        free(slo);
+        free(shi);
         return oom();
     }
+    unsigned nthreads = 0;
+    (void)pm_cli_threads(c, &nthreads); /* validated earlier */
+    /* the share intervals of nodes.csv (a root search each) on all threads, first */
+    (void)pm_assoc_share_intervals(s->inc, s->item, s->n, nthreads, slo, shi, NULL);
+    map.share_low = slo;
+    map.share_high = shi;
     for (size_t v = 0; v < s->n; v++) {
         cats[v] = s->inc->category[s->item[v]];
     }
@@ -529,14 +549,14 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
     if (!rc) {
         side_job job = {&map, fps[0], fps[3], &wrc[0], &wrc[3], &wd[0], &wd[3]};
         pthread_t th;
-        unsigned nthreads = 0;
-        (void)pm_cli_threads(c, &nthreads); /* validated earlier */
         int threaded = nthreads != 1 && pthread_create(&th, NULL, side_writer, &job) == 0;
         if (!threaded) {
             side_writer(&job);
         }
         wrc[1] = pm_svg_write(fps[1], &sd, &so, &s->svg, &wd[1]);
+        early_sync(fps[1]);
         wrc[2] = pm_write_edges_csv(fps[2], s->pp, s->inc, s->e, &wd[2]);
+        early_sync(fps[2]);
         if (threaded) {
             pthread_join(th, NULL);
         }
@@ -562,6 +582,8 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         }
     }
     free(cats);
+    free(slo);
+    free(shi);
     if (rc) {
         if (d.code == PM_EIO && !d.file[0]) {
             snprintf(d.file, sizeof d.file, "%s", no->dir);

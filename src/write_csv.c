@@ -52,15 +52,19 @@ pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t
         pm_write_csv_field(fp, inc->name[pp->b[k]]);
         const double v[8] = {m.together, m.expected,      m.support, m.confidence_ab,
                              m.confidence_ba, m.lift, m.phi,     m.jaccard};
+        char buf[16 * 64], *o = buf; /* the numbers of the row, written at once */
         for (int j = 0; j < 8; j++) {
-            fputc(',', fp);
-            pm_write_number(fp, v[j]);
+            *o++ = ',';
+            o += pm_i_fmt_double(o, 64, v[j]);
         }
-        fputs(m.test == PM_TEST_FISHER ? ",fisher," : ",chi2,", fp);
-        pm_write_number(fp, m.p);
-        fputc(',', fp);
-        pm_write_number(fp, m.q);
-        fputc('\n', fp);
+        const char *t = m.test == PM_TEST_FISHER ? ",fisher," : ",chi2,";
+        memcpy(o, t, strlen(t));
+        o += strlen(t);
+        o += pm_i_fmt_double(o, 64, m.p);
+        *o++ = ',';
+        o += pm_i_fmt_double(o, 64, m.q);
+        *o++ = '\n';
+        fwrite(buf, 1, (size_t)(o - buf), fp);
         if ((i & 4095) == 0 && ferror(fp)) {
             break;
         }

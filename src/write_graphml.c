@@ -57,6 +57,36 @@ static void xml_number(FILE *fp, double v) {
     }
 }
 
+/* Line building for the edge loop (at most a few hundred bytes per edge). */
+static inline char *put_str(char *o, const char *s) {
+    size_t n = strlen(s);
+    memcpy(o, s, n);
+    return o + n;
+}
+
+static inline char *put_u64(char *o, uint64_t v) {
+    char t[24];
+    int k = 0;
+    do {
+        t[k++] = (char)('0' + v % 10);
+        v /= 10;
+    } while (v);
+    while (k) {
+        *o++ = t[--k];
+    }
+    return o;
+}
+
+static inline char *put_num(char *o, double v) { /* as xml_number */
+    if (isnan(v)) {
+        return put_str(o, "NaN");
+    }
+    if (isinf(v)) {
+        return put_str(o, v > 0 ? "INF" : "-INF");
+    }
+    return o + pm_i_fmt_double(o, 64, v);
+}
+
 static void data_str(FILE *fp, const char *key, const char *v) {
     fprintf(fp, "      <data key=\"%s\">", key);
     pm_write_xml_text(fp, v);
@@ -129,18 +159,34 @@ pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
             break;
         }
     }
-    for (size_t k = 0; k < map->edges->n && !ferror(fp); k++) {
+    /* the edges, most of the file: each built in a buffer and written at once (the same text
+     * data_num would print) */
+    static const char *const ekey[6] = {"e_together", "e_phi",     "e_lift",
+                                        "e_jaccard",  "e_q_value", "e_weight"};
+    for (size_t k = 0; k < map->edges->n; k++) {
         pm_measures_t m;
         pm_pairs_measures(map->pairs, inc, map->edges->idx[k], &m);
-        fprintf(fp, "    <edge id=\"e%zu\" source=\"n%u\" target=\"n%u\">\n", k, map->ea[k],
-                map->eb[k]);
-        data_num(fp, "e_together", m.together);
-        data_num(fp, "e_phi", m.phi);
-        data_num(fp, "e_lift", m.lift);
-        data_num(fp, "e_jaccard", m.jaccard);
-        data_num(fp, "e_q_value", m.q);
-        data_num(fp, "e_weight", map->edges->weight[k]);
-        fputs("    </edge>\n", fp);
+        const double val[6] = {m.together, m.phi, m.lift, m.jaccard, m.q, map->edges->weight[k]};
+        char buf[1024], *o = buf;
+        o = put_str(o, "    <edge id=\"e");
+        o = put_u64(o, k);
+        o = put_str(o, "\" source=\"n");
+        o = put_u64(o, map->ea[k]);
+        o = put_str(o, "\" target=\"n");
+        o = put_u64(o, map->eb[k]);
+        o = put_str(o, "\">\n");
+        for (int j = 0; j < 6; j++) {
+            o = put_str(o, "      <data key=\"");
+            o = put_str(o, ekey[j]);
+            o = put_str(o, "\">");
+            o = put_num(o, val[j]);
+            o = put_str(o, "</data>\n");
+        }
+        o = put_str(o, "    </edge>\n");
+        fwrite(buf, 1, (size_t)(o - buf), fp);
+        if ((k & 1023) == 0 && ferror(fp)) {
+            break;
+        }
     }
     fputs("  </graph>\n</graphml>\n", fp);
     if (ferror(fp)) {

@@ -101,7 +101,13 @@ static double fisher(const double *lf, uint64_t N, uint64_t na, uint64_t nb, uin
     uint64_t K = na, n = nb, x = nab;
     uint64_t lo = n > N - K ? n - (N - K) : 0;
     uint64_t hi = K < n ? K : n;
-    uint64_t mode = (uint64_t)(((long double)(n + 1) * (long double)(K + 1)) / (long double)(N + 2));
+    /* the mode, floor((n+1)(K+1)/(N+2)): exact in integers while the product fits 64 bits */
+    uint64_t mode;
+    if (n < UINT32_MAX && K < UINT32_MAX) {
+        mode = (n + 1) * (K + 1) / (N + 2);
+    } else {
+        mode = (uint64_t)(((long double)(n + 1) * (long double)(K + 1)) / (long double)(N + 2));
+    }
     if (mode < lo) {
         mode = lo;
     }
@@ -501,7 +507,55 @@ static int sort_pvalues(void *base, size_t n, size_t size) {
             memcpy(b + i * size, &p, sizeof p);
         }
     }
-    return pm_i_radix_sort(base, n, size);
+    /* by the top 32 bits (sign, exponent and 20 bits of mantissa: three radix passes instead
+     * of six), then each run of equal top bits by the whole value, stably: insertion for
+     * short runs, the full radix sort for long ones (e.g. many p-values just below 1) */
+    if (pm_i_radix_sort_from(base, n, size, 32)) {
+        return -1;
+    }
+    unsigned char tmp[64];
+    if (size > sizeof tmp) {
+        return pm_i_radix_sort(base, n, size);
+    }
+    for (size_t r0 = 0; r0 < n;) {
+        uint64_t top;
+        memcpy(&top, b + r0 * size, 8);
+        top >>= 32;
+        size_t r1 = r0 + 1;
+        for (; r1 < n; r1++) {
+            uint64_t k;
+            memcpy(&k, b + r1 * size, 8);
+            if (k >> 32 != top) {
+                break;
+            }
+        }
+        if (r1 - r0 > 32) { /* a long run: the full sort on it (stable too), never n^2 */
+            if (pm_i_radix_sort(b + r0 * size, r1 - r0, size)) {
+                return -1;
+            }
+            r0 = r1;
+            continue;
+        }
+        for (size_t i = r0 + 1; i < r1; i++) {
+            uint64_t ki;
+            memcpy(&ki, b + i * size, 8);
+            size_t j = i;
+            for (; j > r0; j--) {
+                uint64_t kj;
+                memcpy(&kj, b + (j - 1) * size, 8);
+                if (kj <= ki) {
+                    break;
+                }
+            }
+            if (j < i) {
+                memcpy(tmp, b + i * size, size);
+                memmove(b + (j + 1) * size, b + j * size, (i - j) * size);
+                memcpy(b + j * size, tmp, size);
+            }
+        }
+        r0 = r1;
+    }
+    return 0;
 }
 
 typedef struct {
@@ -978,8 +1032,8 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
             }
             if (record) {
                 size_t c2 = cap;
-                if (pm_i_grow((void **)&pp->qp, &cap, nq + 1, sizeof *pp->qp) ||
-                    pm_i_grow((void **)&pp->qq, &c2, nq + 1, sizeof *pp->qq)) {
+                if (nq >= cap && (pm_i_grow((void **)&pp->qp, &cap, nq + 1, sizeof *pp->qp) ||
+                                  pm_i_grow((void **)&pp->qq, &c2, nq + 1, sizeof *pp->qq))) {
                     goto cleanup;
                 }
                 pp->qp[nq] = v;

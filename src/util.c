@@ -312,9 +312,14 @@ static inline void rec_copy(unsigned char *dst, const unsigned char *src, size_t
 #define RADIX_PASSES ((64 + RADIX_BITS - 1) / RADIX_BITS)
 
 int pm_i_radix_sort(void *base, size_t n, size_t size) {
+    return pm_i_radix_sort_from(base, n, size, 0);
+}
+
+int pm_i_radix_sort_from(void *base, size_t n, size_t size, int lo) {
     if (n < 2) {
         return 0;
     }
+    int passes = (64 - lo + RADIX_BITS - 1) / RADIX_BITS;
     unsigned char *tmp = pm_i_malloc(n, size);
     size_t *cnt = pm_i_calloc((size_t)RADIX_PASSES * RADIX_N, sizeof *cnt);
     if (!tmp || !cnt) {
@@ -325,21 +330,21 @@ int pm_i_radix_sort(void *base, size_t n, size_t size) {
     unsigned char *src = base, *dst = tmp;
     for (size_t i = 0; i < n; i++) {
         uint64_t k = key_of(src + i * size);
-        for (int p = 0; p < RADIX_PASSES; p++) {
-            cnt[(size_t)p * RADIX_N + ((k >> (p * RADIX_BITS)) & (RADIX_N - 1))]++;
+        for (int p = 0; p < passes; p++) {
+            cnt[(size_t)p * RADIX_N + ((k >> (lo + p * RADIX_BITS)) & (RADIX_N - 1))]++;
         }
     }
     uint64_t k0 = key_of(src);
-    for (int p = 0; p < RADIX_PASSES; p++) {
-        int shift = p * RADIX_BITS;
+    for (int p = 0; p < passes; p++) {
+        int shift = lo + p * RADIX_BITS;
         size_t *c = cnt + (size_t)p * RADIX_N;
         if (c[(k0 >> shift) & (RADIX_N - 1)] == n) {
             continue; /* every key has this digit */
         }
         size_t sum = 0;
-        for (unsigned b = 0; b < RADIX_N; b++) {
-            size_t x = c[b];
-            c[b] = sum;
+        for (unsigned bk = 0; bk < RADIX_N; bk++) {
+            size_t x = c[bk];
+            c[bk] = sum;
             sum += x;
         }
         for (size_t i = 0; i < n; i++) {

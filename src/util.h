@@ -56,6 +56,8 @@ uint64_t pm_i_hash(const char *s, size_t len);
  * (LSD radix, 11-bit digits; a pass whose digit is the same everywhere is skipped). O(n) time,
  * n records of extra memory. Returns 0, or -1 when memory runs out (base unchanged). */
 int pm_i_radix_sort(void *base, size_t n, size_t size);
+/* The same by key bits lo..63 only (records equal there keep their order): fewer passes. */
+int pm_i_radix_sort_from(void *base, size_t n, size_t size, int lo);
 
 /* ---- misc ---------------------------------------------------------------------------------- */
 /* Byte-wise comparison of two NUL-terminated strings as unsigned bytes (strcmp semantics). */

@@ -371,6 +371,35 @@ static void test_util_radix_sort_stable(void **state) {
                     assert_int_equal(pos, ref[i].pos);
                 }
             }
+            /* by the top 32 bits only: records equal there keep their order */
+            for (size_t i = 0; i < n; i++) {
+                ref[i].key >>= 32;
+            }
+            qsort(ref, n, sizeof *ref, cmp_radix_ref); /* already by (key, pos): re-sort */
+            unsigned char *rec2 = malloc(n * size);
+            assert_non_null(rec2);
+            /* reload in the original order: rebuild from the positions */
+            for (size_t i = 0; i < n; i++) {
+                uint64_t k;
+                uint32_t pos = 0;
+                memcpy(&k, rec + i * size, 8);
+                if (size > 8) {
+                    memcpy(&pos, rec + i * size + 8, 4);
+                    memcpy(rec2 + (size_t)pos * size, rec + i * size, size);
+                }
+            }
+            if (size > 8) {
+                assert_int_equal(pm_i_radix_sort_from(rec2, n, size, 32), 0);
+                for (size_t i = 0; i < n; i++) {
+                    uint64_t k;
+                    uint32_t pos;
+                    memcpy(&k, rec2 + i * size, 8);
+                    memcpy(&pos, rec2 + i * size + 8, 4);
+                    assert_true(k >> 32 == ref[i].key);
+                    assert_int_equal(pos, ref[i].pos);
+                }
+            }
+            free(rec2);
             free(rec);
             free(ref);
         }

@@ -107,9 +107,32 @@ typedef struct {
     double t_read, t_count, t_measures, t_graph, t_write;
     pm_svg_stats_t svg;
     int iterations; /* the layout's, resolved */
+    /* edges.csv and the share intervals of nodes.csv need no clusters: with more than one
+     * thread they are done on a thread of their own while the graph stage runs */
+    struct {
+        FILE *fp;
+        pthread_t th;
+        int running;
+        pm_err_t rc;
+        pm_diag_t d;
+        uint32_t *items;
+        size_t n;
+        double *lo, *hi;
+    } early;
 } run_state;
 
+static void early_join(run_state *s) {
+    if (s->early.running) {
+        pthread_join(s->early.th, NULL);
+        s->early.running = 0;
+    }
+}
+
 static void state_free(run_state *s) {
+    early_join(s);
+    free(s->early.items);
+    free(s->early.lo);
+    free(s->early.hi);
     if (s->cluster_name) {
         for (size_t i = 0; s->cl && i < s->cl->n_clusters; i++) {
             free(s->cluster_name[i]);
@@ -456,6 +479,45 @@ static void early_sync(FILE *fp) {
     (void)fsync(fileno(fp));
 }
 
+static void *early_main(void *arg) {
+    run_state *s = arg;
+    /* one thread: the graph stage's processes use the other cores meanwhile */
+    (void)pm_assoc_share_intervals(s->inc, s->early.items, s->early.n, 1, s->early.lo,
+                                   s->early.hi, NULL);
+    s->early.rc = pm_write_edges_csv(s->early.fp, s->pp, s->inc, s->e, &s->early.d);
+    early_sync(s->early.fp);
+    return NULL;
+}
+
+/* Starts the early thread (see run_state); without it, write_files does the same work. */
+static void early_start(run_state *s, unsigned threads) {
+    if (threads == 1) {
+        return;
+    }
+    size_t n = s->pp->n_eligible, v = 0;
+    s->early.items = malloc((n ? n : 1) * sizeof *s->early.items);
+    s->early.lo = malloc((n ? n : 1) * sizeof *s->early.lo);
+    s->early.hi = malloc((n ? n : 1) * sizeof *s->early.hi);
+    if (!s->early.items || !s->early.lo || !s->early.hi) {
+        return; /* write_files does it */
+    }
+    for (size_t i = 0; i < s->inc->n_items; i++) {
+        if (s->pp->eligible[i]) { /* the vertices, in order (build_network) */
+            s->early.items[v++] = (uint32_t)i;
+        }
+    }
+    s->early.n = v;
+    pm_diag_clear(&s->early.d);
+    if (pm_outdir_create(s->od, "edges.csv", &s->early.fp, &s->early.d) != PM_OK) {
+        s->early.fp = NULL; /* write_files tries again and reports */
+        return;
+    }
+    s->early.running = pthread_create(&s->early.th, NULL, early_main, s) == 0;
+    if (!s->early.running) {
+        early_main(s); /* here, then */
+    }
+}
+
 static void *side_writer(void *arg) {
     side_job *j = arg;
     *j->rc_graphml = pm_write_graphml(j->graphml, j->map, j->d_graphml);
@@ -497,8 +559,14 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
     }
     unsigned nthreads = 0;
     (void)pm_cli_threads(c, &nthreads); /* validated earlier */
-    /* the share intervals of nodes.csv (a root search each) on all threads, first */
-    (void)pm_assoc_share_intervals(s->inc, s->item, s->n, nthreads, slo, shi, NULL);
+    early_join(s);
+    int early = s->early.fp != NULL && s->early.n == s->n;
+    if (early) {
+        memcpy(slo, s->early.lo, s->n * sizeof *slo);
+        memcpy(shi, s->early.hi, s->n * sizeof *shi);
+    } else { /* the share intervals of nodes.csv (a root search each) on all threads */
+        (void)pm_assoc_share_intervals(s->inc, s->item, s->n, nthreads, slo, shi, NULL);
+    }
     map.share_low = slo;
     map.share_high = shi;
     for (size_t v = 0; v < s->n; v++) {
@@ -538,13 +606,25 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
      * not thread-safe) and edges.csv on this one. They are finished in order afterwards. */
     pm_err_t rc = PM_OK;
     FILE *fps[4] = {NULL, NULL, NULL, NULL};
+    if (s->early.fp && !early) { /* cannot happen (same vertices); written again below */
+        (void)pm_outdir_finish(s->od, s->early.fp, NULL);
+        s->early.fp = NULL;
+    }
     for (size_t k = 0; k < 4 && !rc; k++) {
+        if (k == 2 && early) {
+            fps[k] = s->early.fp; /* written already */
+            continue;
+        }
         rc = pm_outdir_create(s->od, files[k], &fps[k], &d);
     }
     pm_err_t wrc[4] = {PM_OK, PM_OK, PM_OK, PM_OK};
     pm_diag_t wd[4];
     for (size_t k = 0; k < 4; k++) {
         pm_diag_clear(&wd[k]);
+    }
+    if (early) {
+        wrc[2] = s->early.rc;
+        wd[2] = s->early.d;
     }
     if (!rc) {
         side_job job = {&map, fps[0], fps[3], &wrc[0], &wrc[3], &wd[0], &wd[3]};
@@ -555,8 +635,10 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         }
         wrc[1] = pm_svg_write(fps[1], &sd, &so, &s->svg, &wd[1]);
         early_sync(fps[1]);
-        wrc[2] = pm_write_edges_csv(fps[2], s->pp, s->inc, s->e, &wd[2]);
-        early_sync(fps[2]);
+        if (!early) {
+            wrc[2] = pm_write_edges_csv(fps[2], s->pp, s->inc, s->e, &wd[2]);
+            early_sync(fps[2]);
+        }
         if (threaded) {
             pthread_join(th, NULL);
         }
@@ -763,6 +845,7 @@ int pm_cmd_map(int argc, char **argv) {
     s.t_count = s.pp->t_count;
     s.t_measures = s.pp->t_measures + (pm_cli_now() - t0);
     t0 = pm_cli_now();
+    early_start(&s, th);
     rc = build_network(&c, &no, &sel, &s);
     if (rc) {
         goto done;

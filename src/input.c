@@ -592,9 +592,11 @@ typedef struct {
     size_t ncols;               /* fields per row (long format, from the header) */
     par_shared *par;            /* parallel read: NULL when serial */
     int publisher;              /* the stream of the file's first chunk */
+    int published;              /* it has let the others start */
 } reader;
 
 static void par_publish(par_shared *ps, const reader *rd, int ok);
+#define PAR_START_LINE 50000 /* lines the first chunk reads before the others start */
 static int par_stopped(par_shared *ps);
 
 static pm_err_t resolve(reader *rd, const char *opt, const char *sel, long dflt, long *out,
@@ -744,10 +746,10 @@ static pm_err_t on_rec(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     if (!rd->started) { /* first record: resolve columns */
         rd->started = 1;
         pm_err_t rc = first_record(rd, r, diag);
-        if (rd->par) {
-            par_publish(rd->par, rd, rc == PM_OK); /* the other chunks can start */
-        }
         if (rc) {
+            if (rd->par) {
+                par_publish(rd->par, rd, 0); /* the other chunks do not start */
+            }
             return rc;
         }
         if (rd->have_header) {
@@ -755,6 +757,11 @@ static pm_err_t on_rec(void *ud, const pm_i_record *r, pm_diag_t *diag) {
         }
     } else if (rd->par && !rd->publisher && par_stopped(rd->par)) {
         return pm_diag_set(diag, PM_EINTERNAL, rd->t->source, 0, "stopped");
+    } else if (rd->par && rd->publisher && !rd->published && r->line >= PAR_START_LINE) {
+        /* the first lines read well: the other chunks can start (a file that goes wrong at
+         * once, e.g. a quote never closed, is then not read in parallel at all) */
+        rd->published = 1;
+        par_publish(rd->par, rd, 1);
     }
     rd->t->stats.records++;
     return rd->o->format == PM_FORMAT_LONG ? long_row(rd, r, diag) : lines_row(rd, r, diag);
@@ -845,11 +852,12 @@ typedef struct {
     pm_i_sha256 *sha;
     uint64_t bytes;
     int failed;
+    par_shared *ps; /* stops early when the read has failed (the hash is not needed then) */
 } par_hash;
 
 /* The file's bytes are hashed through windows of a read-only mapping (no copy; at most one
  * window resident at a time), by pread when the file cannot be mapped. */
-#define HASH_WINDOW ((size_t)16 << 20)
+#define HASH_WINDOW ((size_t)4 << 20)
 static int hash_mapped(par_hash *h) {
     struct stat st;
     if (fstat(h->fd, &st) != 0 || !S_ISREG(st.st_mode)) {
@@ -857,6 +865,10 @@ static int hash_mapped(par_hash *h) {
     }
     uint64_t size = (uint64_t)st.st_size;
     while (h->bytes < size) {
+        if (par_stopped(h->ps)) {
+            h->failed = 1;
+            return 1;
+        }
         size_t len = size - h->bytes < HASH_WINDOW ? (size_t)(size - h->bytes) : HASH_WINDOW;
         void *m = mmap(NULL, len, PROT_READ, MAP_PRIVATE, h->fd, (off_t)h->bytes);
         if (m == MAP_FAILED) {
@@ -872,7 +884,10 @@ static int hash_mapped(par_hash *h) {
 
 static void *par_hash_main(void *arg) {
     par_hash *h = arg;
-    hash_mapped(h); /* then whatever is left (a file that grew, or no mapping) by pread */
+    if (hash_mapped(h) && h->failed) {
+        return NULL;
+    }
+    /* then whatever is left (a file that grew, or no mapping) by pread */
     size_t cap = 1u << 20;
     char *buf = malloc(cap);
     if (!buf) {
@@ -880,6 +895,10 @@ static void *par_hash_main(void *arg) {
         return NULL;
     }
     for (;;) {
+        if (par_stopped(h->ps)) {
+            h->failed = 1;
+            break;
+        }
         ssize_t k = pread(h->fd, buf, cap, (off_t)h->bytes);
         if (k < 0 && errno == EINTR) {
             continue;
@@ -1122,7 +1141,7 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     }
     ps.co0 = &ch[0].co;
     pm_i_sha256_init(sha);
-    par_hash hj = {fd, sha, 0, 0};
+    par_hash hj = {fd, sha, 0, 0, &ps};
     pthread_t hth;
     int hash_started = pthread_create(&hth, NULL, par_hash_main, &hj) == 0;
     if (!hash_started) {
@@ -1143,7 +1162,8 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     ch[0].rd.par = &ps;
     ch[0].rd.publisher = 1;
     ch[0].rc = pm_i_csv_stream(NULL, &ch[0].co, on_rec, &ch[0].rd, &ch[0].diag);
-    par_publish(&ps, &ch[0].rd, 0); /* no-op when published; else stop the others */
+    /* a first chunk shorter than PAR_START_LINE lines: the others start now, if it read well */
+    par_publish(&ps, &ch[0].rd, ch[0].rc == PM_OK && ch[0].rd.started);
     if (ch[0].rc) {
         atomic_store(&ps.stop, 1);
     }

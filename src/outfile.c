@@ -258,6 +258,9 @@ pm_err_t pm_outdir_create(pm_outdir_t *od, const char *name, FILE **fp, pm_diag_
         free(f->final);
         return pm_diag_set(diag, PM_EIO, NULL, 0, "cannot open a stream: %s", strerror(e));
     }
+    /* 1 MiB buffers: a 60 MB GraphML file in 60 writes, not 15,000 (stdio allocates it;
+     * errors still show at the next flush, which pm_outdir_finish checks) */
+    (void)setvbuf(f->fp, NULL, _IOFBF, (size_t)1 << 20);
     f->state = F_OPEN;
     od->nf++;
     *fp = f->fp;

@@ -2370,7 +2370,7 @@ static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y
         }
         swatch_circle(b, x + 0.45 * fs, y - 0.35 * fs, 0.45 * fs, GREY_FILL);
         if (grey == 0) {
-            snprintf(line, sizeof line, "%zu small cluster%s (%zu items)", small,
+            snprintf(line, sizeof line, "%zu more cluster%s (%zu items)", small,
                      small == 1 ? "" : "s", small_items);
         } else {
             snprintf(line, sizeof line, "%zu item%s on %s own", alone, alone == 1 ? "" : "s",

@@ -92,7 +92,8 @@ const char pm_cli_input_help[] =
     "  --skip-col NAME       wide: a column never read as an option (repeatable)\n"
     "  --base answered|all   wide: leave respondents who chose nothing out of N (answered,\n"
     "                        default) or keep them (all)\n"
-    "  --threads N           worker threads (default: all cores)\n"
+    "  --threads N           threads (and, for map, worker processes) to use; the results\n"
+    "                        are the same for any number (default: all cores)\n"
     "  -q, --quiet           no notes, no progress\n"
     "A long row with an empty item registers a respondent who chose nothing (counted in N).\n"
     "Duplicate respondent-item rows count once. Item names are trimmed of white space.\n";

@@ -818,10 +818,11 @@ typedef struct {
     pm_i_csv_opts co;
     pm_diag_t diag;
     pm_err_t rc;
+    int ran;
 } par_chunk;
 
-static void *par_chunk_main(void *arg) {
-    par_chunk *c = arg;
+/* Reads chunk c (k >= 1) once the first chunk has published the columns. */
+static void par_chunk_run(par_chunk *c) {
     par_shared *ps = c->ps;
     pthread_mutex_lock(&ps->mu);
     while (ps->state == 0) {
@@ -833,9 +834,10 @@ static void *par_chunk_main(void *arg) {
         c->co.sep = ps->sep;
     }
     pthread_mutex_unlock(&ps->mu);
-    if (state != 1) {
+    c->ran = 1;
+    if (state != 1 || par_stopped(ps)) {
         c->rc = PM_EINTERNAL;
-        return NULL;
+        return;
     }
     c->rd.t = c->t;
     c->rd.publisher = 0;
@@ -844,6 +846,29 @@ static void *par_chunk_main(void *arg) {
     if (c->rc) {
         atomic_store(&ps->stop, 1);
     }
+}
+
+/* The chunks after the first are taken in order from a counter by every thread (the calling
+ * one too, once its first chunk is read), so a thread slowed by the hash thread or the
+ * machine simply reads fewer of them. */
+typedef struct {
+    par_chunk *ch;
+    size_t n;
+    atomic_size_t next;
+} par_pool;
+
+static void par_pool_work(par_pool *pool) {
+    for (;;) {
+        size_t k = atomic_fetch_add(&pool->next, 1);
+        if (k >= pool->n) {
+            break;
+        }
+        par_chunk_run(&pool->ch[k]);
+    }
+}
+
+static void *par_worker_main(void *arg) {
+    par_pool_work(arg);
     return NULL;
 }
 
@@ -1078,10 +1103,11 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
         long n = sysconf(_SC_NPROCESSORS_ONLN);
         threads = n > 0 ? (unsigned)n : 1;
     }
+    /* up to four chunks per thread, handed out as threads come free */
     uint64_t nc = size / (o->chunk_bytes ? o->chunk_bytes : PAR_MIN_CHUNK);
-    nc = nc < threads ? nc : threads;
+    nc = nc < (uint64_t)threads * 4 ? nc : (uint64_t)threads * 4;
     nc = nc < PAR_MAX ? nc : PAR_MAX;
-    if (nc < 2 || o->format == PM_FORMAT_WIDE) {
+    if (nc < 2 || threads < 2 || o->format == PM_FORMAT_WIDE) {
         return 0;
     }
     int fd = fileno(fp);
@@ -1114,6 +1140,11 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     int started[PAR_MAX];
     memset(ch, 0, sizeof ch);
     memset(started, 0, sizeof started);
+    par_pool pool;
+    pool.ch = ch;
+    pool.n = n;
+    atomic_init(&pool.next, 1);
+    size_t nworkers = threads - 1 < n - 1 ? threads - 1 : n - 1;
     int result = 0;
     for (size_t k = 0; k < n; k++) {
         ch[k].ps = &ps;
@@ -1147,12 +1178,8 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     if (!hash_started) {
         goto stop;
     }
-    for (size_t k = 1; k < n; k++) {
-        started[k] = pthread_create(&th[k], NULL, par_chunk_main, &ch[k]) == 0;
-        if (!started[k]) {
-            atomic_store(&ps.stop, 1);
-            break;
-        }
+    for (size_t w = 0; w < nworkers; w++) { /* a thread that cannot start: the others read more */
+        started[w] = pthread_create(&th[w], NULL, par_worker_main, &pool) == 0;
     }
     /* the first chunk on this thread: it resolves the columns and lets the others start */
     ps.co0 = &ch[0].co;
@@ -1167,15 +1194,16 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     if (ch[0].rc) {
         atomic_store(&ps.stop, 1);
     }
-    for (size_t k = 1; k < n; k++) {
-        if (started[k]) {
-            pthread_join(th[k], NULL);
+    par_pool_work(&pool); /* then the rest, beside the workers */
+    for (size_t w = 0; w < nworkers; w++) {
+        if (started[w]) {
+            pthread_join(th[w], NULL);
         }
     }
     pthread_join(hth, NULL);
     int ok = !hj.failed && ch[0].rc == PM_OK && ch[0].rd.started;
     for (size_t k = 1; k < n && ok; k++) {
-        ok = started[k] && ch[k].rc == PM_OK;
+        ok = ch[k].ran && ch[k].rc == PM_OK;
     }
     par_rows rows[PAR_MAX];
     memset(rows, 0, sizeof rows);

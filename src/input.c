@@ -974,11 +974,31 @@ typedef struct {
     uint32_t *item_map; /* owned */
     size_t dst;
     uint32_t r0;
+    size_t nr;        /* the chunk's respondents (runs or anonymous lines), from r0 */
+    uint64_t base;    /* lines before the chunk */
+    size_t rn, used0; /* its runs start at run rn, their ids at run_buf + used0 */
 } par_rows;
 
 static int par_rows_copy(void *ud, size_t k, unsigned th) {
     (void)th;
     const par_rows *pr = (const par_rows *)ud + k;
+    pm_table_t *t = pr->t;
+    const pm_table_t *c = pr->c;
+    if (pr->nr) {
+        memcpy(t->resp_weight + pr->r0, c->resp_weight, pr->nr * sizeof(double));
+        memcpy(t->resp_has_item + pr->r0, c->resp_has_item, pr->nr);
+        for (size_t r = 0; r < pr->nr; r++) {
+            t->resp_line[pr->r0 + r] = c->resp_line[r] + pr->base;
+        }
+    }
+    if (c->run_n) {
+        memcpy(t->run_hash + pr->rn, c->run_hash, c->run_n * sizeof *t->run_hash);
+        memcpy(t->run_buf + pr->used0, c->run_buf, c->run_used);
+        for (size_t r = 0; r < c->run_n; r++) {
+            t->run_off[pr->rn + r] = c->run_off[r] + pr->used0;
+        }
+        memcpy(t->run_len + pr->rn, c->run_len, c->run_n * sizeof *t->run_len);
+    }
     uint32_t *rr = pr->t->row_resp + pr->dst, *ri = pr->t->row_item + pr->dst;
     const uint32_t *cr = pr->c->row_resp, *ci = pr->c->row_item;
     for (size_t i = 0; i < pr->c->n_rows; i++) {
@@ -1044,13 +1064,11 @@ static pm_err_t par_append(pm_table_t *t, pm_table_t *c, uint64_t base, par_rows
         }
         t->resp_cap = c1 < c2 ? (c1 < c3 ? c1 : c3) : (c2 < c3 ? c2 : c3);
     }
-    if (nr) {
-        memcpy(t->resp_weight + r0, c->resp_weight, nr * sizeof(double));
-        memcpy(t->resp_has_item + r0, c->resp_has_item, nr);
-        for (size_t r = 0; r < nr; r++) {
-            t->resp_line[r0 + r] = c->resp_line[r] + base;
-        }
-    }
+    /* the respondents' and runs' arrays are copied with the rows, later (par_rows_copy) */
+    rows_job->nr = nr;
+    rows_job->base = base;
+    rows_job->rn = t->run_n;
+    rows_job->used0 = t->run_used;
     if (c->run_n) {
         size_t c2 = t->run_off_cap, c3 = t->run_off_cap, rn = t->run_n;
         if (pm_i_grow((void **)&t->run_buf, &t->run_cap, t->run_used + c->run_used, 1) ||
@@ -1059,12 +1077,6 @@ static pm_err_t par_append(pm_table_t *t, pm_table_t *c, uint64_t base, par_rows
             pm_i_grow((void **)&t->run_hash, &c3, rn + c->run_n, sizeof *t->run_hash)) {
             goto done;
         }
-        memcpy(t->run_hash + rn, c->run_hash, c->run_n * sizeof *t->run_hash);
-        memcpy(t->run_buf + t->run_used, c->run_buf, c->run_used);
-        for (size_t r = 0; r < c->run_n; r++) {
-            t->run_off[rn + r] = c->run_off[r] + t->run_used;
-        }
-        memcpy(t->run_len + rn, c->run_len, c->run_n * sizeof *t->run_len);
         t->run_used += c->run_used;
         t->run_n += c->run_n;
     }

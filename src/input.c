@@ -188,15 +188,34 @@ pm_err_t pm_i_table_new(const pm_input_opts_t *o, const char *display, pm_table_
     return PM_OK;
 }
 
+/* Room for `need` respondents in the per-respondent arrays (grown together: one capacity). */
+static int grow_respondents(pm_table_t *t, size_t need) {
+    if (need <= t->resp_cap) {
+        return 0;
+    }
+    size_t c1 = t->resp_cap, c2 = t->resp_cap, c3 = t->resp_cap;
+    if (pm_i_grow((void **)&t->resp_weight, &c1, need, sizeof(double)) ||
+        pm_i_grow((void **)&t->resp_line, &c2, need, sizeof(uint64_t)) ||
+        pm_i_grow((void **)&t->resp_has_item, &c3, need, 1)) {
+        return -1;
+    }
+    t->resp_cap = c1;
+    return 0;
+}
+
+/* Room for `runs` runs of ids and `bytes` bytes of their text (the run arrays share
+ * run_off_cap). */
+static int grow_runs(pm_table_t *t, size_t runs, size_t bytes) {
+    size_t c2 = t->run_off_cap, c3 = t->run_off_cap;
+    return pm_i_grow((void **)&t->run_buf, &t->run_cap, bytes, 1) ||
+           pm_i_grow((void **)&t->run_off, &t->run_off_cap, runs, sizeof *t->run_off) ||
+           pm_i_grow((void **)&t->run_len, &c2, runs, sizeof *t->run_len) ||
+           pm_i_grow((void **)&t->run_hash, &c3, runs, sizeof *t->run_hash);
+}
+
 static pm_err_t new_respondent(pm_table_t *t, size_t r, uint64_t line, pm_diag_t *diag) {
-    if (r >= t->resp_cap) {
-        size_t c1 = t->resp_cap, c2 = t->resp_cap, c3 = t->resp_cap;
-        if (pm_i_grow((void **)&t->resp_weight, &c1, r + 1, sizeof(double)) ||
-            pm_i_grow((void **)&t->resp_line, &c2, r + 1, sizeof(uint64_t)) ||
-            pm_i_grow((void **)&t->resp_has_item, &c3, r + 1, 1)) {
-            return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
-        }
-        t->resp_cap = c1;
+    if (grow_respondents(t, r + 1)) {
+        return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
     }
     t->resp_weight[r] = NAN;
     t->resp_line[r] = line;
@@ -234,11 +253,7 @@ pm_err_t pm_i_table_respondent(pm_table_t *t, const char *id, size_t len, uint64
             return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
                                "more than %u runs of respondent rows", (unsigned)(UINT32_MAX - 2));
         }
-        size_t c2 = t->run_off_cap, c3 = t->run_off_cap;
-        if (pm_i_grow((void **)&t->run_buf, &t->run_cap, t->run_used + len + 1, 1) ||
-            pm_i_grow((void **)&t->run_off, &t->run_off_cap, rr + 1, sizeof *t->run_off) ||
-            pm_i_grow((void **)&t->run_len, &c2, rr + 1, sizeof *t->run_len) ||
-            pm_i_grow((void **)&t->run_hash, &c3, rr + 1, sizeof *t->run_hash) ||
+        if (grow_runs(t, rr + 1, t->run_used + len + 1) ||
             pm_i_grow((void **)&t->last_id, &t->last_cap, len + 1, 1)) {
             return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
         }
@@ -1055,14 +1070,8 @@ static pm_err_t par_append(pm_table_t *t, pm_table_t *c, uint64_t base, par_rows
         rc = PM_EINTERNAL;
         goto done;
     }
-    if (r0 + nr > t->resp_cap) {
-        size_t c1 = t->resp_cap, c2 = t->resp_cap, c3 = t->resp_cap;
-        if (pm_i_grow((void **)&t->resp_weight, &c1, r0 + nr, sizeof(double)) ||
-            pm_i_grow((void **)&t->resp_line, &c2, r0 + nr, sizeof(uint64_t)) ||
-            pm_i_grow((void **)&t->resp_has_item, &c3, r0 + nr, 1)) {
-            goto done;
-        }
-        t->resp_cap = c1 < c2 ? (c1 < c3 ? c1 : c3) : (c2 < c3 ? c2 : c3);
+    if (grow_respondents(t, r0 + nr)) {
+        goto done;
     }
     /* the respondents' and runs' arrays are copied with the rows, later (par_rows_copy) */
     rows_job->nr = nr;
@@ -1070,11 +1079,7 @@ static pm_err_t par_append(pm_table_t *t, pm_table_t *c, uint64_t base, par_rows
     rows_job->rn = t->run_n;
     rows_job->used0 = t->run_used;
     if (c->run_n) {
-        size_t c2 = t->run_off_cap, c3 = t->run_off_cap, rn = t->run_n;
-        if (pm_i_grow((void **)&t->run_buf, &t->run_cap, t->run_used + c->run_used, 1) ||
-            pm_i_grow((void **)&t->run_off, &t->run_off_cap, rn + c->run_n, sizeof *t->run_off) ||
-            pm_i_grow((void **)&t->run_len, &c2, rn + c->run_n, sizeof *t->run_len) ||
-            pm_i_grow((void **)&t->run_hash, &c3, rn + c->run_n, sizeof *t->run_hash)) {
+        if (grow_runs(t, t->run_n + c->run_n, t->run_used + c->run_used)) {
             goto done;
         }
         t->run_used += c->run_used;

@@ -264,6 +264,23 @@ int pm_layout_default_iterations(size_t laid_out) {
     return it > PM_LAYOUT_MIN_ITERATIONS ? (int)it : PM_LAYOUT_MIN_ITERATIONS;
 }
 
+int pm_layout_default_iterations_for(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
+                                     const double *w) {
+    unsigned char *has = pm_i_calloc(n ? n : 1, 1);
+    if (!has) {
+        return -1;
+    }
+    size_t laid = 0;
+    for (size_t k = 0; k < m; k++) {
+        if (edge_ok(ea, eb, w, k) && ea[k] < n && eb[k] < n) {
+            laid += !has[ea[k]] + !has[eb[k]];
+            has[ea[k]] = has[eb[k]] = 1;
+        }
+    }
+    free(has);
+    return pm_layout_default_iterations(laid);
+}
+
 pm_err_t pm_layout_fr(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb, const double *w,
                       uint64_t seed, int iterations, double *xy, pm_diag_t *diag) {
     usable u;
@@ -538,24 +555,13 @@ static int cmp_raw_cluster(const void *p, const void *q) {
     return name_cmp(a->lead, b->lead);
 }
 
-typedef struct {
-    uint32_t label, v;
-} labelled;
-
-static int cmp_labelled(const void *p, const void *q) {
-    const labelled *a = p, *b = q;
-    if (a->label != b->label) {
-        return a->label < b->label ? -1 : 1;
-    }
-    return a->v < b->v ? -1 : a->v > b->v;
-}
 
 /* Groups the vertices by raw label (raw[i] for vertex i), orders members and clusters and
  * fills c->cluster, size, members, first. */
 static pm_err_t finish_clusters(pm_clusters_t *c, const pm_cluster_opts_t *o, const uint32_t *raw,
                                 pm_diag_t *diag) {
     size_t n = c->n;
-    labelled *lv = pm_i_malloc(n ? n : 1, sizeof *lv);
+    label_pair *lv = pm_i_malloc(n ? n : 1, sizeof *lv); /* x: label, y: vertex */
     raw_cluster *rc = pm_i_malloc(n ? n : 1, sizeof *rc);
     uint32_t *grouped = pm_i_malloc(n ? n : 1, sizeof *grouped);
     if (!lv || !rc || !grouped) {
@@ -565,21 +571,21 @@ static pm_err_t finish_clusters(pm_clusters_t *c, const pm_cluster_opts_t *o, co
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
     }
     for (size_t i = 0; i < n; i++) {
-        lv[i].label = raw[i];
-        lv[i].v = (uint32_t)i;
+        lv[i].x = raw[i];
+        lv[i].y = (uint32_t)i;
     }
-    qsort(lv, n, sizeof *lv, cmp_labelled);
+    qsort(lv, n, sizeof *lv, cmp_pair);
     order_ctx ctx = {c, o};
     g_order = &ctx;
     size_t k = 0;
     for (size_t i = 0; i < n;) {
         size_t j = i;
-        while (j < n && lv[j].label == lv[i].label) {
-            grouped[j] = lv[j].v;
+        while (j < n && lv[j].x == lv[i].x) {
+            grouped[j] = lv[j].y;
             j++;
         }
         qsort(grouped + i, j - i, sizeof *grouped, cmp_member);
-        rc[k].label = lv[i].label;
+        rc[k].label = lv[i].x;
         rc[k].size = j - i;
         rc[k].lead = grouped[i];
         rc[k].start = i;

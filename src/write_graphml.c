@@ -46,16 +46,6 @@ void pm_write_xml_text(FILE *fp, const char *s) {
     }
 }
 
-/* A number as the CSV files print it; xs:double spellings for NaN and infinities. */
-static void xml_number(FILE *fp, double v) {
-    if (isnan(v)) {
-        fputs("NaN", fp);
-    } else if (isinf(v)) {
-        fputs(v > 0 ? "INF" : "-INF", fp);
-    } else {
-        pm_write_number(fp, v);
-    }
-}
 
 /* Line building for the edge loop (at most a few hundred bytes per edge). */
 static inline char *put_str(char *o, const char *s) {
@@ -77,7 +67,9 @@ static inline char *put_u64(char *o, uint64_t v) {
     return o;
 }
 
-static inline char *put_num(char *o, double v) { /* as xml_number */
+/* A number as the CSV files print it; xs:double spellings for NaN and infinities. o needs
+ * 64 bytes of room. */
+static inline char *put_num(char *o, double v) {
     if (isnan(v)) {
         return put_str(o, "NaN");
     }
@@ -85,6 +77,11 @@ static inline char *put_num(char *o, double v) { /* as xml_number */
         return put_str(o, v > 0 ? "INF" : "-INF");
     }
     return o + pm_i_fmt_double(o, 64, v);
+}
+
+static void xml_number(FILE *fp, double v) {
+    char buf[64];
+    fwrite(buf, 1, (size_t)(put_num(buf, v) - buf), fp);
 }
 
 static void data_str(FILE *fp, const char *key, const char *v) {

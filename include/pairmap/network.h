@@ -38,6 +38,10 @@ void pm_init(void);
 #define PM_LAYOUT_MIN_ITERATIONS 150
 /* The default for `laid_out` vertices with usable edges (see above). */
 int pm_layout_default_iterations(size_t laid_out);
+/* The default for the graph (n, m, ea, eb, w) as pm_layout_fr counts its vertices with usable
+ * edges; -1 when out of memory. */
+int pm_layout_default_iterations_for(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
+                                     const double *w);
 
 /* Fruchterman-Reingold layout of an undirected graph given as plain arrays, in the calling
  * process (pm_network_run runs it in a worker process alongside the clustering).

@@ -251,20 +251,9 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
     pm_diag_clear(&d);
     /* the layout's iterations: as given, else the default for the items with edges */
     s->iterations = (int)no->iterations;
-    if (s->iterations <= 0) {
-        unsigned char *has = calloc(s->n ? s->n : 1, 1);
-        if (!has) {
-            return oom();
-        }
-        size_t laid = 0;
-        for (size_t k = 0; k < m; k++) {
-            if (s->wuse[k] > 0 && s->ea[k] != s->eb[k]) {
-                laid += !has[s->ea[k]] + !has[s->eb[k]];
-                has[s->ea[k]] = has[s->eb[k]] = 1;
-            }
-        }
-        free(has);
-        s->iterations = pm_layout_default_iterations(laid);
+    if (s->iterations <= 0 &&
+        (s->iterations = pm_layout_default_iterations_for(s->n, m, s->ea, s->eb, s->wuse)) < 0) {
+        return oom();
     }
     if (pm_network_run(s->n, m, s->ea, s->eb, s->wuse, &co, no->seed, s->iterations, &s->cl,
                        s->xy, &d)) {

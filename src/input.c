@@ -824,10 +824,6 @@ static int par_stopped(par_shared *ps) {
 
 typedef struct {
     par_shared *ps;
-    const pm_input_opts_t *o;
-    const char *display;
-    int fd;
-    uint64_t start, end;
     pm_table_t *t;
     reader rd;
     pm_i_csv_opts co;
@@ -1165,10 +1161,6 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     int result = 0;
     for (size_t k = 0; k < n; k++) {
         ch[k].ps = &ps;
-        ch[k].o = o;
-        ch[k].fd = fd;
-        ch[k].start = cut[k];
-        ch[k].end = cut[k + 1];
         pm_diag_clear(&ch[k].diag);
         if (k == 0) {
             ch[k].t = t;
@@ -1199,7 +1191,6 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
         started[w] = pthread_create(&th[w], NULL, par_worker_main, &pool) == 0;
     }
     /* the first chunk on this thread: it resolves the columns and lets the others start */
-    ps.co0 = &ch[0].co;
     memset(&ch[0].rd, 0, sizeof ch[0].rd);
     ch[0].rd.t = t;
     ch[0].rd.o = o;

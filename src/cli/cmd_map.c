@@ -549,7 +549,7 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
     unsigned nthreads = 0;
     (void)pm_cli_threads(c, &nthreads); /* validated earlier */
     early_join(s);
-    int early = s->early.fp != NULL && s->early.n == s->n;
+    int early = s->early.fp != NULL; /* its items are the vertices, in order */
     if (early) {
         memcpy(slo, s->early.lo, s->n * sizeof *slo);
         memcpy(shi, s->early.hi, s->n * sizeof *shi);
@@ -595,10 +595,6 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
      * not thread-safe) and edges.csv on this one. They are finished in order afterwards. */
     pm_err_t rc = PM_OK;
     FILE *fps[4] = {NULL, NULL, NULL, NULL};
-    if (s->early.fp && !early) { /* cannot happen (same vertices); written again below */
-        (void)pm_outdir_finish(s->od, s->early.fp, NULL);
-        s->early.fp = NULL;
-    }
     for (size_t k = 0; k < 4 && !rc; k++) {
         if (k == 2 && early) {
             fps[k] = s->early.fp; /* written already */

@@ -369,6 +369,7 @@ void pm_assoc_opts_init(pm_assoc_opts_t *o) {
     memset(o, 0, sizeof *o);
     o->sign = PM_SIGN_POSITIVE;
     o->min_count = 5;
+    o->q_limit = 1.0;
 }
 
 void pm_pairs_free(pm_pairs_t *p) {
@@ -416,6 +417,7 @@ typedef struct {
     uint32_t *a, *b, *n;
     double *w;
     size_t ni, ci;
+    uint64_t above; /* p-values above the q limit: counted, not kept */
     int fail;
 } prune_buf;
 
@@ -425,8 +427,23 @@ typedef struct {
     pm_sign_t sign;
     double neff;
     int keep_ids;
+    double lim;     /* p-values above it are only counted (q_limit; +INFINITY: none) */
+    int skip_mean;  /* pairs seen no more often than expected have p >= 1/2 > lim */
     prune_buf *bufs;
 } prune_ctx;
+
+/* True when nab <= na nb / N, that is when the pair is seen no more often than expected
+ * (exact: the products are below 2^64, which long double holds exactly). The one-sided
+ * "greater" p-value of such a pair is at least 1/2: for chi-square z <= 0; for Fisher's test
+ * the median of the hypergeometric distribution is floor or ceil of its mean (Kaas and
+ * Buhrman 1980), so P(X >= nab) >= P(X >= median) >= 1/2 (checked exhaustively for small
+ * tables in tests/unit/test_assoc.c). */
+static inline int at_most_expected(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab) {
+    if (N < (1ULL << 31)) {
+        return N * nab <= na * nb;
+    }
+    return (long double)N * (long double)nab <= (long double)na * (long double)nb;
+}
 
 static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t nab,
                      double wab) {
@@ -436,11 +453,21 @@ static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t
         return;
     }
     if (!c->keep_ids) {
+        const pm_incidence_t *inc = c->inc;
+        if (c->skip_mean && at_most_expected(inc->N, inc->count[a], inc->count[b], nab)) {
+            pb->above++;
+            return;
+        }
+        double p = pair_p(c->lf, inc, c->sign, c->neff, a, b, nab, wab, NULL);
+        if (p > c->lim) {
+            pb->above++;
+            return;
+        }
         if (pb->nf >= pb->cf && pm_i_grow((void **)&pb->pf, &pb->cf, pb->nf + 1, sizeof *pb->pf)) {
             pb->fail = 1;
             return;
         }
-        pb->pf[pb->nf++] = pair_p(c->lf, c->inc, c->sign, c->neff, a, b, nab, wab, NULL);
+        pb->pf[pb->nf++] = p;
         return;
     }
     if (pb->ni == pb->ci) {
@@ -730,6 +757,11 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
     pc.sign = o->sign;
     pc.neff = neff;
     pc.keep_ids = o->sign != PM_SIGN_POSITIVE;
+    /* 0.49, not 0.5: room for the rounding of a p-value whose exact value is 1/2 */
+    pc.lim = o->q_limit >= 0 && o->q_limit < 1 ? o->q_limit : INFINITY;
+    pc.skip_mean = pc.lim < 0.49 && o->sign == PM_SIGN_POSITIVE && !inc->wcount;
+    pp->q_limit = pc.lim < 1 ? pc.lim : 1.0;
+    uint64_t above = 0; /* p-values of the family above pc.lim: counted, never sorted */
     pc.bufs = pm_i_calloc(threads, sizeof *pc.bufs);
     if (!pc.bufs) {
         goto cleanup;
@@ -831,6 +863,7 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
     for (unsigned t = 0; t < threads; t++) {
         npf += pc.bufs[t].nf;
         npd += pc.bufs[t].ni;
+        above += pc.bufs[t].above;
     }
     pf = pm_i_malloc(npf ? npf : 1, sizeof *pf);
     pd = pm_i_malloc(npd ? npd : 1, sizeof *pd);
@@ -846,10 +879,16 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
             }
             f += pb->nf;
             for (size_t i = 0; i < pb->ni; i++) {
-                pd[d++] = pair_p(lf, inc, o->sign, neff, pb->a[i], pb->b[i], pb->n[i],
-                                 pb->w ? pb->w[i] : 0, NULL);
+                double p = pair_p(lf, inc, o->sign, neff, pb->a[i], pb->b[i], pb->n[i],
+                                  pb->w ? pb->w[i] : 0, NULL);
+                if (p > pc.lim) {
+                    above++;
+                } else {
+                    pd[d++] = p;
+                }
             }
         }
+        npd = d;
     }
     if (!list_unseen && pp->unseen > 0) {
         if (o->sign == PM_SIGN_POSITIVE) {
@@ -862,6 +901,10 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
             groups[0].p = 1.0;
             groups[0].mult = pp->unseen;
             ngroups = 1;
+            if (groups[0].p > pc.lim) {
+                above += pp->unseen;
+                ngroups = 0;
+            }
         } else {
             /* classes of items with equal totals */
             size_t ne = (size_t)E;
@@ -941,7 +984,12 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
                         break;
                     }
                     uint32_t ia = crep[ca], ib = crep[cb];
-                    groups[ngroups].p = pair_p(lf, inc, o->sign, neff, ia, ib, 0, 0, NULL);
+                    double gp = pair_p(lf, inc, o->sign, neff, ia, ib, 0, 0, NULL);
+                    if (gp > pc.lim) {
+                        above += un;
+                        continue;
+                    }
+                    groups[ngroups].p = gp;
                     groups[ngroups].mult = un;
                     ngroups++;
                 }
@@ -959,9 +1007,16 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
     if (!lv) {
         goto cleanup;
     }
+    size_t nlv = 0;
     for (size_t k = 0; k < pp->n; k++) {
-        lv[k].p = pp->p[k];
-        lv[k].i = k;
+        if (pp->p[k] > pc.lim) {
+            pp->q[k] = INFINITY;
+            above++;
+            continue;
+        }
+        lv[nlv].p = pp->p[k];
+        lv[nlv].i = k;
+        nlv++;
     }
     /* listed pairs stay in index order among equal p-values (the order cmp_pidx gives) */
     {
@@ -969,7 +1024,7 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
         sort_job sj = {pf, npf, sizeof *pf, 0};
         pthread_t sth;
         int sthreaded = threads > 1 && npf > 100000 && pthread_create(&sth, NULL, sort_main, &sj) == 0;
-        int src = sort_pvalues(lv, pp->n, sizeof *lv) | sort_pvalues(pd, npd, sizeof *pd);
+        int src = sort_pvalues(lv, nlv, sizeof *lv) | sort_pvalues(pd, npd, sizeof *pd);
         if (sthreaded) {
             pthread_join(sth, NULL);
         } else {
@@ -984,8 +1039,11 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
     }
     {
         size_t cap = 0;
-        size_t il = pp->n, ifl = npf, id = npd, ig = ngroups;
-        uint64_t rank = pp->hypotheses;
+        size_t il = nlv, ifl = npf, id = npd, ig = ngroups;
+        /* the p-values above the limit are the largest of the family: the walk starts below
+         * them with their number taken off the rank, so every q <= the limit is the same as
+         * in the whole walk (the larger ones only raise the running minimum above the limit) */
+        uint64_t rank = above <= pp->hypotheses ? pp->hypotheses - above : 0;
         double run = 1.0, m = (double)pp->hypotheses;
         size_t nq = 0;
         while (il || ifl || id || ig) {
@@ -1097,6 +1155,9 @@ cleanup:
 }
 
 double pm_pairs_qvalue(const pm_pairs_t *pp, double p) {
+    if (p > pp->q_limit && pp->q_limit < 1) {
+        return INFINITY;
+    }
     if (isnan(p) || pp->nq == 0) {
         return NAN;
     }

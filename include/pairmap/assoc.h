@@ -62,6 +62,11 @@ typedef struct {
     unsigned threads;    /* 0: all cores */
     int kernel;          /* PM_COUNTS_* */
     size_t dense_max_items;
+    /* q-values are exact where they are at most q_limit (default 1: everywhere). Below 1, a
+     * caller that only ever uses pairs with q <= q_limit (a --max-q of the same value) saves
+     * the sorting of every larger p-value: they are counted as hypotheses, not ranked, and
+     * pairs whose q exceeds q_limit get some q > q_limit (+INFINITY where p > q_limit). */
+    double q_limit;
     pm_progress_fn progress;
     void *progress_ud;
 } pm_assoc_opts_t;
@@ -91,6 +96,7 @@ typedef struct {
     /* q-value lookup for any p of the family (sorted distinct p with their q) */
     double *qp, *qq;
     size_t nq;
+    double q_limit;          /* as in the options: q-values above it are only known to be so */
 } pm_pairs_t;
 
 /* Counts, tests and corrects every pair of eligible items of inc. *out owns the result
@@ -106,7 +112,8 @@ void pm_pairs_measures(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k
 /* Measures of any eligible pair (a, b) with joint counts nab/wab, q from the family. */
 void pm_pairs_measure_any(const pm_pairs_t *pp, const pm_incidence_t *inc, uint32_t a,
                           uint32_t b, uint32_t nab, double wab, pm_measures_t *m);
-/* The q-value of a p-value of the family (the q of the largest family p-value <= p). */
+/* The q-value of a p-value of the family (the q of the largest family p-value <= p);
+ * +INFINITY for p > q_limit. */
 double pm_pairs_qvalue(const pm_pairs_t *pp, double p);
 /* Index of listed pair (a, b), a < b, or -1. */
 long pm_pairs_find(const pm_pairs_t *pp, uint32_t a, uint32_t b);

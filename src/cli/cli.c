@@ -581,6 +581,8 @@ int pm_cli_score(const pm_cli_t *c, const pm_incidence_t *inc, const pm_select_o
     ao.sign = sel->sign;
     ao.min_count = sel->min_count;
     ao.min_share = sel->min_share;
+    /* every command shows only pairs with q <= --max-q: larger q-values need not be exact */
+    ao.q_limit = sel->max_q;
     if (pm_cli_threads(c, &ao.threads)) {
         return 1;
     }

@@ -9,6 +9,7 @@
 
 #include "pairmap/assoc.h"
 #include "pairmap/cooccur.h"
+#include "pairmap/select.h"
 #include "util.h"
 
 /* |got - want| <= tol * max(|want|, tiny) */
@@ -656,6 +657,187 @@ static void test_assoc_run_alloc_failure(void **state) {
     pm_incidence_free(inc);
 }
 
+/* The rule pm_assoc_run uses to skip pairs under a q limit below 1/2: a pair seen no more often
+ * than expected (nab N <= na nb) has a one-sided "greater" Fisher p-value of at least 1/2, as
+ * the hypergeometric median is floor or ceil of the mean (Kaas and Buhrman 1980). Checked by
+ * the exact integer sums on every table up to N = 60, and on pm_assoc_fisher itself (which
+ * the run uses) against the 0.49 margin on those and on random large tables. */
+static void test_assoc_fisher_half_at_most_expected(void **state) {
+    (void)state;
+    binom_init();
+    long checked = 0;
+    double lowest = 1;
+    for (int N = 2; N <= BMAX; N++) {
+        for (int K = 1; K < N; K++) {
+            for (int n = 1; n < N; n++) {
+                int lo = n - (N - K) > 0 ? n - (N - K) : 0;
+                for (int x = lo; x * N <= K * n; x++) {
+                    double g, l, t;
+                    exact_fisher(N, K, n, x, &g, &l, &t);
+                    uint64_t tot = binom[N][n], gs = 0;
+                    for (int k = x; k <= (K < n ? K : n); k++) {
+                        gs += binom[K][k] * binom[N - K][n - k];
+                    }
+                    if (2 * gs < tot) {
+                        fail_msg("N=%d na=%d nb=%d nab=%d: P(X >= nab) = %.17g < 1/2", N, K, n, x,
+                                 g);
+                    }
+                    double pg = pm_assoc_fisher((uint64_t)N, (uint64_t)K, (uint64_t)n,
+                                                (uint64_t)x, 1);
+                    assert_true(pg >= 0.49);
+                    lowest = pg < lowest ? pg : lowest;
+                    checked++;
+                }
+            }
+        }
+    }
+    unit_rng g = {77};
+    for (int i = 0; i < 20000; i++) {
+        uint64_t N = 100 + unit_below(&g, 2000000);
+        uint64_t na = 1 + unit_below(&g, N - 1), nb = 1 + unit_below(&g, N - 1);
+        uint64_t mean = (uint64_t)((long double)na * nb / N);
+        uint64_t lo = nb > N - na ? nb - (N - na) : 0;
+        if (mean < lo) {
+            continue;
+        }
+        uint64_t x = mean - (mean - lo) * unit_below(&g, 4) / 4; /* at the mean or below */
+        double pg = pm_assoc_fisher(N, na, nb, x, 1);
+        if (!(pg >= 0.49)) {
+            fail_msg("N=%llu na=%llu nb=%llu nab=%llu: p = %.17g", (unsigned long long)N,
+                     (unsigned long long)na, (unsigned long long)nb, (unsigned long long)x, pg);
+        }
+        lowest = pg < lowest ? pg : lowest;
+        checked++;
+    }
+    print_message("at most expected: %ld tables, smallest p %.6f\n", checked, lowest);
+}
+
+/* Items in taste groups (strong pairs), rare items planted in pairs (small p-values of pairs
+ * seen fewer than --min-count times) and a few common items. */
+static pm_incidence_t *planted_inc(uint64_t seed, size_t R) {
+    const size_t G = 6, per = 10, rare = 12, E = G * per + rare;
+    unit_rng g = {seed};
+    uint64_t *rp = malloc((R + 1) * sizeof *rp);
+    uint32_t *col = malloc((R * E + 1) * sizeof *col);
+    assert_true(rp && col);
+    size_t nnz = 0;
+    for (size_t r = 0; r < R; r++) {
+        rp[r] = nnz;
+        size_t grp = unit_below(&g, G);
+        size_t pair = unit_below(&g, 400); /* rare items: pair j chosen together now and then */
+        for (size_t i = 0; i < E; i++) {
+            double u = unit_unif(&g), pr;
+            if (i < G * per) {
+                pr = i / per == grp ? 0.25 : 0.04;
+            } else {
+                pr = (i - G * per) / 2 == pair ? 0.8 : 0.001;
+            }
+            if (u < pr) {
+                col[nnz++] = (uint32_t)i;
+            }
+        }
+    }
+    rp[R] = nnz;
+    pm_incidence_t *inc = unit_inc_new(E, R, rp, col, NULL, 0);
+    free(rp);
+    free(col);
+    return inc;
+}
+
+/* A q limit (what every command passes as --max-q) changes no q-value at or below it, keeps
+ * every larger one above it, and so selects the same pairs; checked against the run without a
+ * limit on every sign and several --min-count values, with pruned pairs among the small
+ * p-values (so that dropping them from the ranks would move the q-values). */
+static void test_assoc_run_q_limit(void **state) {
+    (void)state;
+    pm_incidence_t *inc = planted_inc(91, 3000);
+    static const double lims[] = {0.05, 0.2, 0.0001, 0, 0.6};
+    static const uint32_t mins[] = {1, 5, 12};
+    size_t small_pruned = 0, exact = 0, above = 0;
+    for (int sign = PM_SIGN_POSITIVE; sign <= PM_SIGN_BOTH; sign++) {
+        for (size_t mi = 0; mi < sizeof mins / sizeof mins[0]; mi++) {
+            pm_pairs_t *ref = run(inc, (pm_sign_t)sign, mins[mi], 0, 2, 0);
+            assert_true(ref->q_limit == 1.0);
+            for (size_t li = 0; li < sizeof lims / sizeof lims[0]; li++) {
+                double lim = lims[li];
+                pm_assoc_opts_t o;
+                pm_assoc_opts_init(&o);
+                o.sign = (pm_sign_t)sign;
+                o.min_count = mins[mi];
+                o.threads = 1 + (unsigned)(li % 2);
+                o.q_limit = lim;
+                pm_pairs_t *pp = NULL;
+                pm_diag_t d;
+                pm_diag_clear(&d);
+                assert_int_equal(pm_assoc_run(inc, &o, &pp, &d), PM_OK);
+                assert_int_equal(pp->n, ref->n);
+                assert_int_equal(pp->hypotheses, ref->hypotheses);
+                assert_memory_equal(pp->a, ref->a, ref->n * sizeof *pp->a);
+                assert_memory_equal(pp->b, ref->b, ref->n * sizeof *pp->b);
+                assert_memory_equal(pp->p, ref->p, ref->n * sizeof *pp->p);
+                for (size_t k = 0; k < ref->n; k++) {
+                    if (ref->q[k] <= lim) {
+                        if (memcmp(&pp->q[k], &ref->q[k], sizeof(double)) != 0) {
+                            fail_msg("sign %d min %u limit %g: pair %zu q %.17g, without the "
+                                     "limit %.17g",
+                                     sign, mins[mi], lim, k, pp->q[k], ref->q[k]);
+                        }
+                        exact++;
+                    } else {
+                        assert_true(pp->q[k] > lim);
+                        above++;
+                    }
+                    double qa = pm_pairs_qvalue(pp, ref->p[k]), qb = pm_pairs_qvalue(ref, ref->p[k]);
+                    if (qb <= lim) {
+                        assert_true(memcmp(&qa, &qb, sizeof qa) == 0);
+                    } else {
+                        assert_true(qa > lim);
+                    }
+                }
+                pm_select_opts_t so;
+                pm_select_opts_init(&so);
+                so.sign = (pm_sign_t)sign;
+                so.min_count = mins[mi];
+                so.max_q = lim;
+                pm_edges_t *e1 = NULL, *e2 = NULL;
+                assert_int_equal(pm_select_run(ref, inc, &so, &e1, &d), PM_OK);
+                assert_int_equal(pm_select_run(pp, inc, &so, &e2, &d), PM_OK);
+                assert_int_equal(e1->n, e2->n);
+                assert_int_equal(e1->removed_q, e2->removed_q);
+                assert_int_equal(e1->removed_sign, e2->removed_sign);
+                assert_memory_equal(e1->idx, e2->idx, e1->n * sizeof *e1->idx);
+                assert_memory_equal(e1->weight, e2->weight, e1->n * sizeof *e1->weight);
+                pm_edges_free(e1);
+                pm_edges_free(e2);
+                pm_pairs_free(pp);
+            }
+            pm_pairs_free(ref);
+        }
+    }
+    /* the case that needs the pruned p-values: pairs seen fewer than 12 times with p < 0.05 */
+    for (size_t a = 0; a < inc->n_items; a++) {
+        for (size_t b = a + 1; b < inc->n_items; b++) {
+            uint32_t nab = 0;
+            for (size_t r = 0; r < inc->n_resp; r++) {
+                int ha = 0, hb = 0;
+                for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
+                    ha |= inc->col[q] == a;
+                    hb |= inc->col[q] == b;
+                }
+                nab += ha && hb;
+            }
+            if (nab > 0 && nab < 12 && family_p(inc, PM_SIGN_POSITIVE, a, b, nab, 0) < 0.05) {
+                small_pruned++;
+            }
+        }
+    }
+    print_message("q limit: %zu q-values equal, %zu above the limit, %zu pruned pairs with "
+                  "p < 0.05\n",
+                  exact, above, small_pruned);
+    assert_true(exact > 1000 && above > 1000 && small_pruned > 10);
+    pm_incidence_free(inc);
+}
+
 static const struct CMUnitTest tests[] = {
     cmocka_unit_test(test_assoc_counts_tea_coffee),
     cmocka_unit_test(test_assoc_fisher_tea_tasting),
@@ -670,6 +852,8 @@ static const struct CMUnitTest tests[] = {
     cmocka_unit_test(test_assoc_run_threads_identical),
     cmocka_unit_test(test_assoc_pairs_measures),
     cmocka_unit_test(test_assoc_run_alloc_failure),
+    cmocka_unit_test(test_assoc_fisher_half_at_most_expected),
+    cmocka_unit_test(test_assoc_run_q_limit),
 };
 
 UNIT_MAIN("assoc", tests)

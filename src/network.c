@@ -327,27 +327,8 @@ static int cmp_pair(const void *p, const void *q) {
     return a->y < b->y ? -1 : a->y > b->y;
 }
 
-static int cmp_u32(const void *p, const void *q) {
-    uint32_t a = *(const uint32_t *)p, b = *(const uint32_t *)q;
-    return a < b ? -1 : a > b;
-}
-
 static double choose2(double k) {
     return k * (k - 1) / 2;
-}
-
-/* Sum over the distinct values v of sorted[0..n) of C(count(v), 2). */
-static double sum_choose2_sorted(const uint32_t *s, size_t n) {
-    double t = 0;
-    for (size_t i = 0; i < n;) {
-        size_t j = i;
-        while (j < n && s[j] == s[i]) {
-            j++;
-        }
-        t += choose2((double)(j - i));
-        i = j;
-    }
-    return t;
 }
 
 /* ARI = (sum_ij C(n_ij,2) - A B / C(n,2)) / ((A + B) / 2 - A B / C(n,2)) with
@@ -359,35 +340,51 @@ pm_err_t pm_adjusted_rand(size_t n, const uint32_t *x, const uint32_t *y, double
         *ari = 1.0;
         return PM_OK;
     }
-    label_pair *p = pm_i_malloc(n, sizeof *p);
-    uint32_t *s = pm_i_malloc(n, sizeof *s);
-    if (!p || !s) {
-        free(p);
-        free(s);
+    /* (x, y) and then y as 64-bit keys, radix sorted: the runs give n_ij, a_i and b_j */
+    uint64_t *k = pm_i_malloc(n, sizeof *k);
+    if (!k) {
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
     }
     for (size_t i = 0; i < n; i++) {
-        p[i].x = x[i];
-        p[i].y = y[i];
+        k[i] = (uint64_t)x[i] << 32 | y[i];
     }
-    qsort(p, n, sizeof *p, cmp_pair);
-    double nij = 0;
+    if (pm_i_radix_sort(k, n, sizeof *k)) {
+        free(k);
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
+    double nij = 0, A = 0, B = 0;
     for (size_t i = 0; i < n;) {
         size_t j = i;
-        while (j < n && p[j].x == p[i].x && p[j].y == p[i].y) {
+        while (j < n && k[j] == k[i]) {
             j++;
         }
         nij += choose2((double)(j - i));
         i = j;
     }
-    memcpy(s, x, n * sizeof *s);
-    qsort(s, n, sizeof *s, cmp_u32);
-    double A = sum_choose2_sorted(s, n);
-    memcpy(s, y, n * sizeof *s);
-    qsort(s, n, sizeof *s, cmp_u32);
-    double B = sum_choose2_sorted(s, n);
-    free(p);
-    free(s);
+    for (size_t i = 0; i < n;) {
+        size_t j = i;
+        while (j < n && k[j] >> 32 == k[i] >> 32) {
+            j++;
+        }
+        A += choose2((double)(j - i));
+        i = j;
+    }
+    for (size_t i = 0; i < n; i++) {
+        k[i] = y[i];
+    }
+    if (pm_i_radix_sort(k, n, sizeof *k)) {
+        free(k);
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
+    for (size_t i = 0; i < n;) {
+        size_t j = i;
+        while (j < n && k[j] == k[i]) {
+            j++;
+        }
+        B += choose2((double)(j - i));
+        i = j;
+    }
+    free(k);
     double expected = A * B / choose2((double)n), top = (A + B) / 2;
     if (top == expected) {
         *ari = 1.0; /* both partitions trivial in the same way (see network.h) */

@@ -12,6 +12,7 @@
 #include <sys/mman.h>
 #include <sys/stat.h>
 #include <pthread.h>
+#include <sched.h>
 #include <stdatomic.h>
 #include <unistd.h>
 
@@ -918,8 +919,20 @@ static int hash_mapped(par_hash *h) {
     return 1;
 }
 
+/* Linux's idle scheduling class (sched.h defines it only under _GNU_SOURCE) */
+#ifndef SCHED_IDLE
+#define SCHED_IDLE 5
+#endif
+
 static void *par_hash_main(void *arg) {
     par_hash *h = arg;
+    /* The hash runs in the idle class: it takes the cores the parser leaves free (while the
+     * chunks are appended and the table is finished) rather than a third of two cores from
+     * the parser; it is awaited after the table is finished. Where the class is refused the
+     * thread simply runs at the normal priority. */
+    struct sched_param sp;
+    memset(&sp, 0, sizeof sp);
+    (void)pthread_setschedparam(pthread_self(), SCHED_IDLE, &sp);
     if (hash_mapped(h) && h->failed) {
         return NULL;
     }
@@ -1208,10 +1221,15 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
             pthread_join(th[w], NULL);
         }
     }
-    pthread_join(hth, NULL);
-    int ok = !hj.failed && ch[0].rc == PM_OK && ch[0].rd.started;
+    int ok = ch[0].rc == PM_OK && ch[0].rd.started;
     for (size_t k = 1; k < n && ok; k++) {
         ok = ch[k].ran && ch[k].rc == PM_OK;
+    }
+    int hash_joined = 0;
+    if (!ok) {
+        atomic_store(&ps.stop, 1); /* the hash is not needed */
+        pthread_join(hth, NULL);
+        hash_joined = 1;
     }
     par_rows rows[PAR_MAX];
     memset(rows, 0, sizeof rows);
@@ -1255,9 +1273,6 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
             co->bytes = bytes;
             co->lines = base;
             co->sep_used = ch[0].co.sep_used;
-            if (hj.bytes != bytes) {
-                ok = 0; /* the file changed while it was read */
-            }
         }
         if (ok) { /* merging runs of ids can fail (weights); the serial read says where */
             pm_diag_t fdg;
@@ -1272,10 +1287,22 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
                 }
             }
         }
+        if (!ok) {
+            atomic_store(&ps.stop, 1);
+        }
+        pthread_join(hth, NULL);
+        hash_joined = 1;
+        if (ok && (hj.failed || hj.bytes != bytes)) {
+            ok = 0; /* the file changed while it was read, or could not be hashed */
+        }
         if (ok) {
             t->read_chunks = (unsigned)n;
             result = 1;
         }
+    }
+    if (!hash_joined) {
+        atomic_store(&ps.stop, 1);
+        pthread_join(hth, NULL);
     }
 stop:
     for (size_t k = 1; k < n; k++) {

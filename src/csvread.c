@@ -313,6 +313,29 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
         size_t next_q = 0, next_cr = 0;
         int q_valid = 0, cr_valid = 0;
         for (;;) {
+            if (o->lines_fn && p.pstate == 0 && !st.in_record && pos < have) {
+                if (!q_valid || (next_q != SIZE_MAX && next_q < pos)) {
+                    const char *q = memchr(blk + pos, '"', have - pos);
+                    next_q = q ? (size_t)(q - blk) : SIZE_MAX;
+                    q_valid = 1;
+                }
+                size_t lim = next_q < have ? next_q : have;
+                lim = nul_at < lim ? nul_at : lim;
+                if (lim > pos) {
+                    size_t used = 0;
+                    uint64_t nlines = 0;
+                    rc = o->lines_fn(ud, blk + pos, lim - pos, st.cur_line, o->sep, &used,
+                                     &nlines, diag);
+                    pos += used;
+                    st.cur_line += nlines;
+                    if (used) {
+                        last_nl = 1;
+                    }
+                    if (rc) {
+                        goto done;
+                    }
+                }
+            }
             char *nl = memchr(blk + pos, '\n', have - pos);
             size_t end = nl ? (size_t)(nl - blk) + 1 : (eof ? have : pos);
             if (end == pos) {

@@ -24,6 +24,17 @@ typedef struct {
  * is returned by pm_i_csv_stream (the callback fills diag). */
 typedef pm_err_t (*pm_i_record_fn)(void *ud, const pm_i_record *r, pm_diag_t *diag);
 
+/* Optional reader of many plain lines at once, tried before the record-by-record path:
+ * p[0..len) holds whole lines and maybe a partial last one, with no quote and no NUL byte,
+ * while libcsv holds no partial record; line is the number of the first. It reads lines from
+ * the start for as long as it likes (each to its '\n'), sets *used to their bytes and *nlines
+ * to their number, and stops at any line it does not take (that one and the rest go the usual
+ * way, then it is called again), so it can leave every unusual line (blank, CR inside, spaces
+ * around fields, wrong field count, ...) to the ordinary path and its messages. Its own
+ * errors stop the read like the callback's. */
+typedef pm_err_t (*pm_i_lines_fn)(void *ud, char *p, size_t len, uint64_t line, char sep,
+                                  size_t *used, uint64_t *nlines, pm_diag_t *diag);
+
 typedef struct {
     char sep;             /* 0: detect from the first line among , TAB ; | (default ,) */
     const char *display;  /* file name for messages */
@@ -43,6 +54,8 @@ typedef struct {
     uint64_t start, end;
     /* optional: bytes read by every stream of one file, for progress across threads */
     _Atomic uint64_t *shared_done;
+    /* optional: see pm_i_lines_fn (ud: the record callback's) */
+    pm_i_lines_fn lines_fn;
 } pm_i_csv_opts;
 
 /* Reads fp to its end, calling fn for every record. Errors: PM_EDATA (malformed quoting,

@@ -46,9 +46,16 @@ void pm_i_trim(const char **s, size_t *len) {
     *len = n;
 }
 
+typedef struct pm_i_hash_job par_hash;
+static void hash_job_cancel(par_hash *h);
+
 void pm_table_free(pm_table_t *t) {
     if (!t) {
         return;
+    }
+    if (t->hash_job) {
+        hash_job_cancel(t->hash_job);
+        t->hash_job = NULL;
     }
     free(t->source);
     pm_i_strtab_destroy(&t->resp);
@@ -783,6 +790,92 @@ static pm_err_t on_rec(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     return rd->o->format == PM_FORMAT_LONG ? long_row(rd, r, diag) : lines_row(rd, r, diag);
 }
 
+/* The plain lines of a two-column long file (respondent and item, no category or weight
+ * column, no --drop-item or --merge-items), read without building records: the usual case,
+ * and most of the reading time. Every line it takes has exactly the effect on_rec would give
+ * it; it leaves to on_rec every line that could be different in any way (see pm_i_lines_fn):
+ * a line without its '\n' in p, a CR other than a final CRLF one, a field count other than
+ * two, an empty field, a space or tab at a field's edge (trimmed by the record path), a field
+ * over the length limit, and the lines where the parallel reader must look at the stream. */
+int pm_i_no_fast_lines;
+
+static pm_err_t long_lines(void *ud, char *p, size_t len, uint64_t line, char sep, size_t *used,
+                           uint64_t *nlines, pm_diag_t *diag) {
+    reader *rd = ud;
+    pm_table_t *t = rd->t;
+    *used = 0;
+    *nlines = 0;
+    if (pm_i_no_fast_lines || !rd->started || rd->o->format != PM_FORMAT_LONG || rd->ncols != 2 || rd->cat >= 0 ||
+        rd->weight >= 0 || rd->id == rd->item || rd->id < 0 || rd->id > 1 || t->drop.count ||
+        t->merge_from.count || !t->defer || t->n_anon) {
+        return PM_OK;
+    }
+    if (rd->par && !rd->publisher && par_stopped(rd->par)) {
+        return PM_OK; /* on_rec stops the stream */
+    }
+    uint64_t stop_line = UINT64_MAX;
+    if (rd->par && rd->publisher && !rd->published) {
+        stop_line = PAR_START_LINE; /* on_rec lets the other chunks start there */
+    }
+    const char *end = p + len;
+    const char *cr = memchr(p, '\r', len); /* the next CR, or NULL */
+    char *at = p;
+    const int id_first = rd->id == 0;
+    pm_err_t rc = PM_OK;
+    while (at < end && line < stop_line) {
+        char *nl = memchr(at, '\n', (size_t)(end - at));
+        if (!nl) {
+            break;
+        }
+        char *le = nl;
+        if (cr && cr < nl) {
+            if (cr != nl - 1) {
+                break; /* a CR inside the line: libcsv ends a record there */
+            }
+            le = nl - 1; /* CRLF */
+            cr = nl + 1 < end ? memchr(nl + 1, '\r', (size_t)(end - nl - 1)) : NULL;
+        }
+        char *d = memchr(at, sep, (size_t)(le - at));
+        if (!d || d == at || d + 1 == le || memchr(d + 1, sep, (size_t)(le - d - 1))) {
+            break; /* not two non-empty fields */
+        }
+        const char *f0 = at, *f1 = d + 1;
+        size_t l0 = (size_t)(d - at), l1 = (size_t)(le - d - 1);
+        if (f0[0] == ' ' || f0[0] == '\t' || f0[l0 - 1] == ' ' || f0[l0 - 1] == '\t' ||
+            f1[0] == ' ' || f1[0] == '\t' || f1[l1 - 1] == ' ' || f1[l1 - 1] == '\t' ||
+            l0 > PM_INPUT_MAX_FIELD || l1 > PM_INPUT_MAX_FIELD) {
+            break;
+        }
+        const char *id = id_first ? f0 : f1, *item = id_first ? f1 : f0;
+        size_t idl = id_first ? l0 : l1, iteml = id_first ? l1 : l0;
+        t->stats.records++;
+        uint32_t resp;
+        if (t->last_r >= 0 && idl == t->last_len && same_id(id, t->last_id, idl)) {
+            resp = (uint32_t)t->last_r;
+        } else if ((rc = pm_i_table_respondent(t, id, idl, line, &resp, diag)) != PM_OK) {
+            break;
+        }
+        int64_t it = pm_i_strtab_find(&t->items, item, iteml);
+        if (it < 0 || t->n_rows >= t->rows_cap) {
+            /* a new item or full row arrays: the record path's function does the rest */
+            if ((rc = pm_i_table_add(t, resp, item, iteml, NULL, 0, line, diag)) != PM_OK) {
+                break;
+            }
+        } else {
+            t->row_resp[t->n_rows] = resp;
+            t->row_item[t->n_rows] = (uint32_t)it;
+            t->n_rows++;
+            t->resp_has_item[resp] = 1;
+            t->stats.rows++;
+        }
+        line++;
+        (*nlines)++;
+        at = nl + 1;
+    }
+    *used = (size_t)(at - p);
+    return rc;
+}
+
 /* ==== parallel reading of a regular file ======================================================
  * A long or lines file of some size is cut into chunks at line ends and each chunk is read by
  * its own thread into its own table; the tables are then appended in file order, which gives
@@ -854,6 +947,7 @@ static void par_chunk_run(par_chunk *c) {
     c->rd.t = c->t;
     c->rd.publisher = 0;
     c->rd.started = 1;
+    c->co.lines_fn = long_lines;
     c->rc = pm_i_csv_stream(NULL, &c->co, on_rec, &c->rd, &c->diag);
     if (c->rc) {
         atomic_store(&ps->stop, 1);
@@ -884,13 +978,38 @@ static void *par_worker_main(void *arg) {
     return NULL;
 }
 
-typedef struct {
+/* The hash of the file being read in parallel, on a thread of its own. It may outlive
+ * par_read (pm_input_opts_t.defer_hash): it owns a duplicate of the descriptor. */
+struct pm_i_hash_job {
     int fd;
-    pm_i_sha256 *sha;
-    uint64_t bytes;
+    pm_i_sha256 sha;
+    uint64_t bytes;   /* hashed so far */
+    uint64_t expect;  /* bytes the parser read (set before the job is handed to the table) */
     int failed;
-    par_shared *ps; /* stops early when the read has failed (the hash is not needed then) */
-} par_hash;
+    atomic_int stop;  /* set when the hash is not needed any more */
+    pthread_t th;
+};
+
+static int hash_stopped(par_hash *h) {
+    return atomic_load_explicit(&h->stop, memory_order_relaxed);
+}
+
+/* Joins the job and frees it; 1 when it hashed exactly the expected bytes (into out). */
+static int hash_job_end(par_hash *h, unsigned char out[32]) {
+    pthread_join(h->th, NULL);
+    int ok = !h->failed && h->bytes == h->expect;
+    if (ok && out) {
+        pm_i_sha256_final(&h->sha, out);
+    }
+    close(h->fd);
+    free(h);
+    return ok;
+}
+
+static void hash_job_cancel(par_hash *h) {
+    atomic_store(&h->stop, 1);
+    hash_job_end(h, NULL);
+}
 
 /* The file's bytes are hashed through windows of a read-only mapping (no copy; at most one
  * window resident at a time), by pread when the file cannot be mapped. */
@@ -902,7 +1021,7 @@ static int hash_mapped(par_hash *h) {
     }
     uint64_t size = (uint64_t)st.st_size;
     while (h->bytes < size) {
-        if (par_stopped(h->ps)) {
+        if (hash_stopped(h)) {
             h->failed = 1;
             return 1;
         }
@@ -912,7 +1031,7 @@ static int hash_mapped(par_hash *h) {
             return 0; /* the rest by pread */
         }
         (void)posix_madvise(m, len, POSIX_MADV_SEQUENTIAL);
-        pm_i_sha256_update(h->sha, m, len);
+        pm_i_sha256_update(&h->sha, m, len);
         munmap(m, len);
         h->bytes += len;
     }
@@ -928,8 +1047,8 @@ static void *par_hash_main(void *arg) {
     par_hash *h = arg;
     /* The hash runs in the idle class: it takes the cores the parser leaves free (while the
      * chunks are appended and the table is finished) rather than a third of two cores from
-     * the parser; it is awaited after the table is finished. Where the class is refused the
-     * thread simply runs at the normal priority. */
+     * the parser; it is awaited after the table is finished, or later (defer_hash). Where the
+     * class is refused the thread simply runs at the normal priority. */
     struct sched_param sp;
     memset(&sp, 0, sizeof sp);
     (void)pthread_setschedparam(pthread_self(), SCHED_IDLE, &sp);
@@ -944,7 +1063,7 @@ static void *par_hash_main(void *arg) {
         return NULL;
     }
     for (;;) {
-        if (par_stopped(h->ps)) {
+        if (hash_stopped(h)) {
             h->failed = 1;
             break;
         }
@@ -959,7 +1078,7 @@ static void *par_hash_main(void *arg) {
         if (k == 0) {
             break;
         }
-        pm_i_sha256_update(h->sha, buf, (size_t)k);
+        pm_i_sha256_update(&h->sha, buf, (size_t)k);
         h->bytes += (uint64_t)k;
     }
     free(buf);
@@ -1120,10 +1239,10 @@ done:
 }
 
 /* Tries the parallel read of the regular file fp (size bytes) into t. Returns 1 when it
- * succeeded (t filled, co->bytes, co->lines, sha set), 0 when the caller must read serially
+ * succeeded (t filled, co->bytes, co->lines, the hash set or left to pm_table_wait_hash), 0 when the caller must read serially
  * (nothing of t has changed then), -1 when out of memory (diag set). */
 static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_t *t,
-                    pm_i_csv_opts *co, pm_i_sha256 *sha, pm_diag_t *diag) {
+                    pm_i_csv_opts *co, pm_diag_t *diag) {
     unsigned threads = o->threads;
     if (threads == 0) {
         long n = sysconf(_SC_NPROCESSORS_ONLN);
@@ -1193,11 +1312,18 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
         }
     }
     ps.co0 = &ch[0].co;
-    pm_i_sha256_init(sha);
-    par_hash hj = {fd, sha, 0, 0, &ps};
-    pthread_t hth;
-    int hash_started = pthread_create(&hth, NULL, par_hash_main, &hj) == 0;
-    if (!hash_started) {
+    par_hash *hj = pm_i_calloc(1, sizeof *hj);
+    if (!hj) {
+        goto stop;
+    }
+    hj->fd = dup(fd);
+    pm_i_sha256_init(&hj->sha);
+    atomic_init(&hj->stop, 0);
+    if (hj->fd < 0 || pthread_create(&hj->th, NULL, par_hash_main, hj) != 0) {
+        if (hj->fd >= 0) {
+            close(hj->fd);
+        }
+        free(hj);
         goto stop;
     }
     for (size_t w = 0; w < nworkers; w++) { /* a thread that cannot start: the others read more */
@@ -1209,6 +1335,7 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     ch[0].rd.o = o;
     ch[0].rd.par = &ps;
     ch[0].rd.publisher = 1;
+    ch[0].co.lines_fn = long_lines;
     ch[0].rc = pm_i_csv_stream(NULL, &ch[0].co, on_rec, &ch[0].rd, &ch[0].diag);
     /* a first chunk shorter than PAR_START_LINE lines: the others start now, if it read well */
     par_publish(&ps, &ch[0].rd, ch[0].rc == PM_OK && ch[0].rd.started);
@@ -1225,11 +1352,10 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     for (size_t k = 1; k < n && ok; k++) {
         ok = ch[k].ran && ch[k].rc == PM_OK;
     }
-    int hash_joined = 0;
     if (!ok) {
-        atomic_store(&ps.stop, 1); /* the hash is not needed */
-        pthread_join(hth, NULL);
-        hash_joined = 1;
+        atomic_store(&hj->stop, 1); /* the hash is not needed */
+        hash_job_end(hj, NULL);
+        hj = NULL;
     }
     par_rows rows[PAR_MAX];
     memset(rows, 0, sizeof rows);
@@ -1287,22 +1413,24 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
                 }
             }
         }
+        hj->expect = bytes;
         if (!ok) {
-            atomic_store(&ps.stop, 1);
-        }
-        pthread_join(hth, NULL);
-        hash_joined = 1;
-        if (ok && (hj.failed || hj.bytes != bytes)) {
+            atomic_store(&hj->stop, 1);
+            hash_job_end(hj, NULL);
+        } else if (o->defer_hash) {
+            t->hash_job = hj; /* pm_table_wait_hash finishes it */
+        } else if (!hash_job_end(hj, t->stats.sha256)) {
             ok = 0; /* the file changed while it was read, or could not be hashed */
         }
+        hj = NULL;
         if (ok) {
             t->read_chunks = (unsigned)n;
             result = 1;
         }
     }
-    if (!hash_joined) {
-        atomic_store(&ps.stop, 1);
-        pthread_join(hth, NULL);
+    if (hj) {
+        atomic_store(&hj->stop, 1);
+        hash_job_end(hj, NULL);
     }
 stop:
     for (size_t k = 1; k < n; k++) {
@@ -1311,6 +1439,22 @@ stop:
     pthread_cond_destroy(&ps.cv);
     pthread_mutex_destroy(&ps.mu);
     return result;
+}
+
+pm_err_t pm_table_wait_hash(pm_table_t *t, pm_diag_t *diag) {
+    if (!t->hash_job) {
+        return PM_OK;
+    }
+    par_hash *h = t->hash_job;
+    t->hash_job = NULL;
+    uint64_t hashed = h->bytes, expect = h->expect;
+    if (!hash_job_end(h, t->stats.sha256)) {
+        return pm_diag_set(diag, PM_EIO, t->source, 0,
+                           "the file changed while it was read (%llu bytes read, %llu hashed); "
+                           "run again once it is complete",
+                           (unsigned long long)expect, (unsigned long long)hashed);
+    }
+    return PM_OK;
 }
 
 pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **out,
@@ -1355,7 +1499,7 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
         rc = pm_i_read_wide(fp, o, t, &co, diag);
     } else {
         if (!is_stdin && co.total > 0) {
-            par = par_read(fp, co.total, o, t, &co, &sha, diag);
+            par = par_read(fp, co.total, o, t, &co, diag);
             if (par == 0) { /* read serially from a fresh table */
                 pm_table_free(t);
                 t = NULL;
@@ -1375,6 +1519,7 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
         } else if (par > 0) {
             rd.started = 1;
         } else {
+            co.lines_fn = long_lines;
             rc = pm_i_csv_stream(fp, &co, on_rec, &rd, diag);
         }
         if (rc == PM_OK && !rd.started && co.bytes > 0) { /* not "no data after the header" */
@@ -1391,7 +1536,9 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
     }
     t->stats.bytes = co.bytes;
     t->stats.lines = co.lines;
-    pm_i_sha256_final(&sha, t->stats.sha256);
+    if (par <= 0) { /* a parallel read set it, or left it to pm_table_wait_hash */
+        pm_i_sha256_final(&sha, t->stats.sha256);
+    }
     if (rc == PM_OK && par <= 0) {
         rc = pm_i_table_finish(t, o, diag);
     }

@@ -10,6 +10,10 @@
 /* Invariants: row_resp[i] < resp.count, row_item[i] < items.count; item_cat[i] is a category
  * id or -1; resp_weight[r] is NaN until the respondent's first weighted row. Item names are
  * trimmed, non-empty and valid UTF-8. */
+/* Tests only: set to read every line through the record path (no long_lines fast path), to
+ * check that both give the same table or the same error. */
+extern int pm_i_no_fast_lines;
+
 struct pm_table {
     char *source;
     pm_i_strtab resp;  /* respondent ids (kept only for `reshape`; never in results) */
@@ -50,6 +54,8 @@ struct pm_table {
     int64_t last_r;
     /* how the file was read: 1 serially, else the number of chunks read in parallel */
     unsigned read_chunks;
+    /* a SHA-256 still being computed (pm_input_opts_t.defer_hash), or NULL */
+    struct pm_i_hash_job *hash_job;
 };
 
 /* Creates an empty table for the source display name, with the hygiene options of o loaded

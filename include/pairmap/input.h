@@ -49,6 +49,10 @@ typedef struct {
      * size is read in chunks in parallel; the table is the same for every value. */
     unsigned threads;
     uint64_t chunk_bytes; /* least bytes per chunk of a parallel read (0: 8 MiB; tests) */
+    /* A parallel read may leave the SHA-256 of the file to finish in the background (in the
+     * idle scheduling class, on the cores the later stages leave free): stats.sha256 is then
+     * only set by pm_table_wait_hash, which the caller must call first. */
+    bool defer_hash;
 } pm_input_opts_t;
 
 /* Sets every option to its default. */
@@ -82,6 +86,10 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
 void pm_table_free(pm_table_t *t);
 
 const pm_input_stats_t *pm_table_stats(const pm_table_t *t);
+/* Waits for a SHA-256 left to finish in the background (defer_hash) and sets stats.sha256.
+ * PM_OK at once when there is none; PM_EIO (diag set) when the file changed while it was read
+ * or could not be read again for the hash. */
+pm_err_t pm_table_wait_hash(pm_table_t *t, pm_diag_t *diag);
 /* The name shown in messages ("stdin" for "-"). */
 const char *pm_table_source(const pm_table_t *t);
 bool pm_table_weighted(const pm_table_t *t);

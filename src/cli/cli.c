@@ -526,6 +526,9 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     if (pm_cli_show_progress(c)) {
         io.progress = pm_cli_progress;
     }
+    /* the SHA-256 (only run.json shows it) may finish in the background: map waits for it
+     * before it replaces any output (pm_table_wait_hash); the others never need it */
+    io.defer_hash = true;
     pm_err_t rc = pm_input_read(c->input, &io, table, &d);
     pm_cli_progress_end(c);
     if (rc) {

@@ -628,6 +628,14 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
             pthread_join(th, NULL);
         }
     }
+    /* the input's SHA-256 for run.json, before any output is replaced: a file that changed
+     * while it was read is an error */
+    pm_diag_t hd;
+    pm_diag_clear(&hd);
+    if (!rc && pm_table_wait_hash(s->t, &hd) != PM_OK) {
+        rc = hd.code;
+        d = hd;
+    }
     for (size_t k = 0; k < 4; k++) {
         if (!fps[k]) {
             continue;

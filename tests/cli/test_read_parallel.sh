@@ -79,4 +79,24 @@ same_out quoted items "$TMP/quoted.csv" --category-col category
 [ "$st" = 0 ] || fail "a quoted multi-line item across the cut: exit $st, expected 0"
 grep -q '^"Dish' "$TMP/quoted.1" || fail "the multi-line item is not listed"
 
+# two columns only (respondent, item): the fast reader of plain lines; `map` on two threads
+# leaves the SHA-256 to finish in the background, and run.json must still hold the file's own
+# (sha256sum from coreutils); the maps of one and two threads are the same files
+cut -d, -f1,2 "$TMP/long.csv" >"$TMP/two.csv"
+same_out two pairs "$TMP/two.csv" --min-count 1 --max-q 1
+[ "$st" = 0 ] || fail "pairs on the two-column file exited $st"
+CASES=$((CASES + 1))
+for t in 1 2; do
+    "$PAIRMAP" map "$TMP/two.csv" -o "$TMP/map$t" --threads "$t" --quiet >/dev/null 2>"$TMP/map$t.err" ||
+        fail "map --threads $t on the two-column file failed: $(cat "$TMP/map$t.err")"
+done
+want="$(sha256sum "$TMP/two.csv" | cut -d' ' -f1)"
+for t in 1 2; do
+    grep -q "\"sha256\": \"$want\"" "$TMP/map$t/run.json" ||
+        fail "run.json of --threads $t lacks the file's SHA-256 $want"
+done
+for f in map.graphml map.svg edges.csv nodes.csv; do
+    cmp -s "$TMP/map1/$f" "$TMP/map2/$f" || fail "$f differs between --threads 1 and 2"
+done
+
 finish

@@ -78,6 +78,23 @@ static pm_err_t rd_run(rd *r, const char *text) {
         assert_null(r->t); /* a failed read hands back nothing */
         assert_int_equal(r->d.code, rc);
     }
+    if (r->o.format != PM_FORMAT_WIDE) {
+        /* every line through the record path: the same table or the same error */
+        pm_table_t *st = NULL;
+        pm_diag_t sd;
+        pm_diag_clear(&sd);
+        pm_i_no_fast_lines = 1;
+        pm_err_t src = pm_input_read(r->path, &r->o, &st, &sd);
+        pm_i_no_fast_lines = 0;
+        assert_int_equal(src, rc);
+        if (rc == PM_OK) {
+            same_table(r->t, st);
+        } else {
+            assert_int_equal(sd.line, r->d.line);
+            assert_string_equal(sd.msg, r->d.msg);
+        }
+        pm_table_free(st);
+    }
     static const unsigned threads[3] = {2, 3, 16};
     for (int k = 0; k < 3 && r->o.format != PM_FORMAT_WIDE; k++) {
         pm_input_opts_t po = r->o;
@@ -86,9 +103,11 @@ static pm_err_t rd_run(rd *r, const char *text) {
         pm_table_t *pt = NULL;
         pm_diag_t pd;
         pm_diag_clear(&pd);
+        po.defer_hash = k == 1; /* the hash finished in the background: the same bytes */
         pm_err_t prc = pm_input_read(r->path, &po, &pt, &pd);
         assert_int_equal(prc, rc);
         if (rc == PM_OK) {
+            assert_int_equal(pm_table_wait_hash(pt, &pd), PM_OK);
             same_table(r->t, pt);
             /* a file without quotes and with a few lines is really read in chunks */
             size_t lines = 0;
@@ -629,6 +648,131 @@ static void test_input_read_alloc_failure(void **state) {
     unit_rmfile(merge);
 }
 
+/* A two-column file of some megabytes (so that reads cross the 1 MiB block edge many times)
+ * with every kind of line the fast reader of plain lines (long_lines) must leave to the
+ * record path mixed among ordinary ones: CRLF ends, spaces and tabs around fields, blank
+ * lines, quoted fields (with the delimiter inside), empty items, ids of 8, 16 and 17 bytes,
+ * respondents coming back after others, items first seen late, and no final newline. rd_run
+ * reads it with and without the fast path and in parallel chunks: the same table each time.
+ * Then single defects far into the file: the same error, on the same line, every way. */
+static char *messy_text(uint64_t seed, size_t lines, const char *defect, size_t defect_at,
+                        long *defect_line, int swap) {
+    unit_rng g = {seed};
+    size_t cap = lines * 64 + 256, n = 0;
+    char *s = malloc(cap);
+    assert_non_null(s);
+    n += (size_t)snprintf(s + n, cap - n, swap ? "item,respondent\n" : "respondent,item\n");
+    unsigned resp = 0;
+    for (size_t i = 0; i < lines; i++) {
+        if (i == defect_at && defect) {
+            long nl = 1;
+            for (size_t k = 0; k < n; k++) {
+                nl += s[k] == '\n';
+            }
+            *defect_line = nl;
+            n += (size_t)snprintf(s + n, cap - n, "%s", defect);
+            continue;
+        }
+        if (unit_below(&g, 6) == 0) {
+            resp++;
+        }
+        unsigned r = unit_below(&g, 200) == 0 ? (unsigned)unit_below(&g, resp + 1) : resp;
+        unsigned it = (unsigned)(unit_below(&g, 40) * unit_below(&g, 40));
+        if (i > lines / 2 && unit_below(&g, 50) == 0) {
+            it += 5000; /* items first seen late in the file */
+        }
+        char id[64], item[64];
+        unsigned w = (unsigned)unit_below(&g, 20);
+        if (w == 0) {
+            snprintf(id, sizeof id, "r%07u", r); /* 8 bytes */
+        } else if (w == 1) {
+            snprintf(id, sizeof id, "respondent-%05u", r); /* 16 bytes */
+        } else if (w == 2) {
+            snprintf(id, sizeof id, "respondent-%06u", r); /* 17 bytes */
+        } else {
+            snprintf(id, sizeof id, "c%u", r);
+        }
+        snprintf(item, sizeof item, "dish %u", it);
+        if (swap) { /* the item column first (named in the header): the fields trade places */
+            char tmp[64];
+            memcpy(tmp, id, sizeof tmp);
+            memcpy(id, item, sizeof tmp);
+            memcpy(item, tmp, sizeof tmp);
+        }
+        unsigned kind = (unsigned)unit_below(&g, 400);
+        const char *end = "\n";
+        switch (kind) {
+        case 0: n += (size_t)snprintf(s + n, cap - n, " %s,%s", id, item); break;
+        case 1: n += (size_t)snprintf(s + n, cap - n, "%s ,%s", id, item); break;
+        case 2: n += (size_t)snprintf(s + n, cap - n, "%s,\t%s", id, item); break;
+        case 3: n += (size_t)snprintf(s + n, cap - n, "%s,%s  ", id, item); break;
+        case 4: n += (size_t)snprintf(s + n, cap - n, "%s,\"%s, large\"", id, item); break;
+        case 5: n += (size_t)snprintf(s + n, cap - n, "\n%s,%s", id, item); break; /* blank */
+        case 6: /* an empty item */
+            n += (size_t)(swap ? snprintf(s + n, cap - n, ",%s", item)
+                               : snprintf(s + n, cap - n, "%s,", id));
+            break;
+        case 7: n += (size_t)snprintf(s + n, cap - n, "%s,%s\tx", id, item); break;
+        default: n += (size_t)snprintf(s + n, cap - n, "%s,%s", id, item); break;
+        }
+        if (kind >= 8 && kind < 40) {
+            end = "\r\n";
+        }
+        if (i + 1 < lines) {
+            n += (size_t)snprintf(s + n, cap - n, "%s", end);
+        }
+        assert_true(n + 128 < cap);
+    }
+    return s;
+}
+
+static void test_input_read_plain_lines_fast(void **state) {
+    (void)state;
+    rd r;
+    for (int swap = 0; swap <= 1; swap++) {
+        rd_init(&r);
+        if (swap) {
+            r.o.id_col = "respondent";
+            r.o.item_col = "item";
+        }
+        char *text = messy_text(41, 220000, NULL, 0, NULL, swap);
+        assert_true(strlen(text) > 3000000);
+        assert_int_equal(rd_run(&r, text), PM_OK);
+        const pm_input_stats_t *st = pm_table_stats(r.t);
+        assert_true(st->empty_items > 100);
+        print_message("swap %d: %zu items, %zu respondents\n", swap, pm_table_nitems(r.t), pm_table_nrespondents(r.t));
+        assert_true(pm_table_nitems(r.t) > 500);
+        rd_done(&r);
+        free(text);
+    }
+    char *text;
+    /* defects after a million bytes of plain lines: the record path's error, same line */
+    static const struct {
+        const char *line;
+        const char *msg;
+    } bad[] = {
+        {"r1,dish 1,extra\n", "found 3 fields"},
+        {",dish 1\n", "empty respondent id"},
+        {"r1\rdish 1\n", NULL},
+        {"r1,dish \xff\n", "invalid UTF-8"},
+    };
+    for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++) {
+        rd_init(&r);
+        long at = 0;
+        text = messy_text(43 + k, 200000, bad[k].line, 150000, &at, 0);
+        pm_err_t rc = rd_run(&r, text);
+        assert_int_equal(rc, PM_EDATA);
+        if (bad[k].msg) {
+            assert_int_equal(r.d.line, at);
+            if (!strstr(r.d.msg, bad[k].msg)) {
+                fail_msg("message '%s' lacks '%s'", r.d.msg, bad[k].msg);
+            }
+        }
+        rd_done(&r);
+        free(text);
+    }
+}
+
 static const struct CMUnitTest tests[] = {
     cmocka_unit_test(test_input_read_long_basic),
     cmocka_unit_test(test_input_read_long_bom_crlf_semicolon),
@@ -647,6 +791,7 @@ static const struct CMUnitTest tests[] = {
     cmocka_unit_test(test_input_read_lines),
     cmocka_unit_test(test_input_read_errors),
     cmocka_unit_test(test_input_read_alloc_failure),
+    cmocka_unit_test(test_input_read_plain_lines_fast),
 };
 
 UNIT_MAIN("input", tests)

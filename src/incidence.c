@@ -165,6 +165,54 @@ done:
     return rc;
 }
 
+/* The rows of a table whose respondents come in order, one run each: phase 0 maps the items
+ * to canonical indices (col) and tells whether each chunk's rows are in respondent order,
+ * also across its first edge; phase 1 sets the row pointers of the respondents whose run
+ * starts in the chunk (and of the respondents without rows before them; the chunk holding
+ * the last row sets those after it too). */
+typedef struct {
+    const pm_table_t *t;
+    const uint32_t *rank;
+    pm_incidence_t *inc;
+    size_t nr;
+    int phase;
+    unsigned char *ungrouped; /* per chunk (phase 0) */
+    size_t nchunks;
+} scatter_job;
+
+static int scatter_chunk(void *ud, size_t c, unsigned th) {
+    (void)th;
+    scatter_job *j = ud;
+    const pm_table_t *t = j->t;
+    size_t n = t->n_rows, k0 = n * c / j->nchunks, k1 = n * (c + 1) / j->nchunks;
+    const uint32_t *rr = t->row_resp;
+    if (j->phase == 0) {
+        int bad = 0;
+        for (size_t k = k0; k < k1; k++) {
+            j->inc->col[k] = j->rank[t->row_item[k]];
+            bad |= k > 0 && rr[k] < rr[k - 1];
+        }
+        j->ungrouped[c] = (unsigned char)bad;
+        return 0;
+    }
+    uint64_t *rp = j->inc->row_ptr;
+    for (size_t k = k0; k < k1; k++) {
+        if (k == 0 || rr[k] != rr[k - 1]) {
+            size_t from = k == 0 ? 0 : (size_t)rr[k - 1] + 1;
+            for (size_t r = from; r <= rr[k]; r++) {
+                rp[r] = k;
+            }
+        }
+    }
+    if (k1 == n) {
+        size_t from = n == 0 ? 0 : (size_t)rr[n - 1] + 1;
+        for (size_t r = from; r <= j->nr; r++) {
+            rp[r] = n;
+        }
+    }
+    return 0;
+}
+
 pm_err_t pm_incidence_build(const pm_table_t *t, pm_incidence_t **out, pm_diag_t *diag) {
     return pm_incidence_build_threads(t, 1, out, diag);
 }
@@ -231,20 +279,35 @@ pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_in
         }
     }
     /* counting sort of rows by respondent; when every respondent's rows are together and in
-     * order (one run each: the usual file), the sort is the identity */
-    int grouped = 1;
-    for (size_t k = 0; k < t->n_rows; k++) {
-        inc->row_ptr[t->row_resp[k] + 1]++;
-        grouped &= k == 0 || t->row_resp[k] >= t->row_resp[k - 1];
+     * order (one run each: the usual file), the sort is the identity, and the row pointers
+     * are where the respondent changes: both on all threads */
+    scatter_job sj = {t, rank, inc, nr, 0, NULL, 1};
+    sj.nchunks = t->n_rows < 65536 || threads < 2 ? 1 : 16 * (size_t)threads;
+    sj.ungrouped = pm_i_calloc(sj.nchunks, 1);
+    if (!sj.ungrouped) {
+        rc = PM_ENOMEM;
+        goto cleanup;
     }
-    for (size_t r = 0; r < nr; r++) {
-        inc->row_ptr[r + 1] += inc->row_ptr[r];
-    }
-    if (grouped) {
-        for (size_t k = 0; k < t->n_rows; k++) {
-            inc->col[k] = rank[t->row_item[k]];
+    int grouped = 0;
+    if (pm_i_parallel(sj.nchunks > 1 ? threads : 1, sj.nchunks, scatter_chunk, &sj) == 0) {
+        grouped = 1;
+        for (size_t c = 0; c < sj.nchunks; c++) {
+            grouped &= !sj.ungrouped[c];
         }
-    } else {
+    }
+    free(sj.ungrouped);
+    if (grouped) {
+        sj.phase = 1;
+        grouped = pm_i_parallel(sj.nchunks > 1 ? threads : 1, sj.nchunks, scatter_chunk, &sj) == 0;
+    }
+    if (!grouped) {
+        memset(inc->row_ptr, 0, (nr + 1) * sizeof *inc->row_ptr);
+        for (size_t k = 0; k < t->n_rows; k++) {
+            inc->row_ptr[t->row_resp[k] + 1]++;
+        }
+        for (size_t r = 0; r < nr; r++) {
+            inc->row_ptr[r + 1] += inc->row_ptr[r];
+        }
         uint64_t *fill = pm_i_malloc(nr ? nr : 1, sizeof *fill);
         if (!fill) {
             rc = PM_ENOMEM;

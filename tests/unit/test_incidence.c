@@ -358,6 +358,65 @@ static void test_incidence_build_alloc_failure(void **state) {
     unit_rmfile(path);
 }
 
+/* The build on several threads (the item mapping, the grouped check and the row pointers in
+ * chunks) gives the one-thread incidence exactly: files of 100,000 rows with respondents in
+ * order (some with no item at all, before the first row, in the middle and at the end) and
+ * with respondents coming back later (the counting-sort path), duplicates included. */
+static void test_incidence_build_threads_identical(void **state) {
+    (void)state;
+    for (int ungrouped = 0; ungrouped <= 1; ungrouped++) {
+        unit_rng g = {7 + (uint64_t)ungrouped};
+        size_t cap = 4u << 20, len = 0;
+        char *text = malloc(cap);
+        assert_non_null(text);
+        len += (size_t)snprintf(text, cap, "o,item\nfirst-empty,\n");
+        unsigned r = 0;
+        for (int k = 0; k < 100000; k++) {
+            if (unit_below(&g, 3) == 0) {
+                r++;
+            }
+            unsigned who = ungrouped && unit_below(&g, 50) == 0 ? (unsigned)unit_below(&g, r + 1) : r;
+            if (unit_below(&g, 400) == 0) {
+                len += (size_t)snprintf(text + len, cap - len, "e%u,\n", who); /* no item */
+            } else {
+                len += (size_t)snprintf(text + len, cap - len, "r%u,i%03u\n", who,
+                                        (unsigned)(unit_below(&g, 30) * unit_below(&g, 30)));
+            }
+            assert_true(len + 64 < cap);
+        }
+        len += (size_t)snprintf(text + len, cap - len, "last-empty,\n");
+        char *path = unit_tmpfile_str(text);
+        free(text);
+        pm_input_opts_t o;
+        pm_input_opts_init(&o);
+        pm_table_t *t = NULL;
+        pm_diag_t d;
+        pm_diag_clear(&d);
+        assert_int_equal(pm_input_read(path, &o, &t, &d), PM_OK);
+        pm_incidence_t *ref = NULL;
+        assert_int_equal(pm_incidence_build_threads(t, 1, &ref, &d), PM_OK);
+        check_invariants(ref);
+        static const unsigned th[] = {2, 3, 7};
+        for (size_t k = 0; k < 3; k++) {
+            pm_incidence_t *inc = NULL;
+            assert_int_equal(pm_incidence_build_threads(t, th[k], &inc, &d), PM_OK);
+            assert_int_equal(inc->n_resp, ref->n_resp);
+            assert_int_equal(inc->n_items, ref->n_items);
+            assert_memory_equal(inc->row_ptr, ref->row_ptr, (ref->n_resp + 1) * sizeof *inc->row_ptr);
+            assert_memory_equal(inc->col, ref->col, ref->row_ptr[ref->n_resp] * sizeof *inc->col);
+            assert_memory_equal(inc->count, ref->count, ref->n_items * sizeof *inc->count);
+            assert_int_equal(inc->duplicates, ref->duplicates);
+            assert_int_equal(inc->single_item, ref->single_item);
+            assert_int_equal(inc->no_item, ref->no_item);
+            pm_incidence_free(inc);
+        }
+        assert_true(ref->no_item > 100 && ref->duplicates > 100);
+        pm_incidence_free(ref);
+        pm_table_free(t);
+        unit_rmfile(path);
+    }
+}
+
 static const struct CMUnitTest tests[] = {
     cmocka_unit_test(test_incidence_build_canonical_order),
     cmocka_unit_test(test_incidence_build_row_order_invariant),
@@ -366,6 +425,7 @@ static const struct CMUnitTest tests[] = {
     cmocka_unit_test(test_incidence_build_weighted_sums),
     cmocka_unit_test(test_incidence_build_weighted_random),
     cmocka_unit_test(test_incidence_build_alloc_failure),
+    cmocka_unit_test(test_incidence_build_threads_identical),
 };
 
 UNIT_MAIN("incidence", tests)

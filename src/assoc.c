@@ -497,6 +497,7 @@ typedef struct {
     const double *lf;
     double neff;
     size_t per;
+    int skip_mean; /* as prune_ctx: such pairs get p = +INFINITY (above any q limit) */
 } pjob;
 
 static int p_chunk(void *ud, size_t c, unsigned th) {
@@ -504,8 +505,17 @@ static int p_chunk(void *ud, size_t c, unsigned th) {
     pjob *j = ud;
     pm_pairs_t *pp = j->pp;
     size_t b = c * j->per, e = b + j->per < pp->n ? b + j->per : pp->n;
+    const pm_incidence_t *inc = j->inc;
     for (size_t k = b; k < e; k++) {
-        pp->p[k] = pair_p(j->lf, j->inc, pp->sign, j->neff, pp->a[k], pp->b[k], pp->n_ab[k],
+        uint64_t na = inc->count[pp->a[k]], nb = inc->count[pp->b[k]];
+        if (j->skip_mean && at_most_expected(inc->N, na, nb, pp->n_ab[k])) {
+            /* p >= 1/2, above the q limit: not computed (the pair is never shown: not
+             * positive), only counted in the family */
+            pp->p[k] = INFINITY;
+            pp->test[k] = min_expected(inc->N, na, nb) < 5 ? PM_TEST_FISHER : PM_TEST_CHI2;
+            continue;
+        }
+        pp->p[k] = pair_p(j->lf, inc, pp->sign, j->neff, pp->a[k], pp->b[k], pp->n_ab[k],
                           pp->w_ab ? pp->w_ab[k] : 0, &pp->test[k]);
     }
     return 0;
@@ -851,7 +861,7 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
     pm_counts_free(cnt);
     cnt = NULL;
     {
-        pjob j = {pp, inc, lf, neff, 4096};
+        pjob j = {pp, inc, lf, neff, 4096, pc.skip_mean};
         size_t nch = (pp->n + j.per - 1) / j.per;
         if (pm_i_parallel(threads, nch, p_chunk, &j) != 0) {
             rc = PM_EINTERNAL;

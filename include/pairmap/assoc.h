@@ -65,7 +65,9 @@ typedef struct {
     /* q-values are exact where they are at most q_limit (default 1: everywhere). Below 1, a
      * caller that only ever uses pairs with q <= q_limit (a --max-q of the same value) saves
      * the sorting of every larger p-value: they are counted as hypotheses, not ranked, and
-     * pairs whose q exceeds q_limit get some q > q_limit (+INFINITY where p > q_limit). */
+     * pairs whose q exceeds q_limit get some q > q_limit (+INFINITY where p > q_limit). Under
+     * a limit below 0.49 with sign positive, a listed pair seen no more often than expected
+     * (not positive, p >= 1/2) gets p = q = +INFINITY: its p-value is not computed. */
     double q_limit;
     pm_progress_fn progress;
     void *progress_ud;

@@ -3,8 +3,8 @@
 
 #include <float.h>
 #include <gsl/gsl_cdf.h>
+#include <gsl/gsl_randist.h>
 #include <gsl/gsl_errno.h>
-#include <gsl/gsl_roots.h>
 #include <gsl/gsl_sf_gamma.h>
 #include <limits.h>
 #include <math.h>
@@ -284,30 +284,42 @@ static double beta_gap(double x, void *v) {
     return c - q->p;
 }
 
-/* p-quantile of Beta(a, b) by Brent's method on gsl_cdf_beta_P (gsl_cdf_beta_Pinv returns NaN
- * or spins at basket sizes: API-NOTES.md). */
+/* p-quantile of Beta(a, b): Newton's method on gsl_cdf_beta_P with GSL's density as the
+ * slope, from the normal approximation, kept inside a bracket of the root that every step
+ * narrows (a step that would leave it bisects instead), to a relative step of 2 ulp.
+ * (gsl_cdf_beta_Pinv returns NaN or spins at basket sizes: API-NOTES.md.) About 9 CDF
+ * evaluations where Brent's method on [0, 1] took some 30 (measured on 39,000 random
+ * intervals of up to 5 million respondents: the two agree to 6e-13 relative); against
+ * scipy.stats.beta.ppf the largest deviation in tests/ref/jeffreys.py stays 1.8e-11, as it
+ * was with Brent's method. */
 static double beta_quantile(double p, double a, double b) {
     beta_q q = {a, b, p};
-    gsl_function F = {beta_gap, &q};
-    gsl_root_fsolver *s = gsl_root_fsolver_alloc(gsl_root_fsolver_brent);
-    if (!s) {
-        return NAN;
+    double lo = 0.0, hi = 1.0;
+    double s = a + b, mu = a / s, sd = sqrt(mu * (1 - mu) / (s + 1));
+    double x = mu + gsl_cdf_ugaussian_Pinv(p) * sd;
+    if (!(x > 0 && x < 1)) {
+        x = mu;
     }
-    double r = NAN;
-    if (gsl_root_fsolver_set(s, &F, 0.0, 1.0) == GSL_SUCCESS) {
-        for (int i = 0; i < 300; i++) {
-            if (gsl_root_fsolver_iterate(s) != GSL_SUCCESS) {
-                break;
-            }
-            r = gsl_root_fsolver_root(s);
-            double xl = gsl_root_fsolver_x_lower(s), xu = gsl_root_fsolver_x_upper(s);
-            if (gsl_root_test_interval(xl, xu, 0, 1e-15) == GSL_SUCCESS) {
-                break;
-            }
+    for (int i = 0; i < 400; i++) {
+        double g = beta_gap(x, &q);
+        if (g == 0) {
+            return x;
         }
+        if (g < 0) {
+            lo = x;
+        } else {
+            hi = x;
+        }
+        double xn = x - g / gsl_ran_beta_pdf(x, a, b);
+        if (!(xn > lo && xn < hi)) { /* also NaN and infinities */
+            xn = lo + (hi - lo) / 2;
+        }
+        if (fabs(xn - x) <= 2 * DBL_EPSILON * fabs(x) || hi - lo <= 2 * DBL_EPSILON * fabs(x)) {
+            return xn;
+        }
+        x = xn;
     }
-    gsl_root_fsolver_free(s);
-    return r;
+    return x;
 }
 
 void pm_assoc_jeffreys(double x, double n, double alpha, double *lo, double *hi) {

@@ -14,6 +14,7 @@
 #include <pthread.h>
 #include <sched.h>
 #include <stdatomic.h>
+#include <time.h>
 #include <unistd.h>
 
 void pm_input_opts_init(pm_input_opts_t *o) {
@@ -798,6 +799,7 @@ static pm_err_t on_rec(void *ud, const pm_i_record *r, pm_diag_t *diag) {
  * two, an empty field, a space or tab at a field's edge (trimmed by the record path), a field
  * over the length limit, and the lines where the parallel reader must look at the stream. */
 int pm_i_no_fast_lines;
+int pm_i_hash_stall;
 
 static pm_err_t long_lines(void *ud, char *p, size_t len, uint64_t line, char sep, size_t *used,
                            uint64_t *nlines, pm_diag_t *diag) {
@@ -982,60 +984,107 @@ static void *par_worker_main(void *arg) {
  * par_read (pm_input_opts_t.defer_hash): it owns a duplicate of the descriptor. */
 struct pm_i_hash_job {
     int fd;
-    pm_i_sha256 sha;
-    uint64_t bytes;   /* hashed so far */
     uint64_t expect;  /* bytes the parser read (set before the job is handed to the table) */
+    atomic_int stop;  /* set when the hash is not needed any more, or taken over */
+    atomic_int done;  /* set by the thread once sha, bytes and failed are final */
+    atomic_int refs;  /* the thread's and the owner's: the last one frees the job */
+    pm_i_sha256 sha;  /* the thread's */
+    uint64_t bytes;   /* hashed by the thread */
     int failed;
-    atomic_int stop;  /* set when the hash is not needed any more */
-    pthread_t th;
 };
 
-static int hash_stopped(par_hash *h) {
-    return atomic_load_explicit(&h->stop, memory_order_relaxed);
+static void hash_job_unref(par_hash *h) {
+    if (atomic_fetch_sub(&h->refs, 1) == 1) {
+        close(h->fd);
+        free(h);
+    }
 }
 
-/* Joins the job and frees it; 1 when it hashed exactly the expected bytes (into out). */
-static int hash_job_end(par_hash *h, unsigned char out[32]) {
-    pthread_join(h->th, NULL);
-    int ok = !h->failed && h->bytes == h->expect;
-    if (ok && out) {
-        pm_i_sha256_final(&h->sha, out);
+/* Hashes the file fd from its start to its end into sha; *bytes gets the count. Stops, and
+ * returns -1, when stop is set (may be NULL); -1 too on a read error; else 0. The bytes go
+ * through windows of a read-only mapping (no copy; at most one window resident at a time),
+ * the rest (a file that grew, or no mapping) by pread. */
+#define HASH_WINDOW ((size_t)4 << 20)
+static int hash_file(int fd, atomic_int *stop, pm_i_sha256 *sha, uint64_t *bytes) {
+    pm_i_sha256_init(sha);
+    *bytes = 0;
+    struct stat st;
+    if (fstat(fd, &st) == 0 && S_ISREG(st.st_mode)) {
+        uint64_t size = (uint64_t)st.st_size;
+        while (*bytes < size) {
+            if (stop && atomic_load_explicit(stop, memory_order_relaxed)) {
+                return -1;
+            }
+            size_t len = size - *bytes < HASH_WINDOW ? (size_t)(size - *bytes) : HASH_WINDOW;
+            void *m = mmap(NULL, len, PROT_READ, MAP_PRIVATE, fd, (off_t)*bytes);
+            if (m == MAP_FAILED) {
+                break;
+            }
+            (void)posix_madvise(m, len, POSIX_MADV_SEQUENTIAL);
+            pm_i_sha256_update(sha, m, len);
+            munmap(m, len);
+            *bytes += len;
+        }
     }
-    close(h->fd);
-    free(h);
+    size_t cap = 1u << 20;
+    char *buf = malloc(cap);
+    if (!buf) {
+        return -1;
+    }
+    int rc = 0;
+    for (;;) {
+        if (stop && atomic_load_explicit(stop, memory_order_relaxed)) {
+            rc = -1;
+            break;
+        }
+        ssize_t k = pread(fd, buf, cap, (off_t)*bytes);
+        if (k < 0 && errno == EINTR) {
+            continue;
+        }
+        if (k < 0) {
+            rc = -1;
+            break;
+        }
+        if (k == 0) {
+            break;
+        }
+        pm_i_sha256_update(sha, buf, (size_t)k);
+        *bytes += (uint64_t)k;
+    }
+    free(buf);
+    return rc;
+}
+
+/* Ends the job: 1 when the file hashed to exactly the expected bytes (digest into out, may be
+ * NULL). A thread that is done gives its result; one still at work (in the idle class it may
+ * get no processor for long on a busy machine) is told to stop, and the file is hashed here
+ * instead: waiting for it is never needed. */
+static int hash_job_end(par_hash *h, unsigned char out[32], uint64_t *hashed) {
+    int ok;
+    *hashed = 0;
+    if (atomic_load_explicit(&h->done, memory_order_acquire)) {
+        *hashed = h->bytes;
+        ok = !h->failed && h->bytes == h->expect;
+        if (ok && out) {
+            pm_i_sha256_final(&h->sha, out);
+        }
+    } else {
+        atomic_store(&h->stop, 1);
+        pm_i_sha256 own;
+        uint64_t bytes = 0;
+        ok = !out || (hash_file(h->fd, NULL, &own, &bytes) == 0 && bytes == h->expect);
+        *hashed = bytes;
+        if (ok && out) {
+            pm_i_sha256_final(&own, out);
+        }
+    }
+    hash_job_unref(h);
     return ok;
 }
 
 static void hash_job_cancel(par_hash *h) {
     atomic_store(&h->stop, 1);
-    hash_job_end(h, NULL);
-}
-
-/* The file's bytes are hashed through windows of a read-only mapping (no copy; at most one
- * window resident at a time), by pread when the file cannot be mapped. */
-#define HASH_WINDOW ((size_t)4 << 20)
-static int hash_mapped(par_hash *h) {
-    struct stat st;
-    if (fstat(h->fd, &st) != 0 || !S_ISREG(st.st_mode)) {
-        return 0;
-    }
-    uint64_t size = (uint64_t)st.st_size;
-    while (h->bytes < size) {
-        if (hash_stopped(h)) {
-            h->failed = 1;
-            return 1;
-        }
-        size_t len = size - h->bytes < HASH_WINDOW ? (size_t)(size - h->bytes) : HASH_WINDOW;
-        void *m = mmap(NULL, len, PROT_READ, MAP_PRIVATE, h->fd, (off_t)h->bytes);
-        if (m == MAP_FAILED) {
-            return 0; /* the rest by pread */
-        }
-        (void)posix_madvise(m, len, POSIX_MADV_SEQUENTIAL);
-        pm_i_sha256_update(&h->sha, m, len);
-        munmap(m, len);
-        h->bytes += len;
-    }
-    return 1;
+    hash_job_unref(h);
 }
 
 /* Linux's idle scheduling class (sched.h defines it only under _GNU_SOURCE) */
@@ -1046,42 +1095,19 @@ static int hash_mapped(par_hash *h) {
 static void *par_hash_main(void *arg) {
     par_hash *h = arg;
     /* The hash runs in the idle class: it takes the cores the parser leaves free (while the
-     * chunks are appended and the table is finished) rather than a third of two cores from
-     * the parser; it is awaited after the table is finished, or later (defer_hash). Where the
-     * class is refused the thread simply runs at the normal priority. */
+     * chunks are appended and the table is finished, and later: defer_hash) rather than a
+     * third of two cores from the parser. Where the class is refused the thread simply runs
+     * at the normal priority. */
     struct sched_param sp;
     memset(&sp, 0, sizeof sp);
     (void)pthread_setschedparam(pthread_self(), SCHED_IDLE, &sp);
-    if (hash_mapped(h) && h->failed) {
-        return NULL;
+    while (pm_i_hash_stall && !atomic_load(&h->stop)) {
+        struct timespec ms = {0, 1000000};
+        nanosleep(&ms, NULL);
     }
-    /* then whatever is left (a file that grew, or no mapping) by pread */
-    size_t cap = 1u << 20;
-    char *buf = malloc(cap);
-    if (!buf) {
-        h->failed = 1;
-        return NULL;
-    }
-    for (;;) {
-        if (hash_stopped(h)) {
-            h->failed = 1;
-            break;
-        }
-        ssize_t k = pread(h->fd, buf, cap, (off_t)h->bytes);
-        if (k < 0 && errno == EINTR) {
-            continue;
-        }
-        if (k < 0) {
-            h->failed = 1;
-            break;
-        }
-        if (k == 0) {
-            break;
-        }
-        pm_i_sha256_update(&h->sha, buf, (size_t)k);
-        h->bytes += (uint64_t)k;
-    }
-    free(buf);
+    h->failed = hash_file(h->fd, &h->stop, &h->sha, &h->bytes) != 0;
+    atomic_store_explicit(&h->done, 1, memory_order_release);
+    hash_job_unref(h);
     return NULL;
 }
 
@@ -1317,15 +1343,18 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
         goto stop;
     }
     hj->fd = dup(fd);
-    pm_i_sha256_init(&hj->sha);
     atomic_init(&hj->stop, 0);
-    if (hj->fd < 0 || pthread_create(&hj->th, NULL, par_hash_main, hj) != 0) {
+    atomic_init(&hj->done, 0);
+    atomic_init(&hj->refs, 2);
+    pthread_t hth;
+    if (hj->fd < 0 || pthread_create(&hth, NULL, par_hash_main, hj) != 0) {
         if (hj->fd >= 0) {
             close(hj->fd);
         }
         free(hj);
         goto stop;
     }
+    pthread_detach(hth); /* never joined: see hash_job_end */
     for (size_t w = 0; w < nworkers; w++) { /* a thread that cannot start: the others read more */
         started[w] = pthread_create(&th[w], NULL, par_worker_main, &pool) == 0;
     }
@@ -1353,8 +1382,7 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
         ok = ch[k].ran && ch[k].rc == PM_OK;
     }
     if (!ok) {
-        atomic_store(&hj->stop, 1); /* the hash is not needed */
-        hash_job_end(hj, NULL);
+        hash_job_cancel(hj); /* the hash is not needed */
         hj = NULL;
     }
     par_rows rows[PAR_MAX];
@@ -1414,12 +1442,12 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
             }
         }
         hj->expect = bytes;
+        uint64_t hashed;
         if (!ok) {
-            atomic_store(&hj->stop, 1);
-            hash_job_end(hj, NULL);
+            hash_job_cancel(hj);
         } else if (o->defer_hash) {
             t->hash_job = hj; /* pm_table_wait_hash finishes it */
-        } else if (!hash_job_end(hj, t->stats.sha256)) {
+        } else if (!hash_job_end(hj, t->stats.sha256, &hashed)) {
             ok = 0; /* the file changed while it was read, or could not be hashed */
         }
         hj = NULL;
@@ -1429,8 +1457,7 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
         }
     }
     if (hj) {
-        atomic_store(&hj->stop, 1);
-        hash_job_end(hj, NULL);
+        hash_job_cancel(hj);
     }
 stop:
     for (size_t k = 1; k < n; k++) {
@@ -1447,8 +1474,8 @@ pm_err_t pm_table_wait_hash(pm_table_t *t, pm_diag_t *diag) {
     }
     par_hash *h = t->hash_job;
     t->hash_job = NULL;
-    uint64_t hashed = h->bytes, expect = h->expect;
-    if (!hash_job_end(h, t->stats.sha256)) {
+    uint64_t hashed = 0, expect = h->expect;
+    if (!hash_job_end(h, t->stats.sha256, &hashed)) {
         return pm_diag_set(diag, PM_EIO, t->source, 0,
                            "the file changed while it was read (%llu bytes read, %llu hashed); "
                            "run again once it is complete",

@@ -13,6 +13,9 @@
 /* Tests only: set to read every line through the record path (no long_lines fast path), to
  * check that both give the same table or the same error. */
 extern int pm_i_no_fast_lines;
+/* Tests only: the background SHA-256 thread waits until it is told to stop (a thread that
+ * gets no processor), so that its owner must hash the file itself. */
+extern int pm_i_hash_stall;
 
 struct pm_table {
     char *source;

@@ -991,6 +991,7 @@ struct pm_i_hash_job {
     pm_i_sha256 sha;  /* the thread's */
     uint64_t bytes;   /* hashed by the thread */
     int failed;
+    int idle;         /* the thread runs in the idle class (defer_hash); else it is waited for */
 };
 
 static void hash_job_unref(par_hash *h) {
@@ -1062,6 +1063,10 @@ static int hash_file(int fd, atomic_int *stop, pm_i_sha256 *sha, uint64_t *bytes
 static int hash_job_end(par_hash *h, unsigned char out[32], uint64_t *hashed) {
     int ok;
     *hashed = 0;
+    while (!h->idle && out && !atomic_load_explicit(&h->done, memory_order_acquire)) {
+        struct timespec t = {0, 100000}; /* a thread at the normal priority: it finishes */
+        nanosleep(&t, NULL);
+    }
     if (atomic_load_explicit(&h->done, memory_order_acquire)) {
         *hashed = h->bytes;
         ok = !h->failed && h->bytes == h->expect;
@@ -1094,13 +1099,15 @@ static void hash_job_cancel(par_hash *h) {
 
 static void *par_hash_main(void *arg) {
     par_hash *h = arg;
-    /* The hash runs in the idle class: it takes the cores the parser leaves free (while the
-     * chunks are appended and the table is finished, and later: defer_hash) rather than a
-     * third of two cores from the parser. Where the class is refused the thread simply runs
-     * at the normal priority. */
-    struct sched_param sp;
-    memset(&sp, 0, sizeof sp);
-    (void)pthread_setschedparam(pthread_self(), SCHED_IDLE, &sp);
+    /* With defer_hash the hash runs in the idle class: it takes the cores the later stages
+     * leave free rather than a third of two cores from the parser, and its owner never waits
+     * for it (hash_job_end). Where the class is refused the thread simply runs at the normal
+     * priority. Without defer_hash it runs beside the parser and is waited for. */
+    if (h->idle) {
+        struct sched_param sp;
+        memset(&sp, 0, sizeof sp);
+        (void)pthread_setschedparam(pthread_self(), SCHED_IDLE, &sp);
+    }
     while (pm_i_hash_stall && !atomic_load(&h->stop)) {
         struct timespec ms = {0, 1000000};
         nanosleep(&ms, NULL);
@@ -1346,6 +1353,7 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     atomic_init(&hj->stop, 0);
     atomic_init(&hj->done, 0);
     atomic_init(&hj->refs, 2);
+    hj->idle = o->defer_hash;
     pthread_t hth;
     if (hj->fd < 0 || pthread_create(&hth, NULL, par_hash_main, hj) != 0) {
         if (hj->fd >= 0) {

@@ -456,7 +456,7 @@ rows_ready:
         kernel = PM_COUNTS_SPARSE;
     }
     res->kernel = kernel;
-    size_t want = (size_t)k.threads * 16;
+    size_t want = (size_t)k.threads * 64; /* small chunks: the last one alone is short */
     if (kernel == PM_COUNTS_SPARSE) {
         /* transpose with positions, and work per item */
         k.tp = pm_i_calloc(k.E + 1, sizeof *k.tp);

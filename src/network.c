@@ -14,6 +14,11 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <stdatomic.h>
+#include <sys/mman.h>
+#ifndef MAP_ANONYMOUS
+#define MAP_ANONYMOUS 0x20 /* Linux's value (sys/mman.h names it only beyond POSIX) */
+#endif
 #include <sys/types.h>
 #include <sys/wait.h>
 #include <unistd.h>
@@ -167,7 +172,7 @@ static igraph_error_t make_graph(const usable *u, igraph_t *g, igraph_vector_t *
  */
 
 /* The faults a test asks for (network_internal.h); all off outside tests. */
-static pm_i_network_faults_t g_faults = {0, 0, 0, 0, 0, 0, -1, 0};
+static pm_i_network_faults_t g_faults = {0, 0, 0, 0, 0, 0, -1, 0, 0};
 static pm_i_network_stats_t g_stats;
 
 void pm_i_network_set_faults(const pm_i_network_faults_t *f) {
@@ -463,12 +468,48 @@ void pm_clusters_free(pm_clusters_t *c) {
     free(c);
 }
 
-/* Runs Louvain passes r0 .. r1-1; memb[r * nv + i] gets run r's community of vertex i
- * (0-based ids), q[r] the modularity igraph_modularity gives it (equal to the last level's
- * value). Run r depends only on the graph and its own seed, so any split of 0 .. R-1 over
- * processes gives the same numbers as one call over all of them. */
+/* Flags of the restarts in memory shared with the children (see crew_help): claimed[r] is
+ * set by the layout's child before it runs restart r, helped[r] by the parent once it has
+ * run r itself; either skips what the other has. */
+typedef struct {
+    atomic_uchar *claimed, *helped; /* [R] */
+} help_flags;
+
+/* One restart r on the graph g: memb[r * nv + i] gets its community of vertex i (0-based
+ * ids), q[r] the modularity igraph_modularity gives it (equal to the last level's value). */
+static igraph_error_t louvain_one(const usable *u, igraph_t *g, igraph_vector_t *wv,
+                                  igraph_vector_int_t *mv, double resolution, uint64_t seed,
+                                  unsigned r, uint32_t *memb, double *q) {
+    uint64_t s = seed + (uint64_t)r * PM_CLUSTER_SEED_STEP;
+    double res = (long)r == g_faults.bad_restart ? -1.0 : resolution; /* test hook */
+    IGRAPH_CHECK(igraph_rng_seed(igraph_rng_default(), (igraph_uint_t)s));
+    IGRAPH_CHECK(igraph_community_multilevel(g, wv, res, mv, NULL, NULL));
+    if (igraph_vector_int_size(mv) != (igraph_integer_t)u->nv) {
+        IGRAPH_ERROR("membership of unexpected length", IGRAPH_EINTERNAL);
+    }
+    for (size_t i = 0; i < u->nv; i++) {
+        igraph_integer_t c = VECTOR(*mv)[(igraph_integer_t)i];
+        if (c < 0 || c >= (igraph_integer_t)u->nv) {
+            IGRAPH_ERROR("community id out of range", IGRAPH_EINTERNAL);
+        }
+        memb[(size_t)r * u->nv + i] = (uint32_t)c;
+    }
+    igraph_real_t Q;
+    IGRAPH_CHECK(igraph_modularity(g, mv, wv, resolution, IGRAPH_UNDIRECTED, &Q));
+    q[r] = Q;
+    return IGRAPH_SUCCESS;
+}
+
+/* Runs Louvain restarts r0 .. r1-1 (see louvain_one). Run r depends only on the graph and its
+ * own seed, so any split of 0 .. R-1 over processes gives the same numbers as one call over
+ * all of them. With hf (the layout's child): each run is claimed first and skipped when the
+ * parent has it already; done[r - r0] tells which ran here (may be NULL without hf). With
+ * down set (the parent helping): from r1-1 downwards, each marked helped once it ran well,
+ * stopping at the first one the child has claimed, or at an error (which the caller then
+ * ignores: the child meets the same error on that run and reports it, as one process would). */
 static igraph_error_t louvain_runs(const usable *u, double resolution, uint64_t seed, unsigned r0,
-                                   unsigned r1, uint32_t *memb, double *q) {
+                                   unsigned r1, uint32_t *memb, double *q, const help_flags *hf,
+                                   int down, unsigned char *done) {
     igraph_t g;
     igraph_vector_t wv;
     IGRAPH_CHECK(make_graph(u, &g, &wv, 1.0));
@@ -477,24 +518,31 @@ static igraph_error_t louvain_runs(const usable *u, double resolution, uint64_t 
     igraph_vector_int_t mv;
     IGRAPH_CHECK(igraph_vector_int_init(&mv, 0));
     IGRAPH_FINALLY(igraph_vector_int_destroy, &mv);
-    for (unsigned r = r0; r < r1; r++) {
-        uint64_t s = seed + (uint64_t)r * PM_CLUSTER_SEED_STEP;
-        double res = (long)r == g_faults.bad_restart ? -1.0 : resolution; /* test hook */
-        IGRAPH_CHECK(igraph_rng_seed(igraph_rng_default(), (igraph_uint_t)s));
-        IGRAPH_CHECK(igraph_community_multilevel(&g, &wv, res, &mv, NULL, NULL));
-        if (igraph_vector_int_size(&mv) != (igraph_integer_t)u->nv) {
-            IGRAPH_ERROR("membership of unexpected length", IGRAPH_EINTERNAL);
-        }
-        for (size_t i = 0; i < u->nv; i++) {
-            igraph_integer_t c = VECTOR(mv)[(igraph_integer_t)i];
-            if (c < 0 || c >= (igraph_integer_t)u->nv) {
-                IGRAPH_ERROR("community id out of range", IGRAPH_EINTERNAL);
+    if (down) {
+        for (unsigned r = r1; r-- > r0;) {
+            if (atomic_load(&hf->claimed[r])) {
+                break;
             }
-            memb[(size_t)r * u->nv + i] = (uint32_t)c;
+            /* an error ends the help (the handler has freed the graph: return at once); the
+             * child meets the same error on this run and reports it */
+            IGRAPH_CHECK(louvain_one(u, &g, &wv, &mv, resolution, seed, r, memb, q));
+            atomic_store(&hf->helped[r], 1);
+            g_stats.helped++;
         }
-        igraph_real_t Q;
-        IGRAPH_CHECK(igraph_modularity(&g, &mv, &wv, resolution, IGRAPH_UNDIRECTED, &Q));
-        q[r] = Q;
+    } else {
+        for (unsigned r = r0; r < r1; r++) {
+            if (hf) {
+                atomic_store(&hf->claimed[r], 1);
+                if (atomic_load(&hf->helped[r])) {
+                    done[r - r0] = 0;
+                    continue;
+                }
+            }
+            IGRAPH_CHECK(louvain_one(u, &g, &wv, &mv, resolution, seed, r, memb, q));
+            if (done) {
+                done[r - r0] = 1;
+            }
+        }
     }
     igraph_vector_int_destroy(&mv);
     igraph_vector_destroy(&wv);
@@ -645,6 +693,7 @@ typedef struct {
     uint64_t layout_seed;
     int iterations;
     double *pos; /* [2 nv] raw coordinates */
+    const help_flags *hf; /* shared flags when the parent may help the layout's child, or NULL */
 } stage;
 
 enum { SHARE_PENDING, SHARE_DONE };
@@ -661,19 +710,49 @@ typedef struct {
     pm_diag_t diag;
 } share;
 
-static void run_share(const stage *st, share *sh) {
+/* Computes share sh here. done (may be NULL) gets, per restart of the share, whether it ran
+ * here: all of them, except in the layout's child while the parent may help (st->hf, in_child
+ * set), which lays out first and then runs the restarts the parent does not have. Either
+ * way a restart's error is the share's error before the layout's, as in one process. */
+static void run_share(const stage *st, share *sh, int in_child, unsigned char *done) {
     pm_diag_clear(&sh->diag);
     sh->rc = PM_OK;
     sh->in_layout = 0;
     sh->state = SHARE_DONE;
+    int helped = in_child && st->hf && sh->layout && sh->r1 > sh->r0;
+    pm_err_t lrc = PM_OK;
+    pm_diag_t ldiag;
+    pm_diag_clear(&ldiag);
+    if (helped && st->pos) { /* the layout first: the parent takes restarts from the end */
+        g_reason[0] = '\0';
+        igraph_error_t ig = fr_run(st->u, st->layout_seed, st->iterations, st->pos);
+        if (ig != IGRAPH_SUCCESS) {
+            lrc = from_igraph(ig, "the Fruchterman-Reingold layout", &ldiag);
+        }
+        if (g_faults.child_slow) {
+            struct timespec t = {0, 300000000}; /* test hook: the parent helps meanwhile */
+            nanosleep(&t, NULL);
+        }
+    }
     if (sh->r1 > sh->r0) {
         g_reason[0] = '\0';
-        igraph_error_t ig =
-            louvain_runs(st->u, st->resolution, st->seed, sh->r0, sh->r1, st->memb, st->q);
+        igraph_error_t ig = louvain_runs(st->u, st->resolution, st->seed, sh->r0, sh->r1,
+                                         st->memb, st->q, helped ? st->hf : NULL, 0, done);
         if (ig != IGRAPH_SUCCESS) {
             sh->rc = from_igraph(ig, "Louvain clustering", &sh->diag);
             return;
         }
+        if (done && !helped) {
+            memset(done, 1, sh->r1 - sh->r0);
+        }
+    }
+    if (helped) {
+        if (lrc) {
+            sh->rc = lrc;
+            sh->diag = ldiag;
+            sh->in_layout = 1;
+        }
+        return;
     }
     if (sh->layout && st->pos) {
         g_reason[0] = '\0';
@@ -685,8 +764,9 @@ static void run_share(const stage *st, share *sh) {
     }
 }
 
-/* What a child writes first; then head.bytes bytes: the result when code is PM_OK (its
- * memberships, then its modularities, then the layout), else the message. */
+/* What a child writes first; then head.bytes bytes: the result when code is PM_OK (one byte
+ * per restart of the share, 1 for those it ran; their memberships, then their modularities,
+ * in order; then the layout), else the message. */
 #define WIRE_MAGIC UINT32_C(0x706d6e77)
 typedef struct {
     uint32_t magic;
@@ -696,9 +776,9 @@ typedef struct {
     uint64_t bytes;
 } wire_head;
 
-static size_t result_bytes(const stage *st, const share *sh) {
+static size_t result_bytes(const stage *st, const share *sh, size_t ran) {
     size_t runs = sh->r1 - sh->r0, nv = st->u->nv;
-    return runs * nv * sizeof *st->memb + runs * sizeof *st->q +
+    return runs + ran * nv * sizeof *st->memb + ran * sizeof *st->q +
            (sh->layout ? 2 * nv * sizeof *st->pos : 0);
 }
 
@@ -768,11 +848,13 @@ static void child_main(const stage *st, share *sh, int fd, int spawn_no, pid_t p
     if (g_faults.child_killed == spawn_no) {
         raise(SIGKILL);
     }
-    if (g_faults.child_nomem == spawn_no) {
+    size_t runs = sh->r1 - sh->r0, nv = st->u->nv;
+    unsigned char *done = calloc(runs ? runs : 1, 1);
+    if (g_faults.child_nomem == spawn_no || !done) {
         sh->rc = pm_diag_set(&sh->diag, PM_ENOMEM, NULL, 0, "out of memory");
         sh->in_layout = 0;
     } else {
-        run_share(st, sh);
+        run_share(st, sh, 1, done);
     }
     wire_head h;
     memset(&h, 0, sizeof h);
@@ -784,20 +866,32 @@ static void child_main(const stage *st, share *sh, int fd, int spawn_no, pid_t p
     h.in_layout = (uint32_t)sh->in_layout;
     int bad = 0;
     if (sh->rc == PM_OK) {
-        size_t runs = sh->r1 - sh->r0, nv = st->u->nv;
-        h.bytes = result_bytes(st, sh);
+        size_t ran = 0;
+        for (size_t i = 0; i < runs; i++) {
+            ran += done[i];
+        }
+        h.bytes = result_bytes(st, sh, ran);
         if (g_faults.child_short == spawn_no) {
-            /* the head and half of the first array, then a clean exit */
+            /* the head, the flags and half of the next array, then a clean exit */
             const void *first =
-                runs ? (const void *)(st->memb + (size_t)sh->r0 * nv) : (const void *)st->pos;
-            size_t len = runs ? runs * nv * sizeof *st->memb : 2 * nv * sizeof *st->pos;
-            bad = write_all(fd, &h, sizeof h) || write_all(fd, first, len / 2);
+                ran ? (const void *)(st->memb + (size_t)sh->r0 * nv) : (const void *)st->pos;
+            size_t len = ran ? nv * sizeof *st->memb : 2 * nv * sizeof *st->pos;
+            bad = write_all(fd, &h, sizeof h) || write_all(fd, done, runs) ||
+                  write_all(fd, first, len / 2);
             _exit(bad);
         }
-        bad = write_all(fd, &h, sizeof h) ||
-              write_all(fd, st->memb + (size_t)sh->r0 * nv, runs * nv * sizeof *st->memb) ||
-              write_all(fd, st->q + sh->r0, runs * sizeof *st->q) ||
-              (sh->layout && write_all(fd, st->pos, 2 * nv * sizeof *st->pos));
+        bad = write_all(fd, &h, sizeof h) || write_all(fd, done, runs);
+        for (size_t i = 0; i < runs && !bad; i++) {
+            if (done[i]) {
+                bad = write_all(fd, st->memb + (size_t)(sh->r0 + i) * nv, nv * sizeof *st->memb);
+            }
+        }
+        for (size_t i = 0; i < runs && !bad; i++) {
+            if (done[i]) {
+                bad = write_all(fd, st->q + sh->r0 + i, sizeof *st->q);
+            }
+        }
+        bad = bad || (sh->layout && write_all(fd, st->pos, 2 * nv * sizeof *st->pos));
     } else {
         h.bytes = strlen(sh->diag.msg);
         bad = write_all(fd, &h, sizeof h) || write_all(fd, sh->diag.msg, (size_t)h.bytes);
@@ -862,13 +956,26 @@ static int collect(const stage *st, share *sh) {
     if (read_all(sh->fd, &h, sizeof h) == sizeof h && h.magic == WIRE_MAGIC && h.r0 == sh->r0 &&
         h.r1 == sh->r1 && h.layout == (uint32_t)sh->layout) {
         pm_diag_clear(&sh->diag);
-        if (h.code == PM_OK && h.bytes == result_bytes(st, sh)) {
-            size_t runs = sh->r1 - sh->r0, nv = st->u->nv;
-            size_t bm = runs * nv * sizeof *st->memb, bq = runs * sizeof *st->q;
+        size_t runs = sh->r1 - sh->r0, nv = st->u->nv;
+        unsigned char *done = h.code == PM_OK ? calloc(runs ? runs : 1, 1) : NULL;
+        if (done && read_all(sh->fd, done, runs) == runs) {
+            /* every restart the child did not run is one this process ran (helped) */
+            size_t ran = 0;
+            int whole = 1;
+            for (size_t i = 0; i < runs; i++) {
+                ran += done[i] != 0;
+                whole &= done[i] || (st->hf && atomic_load(&st->hf->helped[sh->r0 + i]));
+            }
             size_t bp = sh->layout ? 2 * nv * sizeof *st->pos : 0;
-            ok = read_all(sh->fd, st->memb + (size_t)sh->r0 * nv, bm) == bm &&
-                 read_all(sh->fd, st->q + sh->r0, bq) == bq &&
-                 (!bp || read_all(sh->fd, st->pos, bp) == bp);
+            ok = whole && h.bytes == result_bytes(st, sh, ran);
+            for (size_t i = 0; i < runs && ok; i++) {
+                size_t b = nv * sizeof *st->memb;
+                ok = !done[i] || read_all(sh->fd, st->memb + (sh->r0 + i) * nv, b) == b;
+            }
+            for (size_t i = 0; i < runs && ok; i++) {
+                ok = !done[i] || read_all(sh->fd, st->q + sh->r0 + i, sizeof *st->q) == sizeof *st->q;
+            }
+            ok = ok && (!bp || read_all(sh->fd, st->pos, bp) == bp);
             sh->rc = PM_OK;
             sh->in_layout = 0;
         } else if (h.code > PM_OK && h.code <= PM_EINTERRUPTED && h.bytes < sizeof sh->diag.msg) {
@@ -880,6 +987,7 @@ static int collect(const stage *st, share *sh) {
                 ok = 1;
             }
         }
+        free(done);
     }
     reap(sh);
     if (ok) {
@@ -992,7 +1100,7 @@ static void crew_start(crew *cw, const stage *st, unsigned workers) {
         g_stats.forked++;
     }
     if (units > 0) {
-        run_share(st, &cw->sh[0]);
+        run_share(st, &cw->sh[0], 0, NULL);
     }
 }
 
@@ -1003,7 +1111,7 @@ static void crew_finish(crew *cw, const stage *st, size_t from, size_t upto) {
     share *sh = cw->sh;
     for (size_t i = from > cw->spawned ? from : cw->spawned; i < upto; i++) {
         if (!failed_before(sh, i)) {
-            run_share(st, &sh[i]);
+            run_share(st, &sh[i], 0, NULL);
             g_stats.redone++;
         }
     }
@@ -1019,7 +1127,7 @@ static void crew_finish(crew *cw, const stage *st, size_t from, size_t upto) {
         if (collect(st, &sh[i]) && sh[i].rc != PM_ENOMEM) {
             g_stats.from_child++;
         } else {
-            run_share(st, &sh[i]); /* lost, cut short, or short of memory in the child */
+            run_share(st, &sh[i], 0, NULL); /* lost, cut short, or short of memory in the child */
             g_stats.redone++;
         }
     }
@@ -1085,6 +1193,8 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
     pm_diag_clear(&layout_diag);
     crew cw;
     memset(&cw, 0, sizeof cw);
+    help_flags hf = {NULL, NULL};
+    void *shared = MAP_FAILED;
     if (!c) {
         usable_free(&u);
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
@@ -1122,13 +1232,42 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
                 .layout = pos != NULL,
                 .layout_seed = layout_seed,
                 .iterations = iterations > 0 ? iterations : pm_layout_default_iterations(u.nv),
-                .pos = pos};
+                .pos = pos,
+                .hf = NULL};
+    /* flags shared with the children: the parent may run restarts of the layout's share
+     * (from its end) while the child lays out; without the mapping it simply does not */
+    if (layout && o->workers != 1 && st.R > 0) {
+        shared = mmap(NULL, 2 * (size_t)st.R * sizeof(atomic_uchar), PROT_READ | PROT_WRITE,
+                      MAP_SHARED | MAP_ANONYMOUS, -1, 0);
+        if (shared != MAP_FAILED) {
+            hf.claimed = shared;
+            hf.helped = hf.claimed + st.R;
+            for (unsigned r = 0; r < st.R; r++) {
+                atomic_init(&hf.claimed[r], 0);
+                atomic_init(&hf.helped[r], 0);
+            }
+            st.hf = &hf;
+        }
+    }
     /* the restarts' shares first; the layout's child (the last share) keeps working while
      * this process summarises the restarts */
     crew_start(&cw, &st, o->workers);
-    /* a layout share that also holds restarts is waited for with the restarts */
-    size_t n_restart_shares =
-        cw.ns > 1 && st.layout && cw.sh[cw.ns - 1].r1 == cw.sh[cw.ns - 1].r0 ? cw.ns - 1 : cw.ns;
+    /* the layout's child runs its restarts after the layout: this process runs them from the
+     * end meanwhile, as far as the child has not come (louvain_runs); a layout share that
+     * still holds restarts of the child's is waited for with the restarts */
+    int layout_runs = 0;
+    if (cw.ns > 1 && st.layout) {
+        share *ls = &cw.sh[cw.ns - 1];
+        if (ls->r1 > ls->r0 && st.hf && ls->pid > 0 && cw.sh[0].rc == PM_OK) {
+            g_reason[0] = '\0';
+            (void)louvain_runs(st.u, st.resolution, st.seed, ls->r0, ls->r1, st.memb, st.q,
+                               st.hf, 1, NULL);
+        }
+        for (unsigned r = ls->r0; r < ls->r1; r++) {
+            layout_runs |= !(st.hf && ls->pid > 0 && atomic_load(&st.hf->helped[r]));
+        }
+    }
+    size_t n_restart_shares = cw.ns > 1 && st.layout && !layout_runs ? cw.ns - 1 : cw.ns;
     crew_finish(&cw, &st, 1, n_restart_shares);
     int in_layout;
     pm_diag_t sd;
@@ -1215,6 +1354,9 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
     }
 cleanup:
     crew_end(&cw);
+    if (shared != MAP_FAILED) {
+        munmap(shared, 2 * (size_t)st.R * sizeof(atomic_uchar));
+    }
     free(memb);
     free(raw);
     free(pos);

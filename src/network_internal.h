@@ -16,6 +16,7 @@ typedef struct {
     long bad_restart;   /* >= 0: that Louvain restart calls igraph with resolution -1, a real
                          * igraph error (in whichever process runs it, serial runs too) */
     int bad_layout;     /* the layout calls igraph with -1 iterations: a real igraph error */
+    int child_slow;     /* the layout's child waits 0.3 s after its layout (the parent helps) */
 } pm_i_network_faults_t;
 
 /* Sets the faults (NULL: none) for all later calls until changed. */
@@ -28,6 +29,7 @@ typedef struct {
     unsigned from_child; /* shares whose result (or error) came from a child */
     unsigned redone;     /* shares the parent computed itself after a failed spawn or child */
     unsigned layout_restarts; /* Louvain runs the layout's share took as well */
+    unsigned helped;     /* of those, runs the parent made itself while the child laid out */
 } pm_i_network_stats_t;
 
 void pm_i_network_get_stats(pm_i_network_stats_t *s);

@@ -298,18 +298,18 @@ static void test_network_par_fallbacks(void **state) {
     result ref;
     serial(&g, 9, 10, &ref);
     static const fault_case cases[] = {
-        {"fork fails at once", {0, 1, 0, 0, 0, 0, -1, 0}, 0, 0, 3},
-        {"fork fails for the layout", {0, 3, 0, 0, 0, 0, -1, 0}, 2, 2, 1},
-        {"pipe fails at the second", {2, 0, 0, 0, 0, 0, -1, 0}, 1, 1, 2},
-        {"pipe fails at once", {1, 0, 0, 0, 0, 0, -1, 0}, 0, 0, 3},
-        {"layout child exits", {0, 0, 3, 0, 0, 0, -1, 0}, 3, 2, 1},
-        {"restart child exits", {0, 0, 1, 0, 0, 0, -1, 0}, 3, 2, 1},
-        {"restart child killed", {0, 0, 0, 2, 0, 0, -1, 0}, 3, 2, 1},
-        {"layout child killed", {0, 0, 0, 3, 0, 0, -1, 0}, 3, 2, 1},
-        {"layout child short", {0, 0, 0, 0, 3, 0, -1, 0}, 3, 2, 1},
-        {"restart child short", {0, 0, 0, 0, 1, 0, -1, 0}, 3, 2, 1},
-        {"restart child out of memory", {0, 0, 0, 0, 0, 2, -1, 0}, 3, 2, 1},
-        {"layout child out of memory", {0, 0, 0, 0, 0, 3, -1, 0}, 3, 2, 1},
+        {"fork fails at once", {0, 1, 0, 0, 0, 0, -1, 0, 0}, 0, 0, 3},
+        {"fork fails for the layout", {0, 3, 0, 0, 0, 0, -1, 0, 0}, 2, 2, 1},
+        {"pipe fails at the second", {2, 0, 0, 0, 0, 0, -1, 0, 0}, 1, 1, 2},
+        {"pipe fails at once", {1, 0, 0, 0, 0, 0, -1, 0, 0}, 0, 0, 3},
+        {"layout child exits", {0, 0, 3, 0, 0, 0, -1, 0, 0}, 3, 2, 1},
+        {"restart child exits", {0, 0, 1, 0, 0, 0, -1, 0, 0}, 3, 2, 1},
+        {"restart child killed", {0, 0, 0, 2, 0, 0, -1, 0, 0}, 3, 2, 1},
+        {"layout child killed", {0, 0, 0, 3, 0, 0, -1, 0, 0}, 3, 2, 1},
+        {"layout child short", {0, 0, 0, 0, 3, 0, -1, 0, 0}, 3, 2, 1},
+        {"restart child short", {0, 0, 0, 0, 1, 0, -1, 0, 0}, 3, 2, 1},
+        {"restart child out of memory", {0, 0, 0, 0, 0, 2, -1, 0, 0}, 3, 2, 1},
+        {"layout child out of memory", {0, 0, 0, 0, 0, 3, -1, 0, 0}, 3, 2, 1},
     };
     for (size_t k = 0; k < sizeof cases / sizeof *cases; k++) {
         print_message("fault: %s\n", cases[k].what);
@@ -322,8 +322,8 @@ static void test_network_par_fallbacks(void **state) {
         assert_int_equal(st.redone, cases[k].redone);
     }
     /* with two workers: the layout's child fails to start or dies */
-    static const pm_i_network_faults_t two[] = {{0, 1, 0, 0, 0, 0, -1, 0},
-                                                {0, 0, 1, 0, 0, 0, -1, 0}};
+    static const pm_i_network_faults_t two[] = {{0, 1, 0, 0, 0, 0, -1, 0, 0},
+                                                {0, 0, 1, 0, 0, 0, -1, 0, 0}};
     for (size_t k = 0; k < 2; k++) {
         pm_i_network_set_faults(&two[k]);
         pm_i_network_stats_t st = run_and_compare(&g, 9, 10, 2, &ref);
@@ -369,7 +369,7 @@ static void test_network_par_igraph_errors(void **state) {
     static const long bad[] = {0, 3, 5, 9};
     for (size_t k = 0; k < sizeof bad / sizeof *bad; k++) {
         /* the serial message, from the clustering call alone */
-        pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, bad[k], 0};
+        pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, bad[k], 0, 0};
         pm_i_network_set_faults(&f);
         assert_int_equal(pm_cluster_louvain(g.n, g.m, g.ea, g.eb, g.w, &o, &c, &d), PM_EINTERNAL);
         pm_i_network_set_faults(NULL);
@@ -392,7 +392,7 @@ static void test_network_par_igraph_errors(void **state) {
     wide(&g);
     opts(&o, &g, 4, 10, 1);
     {
-        pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, 9, 0};
+        pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, 9, 0, 0};
         pm_i_network_set_faults(&f);
         assert_int_equal(pm_cluster_louvain(g.n, g.m, g.ea, g.eb, g.w, &o, &c, &d), PM_EINTERNAL);
         pm_i_network_set_faults(NULL);
@@ -405,7 +405,7 @@ static void test_network_par_igraph_errors(void **state) {
     graph_free(&g);
     planted(&g, 13, 800, 100, 10, 2, 30);
     /* the layout's error, from the layout call alone */
-    pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, -1, 1};
+    pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, -1, 1, 0};
     double *xy = malloc(2 * g.n * sizeof *xy);
     assert_non_null(xy);
     pm_i_network_set_faults(&f);
@@ -423,6 +423,60 @@ static void test_network_par_igraph_errors(void **state) {
     graph_free(&g);
 }
 
+/* The parent runs restarts of the layout's share from its end while the child lays out
+ * (network.c louvain_runs, shared flags): with the child held back after its layout
+ * (child_slow) the parent has run them all and the child sends only the layout; the results
+ * stay the serial ones, also when that child then dies or writes half an answer, and a
+ * restart error met while helping is still reported as one process reports it. */
+static void test_network_par_helping(void **state) {
+    (void)state;
+    graph g;
+    wide(&g);
+    result ref;
+    serial(&g, 3, 10, &ref);
+    pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, -1, 0, 1};
+    pm_i_network_set_faults(&f);
+    pm_i_network_stats_t st = run_and_compare(&g, 3, 10, 2, &ref);
+    pm_i_network_set_faults(NULL);
+    assert_true(st.layout_restarts > 0);
+    assert_int_equal(st.helped, st.layout_restarts);
+    assert_int_equal(st.from_child, 1);
+    assert_int_equal(st.redone, 0);
+    /* without the delay: whatever the split, the same results */
+    st = run_and_compare(&g, 3, 10, 2, &ref);
+    assert_true(st.helped <= st.layout_restarts);
+    /* the helped child lost or cut short: the parent computes its share */
+    static const pm_i_network_faults_t lost[] = {{0, 0, 1, 0, 0, 0, -1, 0, 1},
+                                                 {0, 0, 0, 0, 1, 0, -1, 0, 1}};
+    for (size_t k = 0; k < 2; k++) {
+        pm_i_network_set_faults(&lost[k]);
+        st = run_and_compare(&g, 3, 10, 2, &ref);
+        pm_i_network_set_faults(NULL);
+        assert_int_equal(st.redone, 1);
+    }
+    result_free(&ref);
+    /* an igraph error in the restarts the parent helps with: the last one (it stops at once)
+     * and the one before (it has run the last); the message of one process */
+    pm_cluster_opts_t o;
+    opts(&o, &g, 4, 10, 1);
+    static const long bad[] = {9, 8};
+    for (size_t k = 0; k < 2; k++) {
+        pm_i_network_faults_t e = {0, 0, 0, 0, 0, 0, bad[k], 0, 0};
+        pm_diag_t d;
+        pm_clusters_t *c = NULL;
+        pm_i_network_set_faults(&e);
+        assert_int_equal(pm_cluster_louvain(g.n, g.m, g.ea, g.eb, g.w, &o, &c, &d), PM_EINTERNAL);
+        pm_i_network_set_faults(NULL);
+        char msg[sizeof d.msg];
+        snprintf(msg, sizeof msg, "%s", d.msg);
+        e.child_slow = 1;
+        expect_error(&g, 2, &e, msg);
+        e.child_slow = 0;
+        expect_error(&g, 2, &e, msg);
+    }
+    graph_free(&g);
+}
+
 int main(int argc, char **argv) {
     pm_init();
     if (argc > 1) {
@@ -434,6 +488,7 @@ int main(int argc, char **argv) {
         cmocka_unit_test(test_network_par_no_usable_edge),
         cmocka_unit_test(test_network_par_fallbacks),
         cmocka_unit_test(test_network_par_igraph_errors),
+        cmocka_unit_test(test_network_par_helping),
     };
     return cmocka_run_group_tests_name("network_par", tests, NULL, NULL);
 }

@@ -457,6 +457,29 @@ static inline int at_most_expected(uint64_t N, uint64_t na, uint64_t nb, uint64_
     return (long double)N * (long double)nab <= (long double)na * (long double)nb;
 }
 
+/* True when the one-sided "greater" p-value of the table, P(X >= nab), is above lim by its
+ * first term alone: where Fisher's test applies (smallest expected cell below 5) and nab is
+ * above the mode, the p-value fisher() computes is exp(lpmf(nab)) times a sum of at least 1,
+ * so exp(lpmf(nab)) > lim means p > lim, without the sum. */
+static int first_term_above(const double *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
+                            double lim) {
+    if (!(min_expected(N, na, nb) < 5)) {
+        return 0;
+    }
+    uint64_t K = na, n = nb, x = nab;
+    uint64_t hi = K < n ? K : n;
+    uint64_t mode;
+    if (n < UINT32_MAX && K < UINT32_MAX) {
+        mode = (n + 1) * (K + 1) / (N + 2);
+    } else {
+        mode = (uint64_t)(((long double)(n + 1) * (long double)(K + 1)) / (long double)(N + 2));
+    }
+    if (x <= mode || x > hi) {
+        return 0;
+    }
+    return exp(lpmf(lf, N, K, n, x)) > lim;
+}
+
 static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t nab,
                      double wab) {
     prune_ctx *c = ud;
@@ -466,7 +489,9 @@ static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t
     }
     if (!c->keep_ids) {
         const pm_incidence_t *inc = c->inc;
-        if (c->skip_mean && at_most_expected(inc->N, inc->count[a], inc->count[b], nab)) {
+        if (c->skip_mean && (at_most_expected(inc->N, inc->count[a], inc->count[b], nab) ||
+                             first_term_above(c->lf, inc->N, inc->count[a], inc->count[b], nab,
+                                              c->lim))) {
             pb->above++;
             return;
         }
@@ -510,6 +535,7 @@ typedef struct {
     double neff;
     size_t per;
     int skip_mean; /* as prune_ctx: such pairs get p = +INFINITY (above any q limit) */
+    double lim;
 } pjob;
 
 static int p_chunk(void *ud, size_t c, unsigned th) {
@@ -520,9 +546,10 @@ static int p_chunk(void *ud, size_t c, unsigned th) {
     const pm_incidence_t *inc = j->inc;
     for (size_t k = b; k < e; k++) {
         uint64_t na = inc->count[pp->a[k]], nb = inc->count[pp->b[k]];
-        if (j->skip_mean && at_most_expected(inc->N, na, nb, pp->n_ab[k])) {
-            /* p >= 1/2, above the q limit: not computed (the pair is never shown: not
-             * positive), only counted in the family */
+        if (j->skip_mean && (at_most_expected(inc->N, na, nb, pp->n_ab[k]) ||
+                             first_term_above(j->lf, inc->N, na, nb, pp->n_ab[k], j->lim))) {
+            /* p above the q limit (p >= 1/2, or its first term is): not computed (the pair is
+             * never shown), only counted in the family */
             pp->p[k] = INFINITY;
             pp->test[k] = min_expected(inc->N, na, nb) < 5 ? PM_TEST_FISHER : PM_TEST_CHI2;
             continue;
@@ -873,7 +900,7 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
     pm_counts_free(cnt);
     cnt = NULL;
     {
-        pjob j = {pp, inc, lf, neff, 4096, pc.skip_mean};
+        pjob j = {pp, inc, lf, neff, 4096, pc.skip_mean, pc.lim};
         size_t nch = (pp->n + j.per - 1) / j.per;
         if (pm_i_parallel(threads, nch, p_chunk, &j) != 0) {
             rc = PM_EINTERNAL;

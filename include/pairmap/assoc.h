@@ -66,8 +66,10 @@ typedef struct {
      * caller that only ever uses pairs with q <= q_limit (a --max-q of the same value) saves
      * the sorting of every larger p-value: they are counted as hypotheses, not ranked, and
      * pairs whose q exceeds q_limit get some q > q_limit (+INFINITY where p > q_limit). Under
-     * a limit below 0.49 with sign positive, a listed pair seen no more often than expected
-     * (not positive, p >= 1/2) gets p = q = +INFINITY: its p-value is not computed. */
+     * a limit below 0.49 with sign positive (unweighted), a listed pair whose p-value is shown
+     * to exceed the limit without computing it gets p = q = +INFINITY: one seen no more often
+     * than expected (p >= 1/2), or one under Fisher's test whose first tail term alone
+     * exceeds the limit. */
     double q_limit;
     pm_progress_fn progress;
     void *progress_ud;

@@ -116,6 +116,7 @@ typedef struct {
     uint64_t *tp;     /* E + 1 */
     uint32_t *tbeg;   /* entry: offset in ci just after the item (its row's suffix) */
     uint32_t *tend;   /* entry: offset in ci of its row's end */
+    int tscratch;     /* tbeg and tend are the caller's scratch (not freed here) */
     uint32_t *trow;   /* entry: its row (weighted only) */
     /* chunking */
     size_t nchunks;
@@ -464,8 +465,14 @@ rows_ready:
             rc = PM_EDATA;
             goto cleanup;
         }
-        k.tbeg = pm_i_malloc(nnz ? nnz : 1, sizeof *k.tbeg);
-        k.tend = pm_i_malloc(nnz ? nnz : 1, sizeof *k.tend);
+        if (o->scratch[0] && o->scratch[1] && o->scratch_n >= nnz) {
+            k.tbeg = o->scratch[0]; /* the caller's: memory already in use, no page faults */
+            k.tend = o->scratch[1];
+            k.tscratch = 1;
+        } else {
+            k.tbeg = pm_i_malloc(nnz ? nnz : 1, sizeof *k.tbeg);
+            k.tend = pm_i_malloc(nnz ? nnz : 1, sizeof *k.tend);
+        }
         if (k.wt) {
             k.trow = pm_i_malloc(nnz ? nnz : 1, sizeof *k.trow);
         }
@@ -686,8 +693,10 @@ cleanup:
     free(cost);
     free(k.tp);
     free(k.trow);
-    free(k.tbeg);
-    free(k.tend);
+    if (!k.tscratch) {
+        free(k.tbeg);
+        free(k.tend);
+    }
     if (!k.borrowed) {
         free(k.rp);
         free(k.ci);

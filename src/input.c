@@ -1476,6 +1476,19 @@ stop:
     return result;
 }
 
+size_t pm_table_take_rows(pm_table_t *t, uint32_t **resp, uint32_t **item) {
+    size_t cap = t->row_resp && t->row_item ? t->rows_cap : 0;
+    *resp = cap ? t->row_resp : NULL;
+    *item = cap ? t->row_item : NULL;
+    if (!cap) {
+        free(t->row_resp);
+        free(t->row_item);
+    }
+    t->row_resp = t->row_item = NULL;
+    t->n_rows = t->rows_cap = 0;
+    return cap;
+}
+
 pm_err_t pm_table_wait_hash(pm_table_t *t, pm_diag_t *diag) {
     if (!t->hash_job) {
         return PM_OK;

@@ -73,6 +73,8 @@ typedef struct {
     double q_limit;
     pm_progress_fn progress;
     void *progress_ud;
+    uint32_t *scratch[2]; /* optional scratch memory for the counting (pm_counts_opts_t) */
+    size_t scratch_n;
 } pm_assoc_opts_t;
 
 void pm_assoc_opts_init(pm_assoc_opts_t *o);

@@ -47,6 +47,10 @@ typedef struct {
     size_t dense_max_items;          /* 0: default 2048 */
     pm_progress_fn progress;
     void *progress_ud;
+    /* optional: two arrays of scratch_n entries the sparse kernel may use (and overwrite) for
+     * its transposed index instead of fresh memory; the caller keeps and frees them */
+    uint32_t *scratch[2];
+    size_t scratch_n;
 } pm_counts_opts_t;
 
 void pm_counts_opts_init(pm_counts_opts_t *o);

@@ -86,6 +86,11 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
 void pm_table_free(pm_table_t *t);
 
 const pm_input_stats_t *pm_table_stats(const pm_table_t *t);
+/* Hands the table's row arrays (respondent and item index per row) to the caller, who frees
+ * them; returns how many entries each holds room for (0 and NULLs when there are none).
+ * Afterwards the table has no rows (pm_table_nrows is 0): for callers done with them, e.g.
+ * once the incidence is built, to reuse the memory as scratch. */
+size_t pm_table_take_rows(pm_table_t *t, uint32_t **resp, uint32_t **item);
 /* Waits for a SHA-256 left to finish in the background (defer_hash) and sets stats.sha256.
  * PM_OK at once when there is none; PM_EIO (diag set) when the file changed while it was read
  * or could not be read again for the hash. */

@@ -87,8 +87,10 @@ void pm_cli_note(const pm_cli_t *c, const char *fmt, ...)
 int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc,
                 double *t_read);
 /* Scores every pair with the command line's options. */
-int pm_cli_score(const pm_cli_t *c, const pm_incidence_t *inc, const pm_select_opts_t *sel,
-                 pm_pairs_t **pairs);
+/* Scores every pair of inc. The rows of table t (whose incidence inc is) are taken from it
+ * and serve as the counting's scratch memory: t has no rows afterwards. */
+int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
+                 const pm_select_opts_t *sel, pm_pairs_t **pairs);
 
 /* Progress on stderr (a terminal only, and not with --quiet). */
 void pm_cli_progress(void *ud, const char *stage, uint64_t done, uint64_t total);

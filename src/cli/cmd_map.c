@@ -826,7 +826,7 @@ int pm_cmd_map(int argc, char **argv) {
     if (rc) {
         goto done;
     }
-    rc = pm_cli_score(&c, s.inc, &sel, &s.pp);
+    rc = pm_cli_score(&c, s.t, s.inc, &sel, &s.pp);
     if (rc) {
         goto done;
     }

@@ -37,7 +37,7 @@ int pm_cmd_pairs(int argc, char **argv) {
     if (rc) {
         goto done;
     }
-    rc = pm_cli_score(&c, inc, &sel, &pp);
+    rc = pm_cli_score(&c, t, inc, &sel, &pp);
     if (rc) {
         goto done;
     }

@@ -354,7 +354,7 @@ int pm_cmd_partners(int argc, char **argv) {
     pm_diag_clear(&d);
     if (k == 1) {
         /* one item: the rows of `pairmap pairs` that contain it */
-        rc = pm_cli_score(&c, inc, &sel, &pp);
+        rc = pm_cli_score(&c, t, inc, &sel, &pp);
         if (rc) {
             goto done;
         }

@@ -852,28 +852,30 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
      * negative with --min-count 0 (with both they are tested but not listed) */
     int list_unseen = o->sign == PM_SIGN_NEGATIVE && o->min_count == 0;
     size_t nlist = cnt->n_pairs + (list_unseen ? (size_t)pp->unseen : 0);
-    pp->a = pm_i_malloc(nlist ? nlist : 1, sizeof *pp->a);
-    pp->b = pm_i_malloc(nlist ? nlist : 1, sizeof *pp->b);
-    pp->n_ab = pm_i_malloc(nlist ? nlist : 1, sizeof *pp->n_ab);
+    if (!list_unseen) { /* the counts' arrays become the listed pairs' (no copy) */
+        pp->a = cnt->a;
+        pp->b = cnt->b;
+        pp->n_ab = cnt->n;
+        pp->w_ab = cnt->w;
+        cnt->a = cnt->b = cnt->n = NULL;
+        cnt->w = NULL;
+        pp->n = cnt->n_pairs;
+    } else {
+        pp->a = pm_i_malloc(nlist ? nlist : 1, sizeof *pp->a);
+        pp->b = pm_i_malloc(nlist ? nlist : 1, sizeof *pp->b);
+        pp->n_ab = pm_i_malloc(nlist ? nlist : 1, sizeof *pp->n_ab);
+        if (inc->wcount) {
+            pp->w_ab = pm_i_calloc(nlist ? nlist : 1, sizeof *pp->w_ab);
+        }
+    }
     pp->p = pm_i_malloc(nlist ? nlist : 1, sizeof *pp->p);
     pp->q = pm_i_malloc(nlist ? nlist : 1, sizeof *pp->q);
     pp->test = pm_i_malloc(nlist ? nlist : 1, 1);
-    if (inc->wcount) {
-        pp->w_ab = pm_i_calloc(nlist ? nlist : 1, sizeof *pp->w_ab);
-    }
     if (!pp->a || !pp->b || !pp->n_ab || !pp->p || !pp->q || !pp->test ||
         (inc->wcount && !pp->w_ab)) {
         goto cleanup;
     }
-    if (!list_unseen) {
-        memcpy(pp->a, cnt->a, cnt->n_pairs * sizeof *pp->a);
-        memcpy(pp->b, cnt->b, cnt->n_pairs * sizeof *pp->b);
-        memcpy(pp->n_ab, cnt->n, cnt->n_pairs * sizeof *pp->n_ab);
-        if (pp->w_ab) {
-            memcpy(pp->w_ab, cnt->w, cnt->n_pairs * sizeof *pp->w_ab);
-        }
-        pp->n = cnt->n_pairs;
-    } else {
+    if (list_unseen) {
         /* merge every eligible pair with the counts (both in (a, b) order) */
         size_t k = 0, at = 0;
         for (uint32_t a = 0; a < inc->n_items; a++) {

@@ -473,6 +473,7 @@ void pm_clusters_free(pm_clusters_t *c) {
  * run r itself; either skips what the other has. */
 typedef struct {
     atomic_uchar *claimed, *helped; /* [R] */
+    atomic_uchar *over;             /* set once the parent has stopped helping (tests wait) */
 } help_flags;
 
 /* One restart r on the graph g: memb[r * nv + i] gets its community of vertex i (0-based
@@ -729,8 +730,10 @@ static void run_share(const stage *st, share *sh, int in_child, unsigned char *d
         if (ig != IGRAPH_SUCCESS) {
             lrc = from_igraph(ig, "the Fruchterman-Reingold layout", &ldiag);
         }
-        if (g_faults.child_slow) {
-            struct timespec t = {0, 300000000}; /* test hook: the parent helps meanwhile */
+        /* test hook: the child waits until the parent has stopped helping (at most a
+         * minute), so that the parent has run every restart it could */
+        for (int i = 0; g_faults.child_slow && i < 60000 && !atomic_load(st->hf->over); i++) {
+            struct timespec t = {0, 1000000};
             nanosleep(&t, NULL);
         }
     }
@@ -1193,7 +1196,7 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
     pm_diag_clear(&layout_diag);
     crew cw;
     memset(&cw, 0, sizeof cw);
-    help_flags hf = {NULL, NULL};
+    help_flags hf = {NULL, NULL, NULL};
     void *shared = MAP_FAILED;
     if (!c) {
         usable_free(&u);
@@ -1237,11 +1240,13 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
     /* flags shared with the children: the parent may run restarts of the layout's share
      * (from its end) while the child lays out; without the mapping it simply does not */
     if (layout && o->workers != 1 && st.R > 0) {
-        shared = mmap(NULL, 2 * (size_t)st.R * sizeof(atomic_uchar), PROT_READ | PROT_WRITE,
-                      MAP_SHARED | MAP_ANONYMOUS, -1, 0);
+        shared = mmap(NULL, (2 * (size_t)st.R + 1) * sizeof(atomic_uchar),
+                      PROT_READ | PROT_WRITE, MAP_SHARED | MAP_ANONYMOUS, -1, 0);
         if (shared != MAP_FAILED) {
             hf.claimed = shared;
             hf.helped = hf.claimed + st.R;
+            hf.over = hf.helped + st.R;
+            atomic_init(hf.over, 0);
             for (unsigned r = 0; r < st.R; r++) {
                 atomic_init(&hf.claimed[r], 0);
                 atomic_init(&hf.helped[r], 0);
@@ -1262,6 +1267,9 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
             g_reason[0] = '\0';
             (void)louvain_runs(st.u, st.resolution, st.seed, ls->r0, ls->r1, st.memb, st.q,
                                st.hf, 1, NULL);
+        }
+        if (st.hf) {
+            atomic_store(st.hf->over, 1);
         }
         for (unsigned r = ls->r0; r < ls->r1; r++) {
             layout_runs |= !(st.hf && ls->pid > 0 && atomic_load(&st.hf->helped[r]));
@@ -1355,7 +1363,7 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
 cleanup:
     crew_end(&cw);
     if (shared != MAP_FAILED) {
-        munmap(shared, 2 * (size_t)st.R * sizeof(atomic_uchar));
+        munmap(shared, (2 * (size_t)st.R + 1) * sizeof(atomic_uchar));
     }
     free(memb);
     free(raw);

@@ -16,7 +16,8 @@ typedef struct {
     long bad_restart;   /* >= 0: that Louvain restart calls igraph with resolution -1, a real
                          * igraph error (in whichever process runs it, serial runs too) */
     int bad_layout;     /* the layout calls igraph with -1 iterations: a real igraph error */
-    int child_slow;     /* the layout's child waits 0.3 s after its layout (the parent helps) */
+    int child_slow;     /* the layout's child waits after its layout until the parent has
+                         * stopped helping (so the parent runs every restart it can) */
 } pm_i_network_faults_t;
 
 /* Sets the faults (NULL: none) for all later calls until changed. */

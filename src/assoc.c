@@ -96,18 +96,21 @@ static double tail_lower(const double *lf, uint64_t N, uint64_t K, uint64_t n, u
     return p < 0 ? 0 : p;
 }
 
+/* The hypergeometric mode floor((n+1)(K+1)/(N+2)), before clamping to the support: exact in
+ * integers while the product fits 64 bits. */
+static uint64_t hyper_mode(uint64_t N, uint64_t K, uint64_t n) {
+    if (n < UINT32_MAX && K < UINT32_MAX) {
+        return (n + 1) * (K + 1) / (N + 2);
+    }
+    return (uint64_t)(((long double)(n + 1) * (long double)(K + 1)) / (long double)(N + 2));
+}
+
 static double fisher(const double *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
                      int alternative) {
     uint64_t K = na, n = nb, x = nab;
     uint64_t lo = n > N - K ? n - (N - K) : 0;
     uint64_t hi = K < n ? K : n;
-    /* the mode, floor((n+1)(K+1)/(N+2)): exact in integers while the product fits 64 bits */
-    uint64_t mode;
-    if (n < UINT32_MAX && K < UINT32_MAX) {
-        mode = (n + 1) * (K + 1) / (N + 2);
-    } else {
-        mode = (uint64_t)(((long double)(n + 1) * (long double)(K + 1)) / (long double)(N + 2));
-    }
+    uint64_t mode = hyper_mode(N, K, n);
     if (mode < lo) {
         mode = lo;
     }
@@ -468,12 +471,7 @@ static int first_term_above(const double *lf, uint64_t N, uint64_t na, uint64_t 
     }
     uint64_t K = na, n = nb, x = nab;
     uint64_t hi = K < n ? K : n;
-    uint64_t mode;
-    if (n < UINT32_MAX && K < UINT32_MAX) {
-        mode = (n + 1) * (K + 1) / (N + 2);
-    } else {
-        mode = (uint64_t)(((long double)(n + 1) * (long double)(K + 1)) / (long double)(N + 2));
-    }
+    uint64_t mode = hyper_mode(N, K, n); /* fisher() clamps it to lo, below nab anyway */
     if (x <= mode || x > hi) {
         return 0;
     }

@@ -336,6 +336,20 @@ static double choose2(double k) {
     return k * (k - 1) / 2;
 }
 
+/* Sum over the runs of equal k >> shift in sorted k[0..n) of C(run length, 2). */
+static double sum_choose2_runs(const uint64_t *k, size_t n, int shift) {
+    double t = 0;
+    for (size_t i = 0; i < n;) {
+        size_t j = i;
+        while (j < n && k[j] >> shift == k[i] >> shift) {
+            j++;
+        }
+        t += choose2((double)(j - i));
+        i = j;
+    }
+    return t;
+}
+
 /* ARI = (sum_ij C(n_ij,2) - A B / C(n,2)) / ((A + B) / 2 - A B / C(n,2)) with
  * A = sum_i C(a_i,2), B = sum_j C(b_j,2) (Hubert & Arabie 1985). Counts are exact in double
  * up to n of about 10^7. */
@@ -357,23 +371,7 @@ pm_err_t pm_adjusted_rand(size_t n, const uint32_t *x, const uint32_t *y, double
         free(k);
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
     }
-    double nij = 0, A = 0, B = 0;
-    for (size_t i = 0; i < n;) {
-        size_t j = i;
-        while (j < n && k[j] == k[i]) {
-            j++;
-        }
-        nij += choose2((double)(j - i));
-        i = j;
-    }
-    for (size_t i = 0; i < n;) {
-        size_t j = i;
-        while (j < n && k[j] >> 32 == k[i] >> 32) {
-            j++;
-        }
-        A += choose2((double)(j - i));
-        i = j;
-    }
+    double nij = sum_choose2_runs(k, n, 0), A = sum_choose2_runs(k, n, 32), B;
     for (size_t i = 0; i < n; i++) {
         k[i] = y[i];
     }
@@ -381,14 +379,7 @@ pm_err_t pm_adjusted_rand(size_t n, const uint32_t *x, const uint32_t *y, double
         free(k);
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
     }
-    for (size_t i = 0; i < n;) {
-        size_t j = i;
-        while (j < n && k[j] == k[i]) {
-            j++;
-        }
-        B += choose2((double)(j - i));
-        i = j;
-    }
+    B = sum_choose2_runs(k, n, 0);
     free(k);
     double expected = A * B / choose2((double)n), top = (A + B) / 2;
     if (top == expected) {

@@ -198,16 +198,17 @@ static inline double phi_counts(uint64_t N, uint64_t na, uint64_t nb, uint64_t n
     return (double)(num / den);
 }
 
-/* Cochran's rule (common practice): the smallest expected cell below 5 -> Fisher */
-static inline double min_expected(uint64_t N, uint64_t na, uint64_t nb) {
+/* Cochran's rule (common practice): the smallest expected cell below 5 -> Fisher, else
+ * chi-square. */
+static inline unsigned char test_for(uint64_t N, uint64_t na, uint64_t nb) {
     uint64_t ra = na < N - na ? na : N - na, rb = nb < N - nb ? nb : N - nb;
-    return (double)ra * (double)rb / (double)N;
+    return (double)ra * (double)rb / (double)N < 5 ? PM_TEST_FISHER : PM_TEST_CHI2;
 }
 
-/* The p-value alone, as counts_measures computes it (phi only when chi-square needs it). */
+/* The p-value of a table and its test (phi only when chi-square needs it). */
 static double counts_p(const double *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
                        pm_sign_t sign, unsigned char *test) {
-    if (min_expected(N, na, nb) < 5) {
+    if (test_for(N, na, nb) == PM_TEST_FISHER) {
         *test = PM_TEST_FISHER;
         return fisher(lf, N, na, nb, nab,
                       sign == PM_SIGN_BOTH ? 0 : sign == PM_SIGN_POSITIVE ? 1 : -1);
@@ -228,21 +229,12 @@ static void counts_measures(const double *lf, uint64_t N, uint64_t na, uint64_t 
     m->lift = dN * dab / (da * db);
     m->jaccard = dab / (da + db - dab);
     m->phi = phi_counts(N, na, nb, nab);
-    double emin = min_expected(N, na, nb);
     m->q = NAN;
-    m->test = emin < 5 ? PM_TEST_FISHER : PM_TEST_CHI2;
+    m->test = test_for(N, na, nb);
     m->p = NAN;
-    if (!with_test) {
-        return;
-    }
-    if (emin < 5) {
-        m->test = PM_TEST_FISHER;
-        m->p = fisher(lf, N, na, nb, nab,
-                               sign == PM_SIGN_BOTH ? 0 : sign == PM_SIGN_POSITIVE ? 1 : -1);
-    } else {
-        m->test = PM_TEST_CHI2;
-        double phi = m->phi;
-        m->p = chi2_p(dN * phi * phi, phi, sign);
+    if (with_test) {
+        unsigned char t;
+        m->p = counts_p(lf, N, na, nb, nab, sign, &t);
     }
 }
 
@@ -448,16 +440,13 @@ typedef struct {
 } prune_ctx;
 
 /* True when nab <= na nb / N, that is when the pair is seen no more often than expected
- * (exact: the products are below 2^64, which long double holds exactly). The one-sided
+ * (exactly: pm_i_joint_sign). The one-sided
  * "greater" p-value of such a pair is at least 1/2: for chi-square z <= 0; for Fisher's test
  * the median of the hypergeometric distribution is floor or ceil of its mean (Kaas and
  * Buhrman 1980), so P(X >= nab) >= P(X >= median) >= 1/2 (checked exhaustively for small
  * tables in tests/unit/test_assoc.c). */
 static inline int at_most_expected(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab) {
-    if (N < (1ULL << 31)) {
-        return N * nab <= na * nb;
-    }
-    return (long double)N * (long double)nab <= (long double)na * (long double)nb;
+    return pm_i_joint_sign(N, na, nb, nab) <= 0;
 }
 
 /* True when the one-sided "greater" p-value of the table, P(X >= nab), is above lim by its
@@ -466,7 +455,7 @@ static inline int at_most_expected(uint64_t N, uint64_t na, uint64_t nb, uint64_
  * so exp(lpmf(nab)) > lim means p > lim, without the sum. */
 static int first_term_above(const double *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
                             double lim) {
-    if (!(min_expected(N, na, nb) < 5)) {
+    if (test_for(N, na, nb) != PM_TEST_FISHER) {
         return 0;
     }
     uint64_t K = na, n = nb, x = nab;
@@ -478,6 +467,14 @@ static int first_term_above(const double *lf, uint64_t N, uint64_t na, uint64_t 
     return exp(lpmf(lf, N, K, n, x)) > lim;
 }
 
+/* Under a q limit below 0.49 (sign positive, unweighted: skip_mean), a pair whose p-value is
+ * shown to exceed the limit without computing it: seen no more often than expected, or its
+ * first Fisher term over the limit. */
+static inline int shown_above(const double *lf, uint64_t N, uint64_t na, uint64_t nb,
+                              uint64_t nab, double lim) {
+    return at_most_expected(N, na, nb, nab) || first_term_above(lf, N, na, nb, nab, lim);
+}
+
 static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t nab,
                      double wab) {
     prune_ctx *c = ud;
@@ -487,9 +484,8 @@ static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t
     }
     if (!c->keep_ids) {
         const pm_incidence_t *inc = c->inc;
-        if (c->skip_mean && (at_most_expected(inc->N, inc->count[a], inc->count[b], nab) ||
-                             first_term_above(c->lf, inc->N, inc->count[a], inc->count[b], nab,
-                                              c->lim))) {
+        if (c->skip_mean &&
+            shown_above(c->lf, inc->N, inc->count[a], inc->count[b], nab, c->lim)) {
             pb->above++;
             return;
         }
@@ -544,12 +540,11 @@ static int p_chunk(void *ud, size_t c, unsigned th) {
     const pm_incidence_t *inc = j->inc;
     for (size_t k = b; k < e; k++) {
         uint64_t na = inc->count[pp->a[k]], nb = inc->count[pp->b[k]];
-        if (j->skip_mean && (at_most_expected(inc->N, na, nb, pp->n_ab[k]) ||
-                             first_term_above(j->lf, inc->N, na, nb, pp->n_ab[k], j->lim))) {
-            /* p above the q limit (p >= 1/2, or its first term is): not computed (the pair is
-             * never shown), only counted in the family */
+        if (j->skip_mean && shown_above(j->lf, inc->N, na, nb, pp->n_ab[k], j->lim)) {
+            /* p above the q limit: not computed (the pair is never shown), only counted in
+             * the family */
             pp->p[k] = INFINITY;
-            pp->test[k] = min_expected(inc->N, na, nb) < 5 ? PM_TEST_FISHER : PM_TEST_CHI2;
+            pp->test[k] = test_for(inc->N, na, nb);
             continue;
         }
         pp->p[k] = pair_p(j->lf, inc, pp->sign, j->neff, pp->a[k], pp->b[k], pp->n_ab[k],

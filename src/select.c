@@ -62,16 +62,6 @@ static int cmp_size(const void *x, const void *y) {
     return a < b ? -1 : a > b;
 }
 
-/* The sign of N nab - na nb: the products are below 2^64, which long double holds exactly. */
-static int joint_sign(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab) {
-    if (N < (1ULL << 31)) {
-        uint64_t x = N * nab, y = na * nb;
-        return (x > y) - (x < y);
-    }
-    long double x = (long double)N * (long double)nab, y = (long double)na * (long double)nb;
-    return (x > y) - (x < y);
-}
-
 pm_err_t pm_select_run(const pm_pairs_t *pp, const pm_incidence_t *inc,
                        const pm_select_opts_t *o, pm_edges_t **out, pm_diag_t *diag) {
     *out = NULL;
@@ -96,8 +86,10 @@ pm_err_t pm_select_run(const pm_pairs_t *pp, const pm_incidence_t *inc,
         if (!inc->weight) {
             /* the sign and q tests first, without the other measures: the sign of phi is
              * that of N nab - na nb (its numerator, exact as phi_counts takes it) */
-            int sg = joint_sign(inc->N, inc->count[pp->a[k]], inc->count[pp->b[k]], pp->n_ab[k]);
-            if ((o->sign == PM_SIGN_POSITIVE && sg <= 0) || (o->sign == PM_SIGN_NEGATIVE && sg >= 0)) {
+            int sg = pm_i_joint_sign(inc->N, inc->count[pp->a[k]], inc->count[pp->b[k]],
+                                     pp->n_ab[k]);
+            if ((o->sign == PM_SIGN_POSITIVE && sg <= 0) ||
+                (o->sign == PM_SIGN_NEGATIVE && sg >= 0)) {
                 e->removed_sign++;
                 continue;
             }

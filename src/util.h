@@ -59,6 +59,18 @@ int pm_i_radix_sort(void *base, size_t n, size_t size);
 /* The same by key bits lo..63 only (records equal there keep their order): fewer passes. */
 int pm_i_radix_sort_from(void *base, size_t n, size_t size, int lo);
 
+/* ---- counts ------------------------------------------------------------------------------- */
+/* The sign of N nab - na nb, phi's numerator: a pair seen more (1), as often (0) or less (-1)
+ * often than expected. Exact: the products are below 2^64, which long double holds exactly. */
+static inline int pm_i_joint_sign(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab) {
+    if (N < (1ULL << 31)) {
+        uint64_t x = N * nab, y = na * nb;
+        return (x > y) - (x < y);
+    }
+    long double x = (long double)N * (long double)nab, y = (long double)na * (long double)nb;
+    return (x > y) - (x < y);
+}
+
 /* ---- misc ---------------------------------------------------------------------------------- */
 /* Byte-wise comparison of two NUL-terminated strings as unsigned bytes (strcmp semantics). */
 int pm_i_bytecmp(const char *a, const char *b);

@@ -791,6 +791,9 @@ static pm_err_t on_rec(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     return rd->o->format == PM_FORMAT_LONG ? long_row(rd, r, diag) : lines_row(rd, r, diag);
 }
 
+int pm_i_no_fast_lines;
+int pm_i_hash_stall;
+
 /* The plain lines of a two-column long file (respondent and item, no category or weight
  * column, no --drop-item or --merge-items), read without building records: the usual case,
  * and most of the reading time. Every line it takes has exactly the effect on_rec would give
@@ -798,18 +801,15 @@ static pm_err_t on_rec(void *ud, const pm_i_record *r, pm_diag_t *diag) {
  * a line without its '\n' in p, a CR other than a final CRLF one, a field count other than
  * two, an empty field, a space or tab at a field's edge (trimmed by the record path), a field
  * over the length limit, and the lines where the parallel reader must look at the stream. */
-int pm_i_no_fast_lines;
-int pm_i_hash_stall;
-
 static pm_err_t long_lines(void *ud, char *p, size_t len, uint64_t line, char sep, size_t *used,
                            uint64_t *nlines, pm_diag_t *diag) {
     reader *rd = ud;
     pm_table_t *t = rd->t;
     *used = 0;
     *nlines = 0;
-    if (pm_i_no_fast_lines || !rd->started || rd->o->format != PM_FORMAT_LONG || rd->ncols != 2 || rd->cat >= 0 ||
-        rd->weight >= 0 || rd->id == rd->item || rd->id < 0 || rd->id > 1 || t->drop.count ||
-        t->merge_from.count || !t->defer || t->n_anon) {
+    if (pm_i_no_fast_lines || !rd->started || rd->o->format != PM_FORMAT_LONG ||
+        rd->ncols != 2 || rd->cat >= 0 || rd->weight >= 0 || rd->id == rd->item || rd->id < 0 ||
+        rd->id > 1 || t->drop.count || t->merge_from.count || !t->defer || t->n_anon) {
         return PM_OK;
     }
     if (rd->par && !rd->publisher && par_stopped(rd->par)) {
@@ -1056,30 +1056,29 @@ static int hash_file(int fd, atomic_int *stop, pm_i_sha256 *sha, uint64_t *bytes
     return rc;
 }
 
-/* Ends the job: 1 when the file hashed to exactly the expected bytes (digest into out, may be
- * NULL). A thread that is done gives its result; one still at work (in the idle class it may
- * get no processor for long on a busy machine) is told to stop, and the file is hashed here
- * instead: waiting for it is never needed. */
+/* Ends the job: 1 when the file hashed to exactly the expected bytes (digest into out; *hashed
+ * gets the bytes hashed). A thread at the normal priority is waited for; one in the idle class
+ * that is still at work (it may get no processor for long on a busy machine) is told to stop,
+ * and the file is hashed here instead. */
 static int hash_job_end(par_hash *h, unsigned char out[32], uint64_t *hashed) {
     int ok;
-    *hashed = 0;
-    while (!h->idle && out && !atomic_load_explicit(&h->done, memory_order_acquire)) {
+    while (!h->idle && !atomic_load_explicit(&h->done, memory_order_acquire)) {
         struct timespec t = {0, 100000}; /* a thread at the normal priority: it finishes */
         nanosleep(&t, NULL);
     }
     if (atomic_load_explicit(&h->done, memory_order_acquire)) {
         *hashed = h->bytes;
         ok = !h->failed && h->bytes == h->expect;
-        if (ok && out) {
+        if (ok) {
             pm_i_sha256_final(&h->sha, out);
         }
     } else {
         atomic_store(&h->stop, 1);
         pm_i_sha256 own;
         uint64_t bytes = 0;
-        ok = !out || (hash_file(h->fd, NULL, &own, &bytes) == 0 && bytes == h->expect);
+        ok = hash_file(h->fd, NULL, &own, &bytes) == 0 && bytes == h->expect;
         *hashed = bytes;
-        if (ok && out) {
+        if (ok) {
             pm_i_sha256_final(&own, out);
         }
     }
@@ -1272,8 +1271,9 @@ done:
 }
 
 /* Tries the parallel read of the regular file fp (size bytes) into t. Returns 1 when it
- * succeeded (t filled, co->bytes, co->lines, the hash set or left to pm_table_wait_hash), 0 when the caller must read serially
- * (nothing of t has changed then), -1 when out of memory (diag set). */
+ * succeeded (t filled, co->bytes, co->lines, the hash set or left to pm_table_wait_hash), 0
+ * when the caller must read serially (nothing of t has changed then), -1 when out of memory
+ * (diag set). */
 static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_t *t,
                     pm_i_csv_opts *co, pm_diag_t *diag) {
     unsigned threads = o->threads;
@@ -1391,7 +1391,6 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
     }
     if (!ok) {
         hash_job_cancel(hj); /* the hash is not needed */
-        hj = NULL;
     }
     par_rows rows[PAR_MAX];
     memset(rows, 0, sizeof rows);
@@ -1458,14 +1457,10 @@ static int par_read(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_
         } else if (!hash_job_end(hj, t->stats.sha256, &hashed)) {
             ok = 0; /* the file changed while it was read, or could not be hashed */
         }
-        hj = NULL;
         if (ok) {
             t->read_chunks = (unsigned)n;
             result = 1;
         }
-    }
-    if (hj) {
-        hash_job_cancel(hj);
     }
 stop:
     for (size_t k = 1; k < n; k++) {

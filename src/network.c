@@ -459,7 +459,7 @@ void pm_clusters_free(pm_clusters_t *c) {
     free(c);
 }
 
-/* Flags of the restarts in memory shared with the children (see crew_help): claimed[r] is
+/* Flags of the restarts in memory shared with the children (see network()): claimed[r] is
  * set by the layout's child before it runs restart r, helped[r] by the parent once it has
  * run r itself; either skips what the other has. */
 typedef struct {
@@ -736,9 +736,6 @@ static void run_share(const stage *st, share *sh, int in_child, unsigned char *d
             sh->rc = from_igraph(ig, "Louvain clustering", &sh->diag);
             return;
         }
-        if (done && !helped) {
-            memset(done, 1, sh->r1 - sh->r0);
-        }
     }
     if (helped) {
         if (lrc) {
@@ -967,7 +964,8 @@ static int collect(const stage *st, share *sh) {
                 ok = !done[i] || read_all(sh->fd, st->memb + (sh->r0 + i) * nv, b) == b;
             }
             for (size_t i = 0; i < runs && ok; i++) {
-                ok = !done[i] || read_all(sh->fd, st->q + sh->r0 + i, sizeof *st->q) == sizeof *st->q;
+                size_t b = sizeof *st->q;
+                ok = !done[i] || read_all(sh->fd, st->q + sh->r0 + i, b) == b;
             }
             ok = ok && (!bp || read_all(sh->fd, st->pos, bp) == bp);
             sh->rc = PM_OK;

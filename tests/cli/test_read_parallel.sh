@@ -87,7 +87,8 @@ same_out two pairs "$TMP/two.csv" --min-count 1 --max-q 1
 [ "$st" = 0 ] || fail "pairs on the two-column file exited $st"
 CASES=$((CASES + 1))
 for t in 1 2; do
-    "$PAIRMAP" map "$TMP/two.csv" -o "$TMP/map$t" --threads "$t" --quiet >/dev/null 2>"$TMP/map$t.err" ||
+    "$PAIRMAP" map "$TMP/two.csv" -o "$TMP/map$t" --threads "$t" --quiet \
+        >/dev/null 2>"$TMP/map$t.err" ||
         fail "map --threads $t on the two-column file failed: $(cat "$TMP/map$t.err")"
 done
 want="$(sha256sum "$TMP/two.csv" | cut -d' ' -f1)"

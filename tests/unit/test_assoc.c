@@ -806,7 +806,8 @@ static void test_assoc_run_q_limit(void **state) {
                         assert_true(pp->q[k] > lim);
                         above++;
                     }
-                    double qa = pm_pairs_qvalue(pp, ref->p[k]), qb = pm_pairs_qvalue(ref, ref->p[k]);
+                    double qa = pm_pairs_qvalue(pp, ref->p[k]);
+                    double qb = pm_pairs_qvalue(ref, ref->p[k]);
                     if (qb <= lim) {
                         assert_true(memcmp(&qa, &qb, sizeof qa) == 0);
                     } else {

@@ -375,7 +375,10 @@ static void test_incidence_build_threads_identical(void **state) {
             if (unit_below(&g, 3) == 0) {
                 r++;
             }
-            unsigned who = ungrouped && unit_below(&g, 50) == 0 ? (unsigned)unit_below(&g, r + 1) : r;
+            unsigned who = r;
+            if (ungrouped && unit_below(&g, 50) == 0) {
+                who = (unsigned)unit_below(&g, r + 1);
+            }
             if (unit_below(&g, 400) == 0) {
                 len += (size_t)snprintf(text + len, cap - len, "e%u,\n", who); /* no item */
             } else {
@@ -402,7 +405,8 @@ static void test_incidence_build_threads_identical(void **state) {
             assert_int_equal(pm_incidence_build_threads(t, th[k], &inc, &d), PM_OK);
             assert_int_equal(inc->n_resp, ref->n_resp);
             assert_int_equal(inc->n_items, ref->n_items);
-            assert_memory_equal(inc->row_ptr, ref->row_ptr, (ref->n_resp + 1) * sizeof *inc->row_ptr);
+            assert_memory_equal(inc->row_ptr, ref->row_ptr,
+                                (ref->n_resp + 1) * sizeof *inc->row_ptr);
             assert_memory_equal(inc->col, ref->col, ref->row_ptr[ref->n_resp] * sizeof *inc->col);
             assert_memory_equal(inc->count, ref->count, ref->n_items * sizeof *inc->count);
             assert_int_equal(inc->duplicates, ref->duplicates);

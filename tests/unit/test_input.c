@@ -745,7 +745,8 @@ static void test_input_read_plain_lines_fast(void **state) {
         assert_int_equal(rd_run(&r, text), PM_OK);
         const pm_input_stats_t *st = pm_table_stats(r.t);
         assert_true(st->empty_items > 100);
-        print_message("swap %d: %zu items, %zu respondents\n", swap, pm_table_nitems(r.t), pm_table_nrespondents(r.t));
+        print_message("swap %d: %zu items, %zu respondents\n", swap, pm_table_nitems(r.t),
+                      pm_table_nrespondents(r.t));
         assert_true(pm_table_nitems(r.t) > 500);
         rd_done(&r);
         free(text);

@@ -3,7 +3,7 @@
 dropping the rows by hand with pandas.
 
 Data: the invented demos demo/cafe-orders.csv (long) and demo/festival-survey.csv (wide,
-converted by the independent pandas melt of wide_reshape.py).
+converted by the independent pandas melt of wide_unfold.py).
 Rules done by hand here (DESIGN.md, issue 7):
 - --merge-file item,group renames an item to its group before counting; a group may then be
   dropped by --drop-item;
@@ -28,7 +28,7 @@ import pandas as pd
 sys.dont_write_bytecode = True  # keep the source tree clean
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import common as C  # noqa: E402
-import wide_reshape as W  # noqa: E402
+import wide_unfold as W  # noqa: E402
 
 CAFE = C.REPO / "demo" / "cafe-orders.csv"
 PAIRS_OPTS = ["--min-count", "0", "--max-q", "1", "--sign", "both"]

@@ -305,7 +305,7 @@ def check_edge(chk, td):
 
 def main():
     C.require_binary()
-    chk = C.Checker("wide_reshape (wide survey input vs pandas melt)")
+    chk = C.Checker("wide_unfold (wide survey input vs pandas melt)")
     if not DEMO.is_file():
         chk.fail(f"{DEMO} is missing (scripts/make-survey-demo writes it)")
         return chk.finish()

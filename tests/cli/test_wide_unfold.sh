@@ -2,7 +2,7 @@
 # expected long pairs written out by hand from the rules of issue 7 (labels, 1/0 and yes/no
 # cells, --drop-value, --skip-col, `label (category)`, --base), the same file as ;-separated
 # with BOM and CRLF and on stdin, the notes on stderr, --drop-item and --merge-file counts.
-# Run as `bash test_wide_reshape.sh /path/to/pairmap`.
+# Run as `bash test_wide_unfold.sh /path/to/pairmap`.
 set -u
 PAIRMAP="${1:?usage: bash $0 /path/to/pairmap}"
 case "$PAIRMAP" in /*) ;; *) PAIRMAP="$(pwd)/$PAIRMAP" ;; esac

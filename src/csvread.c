@@ -211,244 +211,307 @@ static pm_err_t fast_line(state *st, char *line, size_t len, char sep) {
     return st->fn(st->ud, &r, st->diag);
 }
 
+/* One pm_i_csv_stream: the block of input, where the scan is, and libcsv's state. */
+typedef struct {
+    state st;
+    struct csv_parser p;
+    pm_i_csv_opts *o;
+    FILE *fp;
+    void *ud;
+    pm_diag_t *diag;
+    char *blk;
+    size_t cap, have, pos;
+    size_t nul_at; /* offset of the first NUL byte in blk, SIZE_MAX: none */
+    int first, eof, seen_nul, last_nl;
+    uint64_t pending_line;
+    uint64_t at; /* ranged reads: the next offset */
+    /* where the next quote and CR are (SIZE_MAX: none), so that lines without either are not
+     * searched for them one by one */
+    size_t next_q, next_cr;
+    int q_valid, cr_valid;
+} stream;
+
+/* Reads the next block after the kept partial line; *n gets its bytes (0 and s->eof at the
+ * end). */
+static pm_err_t read_block(stream *s, size_t *n_out) {
+    pm_i_csv_opts *o = s->o;
+    size_t n;
+    if (o->ranged) {
+        size_t want = s->cap - s->have;
+        if (o->end != UINT64_MAX) {
+            want = o->end - s->at < want ? (size_t)(o->end - s->at) : want;
+        }
+        n = 0;
+        while (n < want) {
+            ssize_t k = pread(o->fd, s->blk + s->have + n, want - n, (off_t)(s->at + n));
+            if (k < 0 && errno == EINTR) {
+                continue;
+            }
+            if (k < 0) {
+                return pm_diag_set(s->diag, PM_EIO, o->display, 0, "cannot read: %s",
+                                   strerror(errno));
+            }
+            if (k == 0) {
+                break;
+            }
+            n += (size_t)k;
+        }
+        s->at += n;
+        if (n == 0) {
+            s->eof = 1;
+        }
+    } else {
+        n = fread(s->blk + s->have, 1, s->cap - s->have, s->fp);
+        if (n == 0) {
+            if (ferror(s->fp)) {
+                return pm_diag_set(s->diag, PM_EIO, o->display, 0, "cannot read: %s",
+                                   strerror(errno ? errno : EIO));
+            }
+            s->eof = 1;
+        }
+    }
+    *n_out = n;
+    return PM_OK;
+}
+
+/* The n bytes just read: hash, progress, NUL search, and on the first block the BOM and the
+ * delimiter. */
+static void took_block(stream *s, size_t n) {
+    pm_i_csv_opts *o = s->o;
+    if (o->sha && n) {
+        pm_i_sha256_update(o->sha, s->blk + s->have, n);
+    }
+    o->bytes += n;
+    uint64_t done_all = o->bytes;
+    if (o->shared_done) {
+        done_all = atomic_fetch_add_explicit(o->shared_done, n, memory_order_relaxed) + n;
+    }
+    if (o->progress) {
+        o->progress(o->progress_ud, "reading", done_all, o->total ? o->total : done_all);
+    }
+    s->nul_at = SIZE_MAX;
+    /* from 0, not from blk + have: the partial line kept from the last read may hold the
+     * NUL (a line across the block boundary, issue 6) */
+    const char *nul = s->have + n ? memchr(s->blk, '\0', s->have + n) : NULL;
+    if (nul) {
+        s->nul_at = (size_t)(nul - s->blk);
+    }
+    s->have += n;
+    s->pos = 0;
+    if (s->first && (s->have > 0 || s->eof)) {
+        s->first = 0;
+        if (s->have >= 3 && memcmp(s->blk, "\xEF\xBB\xBF", 3) == 0) {
+            s->pos = 3; /* libcsv does not strip a UTF-8 BOM */
+        }
+        if (!o->sep) {
+            o->sep = detect_sep(s->blk + s->pos, s->have - s->pos);
+        }
+        csv_set_delim(&s->p, (unsigned char)o->sep);
+    }
+}
+
+static void find_quote(stream *s) {
+    if (!s->q_valid || (s->next_q != SIZE_MAX && s->next_q < s->pos)) {
+        const char *q = memchr(s->blk + s->pos, '"', s->have - s->pos);
+        s->next_q = q ? (size_t)(q - s->blk) : SIZE_MAX;
+        s->q_valid = 1;
+    }
+}
+
+/* The plain lines from pos up to the next quote or NUL, through o->lines_fn. */
+static pm_err_t plain_lines(stream *s) {
+    pm_i_csv_opts *o = s->o;
+    if (!o->lines_fn || s->p.pstate != 0 || s->st.in_record || s->pos >= s->have) {
+        return PM_OK;
+    }
+    find_quote(s);
+    size_t lim = s->next_q < s->have ? s->next_q : s->have;
+    lim = s->nul_at < lim ? s->nul_at : lim;
+    if (lim <= s->pos) {
+        return PM_OK;
+    }
+    size_t used = 0;
+    uint64_t nlines = 0;
+    pm_err_t rc = o->lines_fn(s->ud, s->blk + s->pos, lim - s->pos, s->st.cur_line, o->sep,
+                              &used, &nlines, s->diag);
+    s->pos += used;
+    s->st.cur_line += nlines;
+    if (used) {
+        s->last_nl = 1;
+    }
+    return rc;
+}
+
+/* The line [pos, end): the quote-free fast path, or libcsv. */
+static pm_err_t one_line(stream *s, size_t end) {
+    pm_i_csv_opts *o = s->o;
+    size_t len = end - s->pos;
+    find_quote(s);
+    if (!s->cr_valid || (s->next_cr != SIZE_MAX && s->next_cr < s->pos)) {
+        const char *q = memchr(s->blk + s->pos, '\r', s->have - s->pos);
+        s->next_cr = q ? (size_t)(q - s->blk) : SIZE_MAX;
+        s->cr_valid = 1;
+    }
+    s->last_nl = s->blk[end - 1] == '\n';
+    if (s->p.pstate == 0 && !s->st.in_record && !(s->next_q < end) &&
+        !(s->next_cr < end && inner_cr(s->blk + s->pos, len))) {
+        return fast_line(&s->st, s->blk + s->pos, len, o->sep);
+    }
+    if (s->p.pstate == 0 && !s->st.in_record) {
+        s->pending_line = s->st.cur_line; /* a record (maybe multi-line) starts here */
+        s->st.row_line = s->st.cur_line;
+    }
+    pm_err_t rc = PM_OK;
+    size_t r = csv_parse(&s->p, s->blk + s->pos, len, on_field, on_record, &s->st);
+    if (!s->st.err && r != len) {
+        rc = csv_error(&s->p) == CSV_ENOMEM
+                 ? pm_diag_set(s->diag, PM_ENOMEM, o->display, 0, "out of memory")
+                 : pm_diag_set(s->diag, PM_EDATA, o->display, (long)s->st.cur_line,
+                               "malformed quoting near byte %zu of the line: a quote inside an "
+                               "unquoted field or text after a closing quote",
+                               r + 1);
+    }
+    if (s->st.err) {
+        rc = s->st.err;
+    }
+    if (!rc) {
+        rc = runaway(&s->p, &s->st, s->pending_line, s->diag);
+    }
+    return rc;
+}
+
+/* Every whole line in the block (the last one too at the end of the input). */
+static pm_err_t whole_lines(stream *s) {
+    s->q_valid = s->cr_valid = 0;
+    s->next_q = s->next_cr = 0;
+    for (;;) {
+        pm_err_t rc = plain_lines(s);
+        if (rc) {
+            return rc;
+        }
+        char *nl = memchr(s->blk + s->pos, '\n', s->have - s->pos);
+        size_t end = nl ? (size_t)(nl - s->blk) + 1 : (s->eof ? s->have : s->pos);
+        if (end == s->pos) {
+            break;
+        }
+        if (s->nul_at < end) {
+            s->seen_nul = 1;
+            break;
+        }
+        if ((rc = one_line(s, end)) != PM_OK) {
+            return rc;
+        }
+        s->pos = end;
+        if (nl) {
+            s->st.cur_line++;
+        }
+    }
+    if (s->seen_nul) {
+        return pm_diag_set(s->diag, PM_EDATA, s->o->display, (long)s->st.cur_line,
+                           "found a NUL byte: the file is binary or UTF-16 text; save it as "
+                           "UTF-8 CSV");
+    }
+    return PM_OK;
+}
+
+/* Keeps the partial last line for the next read; a line longer than the buffer goes to libcsv
+ * piecewise. */
+static pm_err_t keep_partial(stream *s) {
+    pm_i_csv_opts *o = s->o;
+    if (s->pos > 0) {
+        memmove(s->blk, s->blk + s->pos, s->have - s->pos);
+        s->have -= s->pos;
+        return PM_OK;
+    }
+    if (s->have != s->cap || s->eof) {
+        return PM_OK;
+    }
+    if (s->nul_at < s->have) {
+        return pm_diag_set(s->diag, PM_EDATA, o->display, (long)s->st.cur_line,
+                           "found a NUL byte: the file is binary or UTF-16 text; save it as "
+                           "UTF-8 CSV");
+    }
+    if (s->p.pstate == 0 && !s->st.in_record) {
+        s->pending_line = s->st.cur_line; /* a record starts here (issue 6: line numbers) */
+        s->st.row_line = s->st.cur_line;
+    }
+    size_t r = csv_parse(&s->p, s->blk, s->have, on_field, on_record, &s->st);
+    if (s->st.err) {
+        return s->st.err;
+    }
+    if (r != s->have) {
+        return csv_error(&s->p) == CSV_ENOMEM
+                   ? pm_diag_set(s->diag, PM_ENOMEM, o->display, 0, "out of memory")
+                   : pm_diag_set(s->diag, PM_EDATA, o->display, (long)s->st.cur_line,
+                                 "malformed quoting in a very long line");
+    }
+    pm_err_t rc = runaway(&s->p, &s->st, s->pending_line, s->diag);
+    if (rc == PM_OK) {
+        s->have = 0;
+    }
+    return rc;
+}
+
 pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud,
                          pm_diag_t *diag) {
-    state st;
-    memset(&st, 0, sizeof st);
-    st.diag = diag;
-    st.display = o->display;
-    st.fn = fn;
-    st.ud = ud;
-    st.cur_line = 1;
-    struct csv_parser p;
+    stream s;
+    memset(&s, 0, sizeof s);
+    s.st.diag = diag;
+    s.st.display = o->display;
+    s.st.fn = fn;
+    s.st.ud = ud;
+    s.st.cur_line = 1;
+    s.o = o;
+    s.fp = fp;
+    s.ud = ud;
+    s.diag = diag;
     pm_err_t rc = PM_OK;
-    size_t cap = BLOCK;
-    char *blk = pm_i_malloc(cap + 1, 1);
-    if (!blk) {
+    s.cap = BLOCK;
+    s.blk = pm_i_malloc(s.cap + 1, 1);
+    if (!s.blk) {
         return pm_diag_set(diag, PM_ENOMEM, o->display, 0, "out of memory");
     }
-    if (csv_init(&p, CSV_STRICT | CSV_APPEND_NULL | CSV_STRICT_FINI) != 0) {
-        free(blk);
+    if (csv_init(&s.p, CSV_STRICT | CSV_APPEND_NULL | CSV_STRICT_FINI) != 0) {
+        free(s.blk);
         return pm_diag_set(diag, PM_ENOMEM, o->display, 0, "out of memory");
     }
-    int first = 1, eof = 0, seen_nul = 0, last_nl = 1;
-    uint64_t pending_line = 1;
-    size_t have = 0, pos = 0;
+    s.first = 1;
+    s.last_nl = 1;
+    s.pending_line = 1;
     o->bytes = 0;
-    uint64_t at = o->start; /* ranged reads: the next offset */
+    s.at = o->start;
     if (o->ranged && o->start > 0) {
-        first = 0; /* mid-file: no BOM, the delimiter is given */
-        csv_set_delim(&p, (unsigned char)(o->sep ? o->sep : ','));
+        s.first = 0; /* mid-file: no BOM, the delimiter is given */
+        csv_set_delim(&s.p, (unsigned char)(o->sep ? o->sep : ','));
     }
-    while (!eof) {
+    while (!s.eof) {
         size_t n;
-        if (o->ranged) {
-            size_t want = cap - have;
-            if (o->end != UINT64_MAX) {
-                want = o->end - at < want ? (size_t)(o->end - at) : want;
-            }
-            n = 0;
-            while (n < want) {
-                ssize_t k = pread(o->fd, blk + have + n, want - n, (off_t)(at + n));
-                if (k < 0 && errno == EINTR) {
-                    continue;
-                }
-                if (k < 0) {
-                    rc = pm_diag_set(diag, PM_EIO, o->display, 0, "cannot read: %s",
-                                     strerror(errno));
-                    goto done;
-                }
-                if (k == 0) {
-                    break;
-                }
-                n += (size_t)k;
-            }
-            at += n;
-            if (n == 0) {
-                eof = 1;
-            }
-        } else {
-            n = fread(blk + have, 1, cap - have, fp);
-            if (n == 0) {
-                if (ferror(fp)) {
-                    rc = pm_diag_set(diag, PM_EIO, o->display, 0, "cannot read: %s",
-                                     strerror(errno ? errno : EIO));
-                    goto done;
-                }
-                eof = 1;
-            }
-        }
-        if (o->sha && n) {
-            pm_i_sha256_update(o->sha, blk + have, n);
-        }
-        o->bytes += n;
-        uint64_t done_all = o->bytes;
-        if (o->shared_done) {
-            done_all = atomic_fetch_add_explicit(o->shared_done, n, memory_order_relaxed) + n;
-        }
-        if (o->progress) {
-            o->progress(o->progress_ud, "reading", done_all, o->total ? o->total : done_all);
-        }
-        size_t nul_at = SIZE_MAX;
-        /* from 0, not from blk + have: the partial line kept from the last read may hold the
-         * NUL (a line across the block boundary, issue 6) */
-        const char *nul = have + n ? memchr(blk, '\0', have + n) : NULL;
-        if (nul) {
-            nul_at = (size_t)(nul - blk);
-        }
-        have += n;
-        pos = 0;
-        if (first && (have > 0 || eof)) {
-            first = 0;
-            if (have >= 3 && memcmp(blk, "\xEF\xBB\xBF", 3) == 0) {
-                pos = 3; /* libcsv does not strip a UTF-8 BOM */
-            }
-            if (!o->sep) {
-                o->sep = detect_sep(blk + pos, have - pos);
-            }
-            csv_set_delim(&p, (unsigned char)o->sep);
-        }
-        /* whole lines in the buffer; where the next quote and CR are (SIZE_MAX: none), so
-         * that lines without either are not searched for them one by one */
-        size_t next_q = 0, next_cr = 0;
-        int q_valid = 0, cr_valid = 0;
-        for (;;) {
-            if (o->lines_fn && p.pstate == 0 && !st.in_record && pos < have) {
-                if (!q_valid || (next_q != SIZE_MAX && next_q < pos)) {
-                    const char *q = memchr(blk + pos, '"', have - pos);
-                    next_q = q ? (size_t)(q - blk) : SIZE_MAX;
-                    q_valid = 1;
-                }
-                size_t lim = next_q < have ? next_q : have;
-                lim = nul_at < lim ? nul_at : lim;
-                if (lim > pos) {
-                    size_t used = 0;
-                    uint64_t nlines = 0;
-                    rc = o->lines_fn(ud, blk + pos, lim - pos, st.cur_line, o->sep, &used,
-                                     &nlines, diag);
-                    pos += used;
-                    st.cur_line += nlines;
-                    if (used) {
-                        last_nl = 1;
-                    }
-                    if (rc) {
-                        goto done;
-                    }
-                }
-            }
-            char *nl = memchr(blk + pos, '\n', have - pos);
-            size_t end = nl ? (size_t)(nl - blk) + 1 : (eof ? have : pos);
-            if (end == pos) {
-                break;
-            }
-            if (nul_at < end) {
-                seen_nul = 1;
-                break;
-            }
-            size_t len = end - pos;
-            if (!q_valid || (next_q != SIZE_MAX && next_q < pos)) {
-                const char *q = memchr(blk + pos, '"', have - pos);
-                next_q = q ? (size_t)(q - blk) : SIZE_MAX;
-                q_valid = 1;
-            }
-            if (!cr_valid || (next_cr != SIZE_MAX && next_cr < pos)) {
-                const char *q = memchr(blk + pos, '\r', have - pos);
-                next_cr = q ? (size_t)(q - blk) : SIZE_MAX;
-                cr_valid = 1;
-            }
-            if (p.pstate == 0 && !st.in_record && !(next_q < end) &&
-                !(next_cr < end && inner_cr(blk + pos, len))) {
-                last_nl = blk[end - 1] == '\n';
-                rc = fast_line(&st, blk + pos, len, o->sep);
-            } else {
-                if (p.pstate == 0 && !st.in_record) {
-                    pending_line = st.cur_line; /* a record (maybe multi-line) starts here */
-                    st.row_line = st.cur_line;
-                }
-                last_nl = blk[end - 1] == '\n';
-                size_t r = csv_parse(&p, blk + pos, len, on_field, on_record, &st);
-                if (!st.err && r != len) {
-                    rc = csv_error(&p) == CSV_ENOMEM
-                             ? pm_diag_set(diag, PM_ENOMEM, o->display, 0, "out of memory")
-                             : pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
-                                           "malformed quoting near byte %zu of the line: a "
-                                           "quote inside an unquoted field or text after a "
-                                           "closing quote",
-                                           r + 1);
-                }
-                if (st.err) {
-                    rc = st.err;
-                }
-                if (!rc) {
-                    rc = runaway(&p, &st, pending_line, diag);
-                }
-            }
-            if (rc) {
-                goto done;
-            }
-            pos = end;
-            if (nl) {
-                st.cur_line++;
-            }
-        }
-        if (seen_nul) {
-            rc = pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
-                             "found a NUL byte: the file is binary or UTF-16 text; save it as "
-                             "UTF-8 CSV");
+        if ((rc = read_block(&s, &n)) != PM_OK) {
             goto done;
         }
-        /* keep the partial last line for the next read */
-        if (pos > 0) {
-            memmove(blk, blk + pos, have - pos);
-            have -= pos;
-        } else if (have == cap && !eof) {
-            /* one line longer than the buffer: hand it to libcsv piecewise */
-            if (nul_at < have) {
-                rc = pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
-                                 "found a NUL byte: the file is binary or UTF-16 text; save it "
-                                 "as UTF-8 CSV");
-                goto done;
-            }
-            if (p.pstate == 0 && !st.in_record) {
-                pending_line = st.cur_line; /* a record starts here (issue 6: line numbers) */
-                st.row_line = st.cur_line;
-            }
-            size_t r = csv_parse(&p, blk, have, on_field, on_record, &st);
-            if (st.err) {
-                rc = st.err;
-                goto done;
-            }
-            if (r != have) {
-                rc = csv_error(&p) == CSV_ENOMEM
-                         ? pm_diag_set(diag, PM_ENOMEM, o->display, 0, "out of memory")
-                         : pm_diag_set(diag, PM_EDATA, o->display, (long)st.cur_line,
-                                       "malformed quoting in a very long line");
-                goto done;
-            }
-            if ((rc = runaway(&p, &st, pending_line, diag)) != PM_OK) {
-                goto done;
-            }
-            have = 0;
+        took_block(&s, n);
+        if ((rc = whole_lines(&s)) != PM_OK || (rc = keep_partial(&s)) != PM_OK) {
+            goto done;
         }
     }
-    if (csv_fini(&p, on_field, on_record, &st) != 0) {
+    if (csv_fini(&s.p, on_field, on_record, &s.st) != 0) {
         rc = pm_diag_set(diag, PM_EDATA, o->display,
-                         (long)(st.in_record ? st.rec_line : pending_line),
+                         (long)(s.st.in_record ? s.st.rec_line : s.pending_line),
                          "unterminated quoted field: a closing quote is missing");
         goto done;
     }
-    if (st.err) {
-        rc = st.err;
+    if (s.st.err) {
+        rc = s.st.err;
     }
 done:
-    o->lines = st.cur_line - 1 + (o->bytes > 0 && !last_nl ? 1 : 0);
+    o->lines = s.st.cur_line - 1 + (o->bytes > 0 && !s.last_nl ? 1 : 0);
     o->sep_used = o->sep ? o->sep : ',';
-    csv_free(&p);
-    free(blk);
-    free(st.buf);
-    free(st.off);
-    free(st.len);
-    free((void *)st.ptr);
+    csv_free(&s.p);
+    free(s.blk);
+    free(s.st.buf);
+    free(s.st.off);
+    free(s.st.len);
+    free((void *)s.st.ptr);
     return rc;
 }
 

@@ -1,6 +1,6 @@
 /* Streaming CSV records with physical line numbers, on top of libcsv: block reads, UTF-8 BOM,
  * CRLF, quoted fields, delimiter detection, NUL-byte and field-size checks, SHA-256 of the
- * bytes read. Shared by the long, lines and wide readers (src/input.c, src/input_wide.c). */
+ * bytes read. Shared by the long, lines and wide readers (src/read_long.c, src/input_wide.c). */
 #ifndef PM_CSVREAD_H
 #define PM_CSVREAD_H
 
@@ -45,7 +45,7 @@ typedef struct {
     uint64_t total;       /* size of the input when known (progress), else 0 */
     void (*progress)(void *ud, const char *stage, uint64_t done, uint64_t total);
     void *progress_ud;
-    /* Ranged reads (the parallel reader in src/input.c): with ranged set, fp is ignored and
+    /* Ranged reads (the parallel reader in src/read_par.c): with ranged set, fp is ignored and
      * the bytes [start, end) of the file fd are read with pread (end UINT64_MAX: to the end of
      * the file). start must be 0 or just past a '\n'; a BOM is looked for, and the delimiter
      * detected, only when start is 0. Line numbers count from 1 at start. */

@@ -1,5 +1,11 @@
-/* The table built by the readers (src/input.c, src/input_wide.c) and read by
- * src/incidence.c. Not installed. */
+/* The table built by the readers and read by src/incidence.c, and what the readers share. Not
+ * installed. Who uses whom (no file uses one above it):
+ *   src/input.c       pm_input_read: picks a reader
+ *   src/read_par.c    the parallel reader (chunks read by read_long.c, hash by filehash.c)
+ *   src/input_wide.c  the wide format
+ *   src/read_long.c   the long and lines formats
+ *   src/filehash.c    the SHA-256 thread of a parallel read
+ *   src/table.c       the table builder, --drop-item, --merge-file, accessors */
 #ifndef PM_INPUT_INTERNAL_H
 #define PM_INPUT_INTERNAL_H
 
@@ -7,15 +13,21 @@
 #include "csvread.h"
 #include "util.h"
 
+#include <pthread.h>
+#include <stdatomic.h>
+#include <string.h>
+
 /* Invariants: row_resp[i] < resp.count, row_item[i] < items.count; item_cat[i] is a category
  * id or -1; resp_weight[r] is NaN until the respondent's first weighted row. Item names are
  * trimmed, non-empty and valid UTF-8. */
-/* Tests only: set to read every line through the record path (no long_lines fast path), to
+/* Tests only: set to read every line through the record path (no pm_i_read_lines fast path), to
  * check that both give the same table or the same error. */
 extern int pm_i_no_fast_lines;
 /* Tests only: the background SHA-256 thread waits until it is told to stop (a thread that
  * gets no processor), so that its owner must hash the file itself. */
 extern int pm_i_hash_stall;
+
+typedef struct pm_i_hash_job pm_i_hash_job; /* src/filehash.c */
 
 struct pm_table {
     char *source;
@@ -58,7 +70,7 @@ struct pm_table {
     /* how the file was read: 1 serially, else the number of chunks read in parallel */
     unsigned read_chunks;
     /* a SHA-256 still being computed (pm_input_opts_t.defer_hash), or NULL */
-    struct pm_i_hash_job *hash_job;
+    pm_i_hash_job *hash_job;
 };
 
 /* Creates an empty table for the source display name, with the hygiene options of o loaded
@@ -99,5 +111,92 @@ void pm_i_trim(const char **s, size_t *len);
 /* The wide reader (src/input_wide.c). */
 pm_err_t pm_i_read_wide(FILE *fp, const pm_input_opts_t *o, pm_table_t *t, pm_i_csv_opts *co,
                         pm_diag_t *diag);
+
+/* ==== table builder (src/table.c) ==== */
+
+/* Room for `need` respondents in the per-respondent arrays (grown together: one capacity).
+ * 0 or -1 (out of memory). */
+int pm_i_grow_respondents(pm_table_t *t, size_t need);
+/* Room for `runs` runs of ids and `bytes` bytes of their text (the run arrays share
+ * run_off_cap). 0 or -1. */
+int pm_i_grow_runs(pm_table_t *t, size_t runs, size_t bytes);
+
+/* id == last over len bytes (the same respondent as the row before: most rows) */
+static inline int pm_i_same_id(const char *a, const char *b, size_t len) {
+    if (len >= 8 && len <= 16) {
+        uint64_t x, y, u, v;
+        memcpy(&x, a, 8);
+        memcpy(&y, b, 8);
+        memcpy(&u, a + len - 8, 8);
+        memcpy(&v, b + len - 8, 8);
+        return x == y && u == v;
+    }
+    return memcmp(a, b, len) == 0;
+}
+
+/* ==== long and lines readers (src/read_long.c) ==== */
+
+typedef struct pm_i_par_shared pm_i_par_shared;
+
+/* The state of one long or lines read (the whole file, or one chunk of a parallel read). */
+typedef struct {
+    pm_table_t *t;
+    const pm_input_opts_t *o;
+    int started;
+    int have_header;
+    long id, item, cat, weight; /* column indices, -1 = none */
+    size_t ncols;               /* fields per row (long format, from the header) */
+    pm_i_par_shared *par;       /* parallel read: NULL when serial */
+    int publisher;              /* the stream of the file's first chunk */
+    int published;              /* it has let the others start */
+} pm_i_reader;
+
+/* The record callback (pm_i_record_fn) of both formats: the first record resolves the
+ * columns, the others are rows. ud: a pm_i_reader. */
+pm_err_t pm_i_read_record(void *ud, const pm_i_record *r, pm_diag_t *diag);
+/* The fast path for plain two-column long lines (pm_i_lines_fn). ud: a pm_i_reader. */
+pm_err_t pm_i_read_lines(void *ud, char *p, size_t len, uint64_t line, char sep, size_t *used,
+                         uint64_t *nlines, pm_diag_t *diag);
+
+/* What the first chunk of a parallel read hands to the others once its first lines read well:
+ * the resolved columns (tmpl) and the delimiter. */
+#define PM_I_PAR_START_LINE 50000 /* lines the first chunk reads before the others start */
+struct pm_i_par_shared {
+    pthread_mutex_t mu;
+    pthread_cond_t cv;
+    int state; /* 0: columns not known yet, 1: known (tmpl, sep), -1: stop */
+    pm_i_reader tmpl;
+    char sep;
+    const pm_i_csv_opts *co0; /* the first chunk's options: its delimiter, once detected */
+    atomic_int stop;
+};
+/* Publishes rd's columns (ok) or tells the other chunks not to start (!ok); later calls change
+ * nothing. */
+void pm_i_par_publish(pm_i_par_shared *ps, const pm_i_reader *rd, int ok);
+static inline int pm_i_par_stopped(pm_i_par_shared *ps) {
+    return atomic_load_explicit(&ps->stop, memory_order_relaxed);
+}
+
+/* ==== the parallel reader (src/read_par.c) ==== */
+
+/* Tries the parallel read of the regular file fp (size bytes) into t. Returns 1 when it
+ * succeeded (t filled and finished, co->bytes, co->lines, the hash set or left to
+ * pm_table_wait_hash), 0 when the caller must read serially (nothing of t has changed then),
+ * -1 when out of memory (diag set). */
+int pm_i_read_par(FILE *fp, uint64_t size, const pm_input_opts_t *o, pm_table_t *t,
+                  pm_i_csv_opts *co, pm_diag_t *diag);
+
+/* ==== the hash thread (src/filehash.c) ==== */
+
+/* Starts hashing the file fd (duplicated: the job may outlive the caller's descriptor) on a
+ * detached thread, in the idle class when idle. NULL when it cannot start. */
+pm_i_hash_job *pm_i_hash_job_start(int fd, bool idle);
+/* The bytes the parser read: the hash must cover exactly these. */
+void pm_i_hash_job_expect(pm_i_hash_job *h, uint64_t bytes);
+/* Ends the job: 1 when the file hashed to exactly the expected bytes (digest into out; *hashed
+ * gets the bytes hashed), else 0. Frees the caller's share of h. */
+int pm_i_hash_job_end(pm_i_hash_job *h, unsigned char out[32], uint64_t *hashed);
+/* The hash is not needed: the thread stops; frees the caller's share of h. */
+void pm_i_hash_job_cancel(pm_i_hash_job *h);
 
 #endif

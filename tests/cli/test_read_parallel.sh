@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# The parallel reader at its real size (src/input.c par_read: a regular file of 16 MB or more is
+# The parallel reader at its real size (src/read_par.c: a regular file of 16 MB or more is
 # read in chunks of at least 8 MiB on --threads threads): `items` and `pairs` print the same
 # bytes with --threads 1 and 2 on a 20 MB file in the long format (with categories and weights,
 # respondents whose rows straddle the cut, duplicate rows) and in the lines format; and the

@@ -654,7 +654,7 @@ static void test_input_read_alloc_failure(void **state) {
 }
 
 /* A two-column file of some megabytes (so that reads cross the 1 MiB block edge many times)
- * with every kind of line the fast reader of plain lines (long_lines) must leave to the
+ * with every kind of line the fast reader of plain lines (pm_i_read_lines) must leave to the
  * record path mixed among ordinary ones: CRLF ends, spaces and tabs around fields, blank
  * lines, quoted fields (with the delimiter inside), empty items, ids of 8, 16 and 17 bytes,
  * respondents coming back after others, items first seen late, and no final newline. rd_run

@@ -31,7 +31,7 @@ typedef struct pm_i_hash_job pm_i_hash_job; /* src/filehash.c */
 
 struct pm_table {
     char *source;
-    pm_i_strtab resp;  /* respondent ids (kept only for `reshape`; never in results) */
+    pm_i_strtab resp;  /* respondent ids (kept only for `unfold`; never in results) */
     pm_i_strtab items; /* item names after --merge-file */
     pm_i_strtab cats;
     int32_t *item_cat;

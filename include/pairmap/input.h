@@ -100,7 +100,7 @@ const char *pm_table_source(const pm_table_t *t);
 bool pm_table_weighted(const pm_table_t *t);
 bool pm_table_has_categories(const pm_table_t *t);
 
-/* Row access for `reshape`, the one output that shows respondent ids. Rows are the kept
+/* Row access for `unfold`, the one output that shows respondent ids. Rows are the kept
  * respondent-item rows in input order (duplicates included); a respondent who chose nothing
  * has no row: find them with pm_table_respondent_empty. respondent is NULL for respondents
  * without id (lines format without --id-col); category is NULL when the item has none. */

@@ -10,7 +10,7 @@
 #include <time.h>
 #include <unistd.h>
 
-#define ALL (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_RESHAPE)
+#define ALL (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_UNFOLD)
 #define SCORE (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS)
 
 typedef struct {

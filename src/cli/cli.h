@@ -21,7 +21,7 @@ enum {
     PM_CMD_PARTNERS = 2,
     PM_CMD_PAIRS = 4,
     PM_CMD_ITEMS = 8,
-    PM_CMD_RESHAPE = 16,
+    PM_CMD_UNFOLD = 16,
 };
 
 #define PM_CLI_MAX_VALUES 256
@@ -112,6 +112,6 @@ int pm_cmd_map(int argc, char **argv);
 int pm_cmd_partners(int argc, char **argv);
 int pm_cmd_pairs(int argc, char **argv);
 int pm_cmd_items(int argc, char **argv);
-int pm_cmd_reshape(int argc, char **argv);
+int pm_cmd_unfold(int argc, char **argv);
 
 #endif

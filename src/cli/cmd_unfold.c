@@ -1,4 +1,4 @@
-/* pairmap reshape: the input as long pairs respondent,item,category on stdout, so that a user
+/* pairmap unfold: the input as long pairs respondent,item,category on stdout, so that a user
  * can check or reuse the conversion of a wide survey export (or of a lines file). The one
  * output that shows respondent ids: they are the user's own. */
 #include <math.h>
@@ -9,7 +9,7 @@
 #include "pairmap/write.h"
 
 static const char help[] =
-    "Usage: pairmap reshape INPUT --format wide --columns PREFIX [--columns PREFIX ...]\n"
+    "Usage: pairmap unfold INPUT --format wide --columns PREFIX [--columns PREFIX ...]\n"
     "                       [options] > long.csv\n"
     "\n"
     "Writes the respondent-item pairs the other commands count, as long CSV on standard\n"
@@ -38,11 +38,11 @@ static const char help[] =
     "in a note) or every respondent row (--base all).\n"
     "\n";
 
-int pm_cmd_reshape(int argc, char **argv) {
+int pm_cmd_unfold(int argc, char **argv) {
     pm_cli_t c;
     static char full[8192];
     snprintf(full, sizeof full, "%s%s", help, pm_cli_input_help);
-    int rc = pm_cli_parse(&c, "reshape", PM_CMD_RESHAPE, argc, argv, full);
+    int rc = pm_cli_parse(&c, "unfold", PM_CMD_UNFOLD, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
     }
@@ -60,7 +60,7 @@ int pm_cmd_reshape(int argc, char **argv) {
     size_t *start = NULL, *order = NULL, *seen = NULL;
     if (nr && !pm_table_respondent(t, 0)) {
         fprintf(stderr,
-                "pairmap: %s: reshape writes the respondent ids of the input, and these "
+                "pairmap: %s: unfold writes the respondent ids of the input, and these "
                 "lines have none; give --id-col\n",
                 pm_table_source(t));
         rc = 1;

@@ -16,7 +16,7 @@ static const char usage[] =
     "  pairmap partners INPUT --item NAME [...]  ranked partners of one item or of a set\n"
     "  pairmap pairs    INPUT [options]          the pairs that pass the selection (CSV)\n"
     "  pairmap items    INPUT [options]          item shares with 95% Jeffreys intervals\n"
-    "  pairmap reshape  INPUT --format wide ...  a wide survey export as long pairs\n"
+    "  pairmap unfold   INPUT --format wide ...  a wide survey export as long pairs\n"
     "  pairmap --version | --help | COMMAND --help\n"
     "\n"
     "INPUT is a CSV file or - for standard input. Data goes to standard output, notes to\n"
@@ -44,15 +44,21 @@ int main(int argc, char **argv) {
         int (*fn)(int, char **);
     } cmds[] = {
         {"map", pm_cmd_map},     {"partners", pm_cmd_partners}, {"pairs", pm_cmd_pairs},
-        {"items", pm_cmd_items}, {"reshape", pm_cmd_reshape},
+        {"items", pm_cmd_items}, {"unfold", pm_cmd_unfold},
     };
     for (size_t i = 0; i < sizeof cmds / sizeof cmds[0]; i++) {
         if (strcmp(cmd, cmds[i].name) == 0) {
             return cmds[i].fn(argc - 2, argv + 2);
         }
     }
+    if (strcmp(cmd, "reshape") == 0) { /* the old name of unfold, kept for one release */
+        fputs("pairmap: note: 'reshape' is now called 'unfold'; the old name goes in the next "
+              "release\n",
+              stderr);
+        return pm_cmd_unfold(argc - 2, argv + 2);
+    }
     fprintf(stderr, "pairmap: unknown command '%s'; the commands are map, partners, pairs, "
-                    "items, reshape (see pairmap --help)\n",
+                    "items, unfold (see pairmap --help)\n",
             cmd);
     return 1;
 }

@@ -19,7 +19,7 @@ usage() {
 }
 
 # ---- unknown -----------------------------------------------------------------------------------
-for c in map partners pairs items reshape; do
+for c in map partners pairs items unfold; do
     usage "$c" "unknown option '--frobnicate' for 'pairmap $c'" "$D" --frobnicate
 done
 usage pairs "unknown option '-x'" "$D" -x
@@ -92,7 +92,7 @@ expect_fail 1 "$D:1: " "--id-col and --item-col name the same column" -- pairs "
 expect_fail 1 "$D:1: " "--id-col and --item-col name the same column" -- pairs "$D" --id-col 2 --item-col item
 
 # ---- help and version are not errors -------------------------------------------------------------
-for c in map partners pairs items reshape; do
+for c in map partners pairs items unfold; do
     expect_ok "$c" --help && [ -s "$TMP/out" ] || fail "pairmap $c --help printed nothing"
 done
 expect_ok --version && grep -q '^pairmap [0-9]' "$TMP/out" || fail "pairmap --version: $(cat "$TMP/out")"

@@ -29,7 +29,7 @@ full pairs "$D" -q --min-count 0 --max-q 1 --sign both
 full items "$D"
 full partners "$D" --item Espresso
 full partners "$D" --item Espresso --csv --top 0
-full reshape "$D"
+full unfold "$D"
 full pairs --help
 full --help
 full --version

@@ -2,7 +2,7 @@
 # Privacy (issue 6): no respondent id appears in any output of any command, nor in the notes
 # and summaries on stderr. Respondent ids are distinctive strings that cannot occur by
 # chance; every file, stdout and stderr of map, pairs, items and partners is scanned for every
-# id of the input, in the long and lines formats, weighted and not. `reshape` converts the
+# id of the input, in the long and lines formats, weighted and not. `unfold` converts the
 # user's own file and keeps the ids: it serves as the positive control that the scan finds
 # them.
 source "$(dirname "${BASH_SOURCE[0]}")/errors_lib.sh"
@@ -80,11 +80,11 @@ fi
 # the scan looked at something: the outputs name the items
 grep -r -q -F "Croissant" "$TMP/scan" || fail "the scanned outputs do not even name the items"
 
-# positive control: reshape keeps the ids, and the scan finds every one of them
+# positive control: unfold keeps the ids, and the scan finds every one of them
 CASES=$((CASES + 1))
-"$PAIRMAP" reshape "$TMP/ids.csv" --category-col category >"$TMP/reshaped.csv" 2>/dev/null ||
-    fail "reshape failed"
-found=$(grep -F -o -f "$TMP/ids.txt" "$TMP/reshaped.csv" | sort -u | wc -l)
-[ "$found" -eq 800 ] || fail "positive control: the scan found $found of 800 ids in reshape's output"
+"$PAIRMAP" unfold "$TMP/ids.csv" --category-col category >"$TMP/unfolded.csv" 2>/dev/null ||
+    fail "unfold failed"
+found=$(grep -F -o -f "$TMP/ids.txt" "$TMP/unfolded.csv" | sort -u | wc -l)
+[ "$found" -eq 800 ] || fail "positive control: the scan found $found of 800 ids in unfold's output"
 
 finish

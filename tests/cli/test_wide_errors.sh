@@ -65,7 +65,7 @@ printf 'id,d_1,d_2\na,yes,\nb,,no\nc,Tea,\n' >mixed_flag_then_label_line4.csv
 expect 2 "mixed_flag_then_label_line4.csv:4: " "'Tea' here but 'yes' on line 2" \
     -- pairs mixed_flag_then_label_line4.csv "${W[@]}"
 expect 2 "mixed_flag_then_label_line4.csv:4: " "column 'd_1' mixes" \
-    -- reshape mixed_flag_then_label_line4.csv "${W[@]}"
+    -- unfold mixed_flag_then_label_line4.csv "${W[@]}"
 # "-" is a label until --drop-value says it means "not chosen"
 printf 'id,d_1,d_2\na,1,0\nb,-,-\n' >dash_in_flags_line3.csv
 expect 2 "dash_in_flags_line3.csv:3: " "'-' here but '1' on line 2" \
@@ -77,7 +77,7 @@ CASES=$((CASES + 1))
 : >empty.csv
 expect 2 "empty.csv:1: " "the file is empty" -- items empty.csv "${W[@]}"
 printf '\n\n  \n' >blank_lines_only.csv
-expect 2 "blank_lines_only.csv:1: " "the file is empty" -- reshape blank_lines_only.csv "${W[@]}"
+expect 2 "blank_lines_only.csv:1: " "the file is empty" -- unfold blank_lines_only.csv "${W[@]}"
 printf 'id,d_1,d_2\n' >header_only.csv
 expect 2 "header_only.csv:1: " "the header is the only line; no respondent rows follow" \
     -- items header_only.csv "${W[@]}"
@@ -86,7 +86,7 @@ expect 2 "short_row_line3.csv:3: " "found 2 fields, expected 3 as on the header"
     -- items short_row_line3.csv "${W[@]}"
 printf 'id,d_1,d_2\na,x,y\n\nb,x,y,z\n' >long_row_line4.csv
 expect 2 "long_row_line4.csv:4: " "found 4 fields, expected 3 as on the header" \
-    -- reshape long_row_line4.csv "${W[@]}"
+    -- unfold long_row_line4.csv "${W[@]}"
 printf 'id,d_1,d_2\na,x,y\na,x,\n' >duplicate_id_line3.csv
 expect 2 "duplicate_id_line3.csv:3: " "respondent 'a' has a second row (the first is on line 2)" \
     -- items duplicate_id_line3.csv "${W[@]}"
@@ -144,7 +144,7 @@ expect 1 "" "--format wide needs the header row" -- items ok.csv "${W[@]}" --no-
 expect 1 "" "--format wide needs at least one --columns PREFIX" -- items ok.csv --format wide
 expect 1 "" "--columns needs --format wide" -- items ok.csv --columns d_
 expect 1 "" "--drop-value needs --format wide" -- pairs ok.csv --drop-value x
-expect 1 "" "--skip-col needs --format wide" -- reshape ok.csv --skip-col x
+expect 1 "" "--skip-col needs --format wide" -- unfold ok.csv --skip-col x
 expect 1 "" "--base needs --format wide" -- items ok.csv --base all
 expect 1 "" "--base expects one of answered, all, got 'some'" -- items ok.csv "${W[@]}" --base some
 expect 1 "" "--item-col and --category-col do not apply to --format wide" \
@@ -154,8 +154,8 @@ expect 1 "" "--columns 'd_' and 'd-' both give the question (category) 'd'" \
 expect 1 "" "--columns 'd_' is given twice" -- items ok.csv "${W[@]}" --columns d_
 expect 1 "" "--columns needs a non-empty prefix" -- items ok.csv --format wide --columns " "
 printf 'a;b\nc;d\n' >lines_without_ids.csv
-expect 1 "lines_without_ids.csv: " "reshape writes the respondent ids of the input" \
-    -- reshape lines_without_ids.csv --format lines
+expect 1 "lines_without_ids.csv: " "unfold writes the respondent ids of the input" \
+    -- unfold lines_without_ids.csv --format lines
 
 # ---- --merge-file and --drop-item (every format) ---------------------------------------------
 printf 'order,item\n1,Espresso\n1,Bun\n2,Cappuccino\n2,Bun\n' >orders.csv
@@ -193,7 +193,7 @@ expect 2 "cats.csv:3: " "item 'Drinks' has category 'cold' here but 'hot' on lin
 printf 'id,d_1,s_1\na,Tea,Cake\n' >wide_across.csv
 printf 'Tea,Treat\nCake,Treat\n' >merge_treat.csv
 CASES=$((CASES + 1))
-if ! "$PAIRMAP" reshape wide_across.csv --format wide --columns d_ --columns s_ \
+if ! "$PAIRMAP" unfold wide_across.csv --format wide --columns d_ --columns s_ \
     --merge-file merge_treat.csv -q >out 2>err; then
     fail "wide merge across questions: $(cat err)"
 elif [ "$(cat out)" != "$(printf 'respondent,item,category\na,Treat (d),d\na,Treat (s),s')" ]; then
@@ -203,10 +203,10 @@ fi
 # ---- I/O: a full standard output ------------------------------------------------------------
 if [ -w /dev/full ]; then
     CASES=$((CASES + 1))
-    "$PAIRMAP" reshape ok.csv "${W[@]}" >/dev/full 2>err
+    "$PAIRMAP" unfold ok.csv "${W[@]}" >/dev/full 2>err
     rc=$?
     if [ "$rc" -ne 3 ] || ! grep -q "^pairmap: cannot write to standard output" err; then
-        fail "reshape > /dev/full: exit $rc, stderr $(cat err)"
+        fail "unfold > /dev/full: exit $rc, stderr $(cat err)"
     fi
 fi
 

@@ -1,4 +1,4 @@
-# CLI test: `pairmap reshape` and --format wide on a small hand-made survey export, with the
+# CLI test: `pairmap unfold` and --format wide on a small hand-made survey export, with the
 # expected long pairs written out by hand from the rules of issue 7 (labels, 1/0 and yes/no
 # cells, --drop-value, --skip-col, `label (category)`, --base), the same file as ;-separated
 # with BOM and CRLF and on stdin, the notes on stderr, --drop-item and --merge-file counts.
@@ -73,24 +73,24 @@ v4,Pancakes (hot),hot
 v5,"Tea, green",drinks
 v5,Churros,sweets
 EOF
-run answered reshape survey.csv "${W[@]}" && same "reshape --base answered" answered.out want_answered.csv
-has "reshape note" answered.err "pairmap: note: 1 respondents chose nothing in the selected questions and are left out (--base answered; --base all keeps them)"
-has "reshape note" answered.err "pairmap: note: 1 repeated respondent-item pairs written once"
-has "reshape summary" answered.err "pairmap: 4 respondents, 11 respondent-item rows, 0 respondents with no item"
+run answered unfold survey.csv "${W[@]}" && same "unfold --base answered" answered.out want_answered.csv
+has "unfold note" answered.err "pairmap: note: 1 respondents chose nothing in the selected questions and are left out (--base answered; --base all keeps them)"
+has "unfold note" answered.err "pairmap: note: 1 repeated respondent-item pairs written once"
+has "unfold summary" answered.err "pairmap: 4 respondents, 11 respondent-item rows, 0 respondents with no item"
 
 awk 'NR == 9 { print "v3,," } { print }' want_answered.csv >want_all.csv
-run all reshape survey.csv "${W[@]}" --base all && same "reshape --base all" all.out want_all.csv
-has "reshape --base all summary" all.err "pairmap: 5 respondents, 11 respondent-item rows, 1 respondents with no item"
+run all unfold survey.csv "${W[@]}" --base all && same "unfold --base all" all.out want_all.csv
+has "unfold --base all summary" all.err "pairmap: 5 respondents, 11 respondent-item rows, 1 respondents with no item"
 
 # the same export as ;-separated, with a UTF-8 BOM and CRLF line ends, and on stdin
 {
     printf '\xef\xbb\xbf'
     sed 's/,/;/g; s/"Tea; green"/"Tea, green"/g; s/$/\r/' survey.csv
 } >survey_semicolon_bom_crlf.csv
-run semi reshape survey_semicolon_bom_crlf.csv "${W[@]}" && same "; BOM CRLF" semi.out want_answered.csv
-STDIN=survey.csv run stdin reshape - "${W[@]}" && same "stdin" stdin.out want_answered.csv
+run semi unfold survey_semicolon_bom_crlf.csv "${W[@]}" && same "; BOM CRLF" semi.out want_answered.csv
+STDIN=survey.csv run stdin unfold - "${W[@]}" && same "stdin" stdin.out want_answered.csv
 # -q silences the notes, not the data
-run quiet reshape survey.csv "${W[@]}" -q && same "-q" quiet.out want_answered.csv
+run quiet unfold survey.csv "${W[@]}" -q && same "-q" quiet.out want_answered.csv
 CASES=$((CASES + 1))
 [ -s quiet.err ] && fail "-q: stderr not empty: $(cat quiet.err)"
 
@@ -103,10 +103,10 @@ north,v3,,,,tap water,0,0,no,NO,3
 east,v4,-,-,-,,1,1,-,-,2
 west,v5,"Tea, green",,,,0,0,No,yes,1
 EOF
-run byname reshape swapped.csv "${W[@]}" --id-col id -q && same "--id-col id" byname.out want_answered.csv
-run bynumber reshape swapped.csv "${W[@]}" --id-col 2 -q && same "--id-col 2" bynumber.out want_answered.csv
+run byname unfold swapped.csv "${W[@]}" --id-col id -q && same "--id-col id" byname.out want_answered.csv
+run bynumber unfold swapped.csv "${W[@]}" --id-col 2 -q && same "--id-col 2" bynumber.out want_answered.csv
 sed '1s/$/,w/; 2,$s/$/,0.5/; 3s/0\.5$/2/' survey.csv >weighted.csv
-run weighted reshape weighted.csv "${W[@]}" --weight-col w -q --base all
+run weighted unfold weighted.csv "${W[@]}" --weight-col w -q --base all
 has "weight column" weighted.out "respondent,item,category,weight"
 has "weight of v1" weighted.out "v1,Ramen,hot,0.5"
 has "weight of v2" weighted.out "v2,Lemonade,drinks,2"
@@ -132,18 +132,18 @@ has "items note" items.err "pairmap: note: 1 respondents chose nothing in the se
 run items_all items survey.csv "${W[@]}" --base all
 CASES=$((CASES + 1))
 cut -d, -f1-4 items_all.out | grep -qxF "Lemonade,drinks,2,0.4" || fail "items N=5: $(cat items_all.out)"
-# the reshaped long file counts the same
+# the unfolded long file counts the same
 run long_items items answered.out --category-col category
-same "items: wide == reshaped long" items.out long_items.out
+same "items: wide == unfolded long" items.out long_items.out
 run pairs pairs survey.csv "${W[@]}" --min-count 0 --max-q 1 --sign both
 run long_pairs pairs answered.out --category-col category --min-count 0 --max-q 1 --sign both
-same "pairs: wide == reshaped long" pairs.out long_pairs.out
+same "pairs: wide == unfolded long" pairs.out long_pairs.out
 CASES=$((CASES + 1))
 grep -q '^Lemonade,Pancakes (sweets),2,' pairs.out || fail "pair Lemonade / Pancakes (sweets) together 2: $(cat pairs.out)"
 
 # --drop-item and --merge-file on wide input: label alone, or "label (category)"
 printf 'item,group\n"Tea, green",Tea\nPancakes (sweets),Sweet pancakes\n' >merge.csv
-run hygiene reshape survey.csv "${W[@]}" --merge-file merge.csv --drop-item Ramen -q
+run hygiene unfold survey.csv "${W[@]}" --merge-file merge.csv --drop-item Ramen -q
 cat >want_hygiene.csv <<'EOF'
 respondent,item,category
 v1,Lemonade,drinks
@@ -156,12 +156,12 @@ v4,Pancakes,hot
 v5,Tea,drinks
 v5,Churros,sweets
 EOF
-same "reshape with --merge-file and --drop-item" hygiene.out want_hygiene.csv
+same "unfold with --merge-file and --drop-item" hygiene.out want_hygiene.csv
 run hygiene_items items survey.csv "${W[@]}" --merge-file merge.csv --drop-item Ramen
 has "dropped note" hygiene_items.err "pairmap: note: 2 rows dropped by --drop-item"
 has "merged note" hygiene_items.err "pairmap: note: 4 rows renamed by --merge-file (2 entries)"
 # a respondent whose only choices are dropped stays in N with no item
-run dropall reshape survey.csv "${W[@]}" --drop-item Ramen --drop-item Pancakes -q
+run dropall unfold survey.csv "${W[@]}" --drop-item Ramen --drop-item Pancakes -q
 has "dropped to nothing" dropall.out "v4,,"
 
 # --drop-item and --merge-file on long input
@@ -177,7 +177,7 @@ printf 'order,item\n1,Coffee\n1,Bun\n2,Coffee\n2,Bun\n3,Tea\n4,\n' >orders_by_ha
 run long_h_pairs pairs orders.csv --merge-file coffee.csv --drop-item Bag --min-count 0 --max-q 1 --sign both
 run by_hand_pairs pairs orders_by_hand.csv --min-count 0 --max-q 1 --sign both
 same "long: --merge-file/--drop-item == edited by hand" long_h_pairs.out by_hand_pairs.out
-run long_reshape reshape orders.csv --merge-file coffee.csv --drop-item Bag -q
+run long_unfold unfold orders.csv --merge-file coffee.csv --drop-item Bag -q
 cat >want_long.csv <<'EOF'
 respondent,item,category
 1,Coffee,
@@ -187,7 +187,17 @@ respondent,item,category
 3,Tea,
 4,,
 EOF
-same "reshape of long input" long_reshape.out want_long.csv
+same "unfold of long input" long_unfold.out want_long.csv
+
+# the old name `reshape` still works for one release (same rows, a note naming the new name),
+# and the usage lists only `unfold`
+run alias reshape survey.csv "${W[@]}" && same "reshape alias" alias.out want_answered.csv
+has "reshape alias note" alias.err "pairmap: note: 'reshape' is now called 'unfold'; the old name goes in the next release"
+run usage --help
+CASES=$((CASES + 1))
+grep -q '^  pairmap unfold ' usage.out || fail "--help does not list unfold: $(cat usage.out)"
+CASES=$((CASES + 1))
+grep -q 'reshape' usage.out && fail "--help lists the hidden alias reshape"
 
 if [ "$FAILS" -ne 0 ]; then
     printf '%s: %d of %d cases failed\n' "$(basename "$0")" "$FAILS" "$CASES" >&2

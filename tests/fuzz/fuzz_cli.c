@@ -37,7 +37,7 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size) {
                 {"partners", PM_CMD_PARTNERS},
                 {"pairs", PM_CMD_PAIRS},
                 {"items", PM_CMD_ITEMS},
-                {"reshape", PM_CMD_RESHAPE}};
+                {"unfold", PM_CMD_UNFOLD}};
     if (size < 1 || size > 8192) {
         return 0;
     }

@@ -15,7 +15,7 @@ Rules done by hand here (DESIGN.md, issue 7):
   and dropping, so a label that is no longer ambiguous loses its qualifier.
 Checks: `pairs` (all pairs, both signs) and `items` outputs with the options are
 byte-identical to those of the hand-edited long file; the notes count the rows merged and
-dropped as pandas does; for wide input `reshape` with the options gives the hand rows.
+dropped as pandas does; for wide input `unfold` with the options gives the hand rows.
 """
 
 import csv
@@ -175,9 +175,9 @@ def check_wide(chk, td):
                   note_count(err, r"(\d+) rows renamed by --merge-file"), merged, label)
         chk.equal("wide note: rows dropped by --drop-item == hand count",
                   note_count(err, r"(\d+) rows dropped by --drop-item"), dropped, label)
-        p = C.run_raw(["reshape", W.DEMO] + opts + ["-q"])
+        p = C.run_raw(["unfold", W.DEMO] + opts + ["-q"])
         got = W.parse_csv(p.stdout.decode("utf-8"))[1:]
-        chk.equal("wide reshape with the options == hand rows", got, want, label)
+        chk.equal("wide unfold with the options == hand rows", got, want, label)
         if label == "wide drop":
             chk.equal("dropping 'Lemonade (sweets)' leaves 'Lemonade' unqualified",
                       "Lemonade" in set(m["item"]), True, label)

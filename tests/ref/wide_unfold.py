@@ -14,13 +14,13 @@ below, without any code of pairmap:
 - an item is (category, label), named "label (category)" where the label occurs under more
   than one category; a repeated item of one respondent counts once;
 - --base answered leaves out respondents with no chosen cell; --base all keeps them, and
-  reshape writes one row with an empty item for each.
+  unfold writes one row with an empty item for each.
 
 Checks:
-1. `pairmap reshape` rows == the pandas long pairs, in order (respondents in file order, items
+1. `pairmap unfold` rows == the pandas long pairs, in order (respondents in file order, items
    in column order), for --base answered and --base all.
 2. `pairmap items` on the wide file: N and every item's respondents == pandas counts.
-3. The wide file and the reshaped long file (read with --category-col category) give
+3. The wide file and the unfolded long file (read with --category-col category) give
    byte-identical `pairs` (all pairs, both signs) and `items` outputs, and, once `pairmap map`
    exists, byte-identical map.graphml, map.svg, edges.csv and nodes.csv.
 """
@@ -54,7 +54,7 @@ def ascii_lower(s):
 def category_of(prefixes):
     """Prefix -> category: without trailing digits and separators; where two prefixes would
     give the same, without trailing separators only (DESIGN.md choice documented in
-    `pairmap reshape --help`)."""
+    `pairmap unfold --help`)."""
     lvl1 = {p: re.sub(r"[0-9_\-:. \t]+$", "", p) for p in prefixes}
     out = {}
     for p in prefixes:
@@ -114,7 +114,7 @@ def name_items(m):
 
 
 def long_rows(df, m, base_all, keep_rows=None, id_col=None):
-    """Expected reshape rows [respondent, item, category]: respondents in file order, items in
+    """Expected unfold rows [respondent, item, category]: respondents in file order, items in
     column order, repeats once; respondents with no kept item get ["id", "", ""] when they are
     kept (base all, or listed in keep_rows: they ticked something that was removed later)."""
     id_col = id_col or df.columns[0]
@@ -170,7 +170,7 @@ def compare_outputs(chk, label, wide_file, wargs, long_file, td):
         b = C.run_raw([cmd, long_file, "--category-col", "category"] + opts)
         chk.equal(f"{cmd}: wide exit 0", a.returncode, 0, f"{label}: {a.stderr[:300]!r}")
         chk.equal(f"{cmd}: long exit 0", b.returncode, 0, f"{label}: {b.stderr[:300]!r}")
-        chk.equal(f"{cmd} output: wide == reshaped long (byte-identical)",
+        chk.equal(f"{cmd} output: wide == unfolded long (byte-identical)",
                   first_difference(a.stdout, b.stdout), None, label)
         if cmd == "pairs":
             chk.equal("pairs output is not trivially empty", a.stdout.count(b"\n") > 10, True,
@@ -193,7 +193,7 @@ def compare_outputs(chk, label, wide_file, wargs, long_file, td):
         if not fa.is_file() or not fb.is_file():
             chk.fail(f"map {label}: {f} missing")
             continue
-        chk.equal(f"map {f}: wide == reshaped long (byte-identical)",
+        chk.equal(f"map {f}: wide == unfolded long (byte-identical)",
                   first_difference(fa.read_bytes(), fb.read_bytes()), None, label)
 
 
@@ -210,19 +210,19 @@ def check_demo(chk, td):
         base = ["--base", "all"] if base_all else []
         tag = "base all" if base_all else "base answered"
         want = long_rows(df, m, base_all)
-        p = C.run_raw(["reshape", DEMO] + wargs + base + ["-q"])
-        chk.equal(f"reshape exit 0 ({tag})", p.returncode, 0, p.stderr[:300])
+        p = C.run_raw(["unfold", DEMO] + wargs + base + ["-q"])
+        chk.equal(f"unfold exit 0 ({tag})", p.returncode, 0, p.stderr[:300])
         got = parse_csv(p.stdout.decode("utf-8"))
-        chk.equal(f"reshape header ({tag})", got[:1], [["respondent", "item", "category"]], tag)
+        chk.equal(f"unfold header ({tag})", got[:1], [["respondent", "item", "category"]], tag)
         got = got[1:]
-        chk.equal(f"reshape row count == pandas melt ({tag})", len(got), len(want), tag)
+        chk.equal(f"unfold row count == pandas melt ({tag})", len(got), len(want), tag)
         if got != want:
             first = next(i for i, (a, b) in enumerate(zip(got + [None], want + [None]))
                          if a != b)
-            chk.fail(f"reshape rows ({tag}) differ from pandas melt from row {first + 1}: "
+            chk.fail(f"unfold rows ({tag}) differ from pandas melt from row {first + 1}: "
                      f"got {got[first:first + 2]}, expected {want[first:first + 2]}")
         else:
-            chk.equal(f"reshape rows == pandas melt + filtering, in order ({tag})", True,
+            chk.equal(f"unfold rows == pandas melt + filtering, in order ({tag})", True,
                       True, tag)
         long_file = Path(td) / f"festival-long-{tag.replace(' ', '-')}.csv"
         long_file.write_bytes(p.stdout)
@@ -280,12 +280,12 @@ def check_edge(chk, td):
         want = long_rows(df, m, base_all)
         weights = dict(zip(df["id"], df["weight"]))
         want = [r + [C.fmt_weight(float(weights[r[0]]))] for r in want]
-        p = C.run_raw(["reshape", f] + wargs + base + ["-q"])
-        chk.equal(f"reshape exit 0 ({tag})", p.returncode, 0, p.stderr[:300])
+        p = C.run_raw(["unfold", f] + wargs + base + ["-q"])
+        chk.equal(f"unfold exit 0 ({tag})", p.returncode, 0, p.stderr[:300])
         got = parse_csv(p.stdout.decode("utf-8"))
-        chk.equal(f"reshape header with --weight-col ({tag})", got[:1],
+        chk.equal(f"unfold header with --weight-col ({tag})", got[:1],
                   [["respondent", "item", "category", "weight"]], tag)
-        chk.equal(f"reshape rows == pandas melt + filtering ({tag})", got[1:], want, tag)
+        chk.equal(f"unfold rows == pandas melt + filtering ({tag})", got[1:], want, tag)
         long_file = Path(td) / f"edge-long-{base_all}.csv"
         long_file.write_bytes(p.stdout)
         for cmd in ("pairs", "items"):
@@ -294,7 +294,7 @@ def check_edge(chk, td):
             a = C.run_raw([cmd, f] + wargs + base + opts + ["-q"])
             b = C.run_raw([cmd, long_file, "--category-col", "category", "--weight-col",
                            "weight"] + opts + ["-q"])
-            chk.equal(f"{cmd}: weighted wide == reshaped long ({tag})",
+            chk.equal(f"{cmd}: weighted wide == unfolded long ({tag})",
                       (a.returncode, b.returncode, first_difference(a.stdout, b.stdout)),
                       (0, 0, None), tag)
     chk.equal("edge: categories (q1/q10 clash -> separators only)", sorted(set(m["category"])),

@@ -100,24 +100,27 @@ static void data_uint(FILE *fp, const char *key, unsigned long long v) {
     fprintf(fp, "      <data key=\"%s\">%llu</data>\n", key, v);
 }
 
+/* The keys of map.graphml. The ids are pairmap's own, "scope.attribute" with the scopes map
+ * (the graph), item (a node) and pair (an edge); the attr.names are those README.md and
+ * DESIGN.md document, which readers use. The file says in a comment that pairmap wrote it. */
 static const struct {
     const char *id, *domain, *name, *type;
 } KEYS[] = {
-    {"g_title", "graph", "title", "string"},
-    {"g_measure", "graph", "measure", "string"},
-    {"v_name", "node", "name", "string"},
-    {"v_category", "node", "category", "string"},
-    {"v_respondents", "node", "respondents", "long"},
-    {"v_share", "node", "share", "double"},
-    {"v_cluster", "node", "cluster", "int"},
-    {"v_x", "node", "x", "double"},
-    {"v_y", "node", "y", "double"},
-    {"e_together", "edge", "together", "double"},
-    {"e_phi", "edge", "phi", "double"},
-    {"e_lift", "edge", "lift", "double"},
-    {"e_jaccard", "edge", "jaccard", "double"},
-    {"e_q_value", "edge", "q_value", "double"},
-    {"e_weight", "edge", "weight", "double"},
+    {"map.title", "graph", "title", "string"},
+    {"map.measure", "graph", "measure", "string"},
+    {"item.name", "node", "name", "string"},
+    {"item.category", "node", "category", "string"},
+    {"item.respondents", "node", "respondents", "long"},
+    {"item.share", "node", "share", "double"},
+    {"item.cluster", "node", "cluster", "int"},
+    {"item.x", "node", "x", "double"},
+    {"item.y", "node", "y", "double"},
+    {"pair.together", "edge", "together", "double"},
+    {"pair.phi", "edge", "phi", "double"},
+    {"pair.lift", "edge", "lift", "double"},
+    {"pair.jaccard", "edge", "jaccard", "double"},
+    {"pair.q_value", "edge", "q_value", "double"},
+    {"pair.weight", "edge", "weight", "double"},
 };
 
 pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
@@ -126,7 +129,8 @@ pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
           "<graphml xmlns=\"http://graphml.graphdrawing.org/xmlns\"\n"
           "         xmlns:xsi=\"http://www.w3.org/2001/XMLSchema-instance\"\n"
           "         xsi:schemaLocation=\"http://graphml.graphdrawing.org/xmlns "
-          "http://graphml.graphdrawing.org/xmlns/1.0/graphml.xsd\">\n",
+          "http://graphml.graphdrawing.org/xmlns/1.0/graphml.xsd\">\n"
+          "  <!-- written by pairmap; key ids are pairmap's own: map.*, item.*, pair.* -->\n",
           fp);
     for (size_t k = 0; k < sizeof KEYS / sizeof KEYS[0]; k++) {
         fprintf(fp, "  <key id=\"%s\" for=\"%s\" attr.name=\"%s\" attr.type=\"%s\"/>\n", KEYS[k].id,
@@ -134,23 +138,23 @@ pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
     }
     fputs("  <graph id=\"G\" edgedefault=\"undirected\">\n", fp);
     if (map->title) {
-        fputs("    <data key=\"g_title\">", fp);
+        fputs("    <data key=\"map.title\">", fp);
         pm_write_xml_text(fp, map->title);
         fputs("</data>\n", fp);
     }
-    fprintf(fp, "    <data key=\"g_measure\">%s</data>\n", pm_measure_name(map->measure));
+    fprintf(fp, "    <data key=\"map.measure\">%s</data>\n", pm_measure_name(map->measure));
     for (size_t v = 0; v < map->n; v++) {
         size_t i = map->item[v];
         fprintf(fp, "    <node id=\"n%zu\">\n", v);
-        data_str(fp, "v_name", inc->name[i]);
+        data_str(fp, "item.name", inc->name[i]);
         if (inc->category[i] && inc->category[i][0]) { /* no category: no data (GraphML default) */
-            data_str(fp, "v_category", inc->category[i]);
+            data_str(fp, "item.category", inc->category[i]);
         }
-        data_uint(fp, "v_respondents", (unsigned long long)inc->count[i]);
-        data_num(fp, "v_share", pm_incidence_share(inc, i));
-        data_uint(fp, "v_cluster", map->clusters->cluster[v]);
-        data_num(fp, "v_x", map->xy[2 * v]);
-        data_num(fp, "v_y", map->xy[2 * v + 1]);
+        data_uint(fp, "item.respondents", (unsigned long long)inc->count[i]);
+        data_num(fp, "item.share", pm_incidence_share(inc, i));
+        data_uint(fp, "item.cluster", map->clusters->cluster[v]);
+        data_num(fp, "item.x", map->xy[2 * v]);
+        data_num(fp, "item.y", map->xy[2 * v + 1]);
         fputs("    </node>\n", fp);
         if ((v & 1023) == 0 && ferror(fp)) {
             break;
@@ -158,8 +162,8 @@ pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
     }
     /* the edges, most of the file: each built in a buffer and written at once (the same text
      * data_num would print) */
-    static const char *const ekey[6] = {"e_together", "e_phi",     "e_lift",
-                                        "e_jaccard",  "e_q_value", "e_weight"};
+    static const char *const ekey[6] = {"pair.together", "pair.phi",     "pair.lift",
+                                        "pair.jaccard",  "pair.q_value", "pair.weight"};
     for (size_t k = 0; k < map->edges->n; k++) {
         pm_measures_t m;
         pm_pairs_measures(map->pairs, inc, map->edges->idx[k], &m);

@@ -109,6 +109,11 @@ def check_dir(chk, d, label, expect_names=None, title=None):
     chk.equal(f"{label}: every key typed",
               [k.get("id") for k in keys if k.get("attr.type") not in
                ("string", "int", "long", "double", "float", "boolean")], [])
+    # README.md: the key ids are pairmap's own, scope.attribute (map, item, pair)
+    scope = {"graph": "map", "node": "item", "edge": "pair"}
+    chk.equal(f"{label}: key ids are scope.attr.name (README.md)",
+              [k.get("id") for k in keys
+               if k.get("id") != f"{scope.get(k.get('for'))}.{k.get('attr.name')}"], [])
     kid = {(k.get("for"), k.get("attr.name")): k.get("id") for k in keys}
     text_of = {}
     for n in root.iter(NS + "node"):

@@ -35,7 +35,29 @@ typedef struct {
     const char *display;
     pm_i_record_fn fn;
     void *ud;
+    const pm_i_csv_opts *o; /* max_fields, max_what */
 } state;
+
+/* The record that started on line has one field too many: the error. */
+static pm_err_t too_many(const state *st, uint64_t line) {
+    const pm_i_csv_opts *o = st->o;
+    size_t max = o->max_fields ? o->max_fields : PM_INPUT_MAX_FIELDS;
+    if (o->max_fields && o->max_what) {
+        return pm_diag_set(st->diag, PM_EDATA, st->display, (long)line,
+                           "found more than %zu field%s, expected %zu as on the %s; check the "
+                           "delimiter and quoting",
+                           max, max == 1 ? "" : "s", max, o->max_what);
+    }
+    return pm_diag_set(st->diag, PM_EDATA, st->display, (long)line,
+                       "more than %u fields on one line, over the limit of %u; check the "
+                       "delimiter and quoting",
+                       (unsigned)max, (unsigned)max);
+}
+
+static inline int over_fields(const state *st, size_t nf) {
+    size_t max = st->o->max_fields ? st->o->max_fields : PM_INPUT_MAX_FIELDS;
+    return nf >= max;
+}
 
 static void on_field(void *s, size_t len, void *ud) {
     state *st = ud;
@@ -45,6 +67,10 @@ static void on_field(void *s, size_t len, void *ud) {
     if (!st->in_record) {
         st->in_record = 1;
         st->rec_line = st->row_line; /* a first field may span lines: where it began */
+    }
+    if (over_fields(st, st->nf)) { /* before the field is held (issue 13) */
+        st->err = too_many(st, st->rec_line);
+        return;
     }
     if (len > PM_INPUT_MAX_FIELD) {
         st->err = pm_diag_set(st->diag, PM_EDATA, st->display, (long)st->rec_line,
@@ -188,6 +214,9 @@ static pm_err_t fast_line(state *st, char *line, size_t len, char sep) {
                                "field %zu is %zu bytes long, over the limit of %u bytes; check "
                                "the delimiter and quoting",
                                nf + 1, fe - fb, (unsigned)PM_INPUT_MAX_FIELD);
+        }
+        if (over_fields(st, nf)) {
+            return too_many(st, st->cur_line);
         }
         if ((nf >= st->ptr_cap &&
              pm_i_grow((void **)&st->ptr, &st->ptr_cap, nf + 1, sizeof *st->ptr)) ||
@@ -461,6 +490,7 @@ pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud
     s.st.fn = fn;
     s.st.ud = ud;
     s.st.cur_line = 1;
+    s.st.o = o;
     s.o = o;
     s.fp = fp;
     s.ud = ud;

@@ -56,6 +56,12 @@ typedef struct {
     _Atomic uint64_t *shared_done;
     /* optional: see pm_i_lines_fn (ud: the record callback's) */
     pm_i_lines_fn lines_fn;
+    /* Most fields a record may have (0: PM_INPUT_MAX_FIELDS); the record callback may lower it
+     * once it knows the format's count (e.g. the header's). A record with more is an error at
+     * its first field over: with max_what set, "found more than N fields, expected N as on the
+     * <max_what>", else the general limit. */
+    size_t max_fields;
+    const char *max_what;
 } pm_i_csv_opts;
 
 /* Reads fp to its end, calling fn for every record. Errors: PM_EDATA (malformed quoting,

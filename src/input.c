@@ -71,6 +71,7 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
         memset(&rd, 0, sizeof rd);
         rd.t = t;
         rd.o = o;
+        rd.co = &co;
         t->defer = true;
         if (par < 0) {
             rc = PM_ENOMEM;

@@ -146,11 +146,15 @@ typedef struct {
     int have_header;
     long id, item, cat, weight; /* column indices, -1 = none */
     size_t ncols;               /* fields per row (long format, from the header) */
+    pm_i_csv_opts *co;          /* the stream's options: max_fields set from the first record */
     pm_i_par_shared *par;       /* parallel read: NULL when serial */
     int publisher;              /* the stream of the file's first chunk */
     int published;              /* it has let the others start */
 } pm_i_reader;
 
+/* Lowers rd->co's max_fields to what rd's format can use once the columns are known (long: the
+ * first record's count; lines: the general bound stays). */
+void pm_i_reader_bound(pm_i_reader *rd);
 /* The record callback (pm_i_record_fn) of both formats: the first record resolves the
  * columns, the others are rows. ud: a pm_i_reader. */
 pm_err_t pm_i_read_record(void *ud, const pm_i_record *r, pm_diag_t *diag);

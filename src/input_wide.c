@@ -52,6 +52,7 @@ typedef struct {
 typedef struct {
     pm_table_t *t;
     const pm_input_opts_t *o;
+    pm_i_csv_opts *co; /* max_fields: the header's count once it is read */
     int started;
     size_t ncols;
     long id, weight; /* column indices; weight -1 = none */
@@ -580,6 +581,8 @@ static pm_err_t on_rec(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     wide *w = ud;
     if (!w->started) {
         w->started = 1;
+        w->co->max_fields = r->n; /* rows have no more fields than the header */
+        w->co->max_what = "header";
         return header(w, r, diag);
     }
     return row(w, r, diag);
@@ -717,6 +720,7 @@ pm_err_t pm_i_read_wide(FILE *fp, const pm_input_opts_t *o, pm_table_t *t, pm_i_
     memset(&w, 0, sizeof w);
     w.t = t;
     w.o = o;
+    w.co = co;
     pm_i_strtab_init(&w.dropv);
     pm_i_strtab_init(&w.raw);
     pm_i_strtab_init(&w.keys);

@@ -29,6 +29,13 @@ static pm_err_t resolve(pm_i_reader *rd, const char *opt, const char *sel, long 
     return PM_OK;
 }
 
+void pm_i_reader_bound(pm_i_reader *rd) {
+    if (rd->co && rd->o->format == PM_FORMAT_LONG) { /* rows have the first record's count */
+        rd->co->max_fields = rd->ncols;
+        rd->co->max_what = rd->have_header ? "header" : "first line";
+    }
+}
+
 static pm_err_t first_record(pm_i_reader *rd, const pm_i_record *r, pm_diag_t *diag) {
     const pm_input_opts_t *o = rd->o;
     pm_err_t rc;
@@ -51,6 +58,7 @@ static pm_err_t first_record(pm_i_reader *rd, const pm_i_record *r, pm_diag_t *d
                                "--id-col and --item-col name the same column");
         }
         rd->ncols = r->n;
+        pm_i_reader_bound(rd);
     } else {
         if ((rc = resolve(rd, "--id-col", o->id_col, -1, &rd->id, r, diag)) ||
             (rc = resolve(rd, "--weight-col", o->weight_col, -1, &rd->weight, r, diag))) {

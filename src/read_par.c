@@ -51,6 +51,8 @@ static void par_chunk_run(par_chunk *c) {
         return;
     }
     c->rd.t = c->t;
+    c->rd.co = &c->co;
+    pm_i_reader_bound(&c->rd);
     c->rd.publisher = 0;
     c->rd.started = 1;
     c->co.lines_fn = pm_i_read_lines;
@@ -310,6 +312,7 @@ static int par_run(par_pool *pool, size_t nworkers, const pm_input_opts_t *o, pm
     ch[0].rd.t = t;
     ch[0].rd.o = o;
     ch[0].rd.par = ps;
+    ch[0].rd.co = &ch[0].co;
     ch[0].rd.publisher = 1;
     ch[0].co.lines_fn = pm_i_read_lines;
     ch[0].rc = pm_i_csv_stream(NULL, &ch[0].co, pm_i_read_record, &ch[0].rd, &ch[0].diag);

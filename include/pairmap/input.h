@@ -18,6 +18,10 @@ typedef enum { PM_FORMAT_LONG = 0, PM_FORMAT_LINES = 1, PM_FORMAT_WIDE = 2 } pm_
 
 /* Largest field accepted, in bytes (a longer one is a data error, exit 2). */
 #define PM_INPUT_MAX_FIELD 65536
+/* Most fields a line (a record) may have in any format: a line with more is a data error,
+ * found before more than this many fields are held. Rows of the long and wide formats may not
+ * have more fields than their header (or first line) either. */
+#define PM_INPUT_MAX_FIELDS 100000
 
 /* Options of the reader. Strings are borrowed: they must outlive pm_input_read().
  * Column selectors are a header name or a 1-based number given as text ("2"). */

@@ -54,7 +54,7 @@ expect_fail 2 "$TMP/lines_short.csv:2: " "fewer than --id-col 3" -- pairs "$TMP/
 
 # ---- rows that do not fit the header -----------------------------------------------------------
 run_all 2 "$DATA/short_row_line3.csv:3: " "found 2 fields, expected 3" "$DATA/short_row_line3.csv"
-run_all 2 "$DATA/long_row_semicolon_line3.csv:3: " "found 3 fields, expected 2" "$DATA/long_row_semicolon_line3.csv"
+run_all 2 "$DATA/long_row_semicolon_line3.csv:3: " "found more than 2 fields, expected 2" "$DATA/long_row_semicolon_line3.csv"
 # a quoted field over two lines (CRLF) before the bad row: the physical line is counted
 run_all 2 "$DATA/short_row_line5_after_multiline_quote.csv:5: " "found 1 fields" \
     "$DATA/short_row_line5_after_multiline_quote.csv"
@@ -145,7 +145,7 @@ expect_fail 2 "$TMP/huge_field_line5.csv:5: " "field 2 is over the limit of 6553
     printf 'order,item\nA1,a\nA2,b\nA3,c\n'
     awk 'BEGIN { for (i = 0; i < 300000; i++) printf "f%d,", i; print "x" }'
 } >"$TMP/many_fields_line5.csv"
-expect_fail 2 "$TMP/many_fields_line5.csv:5: " "found 300001 fields, expected 2" -- items "$TMP/many_fields_line5.csv"
+expect_fail 2 "$TMP/many_fields_line5.csv:5: " "found more than 2 fields, expected 2" -- items "$TMP/many_fields_line5.csv"
 # exactly at the limit is accepted
 {
     printf 'order,item\nA1,Espresso\nA1,'

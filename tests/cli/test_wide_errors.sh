@@ -85,7 +85,7 @@ printf 'id,d_1,d_2\na,x,y\nb,x\n' >short_row_line3.csv
 expect 2 "short_row_line3.csv:3: " "found 2 fields, expected 3 as on the header" \
     -- items short_row_line3.csv "${W[@]}"
 printf 'id,d_1,d_2\na,x,y\n\nb,x,y,z\n' >long_row_line4.csv
-expect 2 "long_row_line4.csv:4: " "found 4 fields, expected 3 as on the header" \
+expect 2 "long_row_line4.csv:4: " "found more than 3 fields, expected 3 as on the header" \
     -- unfold long_row_line4.csv "${W[@]}"
 printf 'id,d_1,d_2\na,x,y\na,x,\n' >duplicate_id_line3.csv
 expect 2 "duplicate_id_line3.csv:3: " "respondent 'a' has a second row (the first is on line 2)" \

@@ -822,6 +822,7 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
     co.scratch[0] = o->scratch[0];
     co.scratch[1] = o->scratch[1];
     co.scratch_n = o->scratch_n;
+    co.given = o->given;
     rc = pm_counts_build(inc, &co, &cnt, diag);
     if (rc) {
         goto cleanup;

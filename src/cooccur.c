@@ -349,9 +349,67 @@ static size_t make_chunks(const uint64_t *cost, size_t n, size_t nch, size_t *be
     return c;
 }
 
+/* The pairs of o->given (every pair seen together, counted elsewhere: a count shard) as if
+ * counted from the rows: filtered by eligible and min_keep, the rest handed to prune. */
+static pm_err_t counts_given(const pm_incidence_t *inc, const pm_counts_opts_t *o,
+                             pm_counts_t **out, pm_diag_t *diag) {
+    const pm_counts_t *g = o->given;
+    pm_counts_t *res = pm_i_calloc(1, sizeof *res);
+    size_t np = g->n_pairs ? g->n_pairs : 1;
+    if (res) {
+        res->a = pm_i_malloc(np, sizeof *res->a);
+        res->b = pm_i_malloc(np, sizeof *res->b);
+        res->n = pm_i_malloc(np, sizeof *res->n);
+        res->w = g->w ? pm_i_malloc(np, sizeof *res->w) : NULL;
+    }
+    if (!res || !res->a || !res->b || !res->n || (g->w && !res->w)) {
+        pm_counts_free(res);
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory counting pairs");
+    }
+    size_t at = 0, E = 0;
+    for (size_t i = 0; i < inc->n_items; i++) {
+        E += !o->eligible || o->eligible[i];
+    }
+    for (size_t k = 0; k < g->n_pairs; k++) {
+        uint32_t a = g->a[k], b = g->b[k];
+        if (o->eligible && (!o->eligible[a] || !o->eligible[b])) {
+            continue;
+        }
+        double w = g->w ? g->w[k] : (double)g->n[k];
+        res->seen++;
+        res->work += g->n[k]; /* each respondent's k(k-1)/2 is the sum of its pairs' counts */
+        if (g->n[k] < o->min_keep) {
+            res->pruned++;
+            if (o->prune) {
+                o->prune(o->prune_ud, 0, a, b, g->n[k], w);
+            }
+            continue;
+        }
+        res->a[at] = a;
+        res->b[at] = b;
+        res->n[at] = g->n[k];
+        if (res->w) {
+            res->w[at] = w;
+        }
+        at++;
+    }
+    res->n_pairs = at;
+    size_t dmax = o->dense_max_items ? o->dense_max_items : 2048;
+    int kernel = o->kernel;
+    if (kernel == PM_COUNTS_AUTO) { /* the kernel the rows would have been counted with */
+        kernel = (!g->w && E <= dmax) ? PM_COUNTS_DENSE : PM_COUNTS_SPARSE;
+    }
+    res->kernel = kernel == PM_COUNTS_DENSE && g->w ? PM_COUNTS_SPARSE : kernel;
+    *out = res;
+    return PM_OK;
+}
+
 pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o,
                          pm_counts_t **out, pm_diag_t *diag) {
     *out = NULL;
+    if (o->given) {
+        return counts_given(inc, o, out, diag);
+    }
     pm_err_t rc = PM_ENOMEM;
     kstate k;
     memset(&k, 0, sizeof k);

@@ -75,6 +75,7 @@ typedef struct {
     void *progress_ud;
     uint32_t *scratch[2]; /* optional scratch memory for the counting (pm_counts_opts_t) */
     size_t scratch_n;
+    const pm_counts_t *given; /* optional: the pairs counted elsewhere (pm_counts_opts_t) */
 } pm_assoc_opts_t;
 
 void pm_assoc_opts_init(pm_assoc_opts_t *o);

@@ -51,6 +51,10 @@ typedef struct {
      * its transposed index instead of fresh memory; the caller keeps and frees them */
     uint32_t *scratch[2];
     size_t scratch_n;
+    /* optional: every pair seen together, counted elsewhere (a count shard, pairmap/shard.h),
+     * ordered by (a, b) over inc's items; the rows are then not read: the result is these
+     * pairs filtered by eligible and min_keep (the rest to prune, from thread 0) */
+    const pm_counts_t *given;
 } pm_counts_opts_t;
 
 void pm_counts_opts_init(pm_counts_opts_t *o);

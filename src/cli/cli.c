@@ -10,7 +10,9 @@
 #include <time.h>
 #include <unistd.h>
 
-#define ALL (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_UNFOLD)
+#define ALL                                                                                 \
+    (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_UNFOLD | PM_CMD_COUNT)
+#define FROM_COUNTS (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS)
 #define SCORE (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS)
 
 typedef struct {
@@ -49,7 +51,10 @@ static const opt_def OPTS[] = {
     {"sign", 0, 1, 0, SCORE},
     {"measure", 0, 1, 0, PM_CMD_MAP | PM_CMD_PAIRS},
     /* map */
-    {"output", 'o', 1, 0, PM_CMD_MAP},
+    {"output", 'o', 1, 0, PM_CMD_MAP | PM_CMD_COUNT},
+    /* count shards */
+    {"part", 0, 1, 0, PM_CMD_COUNT},
+    {"from-counts", 0, 1, 0, FROM_COUNTS},
     {"seed", 0, 1, 0, PM_CMD_MAP},
     {"restarts", 0, 1, 0, PM_CMD_MAP},
     {"resolution", 0, 1, 0, PM_CMD_MAP},
@@ -238,6 +243,13 @@ int pm_cli_parse(pm_cli_t *c, const char *command, unsigned cmd, int argc, char 
         if (rc) {
             return rc;
         }
+    }
+    const char *fc = pm_cli_get(c, "from-counts");
+    if (fc && c->input) {
+        return pm_cli_usage_error(c, "give INPUT or --from-counts FILE.pmc, not both");
+    }
+    if (fc) {
+        c->input = fc; /* messages and run.json name the shard */
     }
     if (!c->input) {
         return pm_cli_usage_error(c, "no INPUT given (a file, or - for standard input)");
@@ -509,6 +521,9 @@ void pm_cli_progress_end(const pm_cli_t *c) {
 int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, double *t_read) {
     *table = NULL;
     *inc = NULL;
+    if (pm_cli_get(c, "from-counts")) {
+        return pm_cli_load_counts(c, table, inc, t_read);
+    }
     pm_input_opts_t io;
     if (pm_cli_input_opts(c, &io)) {
         return 1;
@@ -595,6 +610,7 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
     /* the table's rows (no longer needed: the incidence is built) as the counting's scratch,
      * memory in use already instead of some 80 MB of fresh pages on the benchmark file */
     ao.scratch_n = pm_table_take_rows(t, &ao.scratch[0], &ao.scratch[1]);
+    ao.given = pm_cli_given_counts(); /* --from-counts: the shard's pairs */
     pm_diag_t d;
     pm_diag_clear(&d);
     pm_err_t rc = pm_assoc_run(inc, &ao, pairs, &d);

@@ -22,6 +22,7 @@ enum {
     PM_CMD_PAIRS = 4,
     PM_CMD_ITEMS = 8,
     PM_CMD_UNFOLD = 16,
+    PM_CMD_COUNT = 32,
 };
 
 #define PM_CLI_MAX_VALUES 256
@@ -113,5 +114,19 @@ int pm_cmd_partners(int argc, char **argv);
 int pm_cmd_pairs(int argc, char **argv);
 int pm_cmd_items(int argc, char **argv);
 int pm_cmd_unfold(int argc, char **argv);
+int pm_cmd_count(int argc, char **argv);
+int pm_cmd_merge(int argc, char **argv);
+
+/* --from-counts FILE.pmc (src/cli/cmd_count.c): loads the shard as the run's table (a
+ * stand-in without rows) and incidence (no rows), keeping its pairs for pm_cli_score. Returns
+ * 0 or the exit status. */
+int pm_cli_load_counts(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc,
+                       double *t_read);
+/* The pairs of the shard loaded by pm_cli_load_counts (NULL when the run reads rows). */
+const pm_counts_t *pm_cli_given_counts(void);
+/* Squared weight sums per item of that shard (NULL when unweighted or none). */
+const double *pm_cli_given_w2(void);
+/* Writes run.json's "counts_from" object (nothing when the run read rows). */
+void pm_cli_counts_json(void *json);
 
 #endif

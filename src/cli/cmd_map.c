@@ -346,6 +346,7 @@ static pm_err_t write_run_json(FILE *fp, const pm_cli_t *c, const net_opts *no,
     }
     pm_json_string(&j, "sha256", hex);
     pm_json_end_object(&j);
+    pm_cli_counts_json(&j); /* --from-counts: the shard and the parts it holds */
 
     pm_json_begin_object(&j, "counts");
     pm_json_uint(&j, "lines", st->lines);

@@ -236,6 +236,29 @@ static int anchor_scan(const pm_incidence_t *inc, const unsigned char *in_set, s
     return 0;
 }
 
+/* The anchor of one item a from the pairs of a count shard (--from-counts). */
+static int anchor_given(const pm_incidence_t *inc, uint32_t a, anchor *an) {
+    memset(an, 0, sizeof *an);
+    an->nb = calloc(inc->n_items ? inc->n_items : 1, sizeof *an->nb);
+    an->wb = calloc(inc->n_items ? inc->n_items : 1, sizeof *an->wb);
+    if (!an->nb || !an->wb) {
+        return 1;
+    }
+    const pm_counts_t *g = pm_cli_given_counts();
+    const double *w2 = pm_cli_given_w2();
+    an->n = inc->count[a];
+    an->w = inc->wcount ? inc->wcount[a] : (double)an->n;
+    an->w2 = inc->wcount && w2 ? w2[a] : (double)an->n;
+    for (size_t k = 0; k < g->n_pairs; k++) {
+        if (g->a[k] == a || g->b[k] == a) {
+            uint32_t b = g->a[k] == a ? g->b[k] : g->a[k];
+            an->nb[b] = g->n[k];
+            an->wb[b] = g->w ? g->w[k] : (double)g->n[k];
+        }
+    }
+    return 0;
+}
+
 static void anchor_free(anchor *an) {
     free(an->nb);
     free(an->wb);
@@ -340,7 +363,14 @@ int pm_cmd_partners(int argc, char **argv) {
             }
         }
     }
-    if (anchor_scan(inc, in_set, k, &an)) {
+    if (pm_cli_given_counts() && k > 1) { /* --from-counts holds pairs, not rows */
+        rc = pm_cli_usage_error(&c, "partners of a set of %zu items need the respondents' rows "
+                                    "(who chose all of them); a count shard holds pairs only: "
+                                    "give INPUT instead of --from-counts, or one --item",
+                                k);
+        goto done;
+    }
+    if (pm_cli_given_counts() ? anchor_given(inc, first, &an) : anchor_scan(inc, in_set, k, &an)) {
         rc = 4;
         goto done;
     }

@@ -17,6 +17,8 @@ static const char usage[] =
     "  pairmap pairs    INPUT [options]          the pairs that pass the selection (CSV)\n"
     "  pairmap items    INPUT [options]          item shares with 95% Jeffreys intervals\n"
     "  pairmap unfold   INPUT --format wide ...  a wide survey export as long pairs\n"
+    "  pairmap count    INPUT -o F.pmc [--part K/M]  an additive count shard\n"
+    "  pairmap merge    A.pmc B.pmc ... -o F.pmc  the sum of count shards\n"
     "  pairmap --version | --help | COMMAND --help\n"
     "\n"
     "INPUT is a CSV file or - for standard input. Data goes to standard output, notes to\n"
@@ -45,6 +47,7 @@ int main(int argc, char **argv) {
     } cmds[] = {
         {"map", pm_cmd_map},     {"partners", pm_cmd_partners}, {"pairs", pm_cmd_pairs},
         {"items", pm_cmd_items}, {"unfold", pm_cmd_unfold},
+        {"count", pm_cmd_count}, {"merge", pm_cmd_merge},
     };
     for (size_t i = 0; i < sizeof cmds / sizeof cmds[0]; i++) {
         if (strcmp(cmd, cmds[i].name) == 0) {
@@ -58,7 +61,7 @@ int main(int argc, char **argv) {
         return pm_cmd_unfold(argc - 2, argv + 2);
     }
     fprintf(stderr, "pairmap: unknown command '%s'; the commands are map, partners, pairs, "
-                    "items, unfold (see pairmap --help)\n",
+                    "items, unfold, count, merge (see pairmap --help)\n",
             cmd);
     return 1;
 }

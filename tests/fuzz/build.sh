@@ -14,7 +14,7 @@ cflags="-std=c11 -g -O1 $san -D_POSIX_C_SOURCE=200809L -DPM_VERSION_STRING=\"fuz
  -Iinclude -Isrc $(pkg-config --cflags igraph gsl)"
 libs="$(pkg-config --libs igraph gsl) -lcsv -lpthread -lm"
 objs=""
-for f in src/*.c src/cli/cli.c; do
+for f in src/*.c src/cli/cli.c src/cli/cli_counts.c; do
     o="$out/obj/$(echo "$f" | tr / _).o"
     if [ ! -f "$o" ] || [ "$f" -nt "$o" ] || [ "$0" -nt "$o" ]; then
         # shellcheck disable=SC2086
@@ -22,7 +22,7 @@ for f in src/*.c src/cli/cli.c; do
     fi
     objs="$objs $o"
 done
-lib_objs=$(echo "$objs" | tr ' ' '\n' | grep -v src_cli_cli.c.o | tr '\n' ' ')
+lib_objs=$(echo "$objs" | tr ' ' '\n' | grep -v src_cli_ | tr '\n' ' ')
 # shellcheck disable=SC2086
 $CC $cflags -fsanitize=fuzzer tests/fuzz/fuzz_input.c $lib_objs $libs -o "$out/fuzz_input"
 # shellcheck disable=SC2086

@@ -1246,6 +1246,8 @@ void pm_pairs_measure_any(const pm_pairs_t *pp, const pm_incidence_t *inc, uint3
     if (inc->wcount) {
         pm_assoc_weighted(inc->W, inc->wcount[a], inc->wcount[b], wab, pm_incidence_neff(inc),
                           pp->sign, m);
+        m->together = pm_incidence_wunits(inc, m->together); /* in the file's units */
+        m->expected = pm_incidence_wunits(inc, m->expected);
     } else {
         pm_assoc_counts(inc->N, inc->count[a], inc->count[b], nab, pp->sign, m);
     }
@@ -1259,6 +1261,8 @@ void pm_pairs_measures(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k
         /* chi-square only: cheap, recompute */
         pm_assoc_weighted(inc->W, inc->wcount[a], inc->wcount[b], pp->w_ab[k],
                           pm_incidence_neff(inc), pp->sign, m);
+        m->together = pm_incidence_wunits(inc, m->together); /* in the file's units */
+        m->expected = pm_incidence_wunits(inc, m->expected);
     } else {
         counts_measures(NULL, inc->N, inc->count[a], inc->count[b], pp->n_ab[k], pp->sign, m,
                         0);

@@ -3,6 +3,8 @@
  * deduplicated. */
 #include "pairmap/incidence.h"
 
+#include <float.h>
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
@@ -213,6 +215,60 @@ static int scatter_chunk(void *ud, size_t c, unsigned th) {
     return 0;
 }
 
+/* The respondents' weights divided by 2^wexp, a power of two near the largest (issue 13: the
+ * same weight 1e160 on every row overflowed the sum of squares, 1e308 the sum, 1e-308
+ * underflowed the squares; scaling every weight by 2^k now changes no bit of any result). The
+ * division is exact but for a weight over 2^1021 times smaller than the largest, which is
+ * refused, as are weights whose sum (in the file's units) is not a finite double. Sums run in
+ * respondent order so the result never depends on threads. */
+static pm_err_t scale_weights(const pm_table_t *t, pm_incidence_t *inc, pm_diag_t *diag) {
+    size_t nr = (size_t)t->stats.respondents;
+    double wmax = 0;
+    size_t rmax = 0;
+    for (size_t r = 0; r < nr; r++) {
+        double wr = t->resp_weight[r];
+        if (wr != wr) {
+            return pm_diag_set(diag, PM_EDATA, t->source, (long)t->resp_line[r],
+                               "respondent has no weight");
+        }
+        if (wr > wmax) {
+            wmax = wr;
+            rmax = r;
+        }
+    }
+    int e = 0;
+    (void)frexp(wmax, &e); /* wmax = f * 2^e, 0.5 <= f < 1 */
+    inc->wexp = e;
+    long double W = 0, W2 = 0;
+    for (size_t r = 0; r < nr; r++) {
+        double wr = ldexp(t->resp_weight[r], -e);
+        if (wr < DBL_MIN) {
+            return pm_diag_set(diag, PM_EDATA, t->source, (long)t->resp_line[r],
+                               "weight %.17g is over 2^1021 times smaller than the weight "
+                               "%.17g on line %llu: the ratio cannot be represented; give "
+                               "weights of a narrower range",
+                               t->resp_weight[r], wmax, (unsigned long long)t->resp_line[rmax]);
+        }
+        inc->weight[r] = wr;
+        W += wr;
+        W2 += (long double)wr * wr;
+    }
+    inc->W = (double)W;
+    inc->W2 = (double)W2;
+    if (!isfinite(ldexp(inc->W, e))) {
+        return pm_diag_set(diag, PM_EDATA, t->source, 0,
+                           "the weights sum to more than %.3g, the largest number a result "
+                           "can hold; divide every weight by one factor (results do not "
+                           "change)",
+                           DBL_MAX);
+    }
+    return PM_OK;
+}
+
+double pm_incidence_wunits(const pm_incidence_t *inc, double v) {
+    return inc->weight ? ldexp(v, inc->wexp) : v;
+}
+
 pm_err_t pm_incidence_build(const pm_table_t *t, pm_incidence_t **out, pm_diag_t *diag) {
     return pm_incidence_build_threads(t, 1, out, diag);
 }
@@ -336,21 +392,9 @@ pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_in
             rc = PM_ENOMEM;
             goto cleanup;
         }
-        /* Sums run in respondent order so the result never depends on threads. */
-        long double W = 0, W2 = 0;
-        for (size_t r = 0; r < nr; r++) {
-            double wr = t->resp_weight[r];
-            if (wr != wr) {
-                rc = pm_diag_set(diag, PM_EDATA, t->source, (long)t->resp_line[r],
-                                 "respondent has no weight");
-                goto cleanup;
-            }
-            inc->weight[r] = wr;
-            W += wr;
-            W2 += (long double)wr * wr;
+        if ((rc = scale_weights(t, inc, diag)) != PM_OK) {
+            goto cleanup;
         }
-        inc->W = (double)W;
-        inc->W2 = (double)W2;
         long double *acc = pm_i_calloc(ni, sizeof *acc);
         if (!acc) {
             rc = PM_ENOMEM;

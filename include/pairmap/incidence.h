@@ -29,8 +29,14 @@ typedef struct {
     uint64_t N;             /* the base: respondents in the file, or --respondents */
     uint64_t *row_ptr;      /* n_resp + 1 */
     uint32_t *col;
-    double *weight;         /* respondent weights (NULL when unweighted) */
+    double *weight;         /* respondent weights (NULL when unweighted), divided by 2^wexp */
     double W, W2;           /* sum of weights and of squared weights (N, N when unweighted) */
+    int wexp;               /* weight, wcount, W, W2 and the pairs' weighted counts are held
+                             * divided by 2^wexp, a power of two near the largest weight, so
+                             * that sums and squares of any finite weights stay in range and
+                             * every result is the same when all weights are scaled by one
+                             * factor (exactly so for a power of two); 0 when unweighted.
+                             * pm_incidence_wunits gives a weighted sum in the file's units. */
     uint64_t duplicates;    /* duplicate respondent-item rows merged */
     uint64_t single_item;   /* respondents with exactly one item */
     uint64_t no_item;       /* respondents with no item (in N) */
@@ -53,6 +59,10 @@ double pm_incidence_share(const pm_incidence_t *inc, size_t i);
 
 /* Kish's effective sample size (sum w)^2 / sum w^2; N when unweighted. */
 double pm_incidence_neff(const pm_incidence_t *inc);
+
+/* A weighted sum v held in the incidence's units (see wexp) in the units of the file's
+ * weights; v itself when unweighted. */
+double pm_incidence_wunits(const pm_incidence_t *inc, double v);
 
 #ifdef __cplusplus
 }

@@ -448,8 +448,8 @@ int pm_cmd_partners(int argc, char **argv) {
             }
             row *r = &rows[nrows++];
             r->item = fam[j];
-            r->together = ms[j].together;
-            r->expected = ms[j].expected;
+            r->together = pm_incidence_wunits(inc, ms[j].together); /* the file's units */
+            r->expected = pm_incidence_wunits(inc, ms[j].expected);
             r->lift = ms[j].lift;
             r->phi = ms[j].phi;
             r->q = ms[j].q;

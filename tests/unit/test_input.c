@@ -324,9 +324,9 @@ static void test_input_read_weight_valid(void **state) {
     pm_diag_t d;
     assert_int_equal(pm_incidence_build(r.t, &inc, &d), PM_OK);
     assert_non_null(inc->weight);
-    assert_true(inc->weight[0] == 1.5);
-    assert_true(inc->weight[1] == 0.2);
-    assert_true(inc->weight[2] == 3.0); /* the respondent who chose nothing keeps a weight */
+    assert_true(pm_incidence_wunits(inc, inc->weight[0]) == 1.5);
+    assert_true(pm_incidence_wunits(inc, inc->weight[1]) == 0.2);
+    assert_true(pm_incidence_wunits(inc, inc->weight[2]) == 3.0); /* the respondent who chose nothing keeps a weight */
     pm_incidence_free(inc);
     rd_done(&r);
 }

@@ -69,6 +69,11 @@ struct pm_table {
     int64_t last_r;
     /* how the file was read: 1 serially, else the number of chunks read in parallel */
     unsigned read_chunks;
+    /* the header's respondent and item cells (long format), for stats.header_like_data */
+    char *hdr_id, *hdr_item;
+    /* lines format without --id-col: the first fields of the first lines (stats.id_like_*) */
+    pm_i_strtab idsample;
+    bool id_unlike;
     /* a SHA-256 still being computed (pm_input_opts_t.defer_hash), or NULL */
     pm_i_hash_job *hash_job;
 };
@@ -152,6 +157,8 @@ typedef struct {
     int published;              /* it has let the others start */
 } pm_i_reader;
 
+/* Sets stats.header_like_data and stats.id_like_* of a finished long or lines table. */
+void pm_i_reader_notes(pm_table_t *t);
 /* Lowers rd->co's max_fields to what rd's format can use once the columns are known (long: the
  * first record's count; lines: the general bound stays). */
 void pm_i_reader_bound(pm_i_reader *rd);

@@ -36,6 +36,94 @@ void pm_i_reader_bound(pm_i_reader *rd) {
     }
 }
 
+/* Keeps what a note about the header line needs (stats.header_*). */
+static pm_err_t keep_header(pm_i_reader *rd, const pm_i_record *r, pm_diag_t *diag) {
+    pm_table_t *t = rd->t;
+    char line[256], *at = line;
+    char sep = rd->co && rd->co->sep ? rd->co->sep : ',';
+    for (size_t i = 0; i < r->n && at < line + sizeof line - 2; i++) {
+        size_t room = (size_t)(line + sizeof line - 2 - at), l = r->len[i];
+        if (i) {
+            *at++ = sep;
+            room--;
+        }
+        l = l < room ? l : room;
+        memcpy(at, r->f[i], l);
+        at += l;
+    }
+    t->stats.header_line = r->line;
+    pm_i_shown(line, (size_t)(at - line), t->stats.header_text, sizeof t->stats.header_text);
+    if (rd->o->format == PM_FORMAT_LONG) {
+        const char *a = r->f[rd->id], *b = r->f[rd->item];
+        size_t al = r->len[rd->id], bl = r->len[rd->item];
+        pm_i_trim(&a, &al);
+        pm_i_trim(&b, &bl);
+        t->hdr_id = pm_i_malloc(al + 1, 1);
+        t->hdr_item = pm_i_malloc(bl + 1, 1);
+        if (!t->hdr_id || !t->hdr_item) {
+            return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+        }
+        memcpy(t->hdr_id, a, al);
+        t->hdr_id[al] = '\0';
+        memcpy(t->hdr_item, b, bl);
+        t->hdr_item[bl] = '\0';
+    }
+    return PM_OK;
+}
+
+/* A number, an e-mail address or a code with three digits or more, without spaces. */
+static int id_like(const char *s, size_t n) {
+    size_t digits = 0, at = 0, dot_after_at = 0;
+    for (size_t i = 0; i < n; i++) {
+        unsigned char c = (unsigned char)s[i];
+        if (c == ' ' || c == '\t') {
+            return 0;
+        }
+        digits += c >= '0' && c <= '9';
+        if (c == '@') {
+            at++;
+        } else if (c == '.' && at) {
+            dot_after_at = 1;
+        }
+    }
+    return n && (digits == n || (at == 1 && dot_after_at) || (digits >= 3 && 2 * digits >= n));
+}
+
+/* Lines format without --id-col: the first field of one of the first lines (stats.id_like). */
+static pm_err_t sample_first_field(pm_table_t *t, const pm_i_record *r, long skip) {
+    if (t->id_unlike || t->idsample.count >= 1000 || r->n < 2) {
+        return PM_OK;
+    }
+    size_t k = skip == 0 ? 1 : 0;
+    const char *s = r->f[k];
+    size_t l = r->len[k];
+    pm_i_trim(&s, &l);
+    bool added = false;
+    if (!id_like(s, l)) {
+        t->id_unlike = true;
+    } else if (pm_i_strtab_intern(&t->idsample, s, l, &added) < 0) {
+        return PM_ENOMEM;
+    } else if (!added) {
+        t->id_unlike = true;
+    } else if (t->idsample.count == 1) {
+        pm_i_shown(s, l, t->stats.id_like_example, sizeof t->stats.id_like_example);
+    }
+    return PM_OK;
+}
+
+void pm_i_reader_notes(pm_table_t *t) {
+    if (t->hdr_id && t->hdr_item) {
+        bool seen = pm_i_strtab_find(&t->items, t->hdr_item, strlen(t->hdr_item)) >= 0;
+        size_t idl = strlen(t->hdr_id);
+        for (size_t r = 0; !seen && r < (size_t)t->stats.respondents; r++) {
+            const char *id = pm_table_respondent(t, r);
+            seen = id && strlen(id) == idl && memcmp(id, t->hdr_id, idl) == 0;
+        }
+        t->stats.header_like_data = seen;
+    }
+    t->stats.id_like_lines = !t->id_unlike && t->idsample.count >= 3 ? t->idsample.count : 0;
+}
+
 static pm_err_t first_record(pm_i_reader *rd, const pm_i_record *r, pm_diag_t *diag) {
     const pm_input_opts_t *o = rd->o;
     pm_err_t rc;
@@ -67,7 +155,7 @@ static pm_err_t first_record(pm_i_reader *rd, const pm_i_record *r, pm_diag_t *d
         rd->item = -1;
         rd->cat = -1;
     }
-    return PM_OK;
+    return rd->have_header ? keep_header(rd, r, diag) : PM_OK;
 }
 
 static pm_err_t long_row(pm_i_reader *rd, const pm_i_record *r, pm_diag_t *diag) {
@@ -120,6 +208,9 @@ static pm_err_t lines_row(pm_i_reader *rd, const pm_i_record *r, pm_diag_t *diag
         rc = pm_i_table_respondent(t, id, idl, r->line, &resp, diag);
     } else {
         rc = pm_i_table_anon_respondent(t, r->line, &resp, diag);
+        if (rc == PM_OK && sample_first_field(t, r, rd->weight) != PM_OK) {
+            rc = pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+        }
     }
     if (rc) {
         return rc;

@@ -42,6 +42,9 @@ void pm_table_free(pm_table_t *t) {
         t->hash_job = NULL;
     }
     free(t->source);
+    free(t->hdr_id);
+    free(t->hdr_item);
+    pm_i_strtab_destroy(&t->idsample);
     pm_i_strtab_destroy(&t->resp);
     pm_i_strtab_destroy(&t->items);
     pm_i_strtab_destroy(&t->cats);
@@ -151,6 +154,7 @@ pm_err_t pm_i_table_new(const pm_input_opts_t *o, const char *display, pm_table_
     pm_i_strtab_init(&t->drop);
     pm_i_strtab_init(&t->merge_from);
     pm_i_strtab_init(&t->merge_to_names);
+    pm_i_strtab_init(&t->idsample);
     t->last_r = -1;
     t->read_chunks = 1;
     t->source = strdup(display);
@@ -387,6 +391,13 @@ pm_err_t pm_i_table_weight(pm_table_t *t, uint32_t r, const char *w, size_t len,
     char *end;
     errno = 0;
     double v = strtod(buf, &end);
+    if (*end == ',' && end > buf && isdigit((unsigned char)end[-1]) &&
+        isdigit((unsigned char)end[1]) && !strchr(end + 1, ',')) {
+        return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
+                           "weight '%s' has a decimal comma; a decimal point is expected "
+                           "(%.*s.%s)",
+                           buf, (int)(end - buf), buf, end + 1);
+    }
     if (*end != '\0' || !isfinite(v) || !(v > 0)) {
         return pm_diag_set(diag, PM_EDATA, t->source, (long)line,
                            "expected a weight that is a finite number > 0, got '%s'", buf);

@@ -75,6 +75,15 @@ typedef struct {
     uint64_t blank_excluded;  /* wide --base answered: respondents who chose nothing, left out */
     uint64_t bytes;           /* bytes read */
     unsigned char sha256[32]; /* SHA-256 of the bytes read */
+    /* For notes the caller shows (the library prints nothing). */
+    uint64_t header_line;     /* the line read as the header; 0: none (--no-header) */
+    char header_text[128];    /* that line as shown in a message (escaped, shortened) */
+    bool header_like_data;    /* long: its respondent or item cell is seen again as data */
+    /* lines format without --id-col: the first field of the first lines (up to 1,000) differs
+     * on every line and looks like an id (a number, an e-mail address, a code with digits), so
+     * that the ids would become items; the lines looked at (0: no such sign) and one of them */
+    uint64_t id_like_lines;
+    char id_like_example[64];
 } pm_input_stats_t;
 
 typedef struct pm_table pm_table_t;

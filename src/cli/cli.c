@@ -560,6 +560,17 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     }
     const pm_input_stats_t *s = pm_table_stats(*table);
     const pm_incidence_t *ic = *inc;
+    /* a header taken from a file that may have none (issue 16): always for baskets, for long
+     * files when a header cell is seen again as data */
+    if (s->header_line && (io.format == PM_FORMAT_LINES || s->header_like_data)) {
+        pm_cli_note(c, "note: line %llu was read as a header ('%s'); --no-header keeps it as data",
+                    (unsigned long long)s->header_line, s->header_text);
+    }
+    if (s->id_like_lines) {
+        pm_cli_note(c, "warning: the first field differs on each of the first %llu lines and "
+                       "looks like an id ('%s'); without --id-col 1 the ids become items",
+                    (unsigned long long)s->id_like_lines, s->id_like_example);
+    }
     if (ic->duplicates) {
         pm_cli_note(c, "warning: %llu duplicate respondent-item rows merged (each counts once)",
                     (unsigned long long)ic->duplicates);

@@ -278,7 +278,7 @@ int pm_layout_default_iterations_for(size_t n, size_t m, const uint32_t *ea, con
     size_t laid = 0;
     for (size_t k = 0; k < m; k++) {
         if (edge_ok(ea, eb, w, k) && ea[k] < n && eb[k] < n) {
-            laid += !has[ea[k]] + !has[eb[k]];
+            laid += (size_t)(!has[ea[k]] + !has[eb[k]]);
             has[ea[k]] = has[eb[k]] = 1;
         }
     }

@@ -2428,15 +2428,14 @@ static pm_err_t write_legend(ctx_t *c, const pic_t *p, sbuf *b, double wmin, dou
     snprintf(neg_text, sizeof neg_text, "dashed: chosen instead of each other");
     snprintf(foot, sizeof foot, "Layout: Fruchterman-Reingold, seed %llu \xc2\xb7 pairmap %s",
              (unsigned long long)c->o->seed, pm_version());
-    double size_h =
-        nv ? para_lines(c, x, fs, 1, size_head, 2) * lh + 0.3 * lh + 2 * rbig + 1.4 * fs2 + 0.9 * lh
-           : 0;
+    double size_lines = (double)para_lines(c, x, fs, 1, size_head, 2);
+    double size_h = nv ? size_lines * lh + 0.3 * lh + 2 * rbig + 1.4 * fs2 + 0.9 * lh : 0;
+    double neg_lines = any_negative ? (double)para_lines(c, x + 3.6 * fs, fs2, 0, neg_text, 2) : 0;
     double line_h =
-        p->ne ? para_lines(c, x, fs, 1, line_head, 2) * lh + 2 * lh2 +
-                    (any_negative ? para_lines(c, x + 3.6 * fs, fs2, 0, neg_text, 2) * lh2 : 0) +
+        p->ne ? (double)para_lines(c, x, fs, 1, line_head, 2) * lh + 2 * lh2 + neg_lines * lh2 +
                     0.9 * lh
               : 0;
-    double foot_h = para_lines(c, x, fs2, 0, foot, 2) * lh2;
+    double foot_h = (double)para_lines(c, x, fs2, 0, foot, 2) * lh2;
     double keys_top = bottom - foot_h - line_h - size_h;
     double y = L->y0 + ASCENT * fh;
     sb_puts(b, "<g id=\"legend\">\n");

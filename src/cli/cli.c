@@ -486,7 +486,7 @@ double pm_cli_now(void) {
 void pm_cli_progress(void *ud, const char *stage, uint64_t done, uint64_t total) {
     (void)ud;
     double t = pm_cli_now();
-    if (!g_progress.start) {
+    if (g_progress.start == 0) {
         g_progress.start = t;
     }
     if (t - g_progress.last < 0.2 && done < total) {

@@ -91,8 +91,8 @@ static void test_incidence_build_canonical_order(void **state) {
                                        "apple-pie",
                                        "tea",
                                        "zucchini",
-                                       "\xC3\xA9"
-                                       "clair"};
+                                       ("\xC3\xA9" /* é, then plain text */
+                                        "clair")};
     static const char *const cat[] = {"drink", "fruit", "bake", "bake", "drink", NULL, "bake"};
     assert_int_equal(inc->n_items, 7);
     for (size_t i = 0; i < 7; i++) {

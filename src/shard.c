@@ -345,7 +345,10 @@ static pm_err_t decode_totals(rbuf *r, pm_shard_t *s) {
         s->parts[i].k = get_var(r, "truncated part");
         s->n_parts = i + 1;
         if (r->bad || s->parts[i].m == 0 || s->parts[i].k >= s->parts[i].m ||
-            (i && part_cmp(&s->parts[i - 1], &s->parts[i]) >= 0) || left(r) < 34 * (np - i - 1)) {
+            (i && part_cmp(&s->parts[i - 1], &s->parts[i]) >= 0) ||
+            (i && memcmp(s->parts[i - 1].src, s->parts[i].src, 32) == 0 &&
+             s->parts[i - 1].m != s->parts[i].m) ||
+            left(r) < 34 * (np - i - 1)) {
             return bad(r, "bad part list");
         }
     }
@@ -355,7 +358,8 @@ static pm_err_t decode_totals(rbuf *r, pm_shard_t *s) {
     s->duplicates = get_var(r, "truncated totals");
     s->single_item = get_var(r, "truncated totals");
     s->no_item = get_var(r, "truncated totals");
-    if (r->bad || s->respondents > s->N || s->single_item > s->N || s->no_item > s->N) {
+    if (r->bad || s->N > UINT32_MAX || s->respondents > s->N || s->single_item > s->N ||
+        s->no_item > s->N) {
         return bad(r, "inconsistent totals");
     }
     s->W = s->W2 = (double)s->N;
@@ -415,7 +419,9 @@ static pm_err_t decode_pairs(rbuf *r, pm_shard_t *s, size_t np) {
         s->a[k] = (uint32_t)a;
         s->b[k] = (uint32_t)b;
         s->n[k] = get_var(r, "truncated pair");
-        if (r->bad || s->n[k] == 0 || s->n[k] > s->count[a] || s->n[k] > s->count[b]) {
+        /* a 2x2 table: both <= each total, and neither = N - na - nb + both >= 0 */
+        if (r->bad || s->n[k] == 0 || s->n[k] > s->count[a] || s->n[k] > s->count[b] ||
+            s->count[a] + s->count[b] - s->n[k] > s->N) {
             return bad(r, "pair count out of range");
         }
         if (s->weighted) {
@@ -577,8 +583,8 @@ static int dbl_cmp(const void *x, const void *y) {
 /* The sum of v[0..n) in ascending order: the same for any order of the addends. */
 static double sum_sorted(double *v, size_t n) {
     qsort(v, n, sizeof *v, dbl_cmp);
-    double t = 0;
-    for (size_t i = 0; i < n; i++) {
+    double t = n ? v[0] : 0; /* one addend: itself, bit for bit (-0 included) */
+    for (size_t i = 1; i < n; i++) {
         t += v[i];
     }
     return t;

@@ -199,6 +199,19 @@ expect_ok count "$TMP/gen.csv" --part 1/3 -o "$TMP/g13.pmc"
 grep -q ": $(cat "$TMP/want_n") respondents (part 1/3)" "$TMP/err" ||
     fail "part 1/3 of gen.csv: want $(cat "$TMP/want_n") respondents, got: $(cat "$TMP/err")"
 
+# the test vectors of docs/shard-format.md (computed there by the definition): each id alone
+# in a file lands in its part of 7 and in no other
+for v in "a 3" "A00001 6" "c0000001 5" "Zoë 6"; do
+    id="${v% *}" want="${v#* }"
+    printf 'who,what\n%s,tea\n' "$id" >"$TMP/one.csv"
+    for k in 0 1 2 3 4 5 6; do
+        expect_ok count "$TMP/one.csv" --part "$k/7" -o "$TMP/one.pmc"
+        n=$([ "$k" = "$want" ] && echo 1 || echo 0)
+        grep -q ": $n respondents (part $k/7)" "$TMP/err" ||
+            fail "id '$id', part $k/7: want $n respondents, got: $(cat "$TMP/err")"
+    done
+done
+
 # ---- refusals ----------------------------------------------------------------------------------------
 expect_fail 1 "" "not both" -- items "$DEMO/cafe-orders.csv" --from-counts "$TMP/tiny.pmc"
 expect_fail 1 "" "applies when counting" -- items --from-counts "$TMP/tiny.pmc" --drop-item tea

@@ -1,7 +1,7 @@
 #!/bin/sh
 # Builds the libFuzzer harnesses of tests/fuzz/ with clang (ASan + UBSan) into DIR (default
-# build-fuzz/): fuzz_input (the input reader and the stages after it) and fuzz_cli (the
-# command-line parser, src/cli/cli.c compiled in). The CSV reader reads 128-byte blocks here
+# build-fuzz/): fuzz_input (the input reader and the stages after it), fuzz_cli (the
+# command-line parser, src/cli/cli.c compiled in) and fuzz_shard (the count shard reader). The CSV reader reads 128-byte blocks here
 # (PM_CSV_BLOCK) instead of 1 MiB, so that lines across reads are fuzzed too.
 # Usage: sh tests/fuzz/build.sh [DIR]
 set -eu
@@ -27,3 +27,5 @@ lib_objs=$(echo "$objs" | tr ' ' '\n' | grep -v src_cli_ | tr '\n' ' ')
 $CC $cflags -fsanitize=fuzzer tests/fuzz/fuzz_input.c $lib_objs $libs -o "$out/fuzz_input"
 # shellcheck disable=SC2086
 $CC $cflags -fsanitize=fuzzer tests/fuzz/fuzz_cli.c $objs $libs -o "$out/fuzz_cli"
+# shellcheck disable=SC2086
+$CC $cflags -fsanitize=fuzzer tests/fuzz/fuzz_shard.c $lib_objs $libs -o "$out/fuzz_shard"

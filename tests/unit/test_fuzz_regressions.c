@@ -23,6 +23,13 @@
 #include "../fuzz/fuzz_cli.c"
 #undef LLVMFuzzerInitialize
 #undef LLVMFuzzerTestOneInput
+#define LLVMFuzzerInitialize fuzz_shard_init
+#define LLVMFuzzerTestOneInput fuzz_shard_one
+#define check fuzz_shard_check
+#include "../fuzz/fuzz_shard.c"
+#undef check
+#undef LLVMFuzzerInitialize
+#undef LLVMFuzzerTestOneInput
 
 /* tests/fuzz/ from this file's path (CMake compiles it by absolute path) */
 static void fuzz_dir(char *buf, size_t size, const char *sub) {
@@ -72,6 +79,13 @@ static void test_fuzz_regressions_cli(void **state) {
     replay("regressions/fuzz_cli", fuzz_cli_one); /* may be empty: nothing found there yet */
 }
 
+static void test_fuzz_regressions_shard(void **state) {
+    (void)state;
+    /* at least the shard of issue 18 whose part list held two splits of one input */
+    assert_true(replay("regressions/fuzz_shard", fuzz_shard_one) >= 1);
+    assert_true(replay("corpus/fuzz_shard", fuzz_shard_one) >= 4);
+}
+
 static void test_fuzz_regressions_corpus(void **state) {
     (void)state;
     assert_true(replay("corpus/fuzz_input", fuzz_input_one) >= 5);
@@ -92,6 +106,7 @@ int main(int argc, char **argv) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_fuzz_regressions_input),
         cmocka_unit_test(test_fuzz_regressions_cli),
+        cmocka_unit_test(test_fuzz_regressions_shard),
         cmocka_unit_test(test_fuzz_regressions_corpus),
     };
     return cmocka_run_group_tests_name("fuzz_regressions", tests, setup, NULL);

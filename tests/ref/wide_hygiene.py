@@ -70,7 +70,7 @@ def check_long(chk, td):
     cat = df.columns[2]
     merge = [("Espresso", "Coffee"), ("Cappuccino", "Coffee"), ("Filter coffee", "Coffee"),
              ("Still water", "Water"), ("Sparkling water", "Water"),
-             ("Pumpkin soup", "Soup"), ("Lentil soup", "Soup"), ("Goulash soup", "Soup"),
+             ("Chestnut soup", "Soup"), ("Lentil soup", "Soup"), ("Goulash soup", "Soup"),
              ("Tomato soup", "Soup")]
     mf = Path(td) / "cafe-merge.csv"
     write_merge(mf, merge)

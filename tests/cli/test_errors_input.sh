@@ -5,9 +5,7 @@
 # Fixtures: tests/data/, named for their defect; binary ones are made here with printf.
 source "$(dirname "${BASH_SOURCE[0]}")/errors_lib.sh"
 
-cmds=(pairs items)
-have_command map && cmds+=(map)
-have_command partners && cmds+=(partners)
+cmds=(pairs items map partners)
 
 # run_all STATUS PREFIX NEEDLE FILE [ARGS...]: the case for every command.
 run_all() {

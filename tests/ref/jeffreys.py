@@ -5,9 +5,11 @@ Source: Brown, Cai & DasGupta (2001), "Interval estimation for a binomial propor
 Statistical Science 16(2): the Jeffreys interval is the 2.5% and 97.5% quantiles of
 Beta(x + 1/2, n - x + 1/2), with the lower bound set to 0 at x = 0 and the upper bound to 1 at
 x = n. Reference values: scipy.stats.beta.ppf([0.025, 0.975], x + 0.5, n - x + 0.5).
-Cases: x = 0 (wide format, if pairmap reads it), 1, 2, 3, n/2, n-1, n for small n; at
+Cases: x = 1, 2, 3, n/2, n-1, n for small n; at
 n = 1,000,000 from a file (x = 1, 2, n/2, n-1: the GSL beta-quantile traps of API-NOTES.md);
-x = 2,500,000 of 5,000,000 and small x of 10,000,000 via --respondents.
+x = 2,500,000 of 5,000,000 and small x of 10,000,000 via --respondents; a wide file with
+--base all. x = 0 is never listed by `items` (checked); its bounds are checked on
+pm_assoc_jeffreys in tests/unit/test_assoc.c.
 Tolerance: relative 1e-9 on each bound (bounds that must be exactly 0 or 1: exact).
 """
 
@@ -107,8 +109,10 @@ def main():
             except C.RunError as e:
                 chk.fail(str(e))
             f.unlink()
-        # x = 0: not expressible in long format (every row chooses something); the wide format
-        # can hold an option column nobody ticked.
+        # x = 0 cannot reach `items`: it lists the items somebody chose, and a wide option
+        # column nobody ticked is no item (checked here). The bounds at x = 0 and x = n are
+        # checked on pm_assoc_jeffreys against scipy in tests/unit/test_assoc.c. The wide run
+        # with --base all also checks the two ticked columns against scipy with N = 40.
         n = 40
         f = td / "wide.csv"
         rng = np.random.default_rng(7)
@@ -118,23 +122,21 @@ def main():
             for i in range(n):
                 fh.write(f"w{i},{int(tick[i, 0])},{int(tick[i, 1])},0\n")
         p = C.run_raw(["items", f, "--format", "wide", "--id-col", "id", "--columns", "q_",
-                       "--base", "all"])
-        if p.returncode != 0:
-            chk.note("x = 0 not checked: `items --format wide` failed with exit "
-                     f"{p.returncode}: {p.stderr.decode('utf-8', 'replace').strip()[:200]}")
-        else:
+                       "--base", "all", "-q"])
+        chk.equal("items --format wide exit 0", p.returncode, 0,
+                  p.stderr.decode("utf-8", "replace").strip()[:200])
+        if p.returncode == 0:
             try:
                 df = C.read_csv(p.stdout.decode("utf-8"), C.ITEM_COLUMNS)
-                rows = [r for r in df.itertuples(index=False) if "nobody" in r.item]
-                if not rows:
-                    chk.note("x = 0 not checked: wide format works but the option column "
-                             "nobody ticked is not listed by `items`")
-                else:
-                    r = rows[0]
-                    where = f"wide x=0 n={n} item {r.item!r}"
-                    chk.equal("respondents == x", int(r.respondents), 0, where)
-                    chk.equal("share_low == 0 at x = 0", float(r.share_low), 0.0, where)
-                    lo, hi = ref_bounds(0, n)
+                chk.equal("wide: the listed items (nobody ticked q_nobody)", sorted(df["item"]),
+                          ["alpha", "beta"], "wide n=40")
+                for r in df.itertuples(index=False):
+                    x = int(tick[:, 0 if r.item == "alpha" else 1].sum())
+                    where = f"wide x={x} n={n} item {r.item!r}"
+                    chk.equal("respondents == x", int(r.respondents), x, where)
+                    lo, hi = ref_bounds(x, n)
+                    chk.close("share_low vs scipy beta.ppf(0.025, x+.5, n-x+.5)",
+                              float(r.share_low), lo, rtol=RTOL, where=where)
                     chk.close("share_high vs scipy beta.ppf(0.975, x+.5, n-x+.5)",
                               float(r.share_high), hi, rtol=RTOL, where=where)
             except C.RunError as e:

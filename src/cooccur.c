@@ -18,6 +18,7 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "exactsum.h"
 #include "parallel.h"
 #include "util.h"
 
@@ -126,6 +127,8 @@ typedef struct {
     /* per-thread scratch */
     uint32_t **acc;
     double **wacc;
+    pm_i_u128 *wtx;   /* R weights in units of 2^xe (exact sums, pm_i_xs), or NULL */
+    int xe;
     uint32_t **touched;
     uint32_t **tri;   /* dense triangles */
     unsigned nacc, ntri; /* scratch buffers allocated */
@@ -184,7 +187,17 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
             uint64_t beg = k->tbeg[t], end = k->tend[t];
             const uint32_t *row = k->ci;
             work += end - beg;
-            if (wacc) {
+            if (wacc && k->wtx) { /* exact: 128-bit integers, one rounding at the end */
+                pm_i_u128 w = k->wtx[k->trow[t]];
+                pm_i_u128 *wx = (pm_i_u128 *)(void *)wacc;
+                for (uint64_t q = beg; q < end; q++) {
+                    uint32_t b = row[q];
+                    if (acc[b]++ == 0) {
+                        touched[nt++] = b;
+                    }
+                    wx[b] += w;
+                }
+            } else if (wacc) {
                 double w = k->wt[k->trow[t]];
                 for (uint64_t q = beg; q < end; q++) {
                     uint32_t b = row[q];
@@ -217,13 +230,19 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
         }
         for (size_t i = 0; i < nt; i++) {
             uint32_t b = touched[i];
-            if (emit(k, ob, th, (uint32_t)a, b, acc[b], wacc ? wacc[b] : 0) != 0) {
+            double wab = 0;
+            if (wacc && k->wtx) {
+                pm_i_u128 *wx = (pm_i_u128 *)(void *)wacc;
+                wab = pm_i_xs_double(wx[b], k->xe);
+                wx[b] = 0;
+            } else if (wacc) {
+                wab = wacc[b];
+                wacc[b] = 0;
+            }
+            if (emit(k, ob, th, (uint32_t)a, b, acc[b], wab) != 0) {
                 return 1;
             }
             acc[b] = 0;
-            if (wacc) {
-                wacc[b] = 0;
-            }
         }
     }
     report(k, work);
@@ -593,6 +612,20 @@ rows_ready:
             if (!k.wacc) {
                 goto cleanup;
             }
+            /* exact weighted sums where the weights' range allows (src/exactsum.h) */
+            pm_i_xs_range xr = {0};
+            for (size_t r = 0; r < k.R; r++) {
+                pm_i_xs_see(&xr, k.wt[r]);
+            }
+            if (pm_i_xs_fit(&xr, k.R, &k.xe) == 0) {
+                k.wtx = pm_i_malloc(k.R ? k.R : 1, sizeof *k.wtx);
+                if (!k.wtx) {
+                    goto cleanup;
+                }
+                for (size_t r = 0; r < k.R; r++) {
+                    k.wtx[r] = pm_i_xs_units(k.wt[r], k.xe);
+                }
+            }
         }
         for (unsigned t = 0; t < k.threads; t++) {
             k.acc[t] = pm_i_calloc(k.E ? k.E : 1, sizeof(uint32_t));
@@ -601,7 +634,7 @@ rows_ready:
                 goto cleanup;
             }
             if (k.wt) {
-                k.wacc[t] = pm_i_calloc(k.E ? k.E : 1, sizeof(double));
+                k.wacc[t] = pm_i_calloc(k.E ? k.E : 1, k.wtx ? sizeof(pm_i_u128) : sizeof(double));
                 if (!k.wacc[t]) {
                     goto cleanup;
                 }
@@ -746,6 +779,7 @@ cleanup:
     free(k.acc);
     free(k.touched);
     free(k.wacc);
+    free(k.wtx);
     free(k.tri);
     free(k.cbeg);
     free(cost);

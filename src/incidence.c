@@ -9,6 +9,7 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "exactsum.h"
 #include "input_internal.h"
 #include "parallel.h"
 #include "util.h"
@@ -21,6 +22,7 @@ void pm_incidence_free(pm_incidence_t *inc) {
     free(inc->category);
     free(inc->count);
     free(inc->wcount);
+    free(inc->w2count);
     free(inc->row_ptr);
     free(inc->col);
     free(inc->weight);
@@ -255,6 +257,23 @@ static pm_err_t scale_weights(const pm_table_t *t, pm_incidence_t *inc, pm_diag_
     }
     inc->W = (double)W;
     inc->W2 = (double)W2;
+    /* exact sums where the weights' range allows (pm_i_xs: any split of the respondents, count
+     * shards, adds up to the same bits) */
+    pm_i_xs_range xr = {0}, xr2 = {0};
+    for (size_t r = 0; r < nr; r++) {
+        pm_i_xs_see(&xr, inc->weight[r]);
+        pm_i_xs_see(&xr2, inc->weight[r] * inc->weight[r]);
+    }
+    int xe, xe2;
+    if (pm_i_xs_fit(&xr, nr, &xe) == 0 && pm_i_xs_fit(&xr2, nr, &xe2) == 0) {
+        pm_i_u128 xw = 0, xw2 = 0;
+        for (size_t r = 0; r < nr; r++) {
+            xw += pm_i_xs_units(inc->weight[r], xe);
+            xw2 += pm_i_xs_units(inc->weight[r] * inc->weight[r], xe2);
+        }
+        inc->W = pm_i_xs_double(xw, xe);
+        inc->W2 = pm_i_xs_double(xw2, xe2);
+    }
     if (!isfinite(ldexp(inc->W, e))) {
         return pm_diag_set(diag, PM_EDATA, t->source, 0,
                            "the weights sum to more than %.3g, the largest number a result "
@@ -263,6 +282,54 @@ static pm_err_t scale_weights(const pm_table_t *t, pm_incidence_t *inc, pm_diag_
                            DBL_MAX);
     }
     return PM_OK;
+}
+
+/* wcount and w2count: exact sums (pm_i_xs) where the weights' range allows, else in long
+ * double in respondent order. 0, or -1 when out of memory. */
+static int item_weight_sums(pm_incidence_t *inc) {
+    size_t nr = inc->n_resp, ni = inc->n_items;
+    pm_i_xs_range xr = {0}, xr2 = {0};
+    for (size_t r = 0; r < nr; r++) {
+        pm_i_xs_see(&xr, inc->weight[r]);
+        pm_i_xs_see(&xr2, inc->weight[r] * inc->weight[r]);
+    }
+    int xe, xe2;
+    if (pm_i_xs_fit(&xr, nr, &xe) == 0 && pm_i_xs_fit(&xr2, nr, &xe2) == 0) {
+        pm_i_u128 *acc = pm_i_calloc(2 * (ni ? ni : 1), sizeof *acc);
+        if (!acc) {
+            return -1;
+        }
+        for (size_t r = 0; r < nr; r++) {
+            pm_i_u128 u = pm_i_xs_units(inc->weight[r], xe);
+            pm_i_u128 u2 = pm_i_xs_units(inc->weight[r] * inc->weight[r], xe2);
+            for (uint64_t k = inc->row_ptr[r]; k < inc->row_ptr[r + 1]; k++) {
+                acc[2 * inc->col[k]] += u;
+                acc[2 * inc->col[k] + 1] += u2;
+            }
+        }
+        for (size_t i = 0; i < ni; i++) {
+            inc->wcount[i] = pm_i_xs_double(acc[2 * i], xe);
+            inc->w2count[i] = pm_i_xs_double(acc[2 * i + 1], xe2);
+        }
+        free(acc);
+        return 0;
+    }
+    long double *acc = pm_i_calloc(2 * (ni ? ni : 1), sizeof *acc);
+    if (!acc) {
+        return -1;
+    }
+    for (size_t r = 0; r < nr; r++) {
+        for (uint64_t k = inc->row_ptr[r]; k < inc->row_ptr[r + 1]; k++) {
+            acc[2 * inc->col[k]] += inc->weight[r];
+            acc[2 * inc->col[k] + 1] += inc->weight[r] * inc->weight[r];
+        }
+    }
+    for (size_t i = 0; i < ni; i++) {
+        inc->wcount[i] = (double)acc[2 * i];
+        inc->w2count[i] = (double)acc[2 * i + 1];
+    }
+    free(acc);
+    return 0;
 }
 
 double pm_incidence_wunits(const pm_incidence_t *inc, double v) {
@@ -395,20 +462,11 @@ pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_in
         if ((rc = scale_weights(t, inc, diag)) != PM_OK) {
             goto cleanup;
         }
-        long double *acc = pm_i_calloc(ni, sizeof *acc);
-        if (!acc) {
+        inc->w2count = pm_i_calloc(ni, sizeof *inc->w2count);
+        if (!inc->w2count || item_weight_sums(inc) != 0) {
             rc = PM_ENOMEM;
             goto cleanup;
         }
-        for (size_t r = 0; r < nr; r++) {
-            for (uint64_t k = inc->row_ptr[r]; k < inc->row_ptr[r + 1]; k++) {
-                acc[inc->col[k]] += inc->weight[r];
-            }
-        }
-        for (size_t i = 0; i < ni; i++) {
-            inc->wcount[i] = (double)acc[i];
-        }
-        free(acc);
     }
 cleanup:
     free(order);

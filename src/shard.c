@@ -9,6 +9,7 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include "exactsum.h"
 #include "sha256.h"
 #include "shard_internal.h"
 #include "util.h"
@@ -90,10 +91,20 @@ static void put_u64(wbuf *b, uint64_t v, size_t bytes) {
     put(b, t, bytes);
 }
 
-static void put_f64(wbuf *b, double d) {
-    uint64_t v;
-    memcpy(&v, &d, 8);
-    put_u64(b, v, 8);
+static void put_x(wbuf *b, pm_shard_x_t x) {
+    unsigned char t[19];
+    size_t n = 0;
+    pm_i_u128 v = (pm_i_u128)x.hi << 64 | x.lo;
+    do {
+        unsigned char c = (unsigned char)(v & 0x7f);
+        v >>= 7;
+        t[n++] = (unsigned char)(c | (v ? 0x80 : 0));
+    } while (v);
+    put(b, t, n);
+}
+
+static void put_int(wbuf *b, int v) { /* zigzag */
+    put_var(b, v < 0 ? ((uint64_t)(-(int64_t)v) << 1) - 1 : (uint64_t)v << 1);
 }
 
 static void put_str(wbuf *b, const char *s) {
@@ -122,8 +133,11 @@ pm_err_t pm_shard_encode(const pm_shard_t *s, unsigned char **buf, size_t *len, 
     put_var(&b, s->single_item);
     put_var(&b, s->no_item);
     if (s->weighted) {
-        put_f64(&b, s->W);
-        put_f64(&b, s->W2);
+        put_int(&b, s->e);
+        put_int(&b, s->e2);
+        put_int(&b, s->wexp);
+        put_x(&b, s->W);
+        put_x(&b, s->W2);
     }
     put_var(&b, s->n_items);
     for (size_t i = 0; i < s->n_items; i++) {
@@ -135,8 +149,8 @@ pm_err_t pm_shard_encode(const pm_shard_t *s, unsigned char **buf, size_t *len, 
         }
         put_var(&b, s->count[i]);
         if (s->weighted) {
-            put_f64(&b, s->wcount[i]);
-            put_f64(&b, s->w2count[i]);
+            put_x(&b, s->wcount[i]);
+            put_x(&b, s->w2count[i]);
         }
     }
     put_var(&b, s->n_pairs);
@@ -146,7 +160,7 @@ pm_err_t pm_shard_encode(const pm_shard_t *s, unsigned char **buf, size_t *len, 
         put_var(&b, k && !da ? s->b[k] - s->b[k - 1] - 1 : s->b[k] - s->a[k] - 1);
         put_var(&b, s->n[k]);
         if (s->weighted) {
-            put_f64(&b, s->w[k]);
+            put_x(&b, s->w[k]);
         }
     }
     if (!b.fail) {
@@ -215,19 +229,38 @@ static uint64_t get_var(rbuf *r, const char *what) {
     return 0;
 }
 
-static double get_f64(rbuf *r, const char *what) {
-    if (left(r) < 8) {
+static pm_shard_x_t get_x(rbuf *r, const char *what) {
+    pm_i_u128 v = 0;
+    pm_shard_x_t x = {0, 0};
+    for (int i = 0; i < 19; i++) {
+        if (r->p >= r->end) {
+            bad(r, what);
+            return x;
+        }
+        unsigned char c = *r->p++;
+        if ((i == 18 && c > 1) || (!(c & 0x80) && i > 0 && c == 0)) {
+            bad(r, what); /* beyond 127 bits, or overlong */
+            return x;
+        }
+        v |= (pm_i_u128)(c & 0x7f) << (7 * i);
+        if (!(c & 0x80)) {
+            x.lo = (uint64_t)v;
+            x.hi = (uint64_t)(v >> 64);
+            return x;
+        }
+    }
+    bad(r, what);
+    return x;
+}
+
+static int get_int(rbuf *r, const char *what, int lo, int hi) {
+    uint64_t z = get_var(r, what);
+    int64_t v = (z & 1) ? -(int64_t)((z + 1) >> 1) : (int64_t)(z >> 1);
+    if (z > (1u << 20) || v < lo || v > hi) {
         bad(r, what);
         return 0;
     }
-    uint64_t v = 0;
-    for (int i = 0; i < 8; i++) {
-        v |= (uint64_t)r->p[i] << (8 * i);
-    }
-    r->p += 8;
-    double d;
-    memcpy(&d, &v, 8);
-    return d;
+    return (int)v;
 }
 
 /* A string of len bytes without NUL (NULL and r->bad on error or out of memory). */
@@ -362,11 +395,13 @@ static pm_err_t decode_totals(rbuf *r, pm_shard_t *s) {
         s->no_item > s->N) {
         return bad(r, "inconsistent totals");
     }
-    s->W = s->W2 = (double)s->N;
     if (s->weighted) {
-        s->W = get_f64(r, "truncated weight sums");
-        s->W2 = get_f64(r, "truncated weight sums");
-        if (r->bad || !isfinite(s->W) || !isfinite(s->W2) || s->W < 0 || s->W2 < 0) {
+        s->e = get_int(r, "bad weight exponent", -3000, 3000);
+        s->e2 = get_int(r, "bad weight exponent", -6000, 6000);
+        s->wexp = get_int(r, "bad weight exponent", -2000, 1100);
+        s->W = get_x(r, "truncated weight sums");
+        s->W2 = get_x(r, "truncated weight sums");
+        if (r->bad) {
             return bad(r, "bad weight sums");
         }
     }
@@ -392,10 +427,9 @@ static pm_err_t decode_items(rbuf *r, pm_shard_t *s, size_t ni) {
             return bad(r, "bad item");
         }
         if (s->weighted) {
-            s->wcount[i] = get_f64(r, "truncated item");
-            s->w2count[i] = get_f64(r, "truncated item");
-            if (r->bad || !isfinite(s->wcount[i]) || s->wcount[i] < 0 || !isfinite(s->w2count[i]) ||
-                s->w2count[i] < 0) {
+            s->wcount[i] = get_x(r, "truncated item");
+            s->w2count[i] = get_x(r, "truncated item");
+            if (r->bad) {
                 return bad(r, "bad item weight");
             }
         }
@@ -425,14 +459,34 @@ static pm_err_t decode_pairs(rbuf *r, pm_shard_t *s, size_t np) {
             return bad(r, "pair count out of range");
         }
         if (s->weighted) {
-            s->w[k] = get_f64(r, "truncated pair");
-            if (r->bad || !isfinite(s->w[k]) || s->w[k] < 0) {
+            s->w[k] = get_x(r, "truncated pair");
+            if (r->bad) {
                 return bad(r, "bad pair weight");
             }
         }
     }
     s->n_pairs = np;
     return PM_OK;
+}
+
+static int x_zero(pm_shard_x_t x) {
+    return !x.lo && !x.hi;
+}
+
+/* A shard without respondents holds no weight (every sum 0, e = e2 = 0, wexp -2000); one with
+ * respondents has a positive sum of weights. */
+static int weights_inconsistent(const pm_shard_t *s) {
+    if (s->respondents) {
+        return x_zero(s->W) || x_zero(s->W2) || s->wexp == -2000;
+    }
+    int z = x_zero(s->W) && x_zero(s->W2) && s->e == 0 && s->e2 == 0 && s->wexp == -2000;
+    for (size_t i = 0; z && i < s->n_items; i++) {
+        z = x_zero(s->wcount[i]) && x_zero(s->w2count[i]);
+    }
+    for (size_t k = 0; z && k < s->n_pairs; k++) {
+        z = x_zero(s->w[k]);
+    }
+    return !z;
 }
 
 pm_err_t pm_shard_decode(const unsigned char *buf, size_t len, const char *name, bool verify,
@@ -488,6 +542,9 @@ pm_err_t pm_shard_decode(const unsigned char *buf, size_t len, const char *name,
     }
     if (!rc && r.p != r.end) {
         rc = bad(&r, "bytes after the pair list");
+    }
+    if (!rc && s->weighted && weights_inconsistent(s)) {
+        rc = bad(&r, "weight sums that do not fit its respondents");
     }
     if (rc) {
         pm_shard_free(s);
@@ -572,22 +629,39 @@ static int part_ref_cmp(const void *x, const void *y) {
 typedef struct {
     uint64_t key; /* a << 32 | b in the merged numbering */
     uint64_t n;
-    double w;
+    pm_i_u128 w; /* in units of the merged exponent */
 } pair_rec;
 
-static int dbl_cmp(const void *x, const void *y) {
-    double a = *(const double *)x, b = *(const double *)y;
-    return (a > b) - (a < b);
+static pm_i_u128 x_u(pm_shard_x_t x) {
+    return (pm_i_u128)x.hi << 64 | x.lo;
 }
 
-/* The sum of v[0..n) in ascending order: the same for any order of the addends. */
-static double sum_sorted(double *v, size_t n) {
-    qsort(v, n, sizeof *v, dbl_cmp);
-    double t = n ? v[0] : 0; /* one addend: itself, bit for bit (-0 included) */
-    for (size_t i = 1; i < n; i++) {
-        t += v[i];
+static pm_shard_x_t u_x(pm_i_u128 u) {
+    return (pm_shard_x_t){(uint64_t)u, (uint64_t)(u >> 64)};
+}
+
+/* *acc += x 2^sh in exact integers; 1 when the result would need more than 127 bits. */
+static int x_add(pm_i_u128 *acc, pm_shard_x_t x, int sh) {
+    pm_i_u128 u = x_u(x);
+    if (!u) {
+        return 0;
     }
-    return t;
+    if (sh > 126 || (u >> (127 - sh)) != 0) {
+        return 1;
+    }
+    u <<= sh;
+    pm_i_u128 top = (pm_i_u128)1 << 127;
+    if (u >= top || *acc >= top - u) {
+        return 1;
+    }
+    *acc += u;
+    return 0;
+}
+
+static pm_err_t too_wide(pm_diag_t *diag) {
+    return pm_diag_set(diag, PM_EDATA, NULL, 0,
+                       "the weights of these shards span too wide a range to be added exactly "
+                       "(over 2^127 times the smallest step)");
 }
 
 static void short_src(const unsigned char *src, char *hex) {
@@ -689,7 +763,7 @@ static int add_u64(uint64_t *acc, uint64_t v) {
 
 /* Items joined by name; map[i][j] is item j of shard i in the merged numbering. */
 static pm_err_t merge_items(const pm_shard_t *const *s, const char *const *names, size_t n,
-                            pm_shard_t *m, uint32_t **map, pm_diag_t *diag) {
+                            pm_shard_t *m, uint32_t **map, const int *sh, pm_diag_t *diag) {
     size_t ni = 0;
     for (size_t i = 0; i < n; i++) {
         ni += s[i]->n_items;
@@ -746,34 +820,30 @@ static pm_err_t merge_items(const pm_shard_t *const *s, const char *const *names
             rc = pm_diag_set(diag, PM_EDATA, NULL, 0, "an item total beyond 2^64");
         }
     }
-    if (!rc && m->weighted) {
-        double *v = pm_i_malloc(n ? n : 1, sizeof *v);
-        if (!v) {
-            rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory merging shards");
+    for (size_t k = 0; k < ni && !rc && m->weighted;) {
+        size_t e = k;
+        pm_i_u128 w = 0, w2 = 0;
+        int over = 0;
+        while (e < ni && strcmp(ir[e].name, ir[k].name) == 0) {
+            const pm_shard_t *x = s[ir[e].shard];
+            over |= x_add(&w, x->wcount[ir[e].item], sh[2 * ir[e].shard]);
+            over |= x_add(&w2, x->w2count[ir[e].item], sh[2 * ir[e].shard + 1]);
+            e++;
         }
-        for (size_t k = 0; k < ni && !rc;) {
-            size_t e = k, nv = 0;
-            while (e < ni && strcmp(ir[e].name, ir[k].name) == 0) {
-                v[nv++] = s[ir[e].shard]->wcount[ir[e].item];
-                e++;
-            }
-            uint32_t to = map[ir[k].shard][ir[k].item];
-            m->wcount[to] = sum_sorted(v, nv);
-            nv = 0;
-            for (size_t q = k; q < e; q++) {
-                v[nv++] = s[ir[q].shard]->w2count[ir[q].item];
-            }
-            m->w2count[to] = sum_sorted(v, nv);
-            k = e;
+        uint32_t to = map[ir[k].shard][ir[k].item];
+        m->wcount[to] = u_x(w);
+        m->w2count[to] = u_x(w2);
+        if (over) {
+            rc = too_wide(diag);
         }
-        free(v);
+        k = e;
     }
     free(ir);
     return rc;
 }
 
 static pm_err_t merge_pairs(const pm_shard_t *const *s, size_t n, uint32_t *const *map,
-                            pm_shard_t *m, pm_diag_t *diag) {
+                            const int *sh, pm_shard_t *m, pm_diag_t *diag) {
     size_t np = 0;
     for (size_t i = 0; i < n; i++) {
         np += s[i]->n_pairs;
@@ -783,12 +853,21 @@ static pm_err_t merge_pairs(const pm_shard_t *const *s, size_t n, uint32_t *cons
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory merging shards");
     }
     np = 0;
+    int over = 0;
     for (size_t i = 0; i < n; i++) {
         for (size_t k = 0; k < s[i]->n_pairs; k++) {
             pr[np].key = (uint64_t)map[i][s[i]->a[k]] << 32 | map[i][s[i]->b[k]];
             pr[np].n = s[i]->n[k];
-            pr[np++].w = s[i]->weighted ? s[i]->w[k] : 0;
+            pr[np].w = 0;
+            if (s[i]->weighted) {
+                over |= x_add(&pr[np].w, s[i]->w[k], sh[2 * i]);
+            }
+            np++;
         }
+    }
+    if (over) {
+        free(pr);
+        return too_wide(diag);
     }
     if (pm_i_radix_sort(pr, np, sizeof *pr)) {
         free(pr);
@@ -802,42 +881,50 @@ static pm_err_t merge_pairs(const pm_shard_t *const *s, size_t n, uint32_t *cons
     m->b = pm_i_malloc(distinct ? distinct : 1, sizeof *m->b);
     m->n = pm_i_malloc(distinct ? distinct : 1, sizeof *m->n);
     m->w = m->weighted ? pm_i_malloc(distinct ? distinct : 1, sizeof *m->w) : NULL;
-    double *v = m->weighted ? pm_i_malloc(n ? n : 1, sizeof *v) : NULL;
     pm_err_t rc = PM_OK;
-    if (!m->a || !m->b || !m->n || (m->weighted && (!m->w || !v))) {
+    if (!m->a || !m->b || !m->n || (m->weighted && !m->w)) {
         rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory merging shards");
     }
     size_t at = 0;
     for (size_t k = 0; k < np && !rc;) {
-        size_t e = k, nv = 0;
+        size_t e = k;
         uint64_t sum = 0;
+        pm_i_u128 w = 0;
         while (e < np && pr[e].key == pr[k].key) {
             sum += pr[e].n; /* each at most 2^32 - 1, at most 2^32 addends: no overflow */
-            if (v) {
-                v[nv++] = pr[e].w;
-            }
+            over |= x_add(&w, u_x(pr[e].w), 0);
             e++;
         }
         m->a[at] = (uint32_t)(pr[k].key >> 32);
         m->b[at] = (uint32_t)pr[k].key;
         m->n[at] = sum;
         if (m->w) {
-            m->w[at] = sum_sorted(v, nv);
+            m->w[at] = u_x(w);
         }
         at++;
         k = e;
     }
     m->n_pairs = at;
-    free(v);
     free(pr);
-    return rc;
+    return !rc && over ? too_wide(diag) : rc;
 }
 
-static pm_err_t merge_totals(const pm_shard_t *const *s, size_t n, pm_shard_t *m, pm_diag_t *diag) {
-    int over = 0;
-    double *v = pm_i_malloc(n ? n : 1, sizeof *v);
-    if (!v) {
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory merging shards");
+/* N and the totals; weighted: the exponents of the sum (the lowest of the shards that hold
+ * weights, the highest wexp) and each shard's shifts into them, sh[2i] and sh[2i + 1]. */
+static pm_err_t merge_totals(const pm_shard_t *const *s, size_t n, pm_shard_t *m, int *sh,
+                             pm_diag_t *diag) {
+    int over = 0, any = 0, any2 = 0;
+    m->wexp = -2000;
+    for (size_t i = 0; i < n && m->weighted; i++) {
+        if (s[i]->respondents) {
+            m->e = any++ ? (s[i]->e < m->e ? s[i]->e : m->e) : s[i]->e;
+            m->e2 = any2++ ? (s[i]->e2 < m->e2 ? s[i]->e2 : m->e2) : s[i]->e2;
+        }
+        m->wexp = s[i]->wexp > m->wexp ? s[i]->wexp : m->wexp;
+    }
+    for (size_t i = 0; i < n; i++) {
+        sh[2 * i] = m->weighted && s[i]->respondents ? s[i]->e - m->e : 0;
+        sh[2 * i + 1] = m->weighted && s[i]->respondents ? s[i]->e2 - m->e2 : 0;
     }
     for (size_t i = 0; i < n; i++) {
         over |= add_u64(&m->N, s[i]->N) | add_u64(&m->respondents, s[i]->respondents) |
@@ -845,18 +932,18 @@ static pm_err_t merge_totals(const pm_shard_t *const *s, size_t n, pm_shard_t *m
                 add_u64(&m->single_item, s[i]->single_item) | add_u64(&m->no_item, s[i]->no_item);
         m->has_categories |= s[i]->has_categories;
     }
-    m->W = m->W2 = (double)m->N;
     if (m->weighted) {
+        pm_i_u128 w = 0, w2 = 0;
+        int wide = 0;
         for (size_t i = 0; i < n; i++) {
-            v[i] = s[i]->W;
+            wide |= x_add(&w, s[i]->W, sh[2 * i]) | x_add(&w2, s[i]->W2, sh[2 * i + 1]);
         }
-        m->W = sum_sorted(v, n);
-        for (size_t i = 0; i < n; i++) {
-            v[i] = s[i]->W2;
+        m->W = u_x(w);
+        m->W2 = u_x(w2);
+        if (wide) {
+            return too_wide(diag);
         }
-        m->W2 = sum_sorted(v, n);
     }
-    free(v);
     if (over || m->N > UINT32_MAX) {
         return pm_diag_set(diag, PM_EDATA, NULL, 0,
                            "the shards hold more than 2^32 - 1 respondents together");
@@ -876,8 +963,10 @@ pm_err_t pm_shard_merge(const pm_shard_t *const *s, const char *const *names, si
     }
     pm_shard_t *m = pm_i_calloc(1, sizeof *m);
     uint32_t **map = pm_i_calloc(n, sizeof *map);
-    if (!m || !map || !(m->fingerprint = pm_i_malloc(strlen(s[0]->fingerprint) + 1, 1))) {
+    int *sh = pm_i_calloc(2 * n, sizeof *sh);
+    if (!m || !map || !sh || !(m->fingerprint = pm_i_malloc(strlen(s[0]->fingerprint) + 1, 1))) {
         free(map);
+        free(sh);
         pm_shard_free(m);
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory merging shards");
     }
@@ -893,10 +982,10 @@ pm_err_t pm_shard_merge(const pm_shard_t *const *s, const char *const *names, si
         rc = merge_parts(s, names, n, m, diag);
     }
     if (!rc) {
-        rc = merge_totals(s, n, m, diag);
+        rc = merge_totals(s, n, m, sh, diag);
     }
     if (!rc) {
-        rc = merge_items(s, names, n, m, map, diag);
+        rc = merge_items(s, names, n, m, map, sh, diag);
     }
     if (!rc) {
         free(m->a); /* pm_i_shard_alloc made room for 0 pairs */
@@ -906,7 +995,7 @@ pm_err_t pm_shard_merge(const pm_shard_t *const *s, const char *const *names, si
         m->a = m->b = NULL;
         m->n = NULL;
         m->w = NULL;
-        rc = merge_pairs(s, n, map, m, diag);
+        rc = merge_pairs(s, n, map, sh, m, diag);
     }
     for (size_t k = 0; !rc && k < m->n_pairs; k++) {
         if (m->n[k] > UINT32_MAX) {
@@ -919,6 +1008,7 @@ pm_err_t pm_shard_merge(const pm_shard_t *const *s, const char *const *names, si
         free(map[i]);
     }
     free(map);
+    free(sh);
     if (rc) {
         pm_shard_free(m);
         return rc;

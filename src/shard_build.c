@@ -2,10 +2,12 @@
  * back: the incidence, pair list and stand-in table a map is built from (pm_shard_incidence,
  * pm_shard_table). */
 #include <errno.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include "exactsum.h"
 #include "input_internal.h"
 #include "sha256.h"
 #include "shard_internal.h"
@@ -221,8 +223,87 @@ static char *dup_str(const char *s) {
     return d;
 }
 
+static pm_shard_x_t u_x(pm_i_u128 u) {
+    return (pm_shard_x_t){(uint64_t)u, (uint64_t)(u >> 64)};
+}
+
+/* The exact weight sums of sub (weights held divided by 2^wexp) into s: W, W2, per item and
+ * per pair (c's pairs, found by binary search in each row). 0, 1 when out of memory, 2 when
+ * the weights' range is too wide for exact sums. */
+static int exact_sums(pm_shard_t *s, const pm_incidence_t *sub, const pm_counts_t *c, int wexp) {
+    size_t nr = sub->n_resp;
+    pm_i_xs_range xr = {0}, xr2 = {0};
+    double wmax = 0;
+    for (size_t r = 0; r < nr; r++) {
+        pm_i_xs_see(&xr, sub->weight[r]);
+        pm_i_xs_see(&xr2, sub->weight[r] * sub->weight[r]);
+        wmax = sub->weight[r] > wmax ? sub->weight[r] : wmax;
+    }
+    int xe, xe2, x;
+    if (pm_i_xs_fit(&xr, nr, &xe) || pm_i_xs_fit(&xr2, nr, &xe2)) {
+        return 2;
+    }
+    (void)frexp(wmax, &x);
+    s->wexp = nr ? x + wexp : -2000; /* no respondent: no weight, e = e2 = 0 */
+    s->e = nr ? xe + wexp : 0;
+    s->e2 = nr ? xe2 + 2 * wexp : 0;
+    size_t ni = sub->n_items, np = c->n_pairs;
+    pm_i_u128 *acc = pm_i_calloc(2 * ni + np + 1, sizeof *acc);
+    size_t *first = pm_i_malloc(ni + 1, sizeof *first);
+    if (!acc || !first) {
+        free(acc);
+        free(first);
+        return 1;
+    }
+    for (size_t a = 0, k = 0; a <= ni; a++) { /* pairs (a, .) are first[a] .. first[a + 1] */
+        while (k < np && c->a[k] < a) {
+            k++;
+        }
+        first[a] = k;
+    }
+    pm_i_u128 W = 0, W2 = 0, *pw = acc + 2 * ni;
+    for (size_t r = 0; r < nr; r++) {
+        pm_i_u128 u = pm_i_xs_units(sub->weight[r], xe);
+        pm_i_u128 u2 = pm_i_xs_units(sub->weight[r] * sub->weight[r], xe2);
+        W += u;
+        W2 += u2;
+        for (uint64_t q = sub->row_ptr[r]; q < sub->row_ptr[r + 1]; q++) {
+            uint32_t a = sub->col[q];
+            acc[2 * a] += u;
+            acc[2 * a + 1] += u2;
+            size_t lo = first[a];
+            for (uint64_t q2 = q + 1; q2 < sub->row_ptr[r + 1]; q2++) {
+                uint32_t b = sub->col[q2];
+                size_t l = lo, h = first[a + 1]; /* the row is sorted: b only grows */
+                while (l < h) {
+                    size_t mid = l + (h - l) / 2;
+                    if (c->b[mid] < b) {
+                        l = mid + 1;
+                    } else {
+                        h = mid;
+                    }
+                }
+                pw[l] += u;
+                lo = l + 1;
+            }
+        }
+    }
+    s->W = u_x(W);
+    s->W2 = u_x(W2);
+    for (size_t i = 0; i < ni; i++) {
+        s->wcount[i] = u_x(acc[2 * i]);
+        s->w2count[i] = u_x(acc[2 * i + 1]);
+    }
+    for (size_t k = 0; k < np; k++) {
+        s->w[k] = u_x(pw[k]);
+    }
+    free(acc);
+    free(first);
+    return 0;
+}
+
 /* Copies the items, totals and pairs of sub (counted in c) into s. */
-static int fill_shard(pm_shard_t *s, const pm_incidence_t *sub, const pm_counts_t *c) {
+static int fill_shard(pm_shard_t *s, const pm_incidence_t *sub, const pm_counts_t *c, int wexp) {
     if (pm_i_shard_alloc(s, sub->n_items, c->n_pairs)) {
         return 1;
     }
@@ -234,26 +315,14 @@ static int fill_shard(pm_shard_t *s, const pm_incidence_t *sub, const pm_counts_
             return 1;
         }
         s->count[i] = sub->count[i];
-        if (s->weighted) {
-            s->wcount[i] = sub->wcount[i];
-        }
-    }
-    for (size_t r = 0; s->weighted && r < sub->n_resp; r++) {
-        double w = sub->weight[r];
-        for (uint64_t q = sub->row_ptr[r]; q < sub->row_ptr[r + 1]; q++) {
-            s->w2count[sub->col[q]] += w * w; /* in respondent order, as partners sums it */
-        }
     }
     for (size_t k = 0; k < c->n_pairs; k++) {
         s->a[k] = c->a[k];
         s->b[k] = c->b[k];
         s->n[k] = c->n[k];
-        if (s->weighted) {
-            s->w[k] = c->w[k];
-        }
     }
     s->n_pairs = c->n_pairs;
-    return 0;
+    return s->weighted ? exact_sums(s, sub, c, wexp) : 0;
 }
 
 pm_err_t pm_shard_build(const pm_table_t *t, const pm_incidence_t *inc, uint64_t k, uint64_t m,
@@ -311,9 +380,15 @@ pm_err_t pm_shard_build(const pm_table_t *t, const pm_incidence_t *inc, uint64_t
     s->duplicates = m == 1 ? inc->duplicates : s->rows - use->row_ptr[use->n_resp];
     s->single_item = use->single_item;
     s->no_item = m == 1 ? inc->no_item : sub.no_item;
-    s->W = use->W;
-    s->W2 = use->W2;
-    if (fill_shard(s, use, c)) {
+    int fr = fill_shard(s, use, c, inc->wexp);
+    if (fr == 2) {
+        rc = pm_diag_set(diag, PM_EDATA, pm_table_source(t), 0,
+                         "the weights span too wide a range for the exact sums of a count shard "
+                         "(over 2^60 between the largest and the finest step); give weights "
+                         "of a narrower range");
+        goto done;
+    }
+    if (fr) {
         goto done;
     }
     rc = PM_OK;
@@ -333,11 +408,17 @@ done:
 }
 
 /* ---- a map's inputs from a shard ----------------------------------------------------------- */
+/* x 2^e rounded to a double (x an exact sum; the rounding of the conversion is the only one) */
+static double x_double(pm_shard_x_t x, int e) {
+    return pm_i_xs_double((pm_i_u128)x.hi << 64 | x.lo, e);
+}
+
 pm_err_t pm_shard_incidence(const pm_shard_t *s, pm_incidence_t **out, pm_counts_t **pairs,
                             pm_diag_t *diag) {
     *out = NULL;
     *pairs = NULL;
     size_t ni = s->n_items, bytes = 0;
+    int wexp = s->weighted && s->wexp > -2000 ? s->wexp : 0;
     for (size_t i = 0; i < ni; i++) {
         bytes += strlen(s->name[i]) + 1 + (s->category[i] ? strlen(s->category[i]) + 1 : 0);
     }
@@ -352,15 +433,19 @@ pm_err_t pm_shard_incidence(const pm_shard_t *s, pm_incidence_t **out, pm_counts
     inc->storage = pm_i_malloc(bytes ? bytes : 1, 1);
     inc->row_ptr = pm_i_calloc(1, sizeof *inc->row_ptr);
     inc->col = pm_i_calloc(1, sizeof *inc->col);
-    inc->wcount = s->weighted ? pm_i_malloc(ni ? ni : 1, sizeof *inc->wcount) : NULL;
+    if (s->weighted) {
+        inc->wcount = pm_i_malloc(ni ? ni : 1, sizeof *inc->wcount);
+        inc->w2count = pm_i_malloc(ni ? ni : 1, sizeof *inc->w2count);
+        inc->weight = pm_i_calloc(1, sizeof *inc->weight); /* weighted, without rows */
+    }
     size_t np = s->n_pairs;
     c->a = pm_i_malloc(np ? np : 1, sizeof *c->a);
     c->b = pm_i_malloc(np ? np : 1, sizeof *c->b);
     c->n = pm_i_malloc(np ? np : 1, sizeof *c->n);
     c->w = s->weighted ? pm_i_malloc(np ? np : 1, sizeof *c->w) : NULL;
     if (!inc->name || !inc->category || !inc->count || !inc->storage || !inc->row_ptr ||
-        !inc->col || (s->weighted && !inc->wcount) || !c->a || !c->b || !c->n ||
-        (s->weighted && !c->w)) {
+        !inc->col || (s->weighted && (!inc->wcount || !inc->w2count || !inc->weight)) || !c->a ||
+        !c->b || !c->n || (s->weighted && !c->w)) {
         goto fail;
     }
     char *at = inc->storage;
@@ -373,13 +458,15 @@ pm_err_t pm_shard_incidence(const pm_shard_t *s, pm_incidence_t **out, pm_counts
         }
         inc->count[i] = s->count[i];
         if (s->weighted) {
-            inc->wcount[i] = s->wcount[i];
+            inc->wcount[i] = x_double(s->wcount[i], s->e - wexp);
+            inc->w2count[i] = x_double(s->w2count[i], s->e2 - 2 * wexp);
         }
     }
     inc->n_items = ni;
     inc->N = s->N;
-    inc->W = s->W;
-    inc->W2 = s->W2;
+    inc->W = s->weighted ? x_double(s->W, s->e - wexp) : (double)s->N;
+    inc->W2 = s->weighted ? x_double(s->W2, s->e2 - 2 * wexp) : (double)s->N;
+    inc->wexp = s->weighted ? wexp : 0;
     inc->duplicates = s->duplicates;
     inc->single_item = s->single_item;
     inc->no_item = s->no_item;
@@ -393,11 +480,23 @@ pm_err_t pm_shard_incidence(const pm_shard_t *s, pm_incidence_t **out, pm_counts
         c->b[k] = s->b[k];
         c->n[k] = (uint32_t)s->n[k];
         if (s->weighted) {
-            c->w[k] = s->w[k];
+            c->w[k] = x_double(s->w[k], s->e - wexp);
         }
     }
     c->n_pairs = np;
     c->seen = np;
+    int finite = isfinite(inc->W) && isfinite(inc->W2);
+    for (size_t i = 0; s->weighted && i < ni; i++) {
+        finite &= isfinite(inc->wcount[i]) && isfinite(inc->w2count[i]);
+    }
+    for (size_t k = 0; s->weighted && k < np; k++) {
+        finite &= isfinite(c->w[k]);
+    }
+    if (!finite) {
+        pm_incidence_free(inc);
+        pm_counts_free(c);
+        return pm_diag_set(diag, PM_EDATA, NULL, 0, "weight sums beyond the range of a double");
+    }
     *out = inc;
     *pairs = c;
     return PM_OK;

@@ -30,6 +30,7 @@ typedef struct {
     uint64_t *row_ptr;      /* n_resp + 1 */
     uint32_t *col;
     double *weight;         /* respondent weights (NULL when unweighted), divided by 2^wexp */
+    double *w2count;        /* squared weights summed per item (NULL when unweighted) */
     double W, W2;           /* sum of weights and of squared weights (N, N when unweighted) */
     int wexp;               /* weight, wcount, W, W2 and the pairs' weighted counts are held
                              * divided by 2^wexp, a power of two near the largest weight, so

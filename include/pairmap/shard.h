@@ -28,6 +28,12 @@ typedef struct {
     uint64_t m, k;
 } pm_shard_part_t;
 
+/* An exact sum of weights (src/exactsum.h): (hi 2^64 + lo) 2^e, e one exponent per shard
+ * for the sums of weights and another (e2) for the sums of squared weights. */
+typedef struct {
+    uint64_t lo, hi;
+} pm_shard_x_t;
+
 /* A shard in memory. Items are in canonical order (names sorted by bytes); pairs are ordered
  * by (a, b), a < b, each seen together n[k] >= 1 times. */
 typedef struct {
@@ -39,17 +45,20 @@ typedef struct {
     uint64_t respondents; /* respondents in the input (N less --respondents' additions) */
     uint64_t rows;        /* respondent-item rows kept, duplicates included */
     uint64_t duplicates, single_item, no_item;
-    double W, W2; /* sum of weights, of squared weights (N, N when unweighted) */
+    /* weighted only: the exponents of the exact sums, and wexp, the exponent of the largest
+     * weight (as frexp gives it; -2000 when there is no respondent) */
+    int e, e2, wexp;
+    pm_shard_x_t W, W2; /* sum of weights, of squared weights */
     size_t n_items;
     char **name;
     char **category; /* NULL entries: none */
     uint64_t *count;
-    double *wcount;  /* weight sums per item (NULL when unweighted) */
-    double *w2count; /* squared weight sums per item (NULL when unweighted) */
+    pm_shard_x_t *wcount;  /* weight sums per item (NULL when unweighted) */
+    pm_shard_x_t *w2count; /* squared weight sums per item (NULL when unweighted) */
     size_t n_pairs;
     uint32_t *a, *b;
     uint64_t *n;
-    double *w;           /* NULL when unweighted */
+    pm_shard_x_t *w;     /* weight sums per pair (NULL when unweighted) */
     uint64_t file_bytes; /* set by pm_shard_read: the file's size and SHA-256 */
     unsigned char file_sha256[32];
 } pm_shard_t;

@@ -124,8 +124,6 @@ int pm_cli_load_counts(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **i
                        double *t_read);
 /* The pairs of the shard loaded by pm_cli_load_counts (NULL when the run reads rows). */
 const pm_counts_t *pm_cli_given_counts(void);
-/* Squared weight sums per item of that shard (NULL when unweighted or none). */
-const double *pm_cli_given_w2(void);
 /* Writes run.json's "counts_from" object (nothing when the run read rows). */
 void pm_cli_counts_json(void *json);
 

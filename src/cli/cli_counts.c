@@ -15,10 +15,6 @@ const pm_counts_t *pm_cli_given_counts(void) {
     return g_counts;
 }
 
-const double *pm_cli_given_w2(void) {
-    return g_shard ? g_shard->w2count : NULL;
-}
-
 static void free_given(void) {
     pm_counts_free(g_counts);
     pm_shard_free(g_shard);

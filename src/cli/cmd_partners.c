@@ -236,26 +236,19 @@ static int anchor_scan(const pm_incidence_t *inc, const unsigned char *in_set, s
     return 0;
 }
 
-/* The anchor of one item a from the pairs of a count shard (--from-counts). */
-static int anchor_given(const pm_incidence_t *inc, uint32_t a, anchor *an) {
+/* The anchor of one item a: its totals from the incidence (exact weighted sums); the joint
+ * counts are filled in from the listed pairs as they are used (the same with --from-counts,
+ * whose incidence has no rows). */
+static int anchor_one(const pm_incidence_t *inc, uint32_t a, anchor *an) {
     memset(an, 0, sizeof *an);
     an->nb = calloc(inc->n_items ? inc->n_items : 1, sizeof *an->nb);
     an->wb = calloc(inc->n_items ? inc->n_items : 1, sizeof *an->wb);
     if (!an->nb || !an->wb) {
         return 1;
     }
-    const pm_counts_t *g = pm_cli_given_counts();
-    const double *w2 = pm_cli_given_w2();
     an->n = inc->count[a];
     an->w = inc->wcount ? inc->wcount[a] : (double)an->n;
-    an->w2 = inc->wcount && w2 ? w2[a] : (double)an->n;
-    for (size_t k = 0; k < g->n_pairs; k++) {
-        if (g->a[k] == a || g->b[k] == a) {
-            uint32_t b = g->a[k] == a ? g->b[k] : g->a[k];
-            an->nb[b] = g->n[k];
-            an->wb[b] = g->w ? g->w[k] : (double)g->n[k];
-        }
-    }
+    an->w2 = inc->w2count ? inc->w2count[a] : (double)an->n;
     return 0;
 }
 
@@ -370,7 +363,7 @@ int pm_cmd_partners(int argc, char **argv) {
                                 k);
         goto done;
     }
-    if (pm_cli_given_counts() ? anchor_given(inc, first, &an) : anchor_scan(inc, in_set, k, &an)) {
+    if (k == 1 ? anchor_one(inc, first, &an) : anchor_scan(inc, in_set, k, &an)) {
         rc = 4;
         goto done;
     }
@@ -406,6 +399,8 @@ int pm_cmd_partners(int argc, char **argv) {
             r->lift = m.lift;
             r->phi = m.phi;
             r->q = m.q;
+            an.nb[r->item] = pp->n_ab[idx];
+            an.wb[r->item] = pp->w_ab ? pp->w_ab[idx] : (double)pp->n_ab[idx];
             confidence(inc, &an, r->item, r);
         }
     } else if (an.n == 0 || an.n >= inc->N) {

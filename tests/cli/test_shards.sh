@@ -146,6 +146,24 @@ check_splits festival "$DEMO/festival-survey.csv" --format wide --columns drinks
     -o "$TMP/gen.csv" --quiet || fail "gen-baskets"
 check_splits gen "$TMP/gen.csv"
 check_files gen 1 "$TMP/gen.csv"
+# weighted (sampling weights with full binary fractions: the exact sums of src/exactsum.h make
+# any split add up to the same bits), on the demo with categories and on the generated baskets
+/usr/bin/python3 - "$DEMO/cafe-orders.csv" "$TMP/weighted.csv" "$TMP/gen.csv" "$TMP/gen-w.csv" <<'EOF'
+import csv, random, sys
+for src, dst in ((sys.argv[1], sys.argv[2]), (sys.argv[3], sys.argv[4])):
+    rows = list(csv.reader(open(src, encoding="utf-8", newline="")))
+    rnd, w = random.Random(7), {}
+    with open(dst, "w", encoding="utf-8", newline="") as f:
+        out = csv.writer(f, lineterminator="\n")
+        out.writerow(rows[0] + ["weight"])
+        for r in rows[1:]:
+            w.setdefault(r[0], repr(rnd.uniform(0.2, 3.7)))
+            out.writerow(r + [w[r[0]]])
+EOF
+check_splits weighted "$TMP/weighted.csv" --category-col category --weight-col weight
+check_files weighted 1 "$TMP/weighted.csv" --category-col category --weight-col weight
+check_splits gen-weighted "$TMP/gen-w.csv" --weight-col weight
+
 # lines format without ids: a respondent's part comes from its number in the file
 /usr/bin/python3 -c '
 import csv, sys

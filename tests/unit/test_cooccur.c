@@ -12,7 +12,10 @@
 
 /* ---- the naive reference ------------------------------------------------------------------- */
 /* Joint counts by the definition: for every respondent, every pair of its (eligible) items.
- * A dense E x E matrix, so only for test sizes. Weighted sums run in respondent order. */
+ * A dense E x E matrix, so only for test sizes. Weighted sums are exact sums rounded once
+ * (the kernel's pm_i_xs sums, src/exactsum.h), computed here independently by Shewchuk's
+ * error-free partials with a correctly rounded total: the algorithm of Python's math.fsum
+ * (Shewchuk 1997, "Adaptive precision floating-point arithmetic"). */
 typedef struct {
     size_t E;
     uint32_t *n; /* n[a * E + b], a < b */
@@ -20,11 +23,65 @@ typedef struct {
     uint64_t pairs, work;
 } naive;
 
+typedef struct {
+    double *p;
+    size_t n, cap;
+} partials;
+
+static void partials_add(partials *ps, double x) {
+    size_t i = 0;
+    for (size_t j = 0; j < ps->n; j++) {
+        double y = ps->p[j];
+        if (fabs(x) < fabs(y)) {
+            double t = x;
+            x = y;
+            y = t;
+        }
+        double hi = x + y, lo = y - (hi - x);
+        if (lo != 0) {
+            ps->p[i++] = lo;
+        }
+        x = hi;
+    }
+    if (i >= ps->cap) {
+        ps->cap = 2 * ps->cap + 4;
+        ps->p = realloc(ps->p, ps->cap * sizeof *ps->p);
+        assert_non_null(ps->p);
+    }
+    ps->p[i++] = x;
+    ps->n = i;
+}
+
+static double partials_sum(const partials *ps) { /* as math.fsum rounds its partials */
+    size_t n = ps->n;
+    if (n == 0) {
+        return 0;
+    }
+    double hi = ps->p[--n], lo = 0;
+    while (n > 0) {
+        double x = hi, y = ps->p[--n];
+        hi = x + y;
+        double yr = hi - x;
+        lo = y - yr;
+        if (lo != 0) {
+            break;
+        }
+    }
+    if (n > 0 && ((lo < 0 && ps->p[n - 1] < 0) || (lo > 0 && ps->p[n - 1] > 0))) {
+        double y = lo * 2, x = hi + y, yr = x - hi;
+        if (y == yr) {
+            hi = x;
+        }
+    }
+    return hi;
+}
+
 static void naive_count(naive *nv, const pm_incidence_t *inc, const unsigned char *eligible) {
     size_t E = inc->n_items;
     nv->E = E;
     nv->n = calloc(E * E + 1, sizeof *nv->n);
     nv->w = inc->weight ? calloc(E * E + 1, sizeof *nv->w) : NULL;
+    partials *ps = inc->weight ? calloc(E * E + 1, sizeof *ps) : NULL;
     assert_non_null(nv->n);
     nv->pairs = nv->work = 0;
     for (size_t r = 0; r < inc->n_resp; r++) {
@@ -44,12 +101,17 @@ static void naive_count(naive *nv, const pm_incidence_t *inc, const unsigned cha
                     nv->pairs++;
                 }
                 if (nv->w) {
-                    nv->w[a * E + b] += inc->weight[r];
+                    partials_add(&ps[a * E + b], inc->weight[r]);
                 }
             }
         }
         nv->work += m * (m > 0 ? m - 1 : 0) / 2;
     }
+    for (size_t k = 0; ps && k < E * E; k++) {
+        nv->w[k] = partials_sum(&ps[k]);
+        free(ps[k].p);
+    }
+    free(ps);
 }
 
 static void naive_free(naive *nv) {

@@ -469,6 +469,40 @@ static pm_err_t decode_pairs(rbuf *r, pm_shard_t *s, size_t np) {
     return PM_OK;
 }
 
+static int u64_cmp(const void *x, const void *y) {
+    uint64_t a = *(const uint64_t *)x, b = *(const uint64_t *)y;
+    return (a > b) - (a < b);
+}
+
+/* Two items chosen by more than N respondents together must have been seen together (at
+ * least n_a + n_b - N times): every such pair must be in the list. O(items log items). */
+static pm_err_t forced_pairs(const pm_shard_t *s, rbuf *r) {
+    size_t ni = s->n_items;
+    uint64_t *c = pm_i_malloc(ni ? ni : 1, sizeof *c);
+    if (!c) {
+        r->bad = 1;
+        return pm_diag_set(r->diag, PM_ENOMEM, r->name, 0, "out of memory");
+    }
+    memcpy(c, s->count, ni * sizeof *c);
+    qsort(c, ni, sizeof *c, u64_cmp);
+    uint64_t need = 0, have = 0;
+    size_t j = ni;
+    for (size_t i = 0; i < ni; i++) { /* j: the first index with c[i] + c[j] > N */
+        while (j > i + 1 && c[i] + c[j - 1] > s->N) {
+            j--;
+        }
+        if (j <= i) {
+            j = i + 1;
+        }
+        need += ni - j;
+    }
+    free(c);
+    for (size_t k = 0; k < s->n_pairs; k++) {
+        have += s->count[s->a[k]] + s->count[s->b[k]] > s->N;
+    }
+    return have == need ? PM_OK : bad(r, "a pair its item totals force is missing");
+}
+
 static int x_zero(pm_shard_x_t x) {
     return !x.lo && !x.hi;
 }
@@ -543,7 +577,9 @@ pm_err_t pm_shard_decode(const unsigned char *buf, size_t len, const char *name,
     if (!rc && r.p != r.end) {
         rc = bad(&r, "bytes after the pair list");
     }
-    if (!rc && s->weighted && weights_inconsistent(s)) {
+    if (!rc && (rc = forced_pairs(s, &r)) != PM_OK) {
+        /* reported */
+    } else if (!rc && s->weighted && weights_inconsistent(s)) {
         rc = bad(&r, "weight sums that do not fit its respondents");
     }
     if (rc) {

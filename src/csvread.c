@@ -2,6 +2,7 @@
  * input is fed to csv_parse one physical line at a time and the line of the first byte of each
  * record is remembered (API-NOTES.md, libcsv). */
 #include "csvread.h"
+#include "pairmap/text.h"
 
 #include <csv.h>
 #include <errno.h>
@@ -545,68 +546,21 @@ done:
     return rc;
 }
 
+/* One UTF-8 decoder for the tree: pm_text_utf8_len (src/text.c). */
 int pm_i_utf8_valid(const char *str, size_t len) {
     const unsigned char *s = (const unsigned char *)str;
-    size_t i = 0;
-    while (i < len) {
-        unsigned c = s[i];
-        if (c < 0x80) {
-            i++;
-            continue;
-        }
-        size_t n;
-        unsigned cp;
-        if (c >= 0xC2 && c <= 0xDF) {
-            n = 1;
-            cp = c & 0x1F;
-        } else if (c >= 0xE0 && c <= 0xEF) {
-            n = 2;
-            cp = c & 0x0F;
-        } else if (c >= 0xF0 && c <= 0xF4) {
-            n = 3;
-            cp = c & 0x07;
-        } else {
+    for (size_t i = 0; i < len;) {
+        size_t n = pm_text_utf8_len(s + i, len - i);
+        if (n == 0) {
             return 0;
         }
-        if (i + n >= len) {
-            return 0;
-        }
-        for (size_t k = 1; k <= n; k++) {
-            if ((s[i + k] & 0xC0) != 0x80) {
-                return 0;
-            }
-            cp = (cp << 6) | (s[i + k] & 0x3F);
-        }
-        if ((n == 2 && cp < 0x800) || (n == 3 && (cp < 0x10000 || cp > 0x10FFFF)) ||
-            (cp >= 0xD800 && cp <= 0xDFFF)) {
-            return 0;
-        }
-        i += n + 1;
+        i += n;
     }
     return 1;
 }
 
-/* Copies s[0..len) into buf for a message, with every byte that is not part of valid UTF-8
- * (or is a control byte) written as \xHH, cut at about 60 bytes: the user sees which name it
- * is and where the bad byte sits (issue 6). */
+/* A name in a message: the one escaper of human-facing text (pm_text_shown), cut at about 60
+ * bytes, so the user sees which name it is and where a bad byte sits. */
 const char *pm_i_shown(const char *s, size_t len, char *buf, size_t size) {
-    size_t o = 0;
-    for (size_t i = 0; i < len && o + 8 < size; i++) {
-        unsigned char c = (unsigned char)s[i];
-        size_t n = c < 0x80 ? 1 : c < 0xE0 ? 2 : c < 0xF0 ? 3 : 4;
-        if (o > 60) {
-            memcpy(buf + o, "...", 3);
-            o += 3;
-            break;
-        }
-        if (c >= 0x20 && c != 0x7F && (c < 0x80 || (i + n <= len && pm_i_utf8_valid(s + i, n)))) {
-            memcpy(buf + o, s + i, n);
-            o += n;
-            i += n - 1;
-        } else {
-            o += (size_t)snprintf(buf + o, size - o, "\\x%02X", c);
-        }
-    }
-    buf[o] = '\0';
-    return buf;
+    return pm_text_shown(s, len, buf, size, 64);
 }

@@ -426,9 +426,9 @@ static pm_err_t header(wide *w, const pm_i_record *r, pm_diag_t *diag) {
 static pm_err_t duplicate_id(wide *w, const pm_i_record *r, const char *id, size_t idl,
                              uint64_t first, pm_diag_t *diag) {
     return pm_diag_set(diag, PM_EDATA, w->t->source, (long)r->line,
-                       "respondent '%.*s' has a second row (the first is on line %llu); a wide "
-                       "file holds one row per respondent",
-                       (int)(idl < 200 ? idl : 200), id, (unsigned long long)first);
+                       "the respondent on this line has a second row (the first is on line "
+                       "%llu); a wide file holds one row per respondent ",
+                       (unsigned long long)first);
 }
 
 /* A respondent who chose nothing, left out of N (--base answered). */
@@ -597,10 +597,9 @@ static pm_err_t blank_duplicates(wide *w, pm_diag_t *diag) {
         if (r >= 0) {
             uint64_t lb = w->blank_line[b], lr = t->resp_line[r];
             return pm_diag_set(diag, PM_EDATA, t->source, (long)(lb > lr ? lb : lr),
-                               "respondent '%.*s' has a second row (the first is on line %llu); "
-                               "a wide file holds one row per respondent",
-                               (int)(w->blank.len[b] < 200 ? w->blank.len[b] : 200),
-                               w->blank.str[b], (unsigned long long)(lb < lr ? lb : lr));
+                               "the respondent on this line has a second row (the first is on "
+                               "line %llu); a wide file holds one row per respondent",
+                               (unsigned long long)(lb < lr ? lb : lr));
         }
     }
     return PM_OK;

@@ -6,17 +6,31 @@
 
 #include "util.h"
 
-void pm_write_csv_field(FILE *fp, const char *s) {
+/* A cell that a spreadsheet would read as a formula (OWASP's CSV-injection guidance): it begins
+ * with = + - @, a tab or a carriage return. */
+static int formula_like(const char *s) {
+    return s[0] == '=' || s[0] == '+' || s[0] == '-' || s[0] == '@' || s[0] == '\t' ||
+           s[0] == '\r';
+}
+
+void pm_write_csv_field(FILE *fp, const char *s, unsigned flags) {
     size_t n = strlen(s);
     int quote = n > 0 && (s[0] == ' ' || s[0] == '\t' || s[n - 1] == ' ' || s[n - 1] == '\t');
     if (!quote && strpbrk(s, ",\"\r\n;\t|")) {
         quote = 1;
     }
+    int mark = !(flags & PM_CSV_RAW) && formula_like(s);
     if (!quote) {
+        if (mark) {
+            fputc('\'', fp);
+        }
         fputs(s, fp);
         return;
     }
     fputc('"', fp);
+    if (mark) {
+        fputc('\'', fp); /* inside the quotes: the cell's text begins with it */
+    }
     for (const char *p = s; *p; p++) {
         if (*p == '"') {
             fputc('"', fp);
@@ -41,15 +55,15 @@ static pm_err_t check(FILE *fp, pm_diag_t *diag) {
 }
 
 pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
-                            const pm_edges_t *e, pm_diag_t *diag) {
+                            const pm_edges_t *e, unsigned csv_flags, pm_diag_t *diag) {
     fputs(PM_EDGES_HEADER "\n", fp);
     for (size_t i = 0; i < e->n; i++) {
         size_t k = e->idx[i];
         pm_measures_t m;
         pm_pairs_measures(pp, inc, k, &m);
-        pm_write_csv_field(fp, inc->name[pp->a[k]]);
+        pm_write_csv_field(fp, inc->name[pp->a[k]], csv_flags);
         fputc(',', fp);
-        pm_write_csv_field(fp, inc->name[pp->b[k]]);
+        pm_write_csv_field(fp, inc->name[pp->b[k]], csv_flags);
         const double v[8] = {m.together, m.expected,      m.support, m.confidence_ab,
                              m.confidence_ba, m.lift, m.phi,     m.jaccard};
         char buf[16 * 64], *o = buf; /* the numbers of the row, written at once */
@@ -72,19 +86,19 @@ pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t
     return check(fp, diag);
 }
 
-void pm_write_item_fields(FILE *fp, const pm_incidence_t *inc, size_t i) {
+void pm_write_item_fields(FILE *fp, const pm_incidence_t *inc, size_t i, unsigned csv_flags) {
     double lo, hi;
     uint32_t it = (uint32_t)i;
     (void)pm_assoc_share_intervals(inc, &it, 1, 1, &lo, &hi, NULL);
-    pm_write_item_fields_with(fp, inc, i, lo, hi);
+    pm_write_item_fields_with(fp, inc, i, lo, hi, csv_flags);
 }
 
 void pm_write_item_fields_with(FILE *fp, const pm_incidence_t *inc, size_t i, double lo,
-                               double hi) {
+                               double hi, unsigned csv_flags) {
     double share = pm_incidence_share(inc, i);
-    pm_write_csv_field(fp, inc->name[i]);
+    pm_write_csv_field(fp, inc->name[i], csv_flags);
     fputc(',', fp);
-    pm_write_csv_field(fp, inc->category[i] ? inc->category[i] : "");
+    pm_write_csv_field(fp, inc->category[i] ? inc->category[i] : "", csv_flags);
     fprintf(fp, ",%llu,", (unsigned long long)inc->count[i]);
     pm_write_number(fp, share);
     fputc(',', fp);
@@ -93,10 +107,11 @@ void pm_write_item_fields_with(FILE *fp, const pm_incidence_t *inc, size_t i, do
     pm_write_number(fp, hi);
 }
 
-pm_err_t pm_write_items_csv(FILE *fp, const pm_incidence_t *inc, pm_diag_t *diag) {
+pm_err_t pm_write_items_csv(FILE *fp, const pm_incidence_t *inc, unsigned csv_flags,
+                            pm_diag_t *diag) {
     fputs("item,category,respondents,share,share_low,share_high\n", fp);
     for (size_t i = 0; i < inc->n_items; i++) {
-        pm_write_item_fields(fp, inc, i);
+        pm_write_item_fields(fp, inc, i, csv_flags);
         fputc('\n', fp);
     }
     return check(fp, diag);

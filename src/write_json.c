@@ -6,6 +6,7 @@
 #include <string.h>
 
 #include "pairmap/mapwrite.h"
+#include "pairmap/text.h"
 #include "pairmap/write.h"
 
 void pm_json_write_string(FILE *fp, const char *s) {
@@ -30,8 +31,19 @@ void pm_json_write_string(FILE *fp, const char *s) {
         default:
             if (*p < 0x20 || *p == 0x7f) {
                 fprintf(fp, "\\u%04x", *p);
-            } else {
+            } else if (*p < 0x80) {
                 fputc(*p, fp);
+            } else {
+                /* valid UTF-8 as it is; a byte that is not part of it as the lone surrogate
+                 * U+DC80 + (byte - 0x80), the lossless "surrogateescape" convention of
+                 * Python's PEP 383 (s.encode("utf-8", "surrogateescape") gives the bytes back) */
+                size_t n = pm_text_utf8_len(p, strlen((const char *)p));
+                if (n == 0) {
+                    fprintf(fp, "\\u%04x", 0xDC00u + *p);
+                } else {
+                    fwrite(p, 1, n, fp);
+                    p += n - 1;
+                }
             }
         }
     }

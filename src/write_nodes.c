@@ -44,9 +44,9 @@ pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
         size_t v = k[r].v;
         if (map->share_low && map->share_high) {
             pm_write_item_fields_with(fp, inc, map->item[v], map->share_low[v],
-                                      map->share_high[v]);
+                                      map->share_high[v], map->csv_flags);
         } else {
-            pm_write_item_fields(fp, inc, map->item[v]);
+            pm_write_item_fields(fp, inc, map->item[v], map->csv_flags);
         }
         fprintf(fp, ",%u,%u,", map->clusters->cluster[v], map->degree[v]);
         pm_write_number(fp, map->xy[2 * v]);

@@ -39,6 +39,7 @@ typedef struct {
     /* [n] optional: the share intervals of the vertices (pm_assoc_share_intervals over
      * item[]); NULL: nodes.csv computes them */
     const double *share_low, *share_high;
+    unsigned csv_flags; /* pm_write_csv_field flags of nodes.csv's names (write.h) */
 } pm_map_t;
 
 /* nodes.csv: one row per vertex, rows ordered by cluster, then share descending, then name
@@ -82,7 +83,9 @@ void pm_json_null(pm_json_t *j, const char *key);
 /* Ends the document with a newline. PM_EIO on a stream error, PM_EINTERNAL on unbalanced
  * nesting. */
 pm_err_t pm_json_finish(pm_json_t *j, pm_diag_t *diag);
-/* Writes s as a JSON string literal (UTF-8 passed through, controls as \u00XX). */
+/* Writes s as a JSON string literal: valid UTF-8 passed through, controls as \u00XX, and each
+ * byte 0xHH that is not part of valid UTF-8 as \udcHH (the lone surrogate U+DC80..U+DCFF of
+ * Python's "surrogateescape", PEP 383), so the file is always valid UTF-8 and no byte is lost. */
 void pm_json_write_string(FILE *fp, const char *s);
 
 #ifdef __cplusplus

@@ -18,25 +18,33 @@ extern "C" {
     "item_a,item_b,together,expected,support,confidence_ab,confidence_ba,lift,phi,jaccard,"    \
     "test,p_value,q_value"
 
-/* Writes the header and one row per selected edge (rows in (item_a, item_b) order).
- * Returns PM_EIO when the stream reports an error. */
+/* Flags of the CSV text cells (pm_write_csv_field): PM_CSV_RAW writes text as it is; without
+ * it, a cell that begins with = + - @, tab or CR gets a leading apostrophe so that a
+ * spreadsheet shows it as text instead of running it as a formula (OWASP's CSV-injection
+ * guidance; `--csv-raw` in the CLI). */
+#define PM_CSV_RAW 1u
+
+/* Writes the header and one row per selected edge (rows in (item_a, item_b) order); names
+ * written with csv_flags. Returns PM_EIO when the stream reports an error. */
 pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
-                            const pm_edges_t *e, pm_diag_t *diag);
+                            const pm_edges_t *e, unsigned csv_flags, pm_diag_t *diag);
 
 /* `items`: item,category,respondents,share,share_low,share_high for every item (95% Jeffreys
  * interval; weighted input: share of the weight, interval on Kish's effective size). */
-pm_err_t pm_write_items_csv(FILE *fp, const pm_incidence_t *inc, pm_diag_t *diag);
+pm_err_t pm_write_items_csv(FILE *fp, const pm_incidence_t *inc, unsigned csv_flags,
+                            pm_diag_t *diag);
 
 /* Writes the fields item,category,respondents,share,share_low,share_high of item i (no line
  * end): the `items` row, and the start of a nodes.csv row. */
-void pm_write_item_fields(FILE *fp, const pm_incidence_t *inc, size_t i);
+void pm_write_item_fields(FILE *fp, const pm_incidence_t *inc, size_t i, unsigned csv_flags);
 /* The same with the interval given (from pm_assoc_share_intervals). */
 void pm_write_item_fields_with(FILE *fp, const pm_incidence_t *inc, size_t i, double lo,
-                               double hi);
+                               double hi, unsigned csv_flags);
 
-/* Writes s as one CSV field, quoted when it holds a delimiter, quote, line break or edge
- * spaces. */
-void pm_write_csv_field(FILE *fp, const char *s);
+/* The one CSV text-cell writer: s as one field, quoted when it holds a delimiter, quote, line
+ * break or edge spaces, with the apostrophe rule of PM_CSV_RAW above unless flags has it.
+ * Names that only look like numbers ("-5") are text and get the apostrophe too. */
+void pm_write_csv_field(FILE *fp, const char *s, unsigned flags);
 /* Writes a number so that it reads back to the same double (C locale). */
 void pm_write_number(FILE *fp, double v);
 

@@ -1,6 +1,9 @@
 /* Option parsing and the steps shared by every command (see cli.h). */
 #include "cli.h"
 
+#include "pairmap/text.h"
+#include "pairmap/write.h"
+
 #include <errno.h>
 #include <math.h>
 #include <stdarg.h>
@@ -69,6 +72,7 @@ static const opt_def OPTS[] = {
     {"top", 0, 1, 0, PM_CMD_PARTNERS},
     {"by", 0, 1, 0, PM_CMD_PARTNERS},
     {"csv", 0, 0, 0, PM_CMD_PARTNERS},
+    {"csv-raw", 0, 0, 0, PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS},
     {"help", 'h', 0, 0, ALL},
 };
 #define NOPTS (sizeof OPTS / sizeof OPTS[0])
@@ -102,6 +106,17 @@ const char pm_cli_input_help[] =
     "  -q, --quiet           no notes, no progress\n"
     "A long row with an empty item registers a respondent who chose nothing (counted in N).\n"
     "Duplicate respondent-item rows count once. Item names are trimmed of white space.\n";
+
+const char pm_cli_csv_help[] =
+    "  --csv-raw             names in CSV output exactly as they are. Without it a name or\n"
+    "                        category that begins with = + - @, tab or CR is written with a\n"
+    "                        leading apostrophe, so that a spreadsheet shows it as text instead\n"
+    "                        of running it as a formula; programs reading the CSV back should\n"
+    "                        use --csv-raw\n";
+
+unsigned pm_cli_csv_flags(const pm_cli_t *c) {
+    return pm_cli_flag(c, "csv-raw") ? PM_CSV_RAW : 0u;
+}
 
 const char pm_cli_select_help[] =
     "Selection (applied in this order; each reports how many pairs it removed):\n"
@@ -144,11 +159,28 @@ static const opt_def *find_short(char c) {
     return NULL;
 }
 
+/* ---- human-facing text ---------------------------------------------------------------- */
+/* Every message goes through the one escaper (pairmap/text.h): a name in it cannot hold a
+ * control character, a line break or a bidirectional control when it reaches the terminal. */
+static void put_message(const char *fmt, va_list ap) {
+    char raw[4096], shown[4 * 4096 + 16];
+    vsnprintf(raw, sizeof raw, fmt, ap);
+    fputs("pairmap: ", stderr);
+    fputs(pm_text_shown(raw, strlen(raw), shown, sizeof shown, 0), stderr);
+}
+
+const char *pm_cli_shown(const char *s) {
+    /* a ring of buffers, so that a printf may show a few names at once (main thread only) */
+    static char ring[8][1024];
+    static unsigned next;
+    char *b = ring[next++ % 8];
+    return pm_text_shown(s, strlen(s), b, sizeof ring[0], sizeof ring[0] - 1);
+}
+
 int pm_cli_usage_error(const pm_cli_t *c, const char *fmt, ...) {
     va_list ap;
     va_start(ap, fmt);
-    fputs("pairmap: ", stderr);
-    vfprintf(stderr, fmt, ap);
+    put_message(fmt, ap);
     va_end(ap);
     /* one line: what is wrong, then where to look (issue 6) */
     if (c && c->command) {
@@ -449,8 +481,9 @@ int pm_cli_select_opts(const pm_cli_t *c, pm_select_opts_t *o) {
 
 int pm_cli_fail(const pm_diag_t *d) {
     char buf[2048];
+    char shown[4 * sizeof buf + 16];
     pm_diag_format(d, buf, sizeof buf);
-    fprintf(stderr, "pairmap: %s\n", buf);
+    fprintf(stderr, "pairmap: %s\n", pm_text_shown(buf, strlen(buf), shown, sizeof shown, 0));
     return pm_err_exit_status(d->code ? d->code : PM_EINTERNAL);
 }
 
@@ -460,8 +493,7 @@ void pm_cli_note(const pm_cli_t *c, const char *fmt, ...) {
     }
     va_list ap;
     va_start(ap, fmt);
-    fputs("pairmap: ", stderr);
-    vfprintf(stderr, fmt, ap);
+    put_message(fmt, ap);
     fputc('\n', stderr);
     va_end(ap);
 }
@@ -531,7 +563,8 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     if (strcmp(c->input, "-") != 0) {
         struct stat st;
         if (stat(c->input, &st) == 0 && S_ISDIR(st.st_mode)) {
-            fprintf(stderr, "pairmap: %s: is a directory; give a CSV file\n", c->input);
+            fprintf(stderr, "pairmap: %s: is a directory; give a CSV file\n",
+                    pm_cli_shown(c->input));
             return 3;
         }
     }

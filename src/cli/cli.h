@@ -76,7 +76,10 @@ int pm_cli_usage_error(const pm_cli_t *c, const char *fmt, ...)
     ;
 /* Prints a diagnostic as "pairmap: FILE:LINE: message" and returns its exit status. */
 int pm_cli_fail(const pm_diag_t *d);
-/* A note on stderr unless --quiet. */
+/* s as the terminal may show it (pm_text_shown: controls and bad bytes as \xHH, bidi
+ * controls as \uXXXX), cut at about 1,000 bytes; one of 8 rotating buffers (main thread). */
+const char *pm_cli_shown(const char *s);
+/* A note on stderr unless --quiet (escaped as pm_cli_shown does). */
 void pm_cli_note(const pm_cli_t *c, const char *fmt, ...)
 #if defined(__GNUC__)
     __attribute__((format(printf, 2, 3)))
@@ -107,6 +110,9 @@ int pm_cli_close_stdout(void);
 /* The common help texts. */
 extern const char pm_cli_input_help[];
 extern const char pm_cli_select_help[];
+/* --csv-raw's help lines, and the pm_write_csv_field flags it gives. */
+extern const char pm_cli_csv_help[];
+unsigned pm_cli_csv_flags(const pm_cli_t *c);
 
 /* Commands (src/cli/cmd_*.c): argc/argv start after the command name. */
 int pm_cmd_map(int argc, char **argv);

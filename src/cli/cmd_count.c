@@ -54,7 +54,7 @@ int pm_cli_write_shard(const char *path, const unsigned char *buf, size_t len) {
     char dir[4096];
     const char *base = slash ? slash + 1 : path;
     if (!*base || strlen(path) >= sizeof dir) {
-        fprintf(stderr, "pairmap: %s: not a file name for the shard\n", path);
+        fprintf(stderr, "pairmap: %s: not a file name for the shard\n", pm_cli_shown(path));
         return 1;
     }
     if (slash) {

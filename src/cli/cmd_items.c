@@ -17,7 +17,7 @@ static const char help[] =
 int pm_cmd_items(int argc, char **argv) {
     pm_cli_t c;
     static char full[8192];
-    snprintf(full, sizeof full, "%s%s", help, pm_cli_input_help);
+    snprintf(full, sizeof full, "%s%s%s", help, pm_cli_input_help, pm_cli_csv_help);
     int rc = pm_cli_parse(&c, "items", PM_CMD_ITEMS, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
@@ -30,7 +30,7 @@ int pm_cmd_items(int argc, char **argv) {
     }
     pm_diag_t d;
     pm_diag_clear(&d);
-    if (pm_write_items_csv(stdout, inc, &d)) {
+    if (pm_write_items_csv(stdout, inc, pm_cli_csv_flags(&c), &d)) {
         rc = pm_cli_fail(&d);
     } else {
         rc = pm_cli_close_stdout();

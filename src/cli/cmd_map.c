@@ -107,6 +107,7 @@ typedef struct {
     double t_read, t_count, t_measures, t_graph, t_write;
     pm_svg_stats_t svg;
     int iterations; /* the layout's, resolved */
+    unsigned csv_flags; /* --csv-raw */
     /* edges.csv and the share intervals of nodes.csv need no clusters: with more than one
      * thread they are done on a thread of their own while the graph stage runs */
     struct {
@@ -474,7 +475,8 @@ static void *early_main(void *arg) {
     /* one thread: the graph stage's processes use the other cores meanwhile */
     (void)pm_assoc_share_intervals(s->inc, s->early.items, s->early.n, 1, s->early.lo,
                                    s->early.hi, NULL);
-    s->early.rc = pm_write_edges_csv(s->early.fp, s->pp, s->inc, s->e, &s->early.d);
+    s->early.rc =
+        pm_write_edges_csv(s->early.fp, s->pp, s->inc, s->e, s->csv_flags, &s->early.d);
     early_sync(s->early.fp);
     return NULL;
 }
@@ -537,6 +539,7 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         .ea = s->ea,
         .eb = s->eb,
         .title = no->title,
+        .csv_flags = s->csv_flags,
     };
     const char **cats = malloc((s->n ? s->n : 1) * sizeof *cats);
     double *slo = malloc((s->n ? s->n : 1) * sizeof *slo);
@@ -622,7 +625,7 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         wrc[1] = pm_svg_write(fps[1], &sd, &so, &s->svg, &wd[1]);
         early_sync(fps[1]);
         if (!early) {
-            wrc[2] = pm_write_edges_csv(fps[2], s->pp, s->inc, s->e, &wd[2]);
+            wrc[2] = pm_write_edges_csv(fps[2], s->pp, s->inc, s->e, s->csv_flags, &wd[2]);
             early_sync(fps[2]);
         }
         if (threaded) {
@@ -741,7 +744,7 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
         if (cl->size[k] < 2 && multi > 0) {
             continue;
         }
-        printf("  %4zu  %5zu items  %s\n", k + 1, cl->size[k], s->cluster_name[k]);
+        printf("  %4zu  %5zu items  %s\n", k + 1, cl->size[k], pm_cli_shown(s->cluster_name[k]));
         shown++;
     }
     if (multi > shown) {
@@ -770,7 +773,8 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
                "keep all; --draw and --width/--height change it)",
                s->svg.left_out);
     }
-    printf("\nwritten       %s/: map.graphml, map.svg, edges.csv, nodes.csv, run.json\n", no->dir);
+    printf("\nwritten       %s/: map.graphml, map.svg, edges.csv, nodes.csv, run.json\n",
+           pm_cli_shown(no->dir));
 }
 
 /* ---- command ----------------------------------------------------------------------------------
@@ -799,7 +803,8 @@ static int net_options(const pm_cli_t *c, net_opts *no) {
 int pm_cmd_map(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s\n%s", help, pm_cli_input_help, pm_cli_select_help);
+    snprintf(full, sizeof full, "%s%s%s\n%s", help, pm_cli_input_help, pm_cli_csv_help,
+             pm_cli_select_help);
     int rc = pm_cli_parse(&c, "map", PM_CMD_MAP, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
@@ -816,6 +821,7 @@ int pm_cmd_map(int argc, char **argv) {
     }
     run_state s;
     memset(&s, 0, sizeof s);
+    s.csv_flags = pm_cli_csv_flags(&c);
     pm_diag_t d;
     pm_diag_clear(&d);
     catch_signals();

@@ -16,7 +16,8 @@ static const char help[] =
 int pm_cmd_pairs(int argc, char **argv) {
     pm_cli_t c;
     static char full[8192];
-    snprintf(full, sizeof full, "%s%s\n%s", help, pm_cli_input_help, pm_cli_select_help);
+    snprintf(full, sizeof full, "%s%s%s\n%s", help, pm_cli_input_help, pm_cli_csv_help,
+             pm_cli_select_help);
     int rc = pm_cli_parse(&c, "pairs", PM_CMD_PAIRS, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
@@ -43,7 +44,7 @@ int pm_cmd_pairs(int argc, char **argv) {
     }
     pm_diag_t d;
     pm_diag_clear(&d);
-    if (pm_select_run(pp, inc, &sel, &e, &d) || pm_write_edges_csv(stdout, pp, inc, e, &d)) {
+    if (pm_select_run(pp, inc, &sel, &e, &d) || pm_write_edges_csv(stdout, pp, inc, e, pm_cli_csv_flags(&c), &d)) {
         /* a failed write is reported as one on standard output (full disk, issue 6) */
         rc = d.code == PM_EIO && ferror(stdout) ? pm_cli_close_stdout() : 0;
         if (rc == 0) {

@@ -96,9 +96,9 @@ static int unknown_item(const pm_incidence_t *inc, const char *src, const char *
         }
     }
     free(buf);
-    fprintf(stderr, "pairmap: %s: no item '%s'", src, name);
+    fprintf(stderr, "pairmap: %s: no item '%s'", pm_cli_shown(src), pm_cli_shown(name));
     for (int k = 0; k < 3 && best[k] != SIZE_MAX; k++) {
-        fprintf(stderr, "%s'%s'", k ? ", " : "; closest: ", inc->name[who[k]]);
+        fprintf(stderr, "%s'%s'", k ? ", " : "; closest: ", pm_cli_shown(inc->name[who[k]]));
     }
     fputc('\n', stderr);
     return 2;
@@ -155,7 +155,7 @@ static void pad(size_t n) {
 static void print_text(const pm_incidence_t *inc, const row *r, size_t n, bool weighted) {
     size_t w = strlen("partner");
     for (size_t i = 0; i < n; i++) {
-        size_t d = display_width(inc->name[r[i].item]);
+        size_t d = display_width(pm_cli_shown(inc->name[r[i].item]));
         if (d > w) {
             w = d;
         }
@@ -165,7 +165,7 @@ static void print_text(const pm_incidence_t *inc, const row *r, size_t n, bool w
     printf("  %9s  %9s  %-24s  %7s  %7s  %9s\n", "together", "expected",
            "confidence (95% interval)", "lift", "phi", "q_value");
     for (size_t i = 0; i < n; i++) {
-        const char *name = inc->name[r[i].item];
+        const char *name = pm_cli_shown(inc->name[r[i].item]);
         fputs(name, stdout);
         pad(w - display_width(name));
         char conf[64];
@@ -181,10 +181,10 @@ static void print_text(const pm_incidence_t *inc, const row *r, size_t n, bool w
     }
 }
 
-static void print_csv(const pm_incidence_t *inc, const row *r, size_t n) {
+static void print_csv(const pm_incidence_t *inc, const row *r, size_t n, unsigned flags) {
     fputs(CSV_HEADER "\n", stdout);
     for (size_t i = 0; i < n; i++) {
-        pm_write_csv_field(stdout, inc->name[r[i].item]);
+        pm_write_csv_field(stdout, inc->name[r[i].item], flags);
         const double v[8] = {r[i].together, r[i].expected, r[i].conf, r[i].lo,
                              r[i].hi,       r[i].lift,     r[i].phi,  r[i].q};
         for (int k = 0; k < 8; k++) {
@@ -294,7 +294,8 @@ static bool eligible(const pm_incidence_t *inc, size_t i, double min_share) {
 int pm_cmd_partners(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s\n%s", help, pm_cli_input_help, pm_cli_select_help);
+    snprintf(full, sizeof full, "%s%s%s\n%s", help, pm_cli_input_help, pm_cli_csv_help,
+             pm_cli_select_help);
     int rc = pm_cli_parse(&c, "partners", PM_CMD_PARTNERS, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
@@ -342,8 +343,8 @@ int pm_cmd_partners(int argc, char **argv) {
             goto done;
         }
         if (!eligible(inc, (size_t)it, sel.min_share)) {
-            fprintf(stderr, "pairmap: %s: item '%s' %s: it has no association to rank\n", src,
-                    names[i],
+            fprintf(stderr, "pairmap: %s: item '%s' %s: it has no association to rank\n",
+                    pm_cli_shown(src), pm_cli_shown(names[i]),
                     inc->count[it] >= inc->N ? "was chosen by every respondent"
                                              : "is below --min-share");
             rc = 2;
@@ -460,14 +461,14 @@ int pm_cmd_partners(int argc, char **argv) {
     qsort(rows, nrows, sizeof *rows, cmp_row);
     size_t shown = top && top < nrows ? (size_t)top : nrows;
     if (csv) {
-        print_csv(inc, rows, shown);
+        print_csv(inc, rows, shown, pm_cli_csv_flags(&c));
     } else {
         double share = inc->weight ? an.w / inc->W : (double)an.n / (double)inc->N;
         printf("Partners of ");
         size_t shown_names = 0;
         for (size_t i = 0; i < inc->n_items; i++) {
             if (in_set[i]) {
-                printf("%s'%s'", shown_names++ ? " + " : "", inc->name[i]);
+                printf("%s'%s'", shown_names++ ? " + " : "", pm_cli_shown(inc->name[i]));
             }
         }
         printf(" (%llu of %llu respondents, %.1f%%)", (unsigned long long)an.n,

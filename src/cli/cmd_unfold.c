@@ -109,11 +109,11 @@ int pm_cmd_unfold(int argc, char **argv) {
             seen[it] = r + 1;
             const char *rid, *item, *cat;
             pm_table_row(t, order[k], &rid, &item, &cat);
-            pm_write_csv_field(stdout, id);
+            pm_write_csv_field(stdout, id, PM_CSV_RAW);
             fputc(',', stdout);
-            pm_write_csv_field(stdout, item);
+            pm_write_csv_field(stdout, item, PM_CSV_RAW);
             fputc(',', stdout);
-            pm_write_csv_field(stdout, cat ? cat : "");
+            pm_write_csv_field(stdout, cat ? cat : "", PM_CSV_RAW);
             if (weighted) {
                 fputc(',', stdout);
                 pm_write_number(stdout, pm_table_respondent_weight(t, r));
@@ -122,7 +122,7 @@ int pm_cmd_unfold(int argc, char **argv) {
             kept++;
         }
         if (kept == 0) { /* in N with no item: one row with an empty item */
-            pm_write_csv_field(stdout, id);
+            pm_write_csv_field(stdout, id, PM_CSV_RAW);
             fputs(",,", stdout);
             if (weighted) {
                 fputc(',', stdout);

@@ -62,6 +62,6 @@ int main(int argc, char **argv) {
     }
     fprintf(stderr, "pairmap: unknown command '%s'; the commands are map, partners, pairs, "
                     "items, unfold, count, merge (see pairmap --help)\n",
-            cmd);
+            pm_cli_shown(cmd));
     return 1;
 }

@@ -88,14 +88,14 @@ printf 'id,d_1,d_2\na,x,y\n\nb,x,y,z\n' >long_row_line4.csv
 expect 2 "long_row_line4.csv:4: " "found more than 3 fields, expected 3 as on the header" \
     -- unfold long_row_line4.csv "${W[@]}"
 printf 'id,d_1,d_2\na,x,y\na,x,\n' >duplicate_id_line3.csv
-expect 2 "duplicate_id_line3.csv:3: " "respondent 'a' has a second row (the first is on line 2)" \
+expect 2 "duplicate_id_line3.csv:3: " "the respondent on this line has a second row (the first is on line 2)" \
     -- items duplicate_id_line3.csv "${W[@]}"
 # a respondent left out of N (chose nothing) still owns its id
 printf 'id,d_1,d_2\na,,\nb,x,\na,x,\n' >duplicate_blank_id_line4.csv
 expect 2 "duplicate_blank_id_line4.csv:4: " "the first is on line 2" \
     -- items duplicate_blank_id_line4.csv "${W[@]}"
 printf 'id,d_1,d_2\na,x,\nb,,\nb,,\n' >duplicate_blank_ids_line4.csv
-expect 2 "duplicate_blank_ids_line4.csv:4: " "respondent 'b' has a second row (the first is on line 3)" \
+expect 2 "duplicate_blank_ids_line4.csv:4: " "the respondent on this line has a second row (the first is on line 3)" \
     -- items duplicate_blank_ids_line4.csv "${W[@]}"
 printf 'id,d_1,d_2\n  ,x,y\n' >empty_id_line2.csv
 expect 2 "empty_id_line2.csv:2: " "empty respondent id in column 'id'" \

@@ -160,13 +160,13 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size) {
                 so.max_q = 1;
                 pm_edges_t *e = NULL;
                 if (pm_select_run(pp, inc, &so, &e, &d) == PM_OK) {
-                    pm_write_edges_csv(devnull, pp, inc, e, &d);
+                    pm_write_edges_csv(devnull, pp, inc, e, 0, &d);
                 }
                 pm_edges_free(e);
             }
             pm_pairs_free(pp);
         }
-        pm_write_items_csv(devnull, inc, &d);
+        pm_write_items_csv(devnull, inc, 0, &d);
     }
     pm_incidence_free(inc);
     pm_table_free(t);

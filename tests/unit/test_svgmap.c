@@ -734,7 +734,7 @@ static void write_csvs(const char *base, const mapdata *md) {
     assert_non_null(fp);
     fputs("item,cluster,share\n", fp);
     for (size_t i = 0; i < md->n; i++) {
-        pm_write_csv_field(fp, md->name[i]);
+        pm_write_csv_field(fp, md->name[i], PM_CSV_RAW);
         fprintf(fp, ",%d,", md->cluster[i]);
         pm_write_number(fp, md->share[i]);
         fputc('\n', fp);
@@ -745,9 +745,9 @@ static void write_csvs(const char *base, const mapdata *md) {
     assert_non_null(fp);
     fputs("item_a,item_b,weight\n", fp);
     for (size_t k = 0; k < md->m; k++) {
-        pm_write_csv_field(fp, md->name[md->ea[k]]);
+        pm_write_csv_field(fp, md->name[md->ea[k]], PM_CSV_RAW);
         fputc(',', fp);
-        pm_write_csv_field(fp, md->name[md->eb[k]]);
+        pm_write_csv_field(fp, md->name[md->eb[k]], PM_CSV_RAW);
         fputc(',', fp);
         pm_write_number(fp, md->weight[k]);
         fputc('\n', fp);

@@ -44,6 +44,7 @@ static const opt_def OPTS[] = {
     {"base", 0, 1, 0, ALL},
     {"quiet", 'q', 0, 0, ALL},
     {"threads", 0, 1, 0, ALL},
+    {"unit", 0, 1, 0, FROM_COUNTS},
     /* selection */
     {"min-count", 0, 1, 0, SCORE},
     {"min-share", 0, 1, 0, SCORE},
@@ -107,7 +108,18 @@ const char pm_cli_input_help[] =
     "A long row with an empty item registers a respondent who chose nothing (counted in N).\n"
     "Duplicate respondent-item rows count once. Item names are trimmed of white space.\n";
 
+const char pm_cli_edge_help[] =
+    "Edges (map and pairs):\n"
+    "  --top-edges K         keep the K pairs with the largest |weight| (after the others)\n"
+    "  --measure M           edge weight: phi (default), lift or jaccard\n";
+
 const char pm_cli_csv_help[] =
+    "  --from-counts F.pmc   build from a count shard (pairmap count, pairmap merge) instead\n"
+    "                        of INPUT: the same results as from the rows\n"
+    "Output:\n"
+    "  --unit WORD           what one respondent is, as a plural noun (orders, baskets,\n"
+    "                        visitors), used in summaries, notes and pictures (default\n"
+    "                        respondents; CSV columns keep their names)\n"
     "  --csv-raw             names in CSV output exactly as they are. Without it a name or\n"
     "                        category that begins with = + - @, tab or CR is written with a\n"
     "                        leading apostrophe, so that a spreadsheet shows it as text instead\n"
@@ -129,8 +141,6 @@ const char pm_cli_select_help[] =
     "  --max-q F             largest Benjamini-Hochberg q-value (default 0.05)\n"
     "  --min-phi F           least |phi| (default 0)\n"
     "  --min-lift F          least lift (default 0)\n"
-    "  --top-edges K         keep the K pairs with the largest |weight|\n"
-    "  --measure M           edge weight: phi (default), lift or jaccard\n"
     "  --min-share F         items chosen by a smaller share are not eligible (default 0)\n"
     "Tests: Fisher's exact test where the smallest expected cell is below 5, else chi-square\n"
     "(1 df, no continuity correction); weighted input: chi-square on Kish's effective sample\n"
@@ -167,6 +177,36 @@ static void put_message(const char *fmt, va_list ap) {
     vsnprintf(raw, sizeof raw, fmt, ap);
     fputs("pairmap: ", stderr);
     fputs(pm_text_shown(raw, strlen(raw), shown, sizeof shown, 0), stderr);
+}
+
+const char *pm_cli_unit(const pm_cli_t *c) {
+    const char *u = pm_cli_get(c, "unit");
+    return u ? u : "respondents";
+}
+
+int pm_cli_check_unit(const pm_cli_t *c) {
+    const char *u = pm_cli_get(c, "unit");
+    if (!u) {
+        return 0;
+    }
+    size_t n = strlen(u);
+    int ok = n > 0 && n <= 32;
+    for (size_t i = 0; ok && i < n; i++) {
+        unsigned char ch = (unsigned char)u[i];
+        /* letters (any UTF-8 letter byte), digits, space, hyphen: a word, not markup */
+        ok = ch >= 0x80 || (ch >= 'a' && ch <= 'z') || (ch >= 'A' && ch <= 'Z') ||
+             (ch >= '0' && ch <= '9') || ch == ' ' || ch == '-';
+    }
+    if (ok) {
+        char b[160];
+        ok = strcmp(pm_text_shown(u, n, b, sizeof b, 0), u) == 0; /* valid UTF-8, no controls */
+    }
+    if (!ok) {
+        return pm_cli_usage_error(c, "--unit takes a plural noun of letters, digits, spaces or "
+                                     "hyphens (at most 32 bytes), got '%s'",
+                                  u);
+    }
+    return 0;
 }
 
 const char *pm_cli_shown(const char *s) {
@@ -286,7 +326,7 @@ int pm_cli_parse(pm_cli_t *c, const char *command, unsigned cmd, int argc, char 
     if (!c->input) {
         return pm_cli_usage_error(c, "no INPUT given (a file, or - for standard input)");
     }
-    return 0;
+    return pm_cli_check_unit(c);
 }
 
 const char *pm_cli_get(const pm_cli_t *c, const char *name) {
@@ -609,12 +649,12 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
                     (unsigned long long)ic->duplicates);
     }
     if (s->empty_items && io.format == PM_FORMAT_WIDE) {
-        pm_cli_note(c, "note: %llu respondents chose nothing in the selected questions and are "
+        pm_cli_note(c, "note: %llu %s chose nothing in the selected questions and are "
                        "kept in N (--base all)",
-                    (unsigned long long)s->empty_items);
+                    (unsigned long long)s->empty_items, pm_cli_unit(c));
     } else if (s->empty_items) {
-        pm_cli_note(c, "note: %llu rows named no item (their respondents count in N)",
-                    (unsigned long long)s->empty_items);
+        pm_cli_note(c, "note: %llu rows named no item (their %s count in N)",
+                    (unsigned long long)s->empty_items, pm_cli_unit(c));
     }
     if (s->dropped_rows) {
         pm_cli_note(c, "note: %llu rows dropped by --drop-item", (unsigned long long)s->dropped_rows);
@@ -624,14 +664,14 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
                     (unsigned long long)s->merged_rows, (unsigned long long)s->merge_entries);
     }
     if (s->blank_excluded) {
-        pm_cli_note(c, "note: %llu respondents chose nothing in the selected questions and are "
+        pm_cli_note(c, "note: %llu %s chose nothing in the selected questions and are "
                        "left out of N (--base answered)",
-                    (unsigned long long)s->blank_excluded);
+                    (unsigned long long)s->blank_excluded, pm_cli_unit(c));
     }
     if (ic->single_item) {
-        pm_cli_note(c, "note: %llu respondents chose one item only (they count in N but form no "
+        pm_cli_note(c, "note: %llu %s chose one item only (they count in N but form no "
                        "pair)",
-                    (unsigned long long)ic->single_item);
+                    (unsigned long long)ic->single_item, pm_cli_unit(c));
     }
     return 0;
 }
@@ -666,9 +706,9 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
     }
     const pm_pairs_t *pp = *pairs;
     if (pp->excluded_all) {
-        pm_cli_note(c, "note: %zu items chosen by every respondent have no defined phi and are "
+        pm_cli_note(c, "note: %zu items chosen by all %s have no defined phi and are "
                        "left out",
-                    pp->excluded_all);
+                    pp->excluded_all, pm_cli_unit(c));
     }
     if (pp->excluded_none) {
         pm_cli_note(c, "note: %zu items chosen by nobody are left out", pp->excluded_none);
@@ -679,9 +719,9 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
     if (pp->n_eligible < 2) {
         fprintf(stderr,
                 "pairmap: %s: only %zu eligible item%s (chosen by some but not all "
-                "respondents); pairs need at least 2\n",
-                c->input[0] == '-' && !c->input[1] ? "stdin" : c->input, pp->n_eligible,
-                pp->n_eligible == 1 ? "" : "s");
+                "%s); pairs need at least 2\n",
+                c->input[0] == '-' && !c->input[1] ? "stdin" : pm_cli_shown(c->input),
+                pp->n_eligible, pp->n_eligible == 1 ? "" : "s", pm_cli_unit(c));
         pm_pairs_free(*pairs);
         *pairs = NULL;
         return 2;

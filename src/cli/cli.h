@@ -79,6 +79,10 @@ int pm_cli_fail(const pm_diag_t *d);
 /* s as the terminal may show it (pm_text_shown: controls and bad bytes as \xHH, bidi
  * controls as \uXXXX), cut at about 1,000 bytes; one of 8 rotating buffers (main thread). */
 const char *pm_cli_shown(const char *s);
+/* --unit: the plural noun for one respondent in human-facing text ("respondents" by default);
+ * pm_cli_check_unit returns 1 (after the usage message) when it is not a plain word. */
+const char *pm_cli_unit(const pm_cli_t *c);
+int pm_cli_check_unit(const pm_cli_t *c);
 /* A note on stderr unless --quiet (escaped as pm_cli_shown does). */
 void pm_cli_note(const pm_cli_t *c, const char *fmt, ...)
 #if defined(__GNUC__)
@@ -112,6 +116,8 @@ extern const char pm_cli_input_help[];
 extern const char pm_cli_select_help[];
 /* --csv-raw's help lines, and the pm_write_csv_field flags it gives. */
 extern const char pm_cli_csv_help[];
+/* --top-edges and --measure (map and pairs). */
+extern const char pm_cli_edge_help[];
 unsigned pm_cli_csv_flags(const pm_cli_t *c);
 
 /* Commands (src/cli/cmd_*.c): argc/argv start after the command name. */

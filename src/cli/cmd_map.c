@@ -686,11 +686,12 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
 }
 
 /* ---- summary --------------------------------------------------------------------------------- */
-static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_state *s) {
+static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_state *s,
+                    const char *c_unit) {
     const pm_edges_t *e = s->e;
     const pm_pairs_t *pp = s->pp;
     const pm_clusters_t *cl = s->cl;
-    printf("respondents   %llu\n", (unsigned long long)s->inc->N);
+    printf("%-13s %llu\n", c_unit, (unsigned long long)s->inc->N);
     printf("items         %zu eligible", pp->n_eligible);
     if (pp->n_eligible != s->inc->n_items) {
         printf(" of %zu (left out: %zu chosen by nobody, %zu by everyone, %zu below "
@@ -803,8 +804,8 @@ static int net_options(const pm_cli_t *c, net_opts *no) {
 int pm_cmd_map(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s%s\n%s", help, pm_cli_input_help, pm_cli_csv_help,
-             pm_cli_select_help);
+    snprintf(full, sizeof full, "%s%s%s\n%s%s", help, pm_cli_input_help, pm_cli_csv_help,
+             pm_cli_select_help, pm_cli_edge_help);
     int rc = pm_cli_parse(&c, "map", PM_CMD_MAP, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
@@ -855,7 +856,7 @@ int pm_cmd_map(int argc, char **argv) {
     if (rc) {
         goto done;
     }
-    summary(&sel, &no, &s);
+    summary(&sel, &no, &s, pm_cli_unit(&c));
     rc = pm_cli_close_stdout();
 done:
     state_free(&s);

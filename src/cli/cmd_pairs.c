@@ -16,8 +16,8 @@ static const char help[] =
 int pm_cmd_pairs(int argc, char **argv) {
     pm_cli_t c;
     static char full[8192];
-    snprintf(full, sizeof full, "%s%s%s\n%s", help, pm_cli_input_help, pm_cli_csv_help,
-             pm_cli_select_help);
+    snprintf(full, sizeof full, "%s%s%s\n%s%s", help, pm_cli_input_help, pm_cli_csv_help,
+             pm_cli_select_help, pm_cli_edge_help);
     int rc = pm_cli_parse(&c, "pairs", PM_CMD_PAIRS, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
@@ -53,10 +53,11 @@ int pm_cmd_pairs(int argc, char **argv) {
         goto done;
     }
     pm_cli_note(&c,
-                "%llu respondents, %zu eligible items, %llu pairs tested, %llu seen together, "
+                "%llu %s, %zu eligible items, %llu pairs tested, %llu seen together, "
                 "%zu kept (removed: %llu below --min-count, %llu by --sign, %llu by --max-q, "
                 "%llu by --min-phi, %llu by --min-lift, %llu by --top-edges)",
-                (unsigned long long)inc->N, pp->n_eligible, (unsigned long long)pp->hypotheses,
+                (unsigned long long)inc->N, pm_cli_unit(&c), pp->n_eligible,
+                (unsigned long long)pp->hypotheses,
                 (unsigned long long)pp->seen, e->n, (unsigned long long)e->removed_count,
                 (unsigned long long)e->removed_sign, (unsigned long long)e->removed_q,
                 (unsigned long long)e->removed_phi, (unsigned long long)e->removed_lift,

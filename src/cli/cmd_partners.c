@@ -471,8 +471,8 @@ int pm_cmd_partners(int argc, char **argv) {
                 printf("%s'%s'", shown_names++ ? " + " : "", pm_cli_shown(inc->name[i]));
             }
         }
-        printf(" (%llu of %llu respondents, %.1f%%)", (unsigned long long)an.n,
-               (unsigned long long)inc->N, 100 * share);
+        printf(" (%llu of %llu %s, %.1f%%)", (unsigned long long)an.n,
+               (unsigned long long)inc->N, pm_cli_unit(&c), 100 * share);
         printf(", ranked by %s; together >= %u, q <= %g, %s associations%s\n", bys[by],
                sel.min_count, sel.max_q, pm_sign_name(sel.sign),
                k > 1 ? " (q over this set's own tests)" : "");

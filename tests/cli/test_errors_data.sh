@@ -29,7 +29,7 @@ on_cmds 2 "$DATA/one_eligible_item.csv: " "only 1 eligible item" "$pairing" "$DA
 line="$(error_line)"
 [[ "$line" == *"at least 2"* ]] || fail "one eligible item: no hint in: $line"
 # the reason is noted once
-grep -q "^pairmap: note: 1 item.* chosen by every respondent" "$TMP/err" ||
+grep -q "^pairmap: note: 1 item.* chosen by all respondents" "$TMP/err" ||
     fail "one eligible item: no note about the item chosen by everyone: $(cat "$TMP/err")"
 # every respondent chose every item
 on_cmds 2 "$DATA/everyone_chose_everything.csv: " "only 0 eligible items" "pairs map" \

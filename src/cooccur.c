@@ -369,56 +369,138 @@ static size_t make_chunks(const uint64_t *cost, size_t n, size_t nch, size_t *be
 }
 
 /* The pairs of o->given (every pair seen together, counted elsewhere: a count shard) as if
- * counted from the rows: filtered by eligible and min_keep, the rest handed to prune. */
+ * counted from the rows: filtered by eligible and min_keep, the rest handed to prune; in
+ * chunks of the list on all threads (pass 1 counts and prunes, pass 2 copies the kept pairs
+ * to their place), so the result does not depend on the threads. */
+typedef struct {
+    const pm_counts_opts_t *o;
+    const pm_counts_t *g;
+    pm_counts_t *res;
+    size_t nchunks, per;
+    size_t *kept; /* per chunk; then its first index in res */
+    uint64_t *seen, *pruned, *work;
+} given_job;
+
+static int given_keeps(const given_job *j, size_t k) {
+    const pm_counts_t *g = j->g;
+    const unsigned char *el = j->o->eligible;
+    return !el || (el[g->a[k]] && el[g->b[k]]);
+}
+
+static int given_pass1(void *ud, size_t c, unsigned th) {
+    given_job *j = ud;
+    const pm_counts_t *g = j->g;
+    const pm_counts_opts_t *o = j->o;
+    size_t lo = c * j->per, hi = lo + j->per < g->n_pairs ? lo + j->per : g->n_pairs;
+    for (size_t k = lo; k < hi; k++) {
+        if (!given_keeps(j, k)) {
+            continue;
+        }
+        j->seen[c]++;
+        j->work[c] += g->n[k]; /* each respondent's k(k-1)/2 is the sum of its pairs' counts */
+        if (g->n[k] < o->min_keep) {
+            j->pruned[c]++;
+            if (o->prune) {
+                o->prune(o->prune_ud, th, g->a[k], g->b[k], g->n[k],
+                         g->w ? g->w[k] : (double)g->n[k]);
+            }
+        } else {
+            j->kept[c]++;
+        }
+    }
+    return 0;
+}
+
+static int given_pass2(void *ud, size_t c, unsigned th) {
+    (void)th;
+    given_job *j = ud;
+    const pm_counts_t *g = j->g;
+    pm_counts_t *res = j->res;
+    size_t lo = c * j->per, hi = lo + j->per < g->n_pairs ? lo + j->per : g->n_pairs;
+    size_t at = j->kept[c];
+    for (size_t k = lo; k < hi; k++) {
+        if (given_keeps(j, k) && g->n[k] >= j->o->min_keep) {
+            res->a[at] = g->a[k];
+            res->b[at] = g->b[k];
+            res->n[at] = g->n[k];
+            if (res->w) {
+                res->w[at] = g->w[k];
+            }
+            at++;
+        }
+    }
+    return 0;
+}
+
 static pm_err_t counts_given(const pm_incidence_t *inc, const pm_counts_opts_t *o,
                              pm_counts_t **out, pm_diag_t *diag) {
     const pm_counts_t *g = o->given;
+    unsigned threads = o->threads ? o->threads : pm_cpu_count();
+    threads = threads > 256 ? 256 : threads;
+    given_job j = {o, g, NULL, 0, 65536, NULL, NULL, NULL, NULL};
+    j.nchunks = (g->n_pairs + j.per - 1) / j.per;
     pm_counts_t *res = pm_i_calloc(1, sizeof *res);
-    size_t np = g->n_pairs ? g->n_pairs : 1;
-    if (res) {
-        res->a = pm_i_malloc(np, sizeof *res->a);
-        res->b = pm_i_malloc(np, sizeof *res->b);
-        res->n = pm_i_malloc(np, sizeof *res->n);
-        res->w = g->w ? pm_i_malloc(np, sizeof *res->w) : NULL;
+    size_t nc = j.nchunks ? j.nchunks : 1;
+    j.kept = pm_i_calloc(nc, sizeof *j.kept);
+    j.seen = pm_i_calloc(nc, sizeof *j.seen);
+    j.pruned = pm_i_calloc(nc, sizeof *j.pruned);
+    j.work = pm_i_calloc(nc, sizeof *j.work);
+    pm_err_t rc = PM_ENOMEM;
+    if (!res || !j.kept || !j.seen || !j.pruned || !j.work) {
+        goto done;
     }
-    if (!res || !res->a || !res->b || !res->n || (g->w && !res->w)) {
-        pm_counts_free(res);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory counting pairs");
+    if (pm_i_parallel(threads, j.nchunks, given_pass1, &j) != 0) {
+        memset(j.kept, 0, nc * sizeof *j.kept); /* no thread could start: here, once */
+        memset(j.seen, 0, nc * sizeof *j.seen);
+        memset(j.pruned, 0, nc * sizeof *j.pruned);
+        memset(j.work, 0, nc * sizeof *j.work);
+        for (size_t c = 0; c < j.nchunks; c++) {
+            given_pass1(&j, c, 0);
+        }
     }
-    size_t at = 0, E = 0;
+    size_t total = 0;
+    for (size_t c = 0; c < j.nchunks; c++) {
+        size_t kc = j.kept[c];
+        j.kept[c] = total;
+        total += kc;
+        res->seen += j.seen[c];
+        res->pruned += j.pruned[c];
+        res->work += j.work[c];
+    }
+    res->a = pm_i_malloc(total ? total : 1, sizeof *res->a);
+    res->b = pm_i_malloc(total ? total : 1, sizeof *res->b);
+    res->n = pm_i_malloc(total ? total : 1, sizeof *res->n);
+    res->w = g->w ? pm_i_malloc(total ? total : 1, sizeof *res->w) : NULL;
+    if (!res->a || !res->b || !res->n || (g->w && !res->w)) {
+        goto done;
+    }
+    j.res = res;
+    if (pm_i_parallel(threads, j.nchunks, given_pass2, &j) != 0) {
+        for (size_t c = 0; c < j.nchunks; c++) {
+            given_pass2(&j, c, 0);
+        }
+    }
+    res->n_pairs = total;
+    size_t E = 0;
     for (size_t i = 0; i < inc->n_items; i++) {
         E += !o->eligible || o->eligible[i];
     }
-    for (size_t k = 0; k < g->n_pairs; k++) {
-        uint32_t a = g->a[k], b = g->b[k];
-        if (o->eligible && (!o->eligible[a] || !o->eligible[b])) {
-            continue;
-        }
-        double w = g->w ? g->w[k] : (double)g->n[k];
-        res->seen++;
-        res->work += g->n[k]; /* each respondent's k(k-1)/2 is the sum of its pairs' counts */
-        if (g->n[k] < o->min_keep) {
-            res->pruned++;
-            if (o->prune) {
-                o->prune(o->prune_ud, 0, a, b, g->n[k], w);
-            }
-            continue;
-        }
-        res->a[at] = a;
-        res->b[at] = b;
-        res->n[at] = g->n[k];
-        if (res->w) {
-            res->w[at] = w;
-        }
-        at++;
-    }
-    res->n_pairs = at;
     size_t dmax = o->dense_max_items ? o->dense_max_items : 2048;
     int kernel = o->kernel;
     if (kernel == PM_COUNTS_AUTO) { /* the kernel the rows would have been counted with */
         kernel = (!g->w && E <= dmax) ? PM_COUNTS_DENSE : PM_COUNTS_SPARSE;
     }
     res->kernel = kernel == PM_COUNTS_DENSE && g->w ? PM_COUNTS_SPARSE : kernel;
+    rc = PM_OK;
+done:
+    free(j.kept);
+    free(j.seen);
+    free(j.pruned);
+    free(j.work);
+    if (rc) {
+        pm_counts_free(res);
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory counting pairs");
+    }
     *out = res;
     return PM_OK;
 }

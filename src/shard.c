@@ -662,12 +662,6 @@ static int part_ref_cmp(const void *x, const void *y) {
     return c ? c : (a->shard > b->shard) - (a->shard < b->shard);
 }
 
-typedef struct {
-    uint64_t key; /* a << 32 | b in the merged numbering */
-    uint64_t n;
-    pm_i_u128 w; /* in units of the merged exponent */
-} pair_rec;
-
 static pm_i_u128 x_u(pm_shard_x_t x) {
     return (pm_i_u128)x.hi << 64 | x.lo;
 }
@@ -878,71 +872,74 @@ static pm_err_t merge_items(const pm_shard_t *const *s, const char *const *names
     return rc;
 }
 
-static pm_err_t merge_pairs(const pm_shard_t *const *s, size_t n, uint32_t *const *map,
-                            const int *sh, pm_shard_t *m, pm_diag_t *diag) {
-    size_t np = 0;
-    for (size_t i = 0; i < n; i++) {
-        np += s[i]->n_pairs;
-    }
-    pair_rec *pr = pm_i_malloc(np ? np : 1, sizeof *pr);
-    if (!pr) {
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory merging shards");
-    }
-    np = 0;
-    int over = 0;
-    for (size_t i = 0; i < n; i++) {
-        for (size_t k = 0; k < s[i]->n_pairs; k++) {
-            pr[np].key = (uint64_t)map[i][s[i]->a[k]] << 32 | map[i][s[i]->b[k]];
-            pr[np].n = s[i]->n[k];
-            pr[np].w = 0;
-            if (s[i]->weighted) {
-                over |= x_add(&pr[np].w, s[i]->w[k], sh[2 * i]);
+/* m's pairs so far and shard x's (renumbered by map, which keeps their order: items are
+ * joined in name order), both sorted by (a, b), merged into one sorted list, equal pairs
+ * added. 0, 1 when out of memory, 2 when a weighted sum would need more than 127 bits. */
+static int merge_two(pm_shard_t *m, const pm_shard_t *x, const uint32_t *map, int sh) {
+    size_t cap = m->n_pairs + x->n_pairs, p = 0, q = 0, at = 0;
+    uint32_t *a = pm_i_malloc(cap ? cap : 1, sizeof *a);
+    uint32_t *b = pm_i_malloc(cap ? cap : 1, sizeof *b);
+    uint64_t *nn = pm_i_malloc(cap ? cap : 1, sizeof *nn);
+    pm_shard_x_t *w = m->weighted ? pm_i_malloc(cap ? cap : 1, sizeof *w) : NULL;
+    int rc = (!a || !b || !nn || (m->weighted && !w)) ? 1 : 0;
+    while (!rc && (p < m->n_pairs || q < x->n_pairs)) {
+        uint64_t kp = p < m->n_pairs ? (uint64_t)m->a[p] << 32 | m->b[p] : UINT64_MAX;
+        uint64_t kq = q < x->n_pairs ? (uint64_t)map[x->a[q]] << 32 | map[x->b[q]] : UINT64_MAX;
+        a[at] = (uint32_t)((kp < kq ? kp : kq) >> 32);
+        b[at] = (uint32_t)(kp < kq ? kp : kq);
+        nn[at] = 0;
+        pm_i_u128 u = 0;
+        if (kp <= kq) {
+            nn[at] += m->n[p];
+            if (w && x_add(&u, m->w[p], 0)) {
+                rc = 2;
             }
-            np++;
+            p++;
         }
-    }
-    if (over) {
-        free(pr);
-        return too_wide(diag);
-    }
-    if (pm_i_radix_sort(pr, np, sizeof *pr)) {
-        free(pr);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory merging shards");
-    }
-    size_t distinct = 0;
-    for (size_t k = 0; k < np; k++) {
-        distinct += !k || pr[k].key != pr[k - 1].key;
-    }
-    m->a = pm_i_malloc(distinct ? distinct : 1, sizeof *m->a);
-    m->b = pm_i_malloc(distinct ? distinct : 1, sizeof *m->b);
-    m->n = pm_i_malloc(distinct ? distinct : 1, sizeof *m->n);
-    m->w = m->weighted ? pm_i_malloc(distinct ? distinct : 1, sizeof *m->w) : NULL;
-    pm_err_t rc = PM_OK;
-    if (!m->a || !m->b || !m->n || (m->weighted && !m->w)) {
-        rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory merging shards");
-    }
-    size_t at = 0;
-    for (size_t k = 0; k < np && !rc;) {
-        size_t e = k;
-        uint64_t sum = 0;
-        pm_i_u128 w = 0;
-        while (e < np && pr[e].key == pr[k].key) {
-            sum += pr[e].n; /* each at most 2^32 - 1, at most 2^32 addends: no overflow */
-            over |= x_add(&w, u_x(pr[e].w), 0);
-            e++;
+        if (kq <= kp) {
+            nn[at] += x->n[q]; /* each below 2^33: no overflow */
+            if (w && x_add(&u, x->w[q], sh)) {
+                rc = 2;
+            }
+            q++;
         }
-        m->a[at] = (uint32_t)(pr[k].key >> 32);
-        m->b[at] = (uint32_t)pr[k].key;
-        m->n[at] = sum;
-        if (m->w) {
-            m->w[at] = u_x(w);
+        if (w) {
+            w[at] = u_x(u);
         }
         at++;
-        k = e;
     }
+    if (rc) {
+        free(a);
+        free(b);
+        free(nn);
+        free(w);
+        return rc;
+    }
+    free(m->a);
+    free(m->b);
+    free(m->n);
+    free(m->w);
+    m->a = a;
+    m->b = b;
+    m->n = nn;
+    m->w = w;
     m->n_pairs = at;
-    free(pr);
-    return !rc && over ? too_wide(diag) : rc;
+    return 0;
+}
+
+static pm_err_t merge_pairs(const pm_shard_t *const *s, size_t n, uint32_t *const *map,
+                            const int *sh, pm_shard_t *m, pm_diag_t *diag) {
+    m->n_pairs = 0;
+    for (size_t i = 0; i < n; i++) {
+        int rc = merge_two(m, s[i], map[i], sh[2 * i]);
+        if (rc == 2) {
+            return too_wide(diag);
+        }
+        if (rc) {
+            return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory merging shards");
+        }
+    }
+    return PM_OK; /* counts over 2^32 - 1: refused by the caller */
 }
 
 /* N and the totals; weighted: the exponents of the sum (the lowest of the shards that hold

@@ -241,5 +241,11 @@ expect_fail 1 "" "needs -o" -- count "$TMP/tiny.csv"
 expect_fail 1 "" "needs -o" -- merge "$TMP/tiny0.pmc"
 expect_fail 1 "" "not for a part" -- count "$TMP/tiny.csv" --part 0/2 --respondents 9 -o "$TMP/x.pmc"
 [ -e "$TMP/x.pmc" ] && fail "a refused count wrote its output"
+# a shard of some of the parts: the results describe those respondents, and a warning says so
+expect_ok items --from-counts "$TMP/demo/p0-2.pmc"
+grep -q 'warning: .*p0-2.pmc holds 1 of the 2 parts of input' "$TMP/err" ||
+    fail "no warning for a shard of 1 of 2 parts: $(cat "$TMP/err")"
+expect_ok items --from-counts "$TMP/demo/m2-a.pmc"
+grep -q 'warning' "$TMP/err" && fail "a warning for a shard of all parts: $(cat "$TMP/err")"
 
 finish

@@ -330,6 +330,10 @@ static double beta_quantile(double p, double a, double b) {
     return x;
 }
 
+double pm_assoc_beta_quantile(double p, double a, double b) {
+    return beta_quantile(p, a, b);
+}
+
 void pm_assoc_jeffreys(double x, double n, double alpha, double *lo, double *hi) {
     *lo = x <= 0 ? 0.0 : beta_quantile(alpha / 2, x + 0.5, n - x + 0.5);
     *hi = x >= n ? 1.0 : beta_quantile(1 - alpha / 2, x + 0.5, n - x + 0.5);

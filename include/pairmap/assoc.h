@@ -47,6 +47,9 @@ double pm_assoc_fisher(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, int a
  * with 0 as lower bound at x = 0 and 1 as upper bound at x = n (Brown, Cai & DasGupta 2001).
  * x and n may be fractional (weighted, effective sizes). */
 void pm_assoc_jeffreys(double x, double n, double alpha, double *lo, double *hi);
+/* The p-quantile of Beta(a, b), a, b > 0 (the robust solver behind pm_assoc_jeffreys: Newton
+ * steps on GSL's beta CDF inside a shrinking bracket). */
+double pm_assoc_beta_quantile(double p, double a, double b);
 /* The 95% Jeffreys interval of the share of each of the k items item[0..k) (as `items` prints
  * it: Kish's effective size when weighted) into lo[j], hi[j], on `threads` threads (0: all
  * cores); the values do not depend on the number. Errors: PM_ENOMEM (no thread could start is

@@ -14,7 +14,8 @@
 #include <unistd.h>
 
 #define ALL                                                                                 \
-    (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_UNFOLD | PM_CMD_COUNT)
+    (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_UNFOLD | PM_CMD_COUNT |     \
+     PM_CMD_SEGMENTS)
 #define FROM_COUNTS (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS)
 #define SCORE (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS)
 
@@ -73,7 +74,11 @@ static const opt_def OPTS[] = {
     {"top", 0, 1, 0, PM_CMD_PARTNERS},
     {"by", 0, 1, 0, PM_CMD_PARTNERS},
     {"csv", 0, 0, 0, PM_CMD_PARTNERS},
-    {"csv-raw", 0, 0, 0, PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS},
+    /* segments */
+    {"segment-col", 0, 1, 1, PM_CMD_SEGMENTS},
+    {"segment-file", 0, 1, 0, PM_CMD_SEGMENTS},
+    {"segment-levels", 0, 1, 1, PM_CMD_SEGMENTS},
+    {"csv-raw", 0, 0, 0, PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_SEGMENTS},
     {"help", 'h', 0, 0, ALL},
 };
 #define NOPTS (sizeof OPTS / sizeof OPTS[0])

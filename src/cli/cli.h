@@ -23,6 +23,7 @@ enum {
     PM_CMD_ITEMS = 8,
     PM_CMD_UNFOLD = 16,
     PM_CMD_COUNT = 32,
+    PM_CMD_SEGMENTS = 64,
 };
 
 #define PM_CLI_MAX_VALUES 256
@@ -127,6 +128,7 @@ int pm_cmd_pairs(int argc, char **argv);
 int pm_cmd_items(int argc, char **argv);
 int pm_cmd_unfold(int argc, char **argv);
 int pm_cmd_count(int argc, char **argv);
+int pm_cmd_segments(int argc, char **argv);
 int pm_cmd_merge(int argc, char **argv);
 
 /* --from-counts FILE.pmc (src/cli/cmd_count.c): loads the shard as the run's table (a

@@ -1,0 +1,96 @@
+/* Segments: a respondent attribute (region, store, age band, day) read from a column of the
+ * input or of a segment file, its levels in order, and per (segment, item) the share with its
+ * Jeffreys interval, an empirical-Bayes shrunk share, a one-against-the-rest test with
+ * Benjamini-Hochberg q-values and, for ordered columns, the Cochran-Armitage trend
+ * (src/segments.c, src/segstats.c). */
+#ifndef PAIRMAP_SEGMENTS_H
+#define PAIRMAP_SEGMENTS_H
+
+#include <stdbool.h>
+#include <stddef.h>
+#include <stdint.h>
+
+#include "pairmap/error.h"
+#include "pairmap/incidence.h"
+#include "pairmap/input.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* One segment column. Invariants: of[r] is a level index < n_levels or -1 (no segment) for
+ * every respondent r < n_resp of the table; base[s] counts the respondents of level s;
+ * levels are in their order (see pm_segcol_read). */
+typedef struct {
+    char *column;         /* the column's name as given */
+    size_t n_resp;        /* respondents of the table */
+    size_t n_levels;
+    char **level;         /* [n_levels] labels */
+    bool ordered;         /* --segment-levels given, or every label holds a number */
+    int32_t *of;          /* [n_resp] */
+    uint64_t *base;       /* [n_levels] */
+    uint64_t none;        /* respondents of the table without a segment */
+    uint64_t unknown_ids; /* ids of the segment file that are not in the input */
+} pm_segcol_t;
+
+/* Where the column is. */
+typedef struct {
+    const char *path;    /* the CSV file that holds the column (the input or --segment-file) */
+    const char *display; /* name in messages (NULL: path) */
+    bool is_input;       /* the input itself: a respondent may have many rows, which must agree;
+                          * otherwise a segment file: one row per respondent */
+    const char *id_col;  /* respondent id column (header name or 1-based number; NULL: 1) */
+    char sep;            /* 0: detected */
+    const char *column;  /* the segment column (header name or 1-based number) */
+    const char *levels;  /* --segment-levels A,B,C for this column, or NULL */
+} pm_segcol_src_t;
+
+/* Reads the segment of every respondent of table t from src (the file must have a header).
+ * Level order: the levels of src->levels as given (each must occur, and every level that
+ * occurs must be listed); otherwise labels that hold a number first, by their first number
+ * (digits with optional thousands separators "1,000" and a decimal point; ties by label
+ * bytes), then labels without a number by bytes. An empty cell gives no segment. Errors:
+ * PM_EUSAGE (unknown column; a level of src->levels missing or one not listed; the table
+ * has no respondent ids), PM_EDATA (two different values for one respondent, naming both
+ * lines; a segment file with an id twice), PM_EIO, PM_ENOMEM. *out is initialised here and
+ * owned by the caller (pm_segcol_destroy) on success; zeroed on failure. */
+pm_err_t pm_segcol_read(const pm_table_t *t, const pm_segcol_src_t *src, pm_segcol_t *out,
+                        pm_diag_t *diag);
+void pm_segcol_destroy(pm_segcol_t *c);
+
+/* The first number in a label (NaN when it holds none): "16-24" 16, "€1,000-1,999" 1000,
+ * "5 to 9 km" 5, "2.5 kg" 2.5. */
+double pm_segment_label_number(const char *label);
+
+/* The table of one column: one row per (segment, item), segment-major. */
+typedef struct {
+    size_t n_levels, n_items;
+    double m;            /* fitted prior strength (pseudo-respondents) */
+    double loglik;       /* the beta-binomial log-likelihood at m (binomial terms included) */
+    int m_at;            /* 0: interior; 1: at the upper bound (no spread beyond binomial
+                          * noise); -1: at the lower bound */
+    size_t cells_fitted; /* (item, segment) cells in the fit */
+    uint64_t B;          /* respondents with a segment */
+    uint64_t *chose;     /* [n_levels * n_items] */
+    double *mu;          /* [n_items] share over respondents with a segment */
+    double *share_low, *share_high, *shrunk, *shrunk_low, *shrunk_high, *p, *q;
+    unsigned char *test; /* 0 none, 1 fisher, 2 chi2 */
+    double *trend_z, *trend_p; /* [n_items]; NaN when the column is not ordered */
+} pm_segstats_t;
+
+/* Lower and upper bounds of the fitted m. */
+#define PM_SEG_M_MIN 1e-3
+#define PM_SEG_M_MAX 1e8
+
+/* Computes the table of column c over incidence inc (unweighted). m is fitted by maximum
+ * likelihood over every (item, segment) cell of items with 0 < chosen < B, on log m in
+ * [PM_SEG_M_MIN, PM_SEG_M_MAX] (a grid, then GSL's Brent minimiser). *out owned by the caller
+ * (pm_segstats_destroy). Errors: PM_ENOMEM. Cost O(rows + levels * items * grid). */
+pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, pm_segstats_t *out,
+                         pm_diag_t *diag);
+void pm_segstats_destroy(pm_segstats_t *s);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,207 @@
+/* pairmap segments: item shares by segment (region, store, age band, day), with Jeffreys
+ * intervals, empirical-Bayes shrinkage, one-against-the-rest tests and trends. */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "cli.h"
+#include "pairmap/segments.h"
+#include "pairmap/write.h"
+
+static const char help[] =
+    "Usage: pairmap segments INPUT --segment-col COL [--segment-col COL ...] [options]\n"
+    "\n"
+    "How choices differ by segment. Writes CSV on standard output, one row per (column,\n"
+    "segment, item), columns\n"
+    "  attribute,segment,item,category,base,chose,share,share_low,share_high,shrunk,\n"
+    "  shrunk_low,shrunk_high,index,test,p_value,q_value,trend_z,trend_p\n"
+    "  base, chose       respondents in the segment, and those of them who chose the item\n"
+    "  share             chose / base, with its 95% Jeffreys interval\n"
+    "  shrunk            the empirical-Bayes share: (chose + m mu) / (base + m), where mu is\n"
+    "                    the item's share over all respondents with a segment of the column\n"
+    "                    and m (pseudo-respondents, one per column) is fitted by maximum\n"
+    "                    likelihood of a beta-binomial model over every (item, segment) cell;\n"
+    "                    shrunk_low/high: the 95% equal-tailed posterior interval. Small\n"
+    "                    segments are pulled towards mu, large ones keep their own share. When\n"
+    "                    the segments differ no more than chance would make them, m reaches\n"
+    "                    its upper bound (1e8, said in a note) and every shrunk share is mu\n"
+    "  index             shrunk / mu (1 = as everywhere; 1.5 = half as often again)\n"
+    "  test, p_value     the segment against all other respondents with a segment: Fisher's\n"
+    "                    exact test where an expected cell is below 5, else chi-square (two-\n"
+    "                    sided); q_value: Benjamini-Hochberg over every cell of the column\n"
+    "  trend_z, trend_p  ordered columns: the Cochran-Armitage test of a linear trend of the\n"
+    "                    item's share over the segments (scores 1..k), z > 0 when it rises\n"
+    "Rows by column (as given), segment order, item. Empty cells: not defined (no test when\n"
+    "the segment holds everyone or nobody, or the item is chosen by all or none of them).\n"
+    "\n"
+    "Segments:\n"
+    "  --segment-col COL     a respondent attribute: a column of the input (the same on every\n"
+    "                        row of a respondent) or of --segment-file (repeatable: each\n"
+    "                        column on its own). An empty cell: no segment (left out of that\n"
+    "                        column's figures, counted in a note)\n"
+    "  --segment-file FILE   CSV with a header, first column the respondent id, holding the\n"
+    "                        segment columns (any format, lines with --id-col 1 included)\n"
+    "  --segment-levels COL=A,B,C   the order of COL's segments (then COL is ordered).\n"
+    "                        Otherwise labels that hold a number come first, by their first\n"
+    "                        number (16-24 before 65 and over; 1,000 is a thousand; 'under 25'\n"
+    "                        before '25-39': under, below, less than, up to, fewer than or <\n"
+    "                        before the number put a label first among equal numbers), other\n"
+    "                        ties and labels without a number by label (bytes); a column is\n"
+    "                        ordered when every label holds a number\n"
+    "  --csv-raw             names as they are (default: a leading apostrophe before = + - @)\n"
+    "Weighted input (--weight-col) is not supported by this command yet.\n"
+    "\n";
+
+/* The --segment-levels value for column col, or NULL. */
+static const char *levels_for(const pm_cli_t *c, const char *col) {
+    size_t n;
+    const char *const *v = pm_cli_all(c, "segment-levels", &n);
+    size_t cl = strlen(col);
+    for (size_t i = 0; i < n; i++) {
+        if (strncmp(v[i], col, cl) == 0 && v[i][cl] == '=') {
+            return v[i] + cl + 1;
+        }
+    }
+    return NULL;
+}
+
+static void num(double v) {
+    if (!isnan(v)) {
+        pm_write_number(stdout, v);
+    }
+}
+
+static void rows(const pm_segcol_t *col, const pm_segstats_t *s, const pm_incidence_t *inc,
+                 unsigned flags) {
+    static const char *const tests[] = {"", "fisher", "chi2"};
+    for (size_t k = 0; k < s->n_levels; k++) {
+        for (size_t i = 0; i < s->n_items; i++) {
+            size_t j = k * s->n_items + i;
+            pm_write_csv_field(stdout, col->column, flags);
+            fputc(',', stdout);
+            pm_write_csv_field(stdout, col->level[k], flags);
+            fputc(',', stdout);
+            pm_write_csv_field(stdout, inc->name[i], flags);
+            fputc(',', stdout);
+            pm_write_csv_field(stdout, inc->category[i] ? inc->category[i] : "", flags);
+            printf(",%llu,%llu,", (unsigned long long)col->base[k],
+                   (unsigned long long)s->chose[j]);
+            num(col->base[k] ? (double)s->chose[j] / (double)col->base[k] : NAN);
+            const double v[] = {s->share_low[j], s->share_high[j], s->shrunk[j],
+                                s->shrunk_low[j], s->shrunk_high[j],
+                                s->mu[i] > 0 ? s->shrunk[j] / s->mu[i] : NAN};
+            for (size_t t = 0; t < sizeof v / sizeof v[0]; t++) {
+                fputc(',', stdout);
+                num(v[t]);
+            }
+            printf(",%s,", tests[s->test[j]]);
+            num(s->p[j]);
+            fputc(',', stdout);
+            num(s->q[j]);
+            fputc(',', stdout);
+            num(s->trend_z[i]);
+            fputc(',', stdout);
+            num(s->trend_p[i]);
+            fputc('\n', stdout);
+        }
+    }
+}
+
+static void notes(const pm_cli_t *c, const pm_segcol_t *col, const pm_segstats_t *s) {
+    pm_cli_note(c, "note: segments of '%s': %zu (%s); %llu respondents with a segment, %llu "
+                   "without",
+                pm_cli_shown(col->column), col->n_levels, col->ordered ? "ordered" : "unordered",
+                (unsigned long long)s->B, (unsigned long long)col->none);
+    if (col->unknown_ids) {
+        pm_cli_note(c, "note: %llu ids of the segment file are not in the input",
+                    (unsigned long long)col->unknown_ids);
+    }
+    pm_cli_note(c, "note: '%s': prior strength m = %.17g pseudo-respondents, log-likelihood "
+                   "%.17g over %zu cells%s",
+                pm_cli_shown(col->column), s->m, s->loglik, s->cells_fitted,
+                s->m_at > 0 ? " (no spread beyond chance: m at its upper bound, every shrunk "
+                              "share is the item's overall share)"
+                : s->m_at < 0 ? " (m at its lower bound: the segments differ a lot)"
+                              : "");
+}
+
+static int one_column(const pm_cli_t *c, const pm_table_t *t, const pm_incidence_t *inc,
+                      const char *col, pm_segcol_t *sc, pm_segstats_t *st) {
+    const char *file = pm_cli_get(c, "segment-file");
+    pm_segcol_src_t src = {0};
+    src.path = file ? file : c->input;
+    src.is_input = file == NULL;
+    src.id_col = file ? NULL : pm_cli_get(c, "id-col");
+    src.column = col;
+    src.levels = levels_for(c, col);
+    if (!file) {
+        const char *sep = pm_cli_get(c, "sep");
+        src.sep = sep && strcmp(sep, "tab") == 0 ? '\t' : sep ? sep[0] : 0;
+    }
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    if (pm_segcol_read(t, &src, sc, &d)) {
+        return pm_cli_fail(&d);
+    }
+    if (pm_segstats_run(inc, sc, st, &d)) {
+        pm_segcol_destroy(sc);
+        return pm_cli_fail(&d);
+    }
+    return 0;
+}
+
+int pm_cmd_segments(int argc, char **argv) {
+    pm_cli_t c;
+    static char full[16384];
+    snprintf(full, sizeof full, "%s%s", help, pm_cli_input_help);
+    int rc = pm_cli_parse(&c, "segments", PM_CMD_SEGMENTS, argc, argv, full);
+    if (rc) {
+        return rc < 0 ? pm_cli_close_stdout() : rc;
+    }
+    size_t ncol;
+    const char *const *cols = pm_cli_all(&c, "segment-col", &ncol);
+    if (ncol == 0) {
+        return pm_cli_usage_error(&c, "give --segment-col COL");
+    }
+    if (pm_cli_get(&c, "weight-col")) {
+        return pm_cli_usage_error(&c, "segments does not take --weight-col yet");
+    }
+    pm_table_t *t = NULL;
+    pm_incidence_t *inc = NULL;
+    if ((rc = pm_cli_load(&c, &t, &inc, NULL)) != 0) {
+        return rc;
+    }
+    /* every column read and computed before the first byte of output: an error leaves
+     * standard output empty */
+    pm_segcol_t *sc = calloc(ncol, sizeof *sc);
+    pm_segstats_t *st = calloc(ncol, sizeof *st);
+    size_t done = 0;
+    if (!sc || !st) {
+        fputs("pairmap: out of memory\n", stderr);
+        rc = 4;
+    }
+    for (; rc == 0 && done < ncol; done++) {
+        if ((rc = one_column(&c, t, inc, cols[done], &sc[done], &st[done])) != 0) {
+            break;
+        }
+    }
+    if (rc == 0) {
+        fputs("attribute,segment,item,category,base,chose,share,share_low,share_high,shrunk,"
+              "shrunk_low,shrunk_high,index,test,p_value,q_value,trend_z,trend_p\n",
+              stdout);
+        for (size_t i = 0; i < ncol; i++) {
+            notes(&c, &sc[i], &st[i]);
+            rows(&sc[i], &st[i], inc, pm_cli_csv_flags(&c));
+        }
+    }
+    for (size_t i = 0; sc && st && i < done; i++) {
+        pm_segstats_destroy(&st[i]);
+        pm_segcol_destroy(&sc[i]);
+    }
+    free(sc);
+    free(st);
+    pm_incidence_free(inc);
+    pm_table_free(t);
+    return rc ? rc : pm_cli_close_stdout();
+}

@@ -1,0 +1,390 @@
+/* Segment columns (include/pairmap/segments.h): every respondent's label read from a column of
+ * the input or of a segment file, the levels put in order. */
+#include "pairmap/segments.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+
+#include "csvread.h"
+#include "util.h"
+
+double pm_segment_label_number(const char *s) {
+    const char *p = s;
+    while (*p && !(*p >= '0' && *p <= '9')) {
+        p++;
+    }
+    if (!*p) {
+        return NAN;
+    }
+    double v = 0;
+    for (;;) {
+        while (*p >= '0' && *p <= '9') {
+            v = v * 10 + (*p - '0');
+            p++;
+        }
+        /* a thousands separator: a comma followed by exactly three digits */
+        if (p[0] == ',' && p[1] >= '0' && p[1] <= '9' && p[2] >= '0' && p[2] <= '9' &&
+            p[3] >= '0' && p[3] <= '9' && !(p[4] >= '0' && p[4] <= '9')) {
+            p++;
+            continue;
+        }
+        break;
+    }
+    if (p[0] == '.' && p[1] >= '0' && p[1] <= '9') {
+        double f = 0.1;
+        for (p++; *p >= '0' && *p <= '9'; p++) {
+            v += f * (*p - '0');
+            f /= 10;
+        }
+    }
+    return v;
+}
+
+void pm_segcol_destroy(pm_segcol_t *c) {
+    if (!c) {
+        return;
+    }
+    for (size_t i = 0; c->level && i < c->n_levels; i++) {
+        free(c->level[i]);
+    }
+    free(c->level);
+    free(c->of);
+    free(c->base);
+    free(c->column);
+    memset(c, 0, sizeof *c);
+}
+
+/* Trims spaces and tabs around s[0..*len) (as the input's readers do with names). */
+static void trim(const char **s, size_t *len) {
+    while (*len && (**s == ' ' || **s == '\t')) {
+        (*s)++;
+        (*len)--;
+    }
+    while (*len && ((*s)[*len - 1] == ' ' || (*s)[*len - 1] == '\t')) {
+        (*len)--;
+    }
+}
+
+/* ==== reading =============================================================================== */
+typedef struct {
+    const pm_segcol_src_t *src;
+    const char *file;
+    pm_i_strtab ids;     /* respondent id -> table index (same ids, same order) */
+    pm_i_strtab labels;  /* label -> first-seen id */
+    int32_t *lab;        /* [n_resp] label id or -1 */
+    uint64_t *line;      /* [n_resp] line that set it (0: none) */
+    long idc, segc;      /* 0-based columns */
+    int header_done;
+    uint64_t unknown;
+} reader;
+
+/* Column spec s (a header name or a 1-based number) in header r; -1 when absent. */
+static long find_col(const pm_i_record *r, const char *s) {
+    char *end;
+    errno = 0;
+    long v = strtol(s, &end, 10);
+    if (*s && *end == '\0' && errno == 0 && v >= 1 && (size_t)v <= r->n) {
+        return v - 1;
+    }
+    for (size_t i = 0; i < r->n; i++) {
+        const char *f = r->f[i];
+        size_t l = r->len[i];
+        trim(&f, &l);
+        if (l == strlen(s) && memcmp(f, s, l) == 0) {
+            return (long)i;
+        }
+    }
+    return -1;
+}
+
+static pm_err_t header(reader *rd, const pm_i_record *r, pm_diag_t *diag) {
+    const char *idspec = rd->src->id_col ? rd->src->id_col : "1";
+    rd->idc = find_col(r, idspec);
+    rd->segc = find_col(r, rd->src->column);
+    if (rd->idc < 0) {
+        return pm_diag_set(diag, PM_EUSAGE, rd->file, (long)r->line,
+                           "no respondent id column '%s' in the header", idspec);
+    }
+    if (rd->segc < 0) {
+        return pm_diag_set(diag, PM_EUSAGE, rd->file, (long)r->line,
+                           "--segment-col '%s' is not a column of the header", rd->src->column);
+    }
+    if (rd->segc == rd->idc) {
+        return pm_diag_set(diag, PM_EUSAGE, rd->file, (long)r->line,
+                           "--segment-col '%s' is the respondent id column", rd->src->column);
+    }
+    return PM_OK;
+}
+
+static pm_err_t record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
+    reader *rd = ud;
+    if (!rd->header_done) {
+        rd->header_done = 1;
+        return header(rd, r, diag);
+    }
+    if ((size_t)rd->idc >= r->n || (size_t)rd->segc >= r->n) {
+        return PM_OK; /* a short row: the input's own reader reports it */
+    }
+    const char *id = r->f[rd->idc], *v = r->f[rd->segc];
+    size_t il = r->len[rd->idc], vl = r->len[rd->segc];
+    trim(&id, &il);
+    trim(&v, &vl);
+    int64_t resp = pm_i_strtab_find(&rd->ids, id, il);
+    if (resp < 0) {
+        rd->unknown += !rd->src->is_input; /* the input's rows are all in the table */
+        return PM_OK;
+    }
+    if (!pm_i_utf8_valid(v, vl)) {
+        char b[96];
+        return pm_diag_set(diag, PM_EDATA, rd->file, (long)r->line,
+                           "invalid UTF-8 in segment '%s'; save the file as UTF-8",
+                           pm_i_shown(v, vl, b, sizeof b));
+    }
+    int64_t lab = -1;
+    if (vl > 0 && (lab = pm_i_strtab_intern(&rd->labels, v, vl, NULL)) < 0) {
+        return pm_diag_set(diag, PM_ENOMEM, rd->file, 0, "out of memory");
+    }
+    if (rd->line[resp]) {
+        if (!rd->src->is_input) {
+            return pm_diag_set(diag, PM_EDATA, rd->file, (long)r->line,
+                               "the respondent on this line is also on line %llu; a segment "
+                               "file holds one row per respondent",
+                               (unsigned long long)rd->line[resp]);
+        }
+        if (rd->lab[resp] != (int32_t)lab) {
+            char b[96];
+            return pm_diag_set(diag, PM_EDATA, rd->file, (long)r->line,
+                               "segment '%s' in column '%s' differs from the one this "
+                               "respondent has on line %llu; a respondent has one segment",
+                               pm_i_shown(v, vl, b, sizeof b), rd->src->column,
+                               (unsigned long long)rd->line[resp]);
+        }
+        return PM_OK;
+    }
+    rd->line[resp] = r->line;
+    rd->lab[resp] = (int32_t)lab;
+    return PM_OK;
+}
+
+static pm_err_t read_file(reader *rd, pm_diag_t *diag) {
+    FILE *fp = strcmp(rd->src->path, "-") == 0 ? NULL : fopen(rd->src->path, "rb");
+    if (!fp) {
+        return pm_diag_set(diag, PM_EIO, rd->file, 0, "cannot open the file for segments: %s",
+                           strcmp(rd->src->path, "-") == 0 ? "standard input is read once"
+                                                           : strerror(errno));
+    }
+    pm_i_csv_opts co = {0};
+    co.sep = rd->src->sep;
+    co.display = rd->file;
+    pm_err_t rc = pm_i_csv_stream(fp, &co, record, rd, diag);
+    fclose(fp);
+    return rc;
+}
+
+/* ==== level order =========================================================================== */
+typedef struct {
+    const char *s;
+    double num;
+    int below; /* "under 25", "below 25", "less than 25", "up to 25", "<25": before 25-39 */
+    uint32_t id;
+} lev;
+
+/* True when the text before the label's first digit says "below": under, below, less than,
+ * up to, fewer than, < (any case). */
+static int says_below(const char *s) {
+    static const char *const words[] = {"under", "below", "less than", "up to", "fewer than",
+                                        "<"};
+    const char *d = s;
+    while (*d && !(*d >= '0' && *d <= '9')) {
+        d++;
+    }
+    for (size_t w = 0; w < sizeof words / sizeof words[0]; w++) {
+        size_t n = strlen(words[w]);
+        for (const char *p = s; p + n <= d; p++) {
+            if (strncasecmp(p, words[w], n) == 0) {
+                return 1;
+            }
+        }
+    }
+    return 0;
+}
+
+static int cmp_lev(const void *x, const void *y) {
+    const lev *a = x, *b = y;
+    int an = !isnan(a->num), bn = !isnan(b->num);
+    if (an != bn) {
+        return an ? -1 : 1; /* labels with a number first */
+    }
+    if (an && a->num != b->num) {
+        return a->num < b->num ? -1 : 1;
+    }
+    if (an && a->below != b->below) {
+        return a->below ? -1 : 1;
+    }
+    return pm_i_bytecmp(a->s, b->s);
+}
+
+/* rank[id] = position of label id; the order of --segment-levels when given. */
+static pm_err_t order_levels(const reader *rd, pm_segcol_t *c, uint32_t *rank,
+                             pm_diag_t *diag) {
+    size_t k = rd->labels.count;
+    lev *l = pm_i_malloc(k ? k : 1, sizeof *l);
+    if (!l) {
+        return pm_diag_set(diag, PM_ENOMEM, rd->file, 0, "out of memory");
+    }
+    int all_numbered = k > 0;
+    for (size_t i = 0; i < k; i++) {
+        l[i].s = rd->labels.str[i];
+        l[i].num = pm_segment_label_number(l[i].s);
+        l[i].below = says_below(l[i].s);
+        l[i].id = (uint32_t)i;
+        all_numbered &= !isnan(l[i].num);
+    }
+    pm_err_t rc = PM_OK;
+    if (rd->src->levels) {
+        /* the order given: every listed level occurs, every level is listed */
+        size_t pos = 0;
+        for (uint32_t i = 0; i < k; i++) {
+            rank[i] = UINT32_MAX;
+        }
+        const char *p = rd->src->levels;
+        while (rc == PM_OK) {
+            /* a label may hold commas itself ("€1,000-1,999"): the longest run of pieces up to
+             * a comma that names a level is taken */
+            const char *e = strchr(p, ',');
+            size_t n = e ? (size_t)(e - p) : strlen(p);
+            int64_t id = pm_i_strtab_find(&rd->labels, p, n);
+            for (const char *x = e; x; x = strchr(x + 1, ',')) {
+                const char *nx = strchr(x + 1, ',');
+                size_t nn = nx ? (size_t)(nx - p) : strlen(p);
+                int64_t jd = pm_i_strtab_find(&rd->labels, p, nn);
+                if (jd >= 0) {
+                    id = jd;
+                    n = nn;
+                    e = nx;
+                }
+            }
+            if (id < 0 || rank[id] != UINT32_MAX) {
+                rc = pm_diag_set(diag, PM_EUSAGE, NULL, 0,
+                                 id < 0 ? "--segment-levels: level '%.*s' never occurs in "
+                                          "column '%s'"
+                                        : "--segment-levels: level '%.*s' is given twice for "
+                                          "column '%s'",
+                                 (int)n, p, rd->src->column);
+                break;
+            }
+            rank[id] = (uint32_t)pos++;
+            if (!e) {
+                break;
+            }
+            p = e + 1;
+        }
+        for (size_t i = 0; rc == PM_OK && i < k; i++) {
+            if (rank[i] == UINT32_MAX) {
+                rc = pm_diag_set(diag, PM_EUSAGE, NULL, 0,
+                                 "--segment-levels: level '%s' of column '%s' is not listed",
+                                 rd->labels.str[i], rd->src->column);
+            }
+        }
+        c->ordered = true;
+    } else {
+        qsort(l, k, sizeof *l, cmp_lev);
+        for (size_t i = 0; i < k; i++) {
+            rank[l[i].id] = (uint32_t)i;
+        }
+        c->ordered = all_numbered;
+    }
+    free(l);
+    return rc;
+}
+
+static pm_err_t fill(const reader *rd, const uint32_t *rank, pm_segcol_t *c, pm_diag_t *diag) {
+    size_t k = rd->labels.count;
+    c->n_levels = k;
+    c->level = pm_i_calloc(k ? k : 1, sizeof *c->level);
+    c->base = pm_i_calloc(k ? k : 1, sizeof *c->base);
+    c->column = strdup(rd->src->column);
+    if (!c->level || !c->base || !c->column) {
+        return pm_diag_set(diag, PM_ENOMEM, rd->file, 0, "out of memory");
+    }
+    for (size_t i = 0; i < k; i++) {
+        if (!(c->level[rank[i]] = strdup(rd->labels.str[i]))) {
+            return pm_diag_set(diag, PM_ENOMEM, rd->file, 0, "out of memory");
+        }
+    }
+    for (size_t r = 0; r < c->n_resp; r++) {
+        int32_t lb = rd->lab[r];
+        c->of[r] = lb < 0 ? -1 : (int32_t)rank[lb];
+        if (lb < 0) {
+            c->none++;
+        } else {
+            c->base[rank[lb]]++;
+        }
+    }
+    c->unknown_ids = rd->unknown;
+    return PM_OK;
+}
+
+pm_err_t pm_segcol_read(const pm_table_t *t, const pm_segcol_src_t *src, pm_segcol_t *out,
+                        pm_diag_t *diag) {
+    memset(out, 0, sizeof *out);
+    reader rd;
+    memset(&rd, 0, sizeof rd);
+    rd.src = src;
+    rd.file = src->display ? src->display : src->path;
+    size_t n = pm_table_nrespondents(t);
+    pm_i_strtab_init(&rd.ids);
+    pm_i_strtab_init(&rd.labels);
+    pm_err_t rc = PM_OK;
+    uint32_t *rank = NULL;
+    out->n_resp = n;
+    rd.lab = pm_i_malloc(n ? n : 1, sizeof *rd.lab);
+    rd.line = pm_i_calloc(n ? n : 1, sizeof *rd.line);
+    out->of = pm_i_malloc(n ? n : 1, sizeof *out->of);
+    if (!rd.lab || !rd.line || !out->of) {
+        rc = pm_diag_set(diag, PM_ENOMEM, rd.file, 0, "out of memory");
+        goto cleanup;
+    }
+    for (size_t r = 0; r < n; r++) {
+        const char *id = pm_table_respondent(t, r);
+        if (!id) {
+            rc = pm_diag_set(diag, PM_EUSAGE, NULL, 0,
+                             "segments need respondent ids: give --id-col (lines format)");
+            goto cleanup;
+        }
+        if (pm_i_strtab_intern(&rd.ids, id, strlen(id), NULL) != (int64_t)r) {
+            rc = pm_diag_set(diag, PM_EINTERNAL, NULL, 0, "respondent ids out of order");
+            goto cleanup;
+        }
+        rd.lab[r] = -1;
+    }
+    if ((rc = read_file(&rd, diag)) != PM_OK) {
+        goto cleanup;
+    }
+    if (!rd.header_done) {
+        rc = pm_diag_set(diag, PM_EDATA, rd.file, 0, "the file for segments is empty");
+        goto cleanup;
+    }
+    rank = pm_i_malloc(rd.labels.count ? rd.labels.count : 1, sizeof *rank);
+    if (!rank) {
+        rc = pm_diag_set(diag, PM_ENOMEM, rd.file, 0, "out of memory");
+        goto cleanup;
+    }
+    if ((rc = order_levels(&rd, out, rank, diag)) == PM_OK) {
+        rc = fill(&rd, rank, out, diag);
+    }
+cleanup:
+    free(rank);
+    free(rd.lab);
+    free(rd.line);
+    pm_i_strtab_destroy(&rd.ids);
+    pm_i_strtab_destroy(&rd.labels);
+    if (rc != PM_OK) {
+        pm_segcol_destroy(out);
+    }
+    return rc;
+}

@@ -1,0 +1,315 @@
+/* The table of one segment column (include/pairmap/segments.h): shares with Jeffreys
+ * intervals, the empirical-Bayes beta-binomial shrinkage with one prior strength m per column
+ * fitted by maximum likelihood, the one-against-the-rest tests with Benjamini-Hochberg, and the
+ * Cochran-Armitage trend test for ordered columns. */
+#include <gsl/gsl_cdf.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_min.h>
+#include <gsl/gsl_sf_gamma.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "pairmap/assoc.h"
+#include "pairmap/segments.h"
+#include "util.h"
+
+void pm_segstats_destroy(pm_segstats_t *s) {
+    if (!s) {
+        return;
+    }
+    free(s->chose);
+    free(s->mu);
+    free(s->share_low);
+    free(s->share_high);
+    free(s->shrunk);
+    free(s->shrunk_low);
+    free(s->shrunk_high);
+    free(s->p);
+    free(s->q);
+    free(s->test);
+    free(s->trend_z);
+    free(s->trend_p);
+    memset(s, 0, sizeof *s);
+}
+
+/* log Gamma(a + x) - log Gamma(a), x a count >= 0, a > 0. GSL's gsl_sf_lnpoch loses about
+ * 1e-7 (absolute) at a near 1e8 (measured against a long-double sum of log(a + j): 2.6e-7 at
+ * a = 1e8, x = 1), which is more than the flat likelihood of a column without spread varies
+ * by. Small x: the sum itself, x log a + sum log1p(j / a). Large a: Stirling's series for the
+ * difference written without cancellation, (a - 1/2) log1p(x / a) + x log(a + x) - x
+ * + c(a + x) - c(a) with c(z) = 1/(12 z) - 1/(360 z^3) + 1/(1260 z^5) (Abramowitz and Stegun
+ * 6.1.41; the next term is below 1e-30 for z >= 1e4). Otherwise GSL. */
+static double lnpoch(double a, double x) {
+    if (x <= 0) {
+        return 0;
+    }
+    if (x <= 32) {
+        double s = x * log(a);
+        for (double j = 1; j < x; j++) {
+            s += log1p(j / a);
+        }
+        return s;
+    }
+    if (a >= 1e4 && x <= 0.1 * a) {
+        double z = a + x;
+#define PM_STIRLING_C(t) (1 / (12 * (t)) - 1 / (360 * (t) * (t) * (t)) + \
+                          1 / (1260 * (t) * (t) * (t) * (t) * (t)))
+        return (a - 0.5) * log1p(x / a) + x * log(z) - x + (PM_STIRLING_C(z) - PM_STIRLING_C(a));
+#undef PM_STIRLING_C
+    }
+    return gsl_sf_lnpoch(a, x);
+}
+
+/* ==== the beta-binomial fit ================================================================= */
+typedef struct {
+    const pm_segstats_t *s;
+    const pm_segcol_t *c;
+} fit_ctx;
+
+/* Log-likelihood of the cells at prior strength m: sum over cells of
+ * log C(n, x) + log B(x + m mu, n - x + m (1 - mu)) - log B(m mu, m (1 - mu)), over items with
+ * 0 < mu < 1 (an item chosen by none or by all of them carries no information on m). */
+static double loglik_c(const fit_ctx *f, double m, int with_const) {
+    const pm_segstats_t *s = f->s;
+    double ll = 0;
+    for (size_t i = 0; i < s->n_items; i++) {
+        double mu = s->mu[i];
+        if (!(mu > 0 && mu < 1)) {
+            continue;
+        }
+        double a = m * mu, b = m * (1 - mu);
+        for (size_t k = 0; k < s->n_levels; k++) {
+            double n = (double)f->c->base[k], x = (double)s->chose[k * s->n_items + i];
+            if (n == 0) {
+                continue;
+            }
+            /* log B(x + a, n - x + b) - log B(a, b) as Pochhammer terms: no cancellation of
+             * two large log-betas when m is large */
+            ll += lnpoch(a, x) + lnpoch(b, n - x) - lnpoch(a + b, n);
+            if (with_const) {
+                ll += gsl_sf_lnchoose((unsigned)n, (unsigned)x);
+            }
+        }
+    }
+    return ll;
+}
+
+/* Without the binomial terms, which do not depend on m: for the search. */
+static double loglik(const fit_ctx *f, double m) {
+    return loglik_c(f, m, 0);
+}
+
+static double neg_ll_log(double lm, void *v) {
+    return -loglik(v, exp(lm));
+}
+
+/* Maximises the log-likelihood over log m: a grid of 61 points over [log M_MIN, log M_MAX],
+ * then GSL's Brent minimiser inside the best point's neighbours. At a grid end the optimum
+ * is that bound (reported in m_at). */
+static void fit_m(pm_segstats_t *s, const pm_segcol_t *c) {
+    fit_ctx f = {s, c};
+    enum { G = 241 }; /* ten points a decade */
+    double lo = log(PM_SEG_M_MIN), hi = log(PM_SEG_M_MAX), best = -INFINITY;
+    int bi = 0;
+    double val[G];
+    for (int g = 0; g < G; g++) {
+        double lm = lo + (hi - lo) * g / (G - 1);
+        val[g] = loglik(&f, exp(lm));
+        if (val[g] > best) {
+            best = val[g];
+            bi = g;
+        }
+    }
+    double lm = lo + (hi - lo) * bi / (G - 1);
+    if (bi == 0 || bi == G - 1) {
+        /* at a grid end: the optimum may still lie between the end and its neighbour (the
+         * likelihood is flat towards m -> infinity); a golden-section search there */
+        int nb = bi == 0 ? 1 : G - 2;
+        double a = lo + (hi - lo) * (bi < nb ? bi : nb) / (G - 1), b = a + (hi - lo) / (G - 1);
+        const double r = 0.6180339887498949;
+        for (int it = 0; it < 80; it++) {
+            double c1 = b - r * (b - a), c2 = a + r * (b - a);
+            if (-neg_ll_log(c1, &f) >= -neg_ll_log(c2, &f)) {
+                b = c2;
+            } else {
+                a = c1;
+            }
+        }
+        double mid = 0.5 * (a + b), v = loglik(&f, exp(mid));
+        if (v > best) {
+            best = v;
+            lm = mid;
+        }
+        /* the bound itself when it is as good to 1e-9 (a flat likelihood: no spread beyond
+         * binomial noise at the upper end, reported as such) */
+        double edge = bi == 0 ? lo : hi, ve = loglik(&f, exp(edge));
+        if (ve >= best - 1e-9) {
+            lm = edge;
+        }
+        s->m_at = lm == edge ? (bi == 0 ? -1 : 1) : 0;
+    } else {
+        s->m_at = 0;
+    }
+    if (bi > 0 && bi < G - 1) {
+        double a = lo + (hi - lo) * (bi - 1) / (G - 1), b = lo + (hi - lo) * (bi + 1) / (G - 1);
+        gsl_function F = {neg_ll_log, &f};
+        gsl_min_fminimizer *mn = gsl_min_fminimizer_alloc(gsl_min_fminimizer_brent);
+        if (mn && gsl_min_fminimizer_set_with_values(mn, &F, lm, -val[bi], a, -val[bi - 1], b,
+                                                     -val[bi + 1]) == GSL_SUCCESS) {
+            for (int it = 0; it < 100; it++) {
+                if (gsl_min_fminimizer_iterate(mn) != GSL_SUCCESS) {
+                    break;
+                }
+                double x0 = gsl_min_fminimizer_x_lower(mn), x1 = gsl_min_fminimizer_x_upper(mn);
+                if (gsl_min_test_interval(x0, x1, 1e-10, 0) == GSL_SUCCESS) {
+                    break;
+                }
+            }
+            double xm = gsl_min_fminimizer_x_minimum(mn);
+            if (-gsl_min_fminimizer_f_minimum(mn) >= best) {
+                lm = xm;
+            }
+        }
+        gsl_min_fminimizer_free(mn);
+    }
+    /* the upper bound when it is as good to 1e-9 (a flat likelihood towards m -> infinity:
+     * no spread beyond binomial noise), reported as such */
+    if (s->m_at == 0 && loglik(&f, PM_SEG_M_MAX) >= loglik(&f, exp(lm)) - 1e-9) {
+        lm = hi;
+        s->m_at = 1;
+    }
+    s->m = s->m_at > 0 ? PM_SEG_M_MAX : s->m_at < 0 ? PM_SEG_M_MIN : exp(lm);
+    s->loglik = loglik_c(&f, s->m, 1);
+}
+
+/* ==== per cell ============================================================================== */
+static void cell(pm_segstats_t *s, const pm_segcol_t *c, size_t k, size_t i, uint64_t tot) {
+    size_t j = k * s->n_items + i;
+    uint64_t n = c->base[k], x = s->chose[j];
+    double mu = s->mu[i];
+    pm_assoc_jeffreys((double)x, (double)n, 0.05, &s->share_low[j], &s->share_high[j]);
+    double a = (double)x + s->m * mu, b = (double)(n - x) + s->m * (1 - mu);
+    s->shrunk[j] = a / (a + b);
+    s->shrunk_low[j] = a <= 0 ? 0 : pm_assoc_beta_quantile(0.025, a, b);
+    s->shrunk_high[j] = b <= 0 ? 1 : pm_assoc_beta_quantile(0.975, a, b);
+    s->p[j] = NAN;
+    s->test[j] = 0;
+    if (n > 0 && n < s->B && tot > 0 && tot < s->B) {
+        pm_measures_t m;
+        pm_assoc_counts(s->B, n, tot, x, PM_SIGN_BOTH, &m);
+        s->p[j] = m.p;
+        s->test[j] = m.test == PM_TEST_FISHER ? 1 : 2;
+    }
+}
+
+/* Cochran-Armitage test of a linear trend in item i's share over the ordered levels, scores
+ * 1..k, no continuity correction (Agresti, Categorical Data Analysis, section 5.3.5):
+ * z = sum t_s (x_s - n_s pbar) / sqrt(pbar (1 - pbar) sum n_s (t_s - tbar)^2). */
+static void trend(pm_segstats_t *s, const pm_segcol_t *c, size_t i, uint64_t tot) {
+    s->trend_z[i] = s->trend_p[i] = NAN;
+    if (!c->ordered || s->n_levels < 2 || tot == 0 || tot >= s->B) {
+        return;
+    }
+    double B = (double)s->B, pbar = (double)tot / B, tbar = 0;
+    for (size_t k = 0; k < s->n_levels; k++) {
+        tbar += (double)(k + 1) * (double)c->base[k];
+    }
+    tbar /= B;
+    double num = 0, ss = 0;
+    for (size_t k = 0; k < s->n_levels; k++) {
+        double t = (double)(k + 1), n = (double)c->base[k];
+        num += t * ((double)s->chose[k * s->n_items + i] - n * pbar);
+        ss += n * (t - tbar) * (t - tbar);
+    }
+    double v = pbar * (1 - pbar) * ss;
+    if (v > 0) {
+        s->trend_z[i] = num / sqrt(v);
+        s->trend_p[i] = 2 * gsl_cdf_ugaussian_Q(fabs(s->trend_z[i]));
+    }
+}
+
+static pm_err_t alloc_all(pm_segstats_t *s, size_t k, size_t ni) {
+    size_t cells = k * ni > 0 ? k * ni : 1, items = ni ? ni : 1;
+    s->chose = pm_i_calloc(cells, sizeof *s->chose);
+    s->mu = pm_i_calloc(items, sizeof *s->mu);
+    s->trend_z = pm_i_calloc(items, sizeof *s->trend_z);
+    s->trend_p = pm_i_calloc(items, sizeof *s->trend_p);
+    double **d[] = {&s->share_low, &s->share_high, &s->shrunk, &s->shrunk_low,
+                    &s->shrunk_high, &s->p, &s->q};
+    int ok = s->chose && s->mu && s->trend_z && s->trend_p;
+    for (size_t j = 0; j < sizeof d / sizeof d[0]; j++) {
+        ok &= (*d[j] = pm_i_calloc(cells, sizeof(double))) != NULL;
+    }
+    ok &= (s->test = pm_i_calloc(cells, 1)) != NULL;
+    return ok ? PM_OK : PM_ENOMEM;
+}
+
+pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, pm_segstats_t *s,
+                         pm_diag_t *diag) {
+    memset(s, 0, sizeof *s);
+    size_t k = c->n_levels, ni = inc->n_items;
+    s->n_levels = k;
+    s->n_items = ni;
+    if (alloc_all(s, k, ni) != PM_OK) {
+        pm_segstats_destroy(s);
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
+    size_t nr = inc->n_resp < c->n_resp ? inc->n_resp : c->n_resp;
+    for (size_t r = 0; r < nr; r++) {
+        int32_t lv = c->of[r];
+        if (lv < 0) {
+            continue;
+        }
+        for (uint64_t p = inc->row_ptr[r]; p < inc->row_ptr[r + 1]; p++) {
+            s->chose[(size_t)lv * ni + inc->col[p]]++;
+        }
+    }
+    for (size_t j = 0; j < k; j++) {
+        s->B += c->base[j];
+    }
+    uint64_t *tot = pm_i_calloc(ni ? ni : 1, sizeof *tot);
+    if (!tot) {
+        pm_segstats_destroy(s);
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
+    for (size_t i = 0; i < ni; i++) {
+        for (size_t j = 0; j < k; j++) {
+            tot[i] += s->chose[j * ni + i];
+        }
+        s->mu[i] = s->B ? (double)tot[i] / (double)s->B : NAN;
+        s->cells_fitted += (tot[i] > 0 && tot[i] < s->B) ? k : 0;
+    }
+    fit_m(s, c);
+    for (size_t j = 0; j < k; j++) {
+        for (size_t i = 0; i < ni; i++) {
+            cell(s, c, j, i, tot[i]);
+        }
+    }
+    for (size_t i = 0; i < ni; i++) {
+        trend(s, c, i, tot[i]);
+    }
+    free(tot);
+    /* Benjamini-Hochberg over the cells that have a test */
+    size_t nt = 0;
+    double *pp = pm_i_malloc(k * ni > 0 ? k * ni : 1, sizeof *pp);
+    if (!pp) {
+        pm_segstats_destroy(s);
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
+    for (size_t j = 0; j < k * ni; j++) {
+        if (!isnan(s->p[j])) {
+            pp[nt++] = s->p[j];
+        }
+    }
+    pm_err_t rc = pm_assoc_bh(pp, nt, pp);
+    for (size_t j = 0, t = 0; rc == PM_OK && j < k * ni; j++) {
+        s->q[j] = isnan(s->p[j]) ? NAN : pp[t++];
+    }
+    free(pp);
+    if (rc != PM_OK) {
+        pm_segstats_destroy(s);
+        return pm_diag_set(diag, rc, NULL, 0, "out of memory");
+    }
+    return PM_OK;
+}

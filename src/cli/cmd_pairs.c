@@ -1,5 +1,8 @@
 /* pairmap pairs: every pair that passes the selection, all measures, CSV on stdout. */
+#include <math.h>
 #include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
 
 #include "cli.h"
 #include "pairmap/write.h"
@@ -11,7 +14,71 @@ static const char help[] =
     "  " PM_EDGES_HEADER "\n"
     "(item_a < item_b by bytes; rows in item_a, item_b order). `--min-count 0 --max-q 1\n"
     "--sign both` lists every pair seen together.\n"
+    "  --sort KEY            row order: name (item_a, item_b: the default), together, lift,\n"
+    "                        phi, confidence (the larger of the two directions), each largest\n"
+    "                        first, or q (smallest first); with --sign negative, lift and phi\n"
+    "                        smallest first (the strongest substitutes). Ties: q ascending,\n"
+    "                        then together descending, then item_a, item_b\n"
     "\n";
+
+/* ---- --sort --------------------------------------------------------------------------- */
+typedef struct {
+    double key, q, together;
+    size_t pos; /* position in name order: the last tie-break */
+    size_t idx;
+    double weight;
+} sort_row;
+
+static int cmp_sort(const void *x, const void *y) {
+    const sort_row *a = x, *b = y;
+    if (a->key != b->key) {
+        return a->key > b->key ? -1 : 1; /* larger first (keys are negated for ascending) */
+    }
+    if (a->q != b->q) {
+        return a->q < b->q ? -1 : 1;
+    }
+    if (a->together != b->together) {
+        return a->together > b->together ? -1 : 1;
+    }
+    return a->pos < b->pos ? -1 : a->pos > b->pos;
+}
+
+/* Reorders the kept edges by --sort (they come in name order). 0, or 1 after a usage error. */
+static int sort_edges(const pm_cli_t *c, const pm_pairs_t *pp, const pm_incidence_t *inc,
+                      const pm_select_opts_t *sel, pm_edges_t *e) {
+    static const char *const keys[] = {"name", "together", "lift", "phi", "q", "confidence",
+                                       NULL};
+    int by;
+    if (pm_cli_choice(c, "sort", keys, 0, &by)) {
+        return 1;
+    }
+    if (by == 0 || e->n < 2) {
+        return 0;
+    }
+    sort_row *r = malloc(e->n * sizeof *r);
+    if (!r) {
+        fputs("pairmap: out of memory\n", stderr);
+        return 4;
+    }
+    int neg = sel->sign == PM_SIGN_NEGATIVE;
+    for (size_t i = 0; i < e->n; i++) {
+        pm_measures_t m;
+        pm_pairs_measures(pp, inc, e->idx[i], &m);
+        double k = by == 1 ? m.together
+                   : by == 2 ? (neg ? -m.lift : m.lift)
+                   : by == 3 ? (neg ? -m.phi : m.phi)
+                   : by == 4 ? -m.q
+                             : fmax(m.confidence_ab, m.confidence_ba);
+        r[i] = (sort_row){isnan(k) ? -INFINITY : k, m.q, m.together, i, e->idx[i], e->weight[i]};
+    }
+    qsort(r, e->n, sizeof *r, cmp_sort);
+    for (size_t i = 0; i < e->n; i++) {
+        e->idx[i] = r[i].idx;
+        e->weight[i] = r[i].weight;
+    }
+    free(r);
+    return 0;
+}
 
 int pm_cmd_pairs(int argc, char **argv) {
     pm_cli_t c;
@@ -44,7 +111,14 @@ int pm_cmd_pairs(int argc, char **argv) {
     }
     pm_diag_t d;
     pm_diag_clear(&d);
-    if (pm_select_run(pp, inc, &sel, &e, &d) || pm_write_edges_csv(stdout, pp, inc, e, pm_cli_csv_flags(&c), &d)) {
+    if (pm_select_run(pp, inc, &sel, &e, &d)) {
+        rc = pm_cli_fail(&d);
+        goto done;
+    }
+    if ((rc = sort_edges(&c, pp, inc, &sel, e)) != 0) {
+        goto done;
+    }
+    if (pm_write_edges_csv(stdout, pp, inc, e, pm_cli_csv_flags(&c), &d)) {
         /* a failed write is reported as one on standard output (full disk, issue 6) */
         rc = d.code == PM_EIO && ferror(stdout) ? pm_cli_close_stdout() : 0;
         if (rc == 0) {

@@ -67,6 +67,7 @@ for c in map partners pairs items count; do
     while read -r name v; do
         [ "$name" = help ] && continue
         val="$(value_for "$name")"
+        [ "$c $name" = "items sort" ] && val=share
         [ "$val" = SKIP ] && continue
         base=("$cafe")
         case "$c" in map) base+=(-o "$TMP/m-$name") ;; count) base+=(-o "$TMP/c-$name.pmc") ;;

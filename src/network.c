@@ -828,6 +828,13 @@ static void child_main(const stage *st, share *sh, int fd, int spawn_no, pid_t p
         _exit(1); /* the parent died before the line above took effect */
     }
     pthread_sigmask(SIG_SETMASK, mask, NULL);
+    sigset_t stop; /* the parent blocks these in every thread (cmd_map.c): not the child */
+    sigemptyset(&stop);
+    sigaddset(&stop, SIGINT);
+    sigaddset(&stop, SIGTERM);
+    sigaddset(&stop, SIGHUP);
+    sigaddset(&stop, SIGQUIT);
+    pthread_sigmask(SIG_UNBLOCK, &stop, NULL);
     for (size_t i = 0; i < nall; i++) {
         if (&all[i] != sh && all[i].fd >= 0) {
             close(all[i].fd); /* earlier children's read ends */

@@ -4,7 +4,10 @@
 
 #include <errno.h>
 #include <fcntl.h>
+#include <pthread.h>
 #include <signal.h>
+#include <stdatomic.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -62,6 +65,25 @@ void pm_outdir_remove_temporaries(void) {
         if (g_dirs_used[i]) {
             (void)rmdir(g_dirs[i]); /* only succeeds when empty */
         }
+    }
+}
+
+/* The rename phase holds g_commit; pm_outdir_stop (the CLI's signal thread) takes it, so a
+ * signal never lands between two renames: it acts before the phase starts or after it ends. */
+static pthread_mutex_t g_commit = PTHREAD_MUTEX_INITIALIZER;
+static atomic_int g_replaced; /* 1 once a commit has put every new file in place */
+
+int pm_outdir_stop(void) {
+    pthread_mutex_lock(&g_commit); /* never released: the caller exits */
+    pm_outdir_remove_temporaries();
+    return atomic_load(&g_replaced);
+}
+
+/* PM_TEST_COMMIT_PAUSE=k: sleep a second before rename k (0-based), for the signal tests. */
+static void test_pause(size_t k) {
+    const char *v = getenv("PM_TEST_COMMIT_PAUSE");
+    if (v && *v && (size_t)strtoul(v, NULL, 10) == k) {
+        sleep(1);
     }
 }
 
@@ -342,9 +364,13 @@ pm_err_t pm_outdir_commit(pm_outdir_t *od, pm_diag_t *diag) {
     sigemptyset(&block);
     sigaddset(&block, SIGINT);
     sigaddset(&block, SIGTERM);
-    sigprocmask(SIG_BLOCK, &block, &old);
+    sigaddset(&block, SIGHUP);
+    sigaddset(&block, SIGQUIT);
+    pthread_sigmask(SIG_BLOCK, &block, &old);
+    pthread_mutex_lock(&g_commit);
     size_t done = 0;
     for (; done < od->nf; done++) {
+        test_pause(done);
         if (rename(od->f[done].tmp, od->f[done].final) != 0) {
             int e = errno;
             rc = pm_diag_set(diag, PM_EIO, od->f[done].final, 0,
@@ -369,9 +395,11 @@ pm_err_t pm_outdir_commit(pm_outdir_t *od, pm_diag_t *diag) {
             od->f[j].slot = -1;
         }
         od->committed = 1;
+        atomic_store(&g_replaced, 1);
     }
     sync_dir(od->dir);
-    sigprocmask(SIG_SETMASK, &old, NULL);
+    pthread_mutex_unlock(&g_commit);
+    pthread_sigmask(SIG_SETMASK, &old, NULL);
 undo_links:
     for (size_t i = 0; i < od->nf; i++) {
         if (bak[i]) {

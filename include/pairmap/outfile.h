@@ -61,6 +61,10 @@ void pm_outdir_free(pm_outdir_t *od);
 /* Removes every registered temporary file with unlink(2) only: safe to call from a signal
  * handler. The CLI's SIGINT/SIGTERM handler calls it before _exit. */
 void pm_outdir_remove_temporaries(void);
+/* For a thread that received a stop signal (not a handler): waits for a commit in progress,
+ * removes the temporaries and returns 1 when a commit had replaced the outputs. The caller
+ * then exits; the commit lock is never released. */
+int pm_outdir_stop(void);
 
 #ifdef __cplusplus
 }

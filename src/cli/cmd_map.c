@@ -5,6 +5,7 @@
 #include <stdbool.h>
 #include <pthread.h>
 #include <signal.h>
+#include <stdatomic.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
@@ -62,21 +63,42 @@ static const char help[] =
     "\n";
 
 /* ---- interruption ------------------------------------------------------------------------ */
-static void on_signal(int sig) {
-    pm_outdir_remove_temporaries();
-    static const char msg[] = "\npairmap: interrupted; no output file was replaced\n";
-    ssize_t w = write(STDERR_FILENO, msg, sizeof msg - 1);
+/* SIGINT, SIGTERM, SIGHUP and SIGQUIT are blocked here, before any thread starts, so every
+ * thread inherits the mask; one thread receives them with sigwait and stops the run through
+ * pm_outdir_stop, which waits for a commit in progress. SIGXFSZ is ignored: a write over the
+ * file-size limit fails as an I/O error with the usual clean-up. */
+static sigset_t g_stop_set;
+static atomic_int g_stop_sig; /* the signal received, published before pm_outdir_stop */
+
+static void *signal_main(void *arg) {
+    (void)arg;
+    int sig = 0;
+    while (sigwait(&g_stop_set, &sig) != 0) {
+    }
+    atomic_store(&g_stop_sig, sig);
+    int replaced = pm_outdir_stop();
+    const char *msg = replaced ? "\npairmap: interrupted after the outputs were replaced; the new "
+                                 "files are kept\n"
+                               : "\npairmap: interrupted; no output file was replaced\n";
+    ssize_t w = write(STDERR_FILENO, msg, strlen(msg));
     (void)w;
-    _exit(130); /* DESIGN.md: 130 interrupted, for SIGTERM as for SIGINT */
+    _exit(sig == SIGINT ? 130 : 143); /* README: 130 SIGINT, 143 SIGTERM, SIGHUP, SIGQUIT */
 }
 
 static void catch_signals(void) {
-    struct sigaction sa;
-    memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_signal;
-    sigemptyset(&sa.sa_mask);
-    sigaction(SIGINT, &sa, NULL);
-    sigaction(SIGTERM, &sa, NULL);
+    sigemptyset(&g_stop_set);
+    sigaddset(&g_stop_set, SIGINT);
+    sigaddset(&g_stop_set, SIGTERM);
+    sigaddset(&g_stop_set, SIGHUP);
+    sigaddset(&g_stop_set, SIGQUIT);
+    pthread_sigmask(SIG_BLOCK, &g_stop_set, NULL);
+    signal(SIGXFSZ, SIG_IGN);
+    pthread_t th;
+    if (pthread_create(&th, NULL, signal_main, NULL) == 0) {
+        pthread_detach(th);
+    } else {
+        pthread_sigmask(SIG_UNBLOCK, &g_stop_set, NULL); /* default action: better than none */
+    }
 }
 
 /* ---- the run ------------------------------------------------------------------------------ */
@@ -853,6 +875,9 @@ int pm_cmd_map(int argc, char **argv) {
     }
     s.t_graph = pm_cli_now() - t0;
     rc = write_files(&c, &no, &sel, &s);
+    while (atomic_load(&g_stop_sig)) {
+        pause(); /* a signal came during the commit: its thread reports it and exits */
+    }
     if (rc) {
         goto done;
     }

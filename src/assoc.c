@@ -75,8 +75,8 @@ static double lower_rel(uint64_t N, uint64_t K, uint64_t n, uint64_t x, uint64_t
     return s;
 }
 
-static double tail_upper(const lftab *lf, uint64_t N, uint64_t K, uint64_t n, uint64_t x, uint64_t lo,
-                         uint64_t hi, uint64_t mode) {
+static double tail_upper(const lftab *lf, uint64_t N, uint64_t K, uint64_t n, uint64_t x,
+                         uint64_t lo, uint64_t hi, uint64_t mode) {
     /* P(X >= x) */
     if (x <= lo) {
         return 1.0;
@@ -92,8 +92,8 @@ static double tail_upper(const lftab *lf, uint64_t N, uint64_t K, uint64_t n, ui
     return p < 0 ? 0 : p;
 }
 
-static double tail_lower(const lftab *lf, uint64_t N, uint64_t K, uint64_t n, uint64_t x, uint64_t lo,
-                         uint64_t hi, uint64_t mode) {
+static double tail_lower(const lftab *lf, uint64_t N, uint64_t K, uint64_t n, uint64_t x,
+                         uint64_t lo, uint64_t hi, uint64_t mode) {
     /* P(X <= x) */
     if (x >= hi) {
         return 1.0;
@@ -224,15 +224,17 @@ static double counts_p(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, ui
     if (test_for(N, na, nb) == PM_TEST_FISHER) {
         *test = PM_TEST_FISHER;
         return fisher(lf, N, na, nb, nab,
-                      sign == PM_SIGN_BOTH ? 0 : sign == PM_SIGN_POSITIVE ? 1 : -1);
+                      sign == PM_SIGN_BOTH       ? 0
+                      : sign == PM_SIGN_POSITIVE ? 1
+                                                 : -1);
     }
     *test = PM_TEST_CHI2;
     double phi = phi_counts(N, na, nb, nab);
     return chi2_p((double)N * phi * phi, phi, sign);
 }
 
-static void counts_measures(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb,
-                            uint64_t nab, pm_sign_t sign, pm_measures_t *m, int with_test) {
+static void counts_measures(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
+                            pm_sign_t sign, pm_measures_t *m, int with_test) {
     double dN = (double)N, da = (double)na, db = (double)nb, dab = (double)nab;
     m->together = dab;
     m->expected = da * db / dN;
@@ -451,8 +453,8 @@ typedef struct {
     pm_sign_t sign;
     double neff;
     int keep_ids;
-    double lim;     /* p-values above it are only counted (q_limit; +INFINITY: none) */
-    int skip_mean;  /* pairs seen no more often than expected have p >= 1/2 > lim */
+    double lim;    /* p-values above it are only counted (q_limit; +INFINITY: none) */
+    int skip_mean; /* pairs seen no more often than expected have p >= 1/2 > lim */
     prune_buf *bufs;
 } prune_ctx;
 
@@ -487,13 +489,12 @@ static int first_term_above(const lftab *lf, uint64_t N, uint64_t na, uint64_t n
 /* Under a q limit below 0.49 (sign positive, unweighted: skip_mean), a pair whose p-value is
  * shown to exceed the limit without computing it: seen no more often than expected, or its
  * first Fisher term over the limit. */
-static inline int shown_above(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb,
-                              uint64_t nab, double lim) {
+static inline int shown_above(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
+                              double lim) {
     return at_most_expected(N, na, nb, nab) || first_term_above(lf, N, na, nb, nab, lim);
 }
 
-static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t nab,
-                     double wab) {
+static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t nab, double wab) {
     prune_ctx *c = ud;
     prune_buf *pb = &c->bufs[thread];
     if (pb->fail) {
@@ -501,8 +502,7 @@ static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t
     }
     if (!c->keep_ids) {
         const pm_incidence_t *inc = c->inc;
-        if (c->skip_mean &&
-            shown_above(c->lf, inc->N, inc->count[a], inc->count[b], nab, c->lim)) {
+        if (c->skip_mean && shown_above(c->lf, inc->N, inc->count[a], inc->count[b], nab, c->lim)) {
             pb->above++;
             return;
         }
@@ -1050,7 +1050,8 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
             size_t gcap = 0;
             for (size_t ca = 0; ca < D && !bad; ca++) {
                 for (size_t cb = ca; cb < D && !bad; cb++) {
-                    uint64_t tot = ca == cb ? csize[ca] * (csize[ca] - 1) / 2 : csize[ca] * csize[cb];
+                    uint64_t tot =
+                        ca == cb ? csize[ca] * (csize[ca] - 1) / 2 : csize[ca] * csize[cb];
                     uint64_t un = tot - map_get(&seenmap, (uint64_t)ca * D + cb);
                     if (!un) {
                         continue;
@@ -1099,7 +1100,8 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
         /* the three sorts are independent: the pruned p-values on a second thread */
         sort_job sj = {pf, npf, sizeof *pf, 0};
         pthread_t sth;
-        int sthreaded = threads > 1 && npf > 100000 && pthread_create(&sth, NULL, sort_main, &sj) == 0;
+        int sthreaded =
+            threads > 1 && npf > 100000 && pthread_create(&sth, NULL, sort_main, &sj) == 0;
         int src = sort_pvalues(lv, nlv, sizeof *lv) | sort_pvalues(pd, npd, sizeof *pd);
         if (sthreaded) {
             pthread_join(sth, NULL);
@@ -1269,8 +1271,8 @@ long pm_pairs_find(const pm_pairs_t *pp, uint32_t a, uint32_t b) {
     return -1;
 }
 
-void pm_pairs_measure_any(const pm_pairs_t *pp, const pm_incidence_t *inc, uint32_t a,
-                          uint32_t b, uint32_t nab, double wab, pm_measures_t *m) {
+void pm_pairs_measure_any(const pm_pairs_t *pp, const pm_incidence_t *inc, uint32_t a, uint32_t b,
+                          uint32_t nab, double wab, pm_measures_t *m) {
     if (inc->wcount) {
         pm_assoc_weighted(inc->W, inc->wcount[a], inc->wcount[b], wab, pm_incidence_neff(inc),
                           pp->sign, m);
@@ -1292,8 +1294,7 @@ void pm_pairs_measures(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k
         m->together = pm_incidence_wunits(inc, m->together); /* in the file's units */
         m->expected = pm_incidence_wunits(inc, m->expected);
     } else {
-        counts_measures(NULL, inc->N, inc->count[a], inc->count[b], pp->n_ab[k], pp->sign, m,
-                        0);
+        counts_measures(NULL, inc->N, inc->count[a], inc->count[b], pp->n_ab[k], pp->sign, m, 0);
     }
     m->p = pp->p[k];
     m->q = pp->q[k];

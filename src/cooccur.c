@@ -108,31 +108,31 @@ static int out_push(outbuf *o, uint32_t a, uint32_t b, uint32_t n, double w, int
 typedef struct {
     const pm_counts_opts_t *o;
     size_t E;
-    uint32_t *gidx;   /* eligible index -> item index */
-    size_t R;         /* filtered respondents */
-    uint64_t *rp;     /* R + 1 */
-    uint32_t *ci;     /* filtered rows */
-    double *wt;       /* R weights or NULL */
+    uint32_t *gidx; /* eligible index -> item index */
+    size_t R;       /* filtered respondents */
+    uint64_t *rp;   /* R + 1 */
+    uint32_t *ci;   /* filtered rows */
+    double *wt;     /* R weights or NULL */
     /* sparse: transpose */
-    uint64_t *tp;     /* E + 1 */
-    uint32_t *tbeg;   /* entry: offset in ci just after the item (its row's suffix) */
-    uint32_t *tend;   /* entry: offset in ci of its row's end */
-    int tscratch;     /* tbeg and tend are the caller's scratch (not freed here) */
-    uint32_t *trow;   /* entry: its row (weighted only) */
+    uint64_t *tp;   /* E + 1 */
+    uint32_t *tbeg; /* entry: offset in ci just after the item (its row's suffix) */
+    uint32_t *tend; /* entry: offset in ci of its row's end */
+    int tscratch;   /* tbeg and tend are the caller's scratch (not freed here) */
+    uint32_t *trow; /* entry: its row (weighted only) */
     /* chunking */
     size_t nchunks;
-    size_t *cbeg;     /* chunk c covers items (sparse) or rows (dense) cbeg[c]..cbeg[c+1] */
+    size_t *cbeg; /* chunk c covers items (sparse) or rows (dense) cbeg[c]..cbeg[c+1] */
     outbuf *outs;
     unsigned threads;
     /* per-thread scratch */
     uint32_t **acc;
     double **wacc;
-    pm_i_u128 *wtx;   /* R weights in units of 2^xe (exact sums, pm_i_xs), or NULL */
+    pm_i_u128 *wtx; /* R weights in units of 2^xe (exact sums, pm_i_xs), or NULL */
     int xe;
     uint32_t **touched;
-    uint32_t **tri;   /* dense triangles */
+    uint32_t **tri;      /* dense triangles */
     unsigned nacc, ntri; /* scratch buffers allocated */
-    int borrowed;     /* rp, ci, wt belong to the incidence */
+    int borrowed;        /* rp, ci, wt belong to the incidence */
     atomic_uint_fast64_t done;
     uint64_t total;
     atomic_int progress_lock;
@@ -309,9 +309,9 @@ static int dense_sum_chunk(void *ud, size_t c, unsigned th) {
 typedef struct {
     kstate *k;
     unsigned parts;
-    int phase;        /* 0: count, 1: fill */
-    uint64_t *cnt;    /* parts x E: entries per item, then fill offsets */
-    uint64_t *pcost;  /* parts x E: work per item */
+    int phase;       /* 0: count, 1: fill */
+    uint64_t *cnt;   /* parts x E: entries per item, then fill offsets */
+    uint64_t *pcost; /* parts x E: work per item */
 } tjob;
 
 static int transpose_part(void *ud, size_t part, unsigned th) {
@@ -505,8 +505,8 @@ done:
     return PM_OK;
 }
 
-pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o,
-                         pm_counts_t **out, pm_diag_t *diag) {
+pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o, pm_counts_t **out,
+                         pm_diag_t *diag) {
     *out = NULL;
     if (o->given) {
         return counts_given(inc, o, out, diag);

@@ -362,8 +362,8 @@ static pm_err_t plain_lines(stream *s) {
     }
     size_t used = 0;
     uint64_t nlines = 0;
-    pm_err_t rc = o->lines_fn(s->ud, s->blk + s->pos, lim - s->pos, s->st.cur_line, o->sep,
-                              &used, &nlines, s->diag);
+    pm_err_t rc = o->lines_fn(s->ud, s->blk + s->pos, lim - s->pos, s->st.cur_line, o->sep, &used,
+                              &nlines, s->diag);
     s->pos += used;
     s->st.cur_line += nlines;
     if (used) {
@@ -482,8 +482,7 @@ static pm_err_t keep_partial(stream *s) {
     return rc;
 }
 
-pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud,
-                         pm_diag_t *diag) {
+pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud, pm_diag_t *diag) {
     stream s;
     memset(&s, 0, sizeof s);
     s.st.diag = diag;

@@ -36,13 +36,13 @@ typedef pm_err_t (*pm_i_lines_fn)(void *ud, char *p, size_t len, uint64_t line, 
                                   size_t *used, uint64_t *nlines, pm_diag_t *diag);
 
 typedef struct {
-    char sep;             /* 0: detect from the first line among , TAB ; | (default ,) */
-    const char *display;  /* file name for messages */
-    uint64_t bytes;       /* out: bytes read */
-    uint64_t lines;       /* out: physical lines */
-    char sep_used;        /* out: the delimiter */
-    pm_i_sha256 *sha;     /* optional: updated with every byte read */
-    uint64_t total;       /* size of the input when known (progress), else 0 */
+    char sep;            /* 0: detect from the first line among , TAB ; | (default ,) */
+    const char *display; /* file name for messages */
+    uint64_t bytes;      /* out: bytes read */
+    uint64_t lines;      /* out: physical lines */
+    char sep_used;       /* out: the delimiter */
+    pm_i_sha256 *sha;    /* optional: updated with every byte read */
+    uint64_t total;      /* size of the input when known (progress), else 0 */
     void (*progress)(void *ud, const char *stage, uint64_t done, uint64_t total);
     void *progress_ud;
     /* Ranged reads (the parallel reader in src/read_par.c): with ranged set, fp is ignored and
@@ -67,8 +67,7 @@ typedef struct {
 /* Reads fp to its end, calling fn for every record. Errors: PM_EDATA (malformed quoting,
  * unterminated quote, NUL byte, field over PM_INPUT_MAX_FIELD), PM_EIO, PM_ENOMEM, or the
  * callback's code. */
-pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud,
-                         pm_diag_t *diag);
+pm_err_t pm_i_csv_stream(FILE *fp, pm_i_csv_opts *o, pm_i_record_fn fn, void *ud, pm_diag_t *diag);
 
 /* True when s[0..len) is valid UTF-8 (no overlong forms, no surrogates). */
 int pm_i_utf8_valid(const char *s, size_t len);

@@ -64,12 +64,12 @@ static void sort_small(uint32_t *v, size_t n) {
 typedef struct {
     pm_incidence_t *inc;
     size_t nr, nchunks, ni;
-    uint64_t *out_len;  /* [nchunks] entries kept by the chunk */
-    uint64_t *dups;     /* [nchunks] */
-    uint64_t *singles;  /* [nchunks] */
-    uint64_t *empties;  /* [nchunks] */
-    uint32_t *rowlen;   /* [nr] kept entries of each respondent */
-    uint64_t **counts;  /* [threads][ni] item counts per thread */
+    uint64_t *out_len; /* [nchunks] entries kept by the chunk */
+    uint64_t *dups;    /* [nchunks] */
+    uint64_t *singles; /* [nchunks] */
+    uint64_t *empties; /* [nchunks] */
+    uint32_t *rowlen;  /* [nr] kept entries of each respondent */
+    uint64_t **counts; /* [threads][ni] item counts per thread */
 } rows_job;
 
 static int rows_chunk(void *ud, size_t c, unsigned thread) {

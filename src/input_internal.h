@@ -40,17 +40,17 @@ struct pm_table {
     uint32_t *row_resp, *row_item;
     size_t n_rows, rows_cap;
     double *resp_weight;
-    uint64_t *resp_line;   /* line of the respondent's first row */
+    uint64_t *resp_line; /* line of the respondent's first row */
     unsigned char *resp_has_item;
     size_t resp_cap;
-    uint64_t n_anon;       /* respondents without id (lines format without --id-col) */
+    uint64_t n_anon; /* respondents without id (lines format without --id-col) */
     bool weighted, has_category;
     uint64_t respondents_override;
     pm_input_stats_t stats;
     /* hygiene */
-    pm_i_strtab drop;      /* --drop-item names */
+    pm_i_strtab drop; /* --drop-item names */
     pm_i_strtab merge_from;
-    int64_t *merge_to;     /* merge_from id -> id in merge_to_names */
+    int64_t *merge_to; /* merge_from id -> id in merge_to_names */
     pm_i_strtab merge_to_names;
     /* deferred respondent ids (long and lines readers): each run of rows with one id gets a
      * provisional index; runs with the same id are merged by pm_i_table_finish, which sorts
@@ -93,8 +93,8 @@ pm_err_t pm_i_table_anon_respondent(pm_table_t *t, uint64_t line, uint32_t *r, p
 /* Adds the row (r, item) with an optional category (cat NULL or catlen 0: none). The item is
  * trimmed; an empty item only registers r. --drop-item and --merge-file apply here. Errors:
  * invalid UTF-8, an item with two categories (naming both lines). */
-pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len,
-                        const char *cat, size_t catlen, uint64_t line, pm_diag_t *diag);
+pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len, const char *cat,
+                        size_t catlen, uint64_t line, pm_diag_t *diag);
 
 /* Sets respondent r's weight from the text w (finite, > 0, equal on every row of r). */
 pm_err_t pm_i_table_weight(pm_table_t *t, uint32_t r, const char *w, size_t len, uint64_t line,
@@ -105,8 +105,7 @@ pm_err_t pm_i_table_finish(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *d
 
 /* Resolves a column selector (name or 1-based number) against a header record; returns the
  * 0-based index or -1 when absent. With no header only numbers are accepted. */
-long pm_i_column_index(const char *sel, const char *const *hdr, const uint32_t *hlen,
-                       size_t n);
+long pm_i_column_index(const char *sel, const char *const *hdr, const uint32_t *hlen, size_t n);
 /* Writes "'a', 'b', 'c'" (the header's names) into buf for a "columns are" message. */
 void pm_i_column_list(const char *const *hdr, size_t n, char *buf, size_t size);
 

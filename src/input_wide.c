@@ -125,7 +125,6 @@ static int not_chosen(wide *w, const char *s, size_t n) {
     return pm_i_strtab_find(&w->dropv, p, n) >= 0;
 }
 
-
 static pm_err_t oom(const wide *w, pm_diag_t *diag) {
     return pm_diag_set(diag, PM_ENOMEM, w->t->source, 0, "out of memory");
 }

@@ -592,7 +592,6 @@ static int cmp_raw_cluster(const void *p, const void *q) {
     return name_cmp(a->lead, b->lead);
 }
 
-
 /* Groups the vertices by raw label (raw[i] for vertex i), orders members and clusters and
  * fills c->cluster, size, members, first. */
 static pm_err_t finish_clusters(pm_clusters_t *c, const pm_cluster_opts_t *o, const uint32_t *raw,
@@ -684,7 +683,7 @@ typedef struct {
     int layout;     /* 1: lay out (u->nv > 0) */
     uint64_t layout_seed;
     int iterations;
-    double *pos; /* [2 nv] raw coordinates */
+    double *pos;          /* [2 nv] raw coordinates */
     const help_flags *hf; /* shared flags when the parent may help the layout's child, or NULL */
 } stage;
 
@@ -730,8 +729,8 @@ static void run_share(const stage *st, share *sh, int in_child, unsigned char *d
     }
     if (sh->r1 > sh->r0) {
         g_reason[0] = '\0';
-        igraph_error_t ig = louvain_runs(st->u, st->resolution, st->seed, sh->r0, sh->r1,
-                                         st->memb, st->q, helped ? st->hf : NULL, 0, done);
+        igraph_error_t ig = louvain_runs(st->u, st->resolution, st->seed, sh->r0, sh->r1, st->memb,
+                                         st->q, helped ? st->hf : NULL, 0, done);
         if (ig != IGRAPH_SUCCESS) {
             sh->rc = from_igraph(ig, "Louvain clustering", &sh->diag);
             return;
@@ -1005,10 +1004,11 @@ static int failed_before(const share *sh, size_t i) {
 }
 
 /* Cuts the work into at most `workers` shares: with a layout and two or more workers, the
- * layout is a share of its own, with the last restarts when it is the lighter one (measured on the medium benchmark file, 5,000 items and
- * 149,000 edges: 0.62 s for the layout, 0.53 s for the ten restarts) and the restarts are cut
- * into the rest, in order; share 0 (the parent's) holds the first restarts, so that the parent
- * summarises the restarts while the layout's child works. Returns the number of shares. */
+ * layout is a share of its own, with the last restarts when it is the lighter one (measured on the
+ * medium benchmark file, 5,000 items and 149,000 edges: 0.62 s for the layout, 0.53 s for the ten
+ * restarts) and the restarts are cut into the rest, in order; share 0 (the parent's) holds the
+ * first restarts, so that the parent summarises the restarts while the layout's child works.
+ * Returns the number of shares. */
 /* How many of the last restarts the layout's share takes as well, so that the shares cost
  * about the same. Cost model, in units of one Louvain run, fitted on the medium benchmark
  * (5,000 items, 149,000 edges; grid variant): a run costs about 3.6e-7 s per edge, the grid
@@ -1236,8 +1236,8 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
     /* flags shared with the children: the parent may run restarts of the layout's share
      * (from its end) while the child lays out; without the mapping it simply does not */
     if (layout && o->workers != 1 && st.R > 0) {
-        shared = mmap(NULL, (2 * (size_t)st.R + 1) * sizeof(atomic_uchar),
-                      PROT_READ | PROT_WRITE, MAP_SHARED | MAP_ANONYMOUS, -1, 0);
+        shared = mmap(NULL, (2 * (size_t)st.R + 1) * sizeof(atomic_uchar), PROT_READ | PROT_WRITE,
+                      MAP_SHARED | MAP_ANONYMOUS, -1, 0);
         if (shared != MAP_FAILED) {
             hf.claimed = shared;
             hf.helped = hf.claimed + st.R;
@@ -1261,8 +1261,8 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
         share *ls = &cw.sh[cw.ns - 1];
         if (ls->r1 > ls->r0 && st.hf && ls->pid > 0 && cw.sh[0].rc == PM_OK) {
             g_reason[0] = '\0';
-            (void)louvain_runs(st.u, st.resolution, st.seed, ls->r0, ls->r1, st.memb, st.q,
-                               st.hf, 1, NULL);
+            (void)louvain_runs(st.u, st.resolution, st.seed, ls->r0, ls->r1, st.memb, st.q, st.hf,
+                               1, NULL);
         }
         if (st.hf) {
             atomic_store(st.hf->over, 1);

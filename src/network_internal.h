@@ -25,12 +25,12 @@ void pm_i_network_set_faults(const pm_i_network_faults_t *f);
 
 /* What the last pm_cluster_louvain or pm_network_run call did. */
 typedef struct {
-    unsigned shares;     /* pieces of work the call was split into (1: serial) */
-    unsigned forked;     /* child processes started */
-    unsigned from_child; /* shares whose result (or error) came from a child */
-    unsigned redone;     /* shares the parent computed itself after a failed spawn or child */
+    unsigned shares;          /* pieces of work the call was split into (1: serial) */
+    unsigned forked;          /* child processes started */
+    unsigned from_child;      /* shares whose result (or error) came from a child */
+    unsigned redone;          /* shares the parent computed itself after a failed spawn or child */
     unsigned layout_restarts; /* Louvain runs the layout's share took as well */
-    unsigned helped;     /* of those, runs the parent made itself while the child laid out */
+    unsigned helped;          /* of those, runs the parent made itself while the child laid out */
 } pm_i_network_stats_t;
 
 void pm_i_network_get_stats(pm_i_network_stats_t *s);

@@ -40,8 +40,7 @@ static void *run(void *arg) {
     return NULL;
 }
 
-int pm_i_parallel(unsigned threads, size_t nchunks, int (*fn)(void *, size_t, unsigned),
-                  void *ud) {
+int pm_i_parallel(unsigned threads, size_t nchunks, int (*fn)(void *, size_t, unsigned), void *ud) {
     if (threads < 1) {
         threads = 1;
     }

@@ -73,11 +73,11 @@ static void trim(const char **s, size_t *len) {
 typedef struct {
     const pm_segcol_src_t *src;
     const char *file;
-    pm_i_strtab ids;     /* respondent id -> table index (same ids, same order) */
-    pm_i_strtab labels;  /* label -> first-seen id */
-    int32_t *lab;        /* [n_resp] label id or -1 */
-    uint64_t *line;      /* [n_resp] line that set it (0: none) */
-    long idc, segc;      /* 0-based columns */
+    pm_i_strtab ids;    /* respondent id -> table index (same ids, same order) */
+    pm_i_strtab labels; /* label -> first-seen id */
+    int32_t *lab;       /* [n_resp] label id or -1 */
+    uint64_t *line;     /* [n_resp] line that set it (0: none) */
+    long idc, segc;     /* 0-based columns */
     int header_done;
     uint64_t unknown;
 } reader;
@@ -196,8 +196,7 @@ typedef struct {
 /* True when the text before the label's first digit says "below": under, below, less than,
  * up to, fewer than, < (any case). */
 static int says_below(const char *s) {
-    static const char *const words[] = {"under", "below", "less than", "up to", "fewer than",
-                                        "<"};
+    static const char *const words[] = {"under", "below", "less than", "up to", "fewer than", "<"};
     const char *d = s;
     while (*d && !(*d >= '0' && *d <= '9')) {
         d++;
@@ -229,8 +228,7 @@ static int cmp_lev(const void *x, const void *y) {
 }
 
 /* rank[id] = position of label id; the order of --segment-levels when given. */
-static pm_err_t order_levels(const reader *rd, pm_segcol_t *c, uint32_t *rank,
-                             pm_diag_t *diag) {
+static pm_err_t order_levels(const reader *rd, pm_segcol_t *c, uint32_t *rank, pm_diag_t *diag) {
     size_t k = rd->labels.count;
     lev *l = pm_i_malloc(k ? k : 1, sizeof *l);
     if (!l) {

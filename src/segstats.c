@@ -53,8 +53,8 @@ static double lnpoch(double a, double x) {
     }
     if (a >= 1e4 && x <= 0.1 * a) {
         double z = a + x;
-#define PM_STIRLING_C(t) (1 / (12 * (t)) - 1 / (360 * (t) * (t) * (t)) + \
-                          1 / (1260 * (t) * (t) * (t) * (t) * (t)))
+#define PM_STIRLING_C(t)                                                                           \
+    (1 / (12 * (t)) - 1 / (360 * (t) * (t) * (t)) + 1 / (1260 * (t) * (t) * (t) * (t) * (t)))
         return (a - 0.5) * log1p(x / a) + x * log(z) - x + (PM_STIRLING_C(z) - PM_STIRLING_C(a));
 #undef PM_STIRLING_C
     }
@@ -235,8 +235,8 @@ static pm_err_t alloc_all(pm_segstats_t *s, size_t k, size_t ni) {
     s->mu = pm_i_calloc(items, sizeof *s->mu);
     s->trend_z = pm_i_calloc(items, sizeof *s->trend_z);
     s->trend_p = pm_i_calloc(items, sizeof *s->trend_p);
-    double **d[] = {&s->share_low, &s->share_high, &s->shrunk, &s->shrunk_low,
-                    &s->shrunk_high, &s->p, &s->q};
+    double **d[] = {&s->share_low,   &s->share_high, &s->shrunk, &s->shrunk_low,
+                    &s->shrunk_high, &s->p,          &s->q};
     int ok = s->chose && s->mu && s->trend_z && s->trend_p;
     for (size_t j = 0; j < sizeof d / sizeof d[0]; j++) {
         ok &= (*d[j] = pm_i_calloc(cells, sizeof(double))) != NULL;

@@ -62,8 +62,8 @@ static int cmp_size(const void *x, const void *y) {
     return a < b ? -1 : a > b;
 }
 
-pm_err_t pm_select_run(const pm_pairs_t *pp, const pm_incidence_t *inc,
-                       const pm_select_opts_t *o, pm_edges_t **out, pm_diag_t *diag) {
+pm_err_t pm_select_run(const pm_pairs_t *pp, const pm_incidence_t *inc, const pm_select_opts_t *o,
+                       pm_edges_t **out, pm_diag_t *diag) {
     *out = NULL;
     pm_edges_t *e = pm_i_calloc(1, sizeof *e);
     if (!e) {
@@ -86,8 +86,8 @@ pm_err_t pm_select_run(const pm_pairs_t *pp, const pm_incidence_t *inc,
         if (!inc->weight) {
             /* the sign and q tests first, without the other measures: the sign of phi is
              * that of N nab - na nb (its numerator, exact as phi_counts takes it) */
-            int sg = pm_i_joint_sign(inc->N, inc->count[pp->a[k]], inc->count[pp->b[k]],
-                                     pp->n_ab[k]);
+            int sg =
+                pm_i_joint_sign(inc->N, inc->count[pp->a[k]], inc->count[pp->b[k]], pp->n_ab[k]);
             if ((o->sign == PM_SIGN_POSITIVE && sg <= 0) ||
                 (o->sign == PM_SIGN_NEGATIVE && sg >= 0)) {
                 e->removed_sign++;

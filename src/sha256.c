@@ -10,16 +10,14 @@
 #endif
 
 static const uint32_t K[64] = {
-    0x428a2f98, 0x71374491, 0xb5c0fbcf, 0xe9b5dba5, 0x3956c25b, 0x59f111f1, 0x923f82a4,
-    0xab1c5ed5, 0xd807aa98, 0x12835b01, 0x243185be, 0x550c7dc3, 0x72be5d74, 0x80deb1fe,
-    0x9bdc06a7, 0xc19bf174, 0xe49b69c1, 0xefbe4786, 0x0fc19dc6, 0x240ca1cc, 0x2de92c6f,
-    0x4a7484aa, 0x5cb0a9dc, 0x76f988da, 0x983e5152, 0xa831c66d, 0xb00327c8, 0xbf597fc7,
-    0xc6e00bf3, 0xd5a79147, 0x06ca6351, 0x14292967, 0x27b70a85, 0x2e1b2138, 0x4d2c6dfc,
-    0x53380d13, 0x650a7354, 0x766a0abb, 0x81c2c92e, 0x92722c85, 0xa2bfe8a1, 0xa81a664b,
-    0xc24b8b70, 0xc76c51a3, 0xd192e819, 0xd6990624, 0xf40e3585, 0x106aa070, 0x19a4c116,
-    0x1e376c08, 0x2748774c, 0x34b0bcb5, 0x391c0cb3, 0x4ed8aa4a, 0x5b9cca4f, 0x682e6ff3,
-    0x748f82ee, 0x78a5636f, 0x84c87814, 0x8cc70208, 0x90befffa, 0xa4506ceb, 0xbef9a3f7,
-    0xc67178f2};
+    0x428a2f98, 0x71374491, 0xb5c0fbcf, 0xe9b5dba5, 0x3956c25b, 0x59f111f1, 0x923f82a4, 0xab1c5ed5,
+    0xd807aa98, 0x12835b01, 0x243185be, 0x550c7dc3, 0x72be5d74, 0x80deb1fe, 0x9bdc06a7, 0xc19bf174,
+    0xe49b69c1, 0xefbe4786, 0x0fc19dc6, 0x240ca1cc, 0x2de92c6f, 0x4a7484aa, 0x5cb0a9dc, 0x76f988da,
+    0x983e5152, 0xa831c66d, 0xb00327c8, 0xbf597fc7, 0xc6e00bf3, 0xd5a79147, 0x06ca6351, 0x14292967,
+    0x27b70a85, 0x2e1b2138, 0x4d2c6dfc, 0x53380d13, 0x650a7354, 0x766a0abb, 0x81c2c92e, 0x92722c85,
+    0xa2bfe8a1, 0xa81a664b, 0xc24b8b70, 0xc76c51a3, 0xd192e819, 0xd6990624, 0xf40e3585, 0x106aa070,
+    0x19a4c116, 0x1e376c08, 0x2748774c, 0x34b0bcb5, 0x391c0cb3, 0x4ed8aa4a, 0x5b9cca4f, 0x682e6ff3,
+    0x748f82ee, 0x78a5636f, 0x84c87814, 0x8cc70208, 0x90befffa, 0xa4506ceb, 0xbef9a3f7, 0xc67178f2};
 
 #define ROR(x, n) (((x) >> (n)) | ((x) << (32 - (n))))
 
@@ -65,8 +63,7 @@ static void block(pm_i_sha256 *s, const unsigned char *p) {
 #ifdef PM_SHA_NI
 /* The same compression with the x86 SHA extensions (Intel SHA-NI), used when the CPU has
  * them: four rounds per step, the message schedule by sha256msg1/msg2. */
-__attribute__((target("sha,sse4.1"))) static void blocks_ni(uint32_t st[8],
-                                                            const unsigned char *p,
+__attribute__((target("sha,sse4.1"))) static void blocks_ni(uint32_t st[8], const unsigned char *p,
                                                             size_t nblocks) {
     const __m128i MASK = _mm_set_epi64x(0x0c0d0e0f08090a0bULL, 0x0405060700010203ULL);
     __m128i tmp = _mm_loadu_si128((const __m128i *)(const void *)&st[0]);
@@ -79,14 +76,15 @@ __attribute__((target("sha,sse4.1"))) static void blocks_ni(uint32_t st[8],
         __m128i save0 = s0, save1 = s1, w[16];
         for (int i = 0; i < 16; i++) {
             if (i < 4) {
-                w[i] = _mm_shuffle_epi8(_mm_loadu_si128((const __m128i *)(const void *)(p + 16 * i)),
-                                        MASK);
+                w[i] = _mm_shuffle_epi8(
+                    _mm_loadu_si128((const __m128i *)(const void *)(p + 16 * i)), MASK);
             } else {
                 __m128i m = _mm_sha256msg1_epu32(w[i - 4], w[i - 3]);
                 m = _mm_add_epi32(m, _mm_alignr_epi8(w[i - 1], w[i - 2], 4));
                 w[i] = _mm_sha256msg2_epu32(m, w[i - 1]);
             }
-            __m128i msg = _mm_add_epi32(w[i], _mm_loadu_si128((const __m128i *)(const void *)&K[4 * i]));
+            __m128i msg =
+                _mm_add_epi32(w[i], _mm_loadu_si128((const __m128i *)(const void *)&K[4 * i]));
             s1 = _mm_sha256rnds2_epu32(s1, s0, msg);
             msg = _mm_shuffle_epi32(msg, 0x0E);
             s0 = _mm_sha256rnds2_epu32(s0, s1, msg);

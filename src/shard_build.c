@@ -57,8 +57,10 @@ static void tlist(tbuf *b, const char *name, const char *const *v, size_t n, int
         b->fail = 1;
         return;
     }
-    memcpy(s, v, n * sizeof *s);
-    if (!keep_order) {
+    if (n) { /* v may be NULL when the option was not given */
+        memcpy(s, v, n * sizeof *s);
+    }
+    if (!keep_order && n > 1) {
         qsort(s, n, sizeof *s, str_cmp);
     }
     for (size_t i = 0; i < n; i++) {

@@ -2431,10 +2431,9 @@ static pm_err_t write_legend(ctx_t *c, const pic_t *p, sbuf *b, double wmin, dou
     double size_lines = (double)para_lines(c, x, fs, 1, size_head, 2);
     double size_h = nv ? size_lines * lh + 0.3 * lh + 2 * rbig + 1.4 * fs2 + 0.9 * lh : 0;
     double neg_lines = any_negative ? (double)para_lines(c, x + 3.6 * fs, fs2, 0, neg_text, 2) : 0;
-    double line_h =
-        p->ne ? (double)para_lines(c, x, fs, 1, line_head, 2) * lh + 2 * lh2 + neg_lines * lh2 +
-                    0.9 * lh
-              : 0;
+    double line_h = p->ne ? (double)para_lines(c, x, fs, 1, line_head, 2) * lh + 2 * lh2 +
+                                neg_lines * lh2 + 0.9 * lh
+                          : 0;
     double foot_h = (double)para_lines(c, x, fs2, 0, foot, 2) * lh2;
     double keys_top = bottom - foot_h - line_h - size_h;
     double y = L->y0 + ASCENT * fh;

@@ -33,11 +33,11 @@ typedef struct {
     uint32_t id1; /* id + 1; 0 = empty */
 } pm_i_slot;
 typedef struct {
-    pm_i_slot *slots;    /* open addressing */
-    size_t cap;          /* number of slots, a power of two */
-    const char **str;    /* id -> string */
-    uint32_t *len;       /* id -> length in bytes */
-    uint64_t *hash;      /* id -> hash */
+    pm_i_slot *slots; /* open addressing */
+    size_t cap;       /* number of slots, a power of two */
+    const char **str; /* id -> string */
+    uint32_t *len;    /* id -> length in bytes */
+    uint64_t *hash;   /* id -> hash */
     size_t count, str_cap;
     pm_i_arena_block *blocks;
 } pm_i_strtab;

@@ -9,8 +9,7 @@
 /* A cell that a spreadsheet would read as a formula (OWASP's CSV-injection guidance): it begins
  * with = + - @, a tab or a carriage return. */
 static int formula_like(const char *s) {
-    return s[0] == '=' || s[0] == '+' || s[0] == '-' || s[0] == '@' || s[0] == '\t' ||
-           s[0] == '\r';
+    return s[0] == '=' || s[0] == '+' || s[0] == '-' || s[0] == '@' || s[0] == '\t' || s[0] == '\r';
 }
 
 void pm_write_csv_field(FILE *fp, const char *s, unsigned flags) {
@@ -64,8 +63,8 @@ pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t
         pm_write_csv_field(fp, inc->name[pp->a[k]], csv_flags);
         fputc(',', fp);
         pm_write_csv_field(fp, inc->name[pp->b[k]], csv_flags);
-        const double v[8] = {m.together, m.expected,      m.support, m.confidence_ab,
-                             m.confidence_ba, m.lift, m.phi,     m.jaccard};
+        const double v[8] = {m.together,      m.expected, m.support, m.confidence_ab,
+                             m.confidence_ba, m.lift,     m.phi,     m.jaccard};
         char buf[16 * 64], *o = buf; /* the numbers of the row, written at once */
         for (int j = 0; j < 8; j++) {
             *o++ = ',';
@@ -93,8 +92,8 @@ void pm_write_item_fields(FILE *fp, const pm_incidence_t *inc, size_t i, unsigne
     pm_write_item_fields_with(fp, inc, i, lo, hi, csv_flags);
 }
 
-void pm_write_item_fields_with(FILE *fp, const pm_incidence_t *inc, size_t i, double lo,
-                               double hi, unsigned csv_flags) {
+void pm_write_item_fields_with(FILE *fp, const pm_incidence_t *inc, size_t i, double lo, double hi,
+                               unsigned csv_flags) {
     double share = pm_incidence_share(inc, i);
     pm_write_csv_field(fp, inc->name[i], csv_flags);
     fputc(',', fp);

@@ -46,7 +46,6 @@ void pm_write_xml_text(FILE *fp, const char *s) {
     }
 }
 
-
 /* Line building for the edge loop (at most a few hundred bytes per edge). */
 static inline char *put_str(char *o, const char *s) {
     size_t n = strlen(s);

@@ -43,8 +43,8 @@ pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
     for (size_t r = 0; r < map->n; r++) {
         size_t v = k[r].v;
         if (map->share_low && map->share_high) {
-            pm_write_item_fields_with(fp, inc, map->item[v], map->share_low[v],
-                                      map->share_high[v], map->csv_flags);
+            pm_write_item_fields_with(fp, inc, map->item[v], map->share_low[v], map->share_high[v],
+                                      map->csv_flags);
         } else {
             pm_write_item_fields(fp, inc, map->item[v], map->csv_flags);
         }

@@ -60,10 +60,10 @@ pm_err_t pm_assoc_share_intervals(const pm_incidence_t *inc, const uint32_t *ite
 /* ---- scoring every pair ---------------------------------------------------------------- */
 typedef struct {
     pm_sign_t sign;
-    uint32_t min_count;  /* pairs seen together fewer times are tested but not listed */
-    double min_share;    /* items below this share are not eligible */
-    unsigned threads;    /* 0: all cores */
-    int kernel;          /* PM_COUNTS_* */
+    uint32_t min_count; /* pairs seen together fewer times are tested but not listed */
+    double min_share;   /* items below this share are not eligible */
+    unsigned threads;   /* 0: all cores */
+    int kernel;         /* PM_COUNTS_* */
     size_t dense_max_items;
     /* q-values are exact where they are at most q_limit (default 1: everywhere). Below 1, a
      * caller that only ever uses pairs with q <= q_limit (a --max-q of the same value) saves
@@ -90,15 +90,15 @@ typedef struct {
     uint32_t *a, *b, *n_ab; /* raw joint counts */
     double *w_ab;           /* weighted joint counts (NULL when unweighted) */
     double *p, *q;
-    unsigned char *test;    /* pm_test_t */
+    unsigned char *test; /* pm_test_t */
     pm_sign_t sign;
     /* the family */
     unsigned char *eligible; /* per item */
     size_t n_eligible;
-    uint64_t hypotheses;     /* n_eligible (n_eligible - 1) / 2 */
-    uint64_t seen;           /* pairs seen together */
-    uint64_t below_count;    /* seen together fewer than min_count times: tested, not listed */
-    uint64_t unseen;         /* pairs never seen together */
+    uint64_t hypotheses;  /* n_eligible (n_eligible - 1) / 2 */
+    uint64_t seen;        /* pairs seen together */
+    uint64_t below_count; /* seen together fewer than min_count times: tested, not listed */
+    uint64_t unseen;      /* pairs never seen together */
     size_t excluded_none, excluded_all, excluded_share; /* items left out, by reason */
     int kernel;
     uint64_t work;
@@ -106,7 +106,7 @@ typedef struct {
     /* q-value lookup for any p of the family (sorted distinct p with their q) */
     double *qp, *qq;
     size_t nq;
-    double q_limit;          /* as in the options: q-values above it are only known to be so */
+    double q_limit; /* as in the options: q-values above it are only known to be so */
 } pm_pairs_t;
 
 /* Counts, tests and corrects every pair of eligible items of inc. *out owns the result
@@ -117,11 +117,10 @@ pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pa
 void pm_pairs_free(pm_pairs_t *p);
 
 /* All measures of listed pair k (q included). */
-void pm_pairs_measures(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k,
-                       pm_measures_t *m);
+void pm_pairs_measures(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k, pm_measures_t *m);
 /* Measures of any eligible pair (a, b) with joint counts nab/wab, q from the family. */
-void pm_pairs_measure_any(const pm_pairs_t *pp, const pm_incidence_t *inc, uint32_t a,
-                          uint32_t b, uint32_t nab, double wab, pm_measures_t *m);
+void pm_pairs_measure_any(const pm_pairs_t *pp, const pm_incidence_t *inc, uint32_t a, uint32_t b,
+                          uint32_t nab, double wab, pm_measures_t *m);
 /* The q-value of a p-value of the family (the q of the largest family p-value <= p);
  * +INFINITY for p > q_limit. */
 double pm_pairs_qvalue(const pm_pairs_t *pp, double p);

@@ -32,19 +32,19 @@ enum { PM_COUNTS_AUTO = 0, PM_COUNTS_DENSE = 1, PM_COUNTS_SPARSE = 2 };
 
 /* Called for each pruned pair, from worker thread `thread` (0 .. threads-1), concurrently
  * from different threads; calls with the same thread index never overlap. */
-typedef void (*pm_counts_prune_fn)(void *ud, unsigned thread, uint32_t a, uint32_t b,
-                                   uint32_t n_ab, double w_ab);
+typedef void (*pm_counts_prune_fn)(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t n_ab,
+                                   double w_ab);
 /* Progress: done of total work units; called from one thread at a time. */
 typedef void (*pm_progress_fn)(void *ud, const char *stage, uint64_t done, uint64_t total);
 
 typedef struct {
-    unsigned threads;                /* 0: all cores */
-    uint32_t min_keep;               /* pairs with n < min_keep go to prune, not the output */
-    const unsigned char *eligible;   /* per item: count pairs of this item (NULL: all) */
-    pm_counts_prune_fn prune;        /* may be NULL */
+    unsigned threads;              /* 0: all cores */
+    uint32_t min_keep;             /* pairs with n < min_keep go to prune, not the output */
+    const unsigned char *eligible; /* per item: count pairs of this item (NULL: all) */
+    pm_counts_prune_fn prune;      /* may be NULL */
     void *prune_ud;
-    int kernel;                      /* PM_COUNTS_AUTO picks dense up to dense_max_items */
-    size_t dense_max_items;          /* 0: default 2048 */
+    int kernel;             /* PM_COUNTS_AUTO picks dense up to dense_max_items */
+    size_t dense_max_items; /* 0: default 2048 */
     pm_progress_fn progress;
     void *progress_ud;
     /* optional: two arrays of scratch_n entries the sparse kernel may use (and overwrite) for
@@ -63,8 +63,8 @@ void pm_counts_opts_init(pm_counts_opts_t *o);
  * O(sum over respondents of k^2 + items * threads); memory O(kept pairs + rows + items *
  * threads), plus items^2/2 counters per thread for the dense kernel (only up to
  * dense_max_items). Errors: PM_ENOMEM, PM_EINTERNAL (threads). */
-pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o,
-                         pm_counts_t **out, pm_diag_t *diag);
+pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o, pm_counts_t **out,
+                         pm_diag_t *diag);
 void pm_counts_free(pm_counts_t *c);
 
 /* Index of pair (a, b), a < b, in c, or -1. O(log pairs). */

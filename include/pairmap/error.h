@@ -35,8 +35,7 @@ void pm_diag_clear(pm_diag_t *d);
 
 /* Records an error in d (accepts NULL) and returns code, so callers can write
  * `return pm_diag_set(d, PM_EDATA, file, line, "...", ...);`. file may be NULL, line 0. */
-pm_err_t pm_diag_set(pm_diag_t *d, pm_err_t code, const char *file, long line, const char *fmt,
-                     ...)
+pm_err_t pm_diag_set(pm_diag_t *d, pm_err_t code, const char *file, long line, const char *fmt, ...)
 #if defined(__GNUC__)
     __attribute__((format(printf, 5, 6)))
 #endif

@@ -21,27 +21,27 @@ extern "C" {
  * adds respondents who chose nothing. */
 typedef struct {
     size_t n_items;
-    const char **name;      /* item -> name (owned by the incidence) */
-    const char **category;  /* item -> category or NULL */
-    uint64_t *count;        /* respondents per item */
-    double *wcount;         /* weighted respondents per item (NULL when unweighted) */
-    size_t n_resp;          /* respondents in the file */
-    uint64_t N;             /* the base: respondents in the file, or --respondents */
-    uint64_t *row_ptr;      /* n_resp + 1 */
+    const char **name;     /* item -> name (owned by the incidence) */
+    const char **category; /* item -> category or NULL */
+    uint64_t *count;       /* respondents per item */
+    double *wcount;        /* weighted respondents per item (NULL when unweighted) */
+    size_t n_resp;         /* respondents in the file */
+    uint64_t N;            /* the base: respondents in the file, or --respondents */
+    uint64_t *row_ptr;     /* n_resp + 1 */
     uint32_t *col;
-    double *weight;         /* respondent weights (NULL when unweighted), divided by 2^wexp */
-    double *w2count;        /* squared weights summed per item (NULL when unweighted) */
-    double W, W2;           /* sum of weights and of squared weights (N, N when unweighted) */
-    int wexp;               /* weight, wcount, W, W2 and the pairs' weighted counts are held
-                             * divided by 2^wexp, a power of two near the largest weight, so
-                             * that sums and squares of any finite weights stay in range and
-                             * every result is the same when all weights are scaled by one
-                             * factor (exactly so for a power of two); 0 when unweighted.
-                             * pm_incidence_wunits gives a weighted sum in the file's units. */
-    uint64_t duplicates;    /* duplicate respondent-item rows merged */
-    uint64_t single_item;   /* respondents with exactly one item */
-    uint64_t no_item;       /* respondents with no item (in N) */
-    char *storage;          /* owns the names */
+    double *weight;       /* respondent weights (NULL when unweighted), divided by 2^wexp */
+    double *w2count;      /* squared weights summed per item (NULL when unweighted) */
+    double W, W2;         /* sum of weights and of squared weights (N, N when unweighted) */
+    int wexp;             /* weight, wcount, W, W2 and the pairs' weighted counts are held
+                           * divided by 2^wexp, a power of two near the largest weight, so
+                           * that sums and squares of any finite weights stay in range and
+                           * every result is the same when all weights are scaled by one
+                           * factor (exactly so for a power of two); 0 when unweighted.
+                           * pm_incidence_wunits gives a weighted sum in the file's units. */
+    uint64_t duplicates;  /* duplicate respondent-item rows merged */
+    uint64_t single_item; /* respondents with exactly one item */
+    uint64_t no_item;     /* respondents with no item (in N) */
+    char *storage;        /* owns the names */
 } pm_incidence_t;
 
 /* Builds the incidence of table t. On success *out owns a new incidence (pm_incidence_free).

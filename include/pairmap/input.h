@@ -27,13 +27,13 @@ typedef enum { PM_FORMAT_LONG = 0, PM_FORMAT_LINES = 1, PM_FORMAT_WIDE = 2 } pm_
  * Column selectors are a header name or a 1-based number given as text ("2"). */
 typedef struct {
     pm_format_t format;
-    const char *id_col;       /* NULL: column 1 (long); none (lines) */
-    const char *item_col;     /* NULL: column 2 (long) */
-    const char *category_col; /* NULL: no categories */
-    const char *weight_col;   /* NULL: unweighted */
-    char sep;                 /* 0: detect from the first line among , TAB ; | */
-    bool no_header;           /* the first line is data */
-    uint64_t respondents;     /* 0: N = respondents seen; else N outright (>= seen) */
+    const char *id_col;            /* NULL: column 1 (long); none (lines) */
+    const char *item_col;          /* NULL: column 2 (long) */
+    const char *category_col;      /* NULL: no categories */
+    const char *weight_col;        /* NULL: unweighted */
+    char sep;                      /* 0: detect from the first line among , TAB ; | */
+    bool no_header;                /* the first line is data */
+    uint64_t respondents;          /* 0: N = respondents seen; else N outright (>= seen) */
     const char *const *drop_items; /* items removed before counting */
     size_t n_drop_items;
     const char *merge_file; /* CSV item,group: items renamed to their group; NULL: none */
@@ -44,7 +44,7 @@ typedef struct {
     size_t n_drop_values;
     const char *const *skip_cols; /* columns never read as options */
     size_t n_skip_cols;
-    bool base_all; /* wide: keep respondents who chose nothing in N */
+    bool base_all;            /* wide: keep respondents who chose nothing in N */
     const char *display_name; /* name used in messages; NULL: the path ("-" shows "stdin") */
     /* progress while reading: done and total bytes (total = done when the size is unknown) */
     void (*progress)(void *ud, const char *stage, uint64_t done, uint64_t total);
@@ -76,9 +76,9 @@ typedef struct {
     uint64_t bytes;           /* bytes read */
     unsigned char sha256[32]; /* SHA-256 of the bytes read */
     /* For notes the caller shows (the library prints nothing). */
-    uint64_t header_line;     /* the line read as the header; 0: none (--no-header) */
-    char header_text[128];    /* that line as shown in a message (escaped, shortened) */
-    bool header_like_data;    /* long: its respondent or item cell is seen again as data */
+    uint64_t header_line;  /* the line read as the header; 0: none (--no-header) */
+    char header_text[128]; /* that line as shown in a message (escaped, shortened) */
+    bool header_like_data; /* long: its respondent or item cell is seen again as data */
     /* lines format without --id-col: the first field of the first lines (up to 1,000) differs
      * on every line and looks like an id (a number, an e-mail address, a code with digits), so
      * that the ids would become items; the lines looked at (0: no such sign) and one of them */

@@ -22,8 +22,8 @@ extern "C" {
  * every respondent r < n_resp of the table; base[s] counts the respondents of level s;
  * levels are in their order (see pm_segcol_read). */
 typedef struct {
-    char *column;         /* the column's name as given */
-    size_t n_resp;        /* respondents of the table */
+    char *column;  /* the column's name as given */
+    size_t n_resp; /* respondents of the table */
     size_t n_levels;
     char **level;         /* [n_levels] labels */
     bool ordered;         /* --segment-levels given, or every label holds a number */
@@ -74,7 +74,7 @@ typedef struct {
     uint64_t *chose;     /* [n_levels * n_items] */
     double *mu;          /* [n_items] share over respondents with a segment */
     double *share_low, *share_high, *shrunk, *shrunk_low, *shrunk_high, *p, *q;
-    unsigned char *test; /* 0 none, 1 fisher, 2 chi2 */
+    unsigned char *test;       /* 0 none, 1 fisher, 2 chi2 */
     double *trend_z, *trend_p; /* [n_items]; NaN when the column is not ordered */
 } pm_segstats_t;
 

@@ -22,13 +22,13 @@ extern "C" {
 typedef enum { PM_MEASURE_PHI = 0, PM_MEASURE_LIFT = 1, PM_MEASURE_JACCARD = 2 } pm_measure_t;
 
 typedef struct {
-    uint32_t min_count; /* default 5 */
-    double min_share;   /* default 0 */
-    double max_q;       /* default 0.05 */
-    double min_phi;     /* default 0 (no bound) */
-    double min_lift;    /* default 0 (no bound) */
-    size_t top_edges;   /* 0: no limit */
-    pm_sign_t sign;     /* default positive */
+    uint32_t min_count;   /* default 5 */
+    double min_share;     /* default 0 */
+    double max_q;         /* default 0.05 */
+    double min_phi;       /* default 0 (no bound) */
+    double min_lift;      /* default 0 (no bound) */
+    size_t top_edges;     /* 0: no limit */
+    pm_sign_t sign;       /* default positive */
     pm_measure_t measure; /* edge weight, default phi */
 } pm_select_opts_t;
 
@@ -39,14 +39,14 @@ typedef struct {
     size_t n;
     size_t *idx;
     double *weight;
-    uint64_t tested;          /* hypotheses */
-    uint64_t never_seen;      /* pairs never seen together (not listed under --min-count > 0) */
+    uint64_t tested;     /* hypotheses */
+    uint64_t never_seen; /* pairs never seen together (not listed under --min-count > 0) */
     uint64_t removed_count, removed_sign, removed_q, removed_phi, removed_lift, removed_top;
 } pm_edges_t;
 
 /* Applies o to pp. *out owns the result (pm_edges_free). O(pairs log pairs). */
-pm_err_t pm_select_run(const pm_pairs_t *pp, const pm_incidence_t *inc,
-                       const pm_select_opts_t *o, pm_edges_t **out, pm_diag_t *diag);
+pm_err_t pm_select_run(const pm_pairs_t *pp, const pm_incidence_t *inc, const pm_select_opts_t *o,
+                       pm_edges_t **out, pm_diag_t *diag);
 void pm_edges_free(pm_edges_t *e);
 
 /* The chosen measure of m. */

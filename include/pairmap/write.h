@@ -14,8 +14,8 @@ extern "C" {
 #endif
 
 /* The edges.csv columns of DESIGN.md (contract). */
-#define PM_EDGES_HEADER                                                                         \
-    "item_a,item_b,together,expected,support,confidence_ab,confidence_ba,lift,phi,jaccard,"    \
+#define PM_EDGES_HEADER                                                                            \
+    "item_a,item_b,together,expected,support,confidence_ab,confidence_ba,lift,phi,jaccard,"        \
     "test,p_value,q_value"
 
 /* Flags of the CSV text cells (pm_write_csv_field): PM_CSV_RAW writes text as it is; without
@@ -38,8 +38,8 @@ pm_err_t pm_write_items_csv(FILE *fp, const pm_incidence_t *inc, unsigned csv_fl
  * end): the `items` row, and the start of a nodes.csv row. */
 void pm_write_item_fields(FILE *fp, const pm_incidence_t *inc, size_t i, unsigned csv_flags);
 /* The same with the interval given (from pm_assoc_share_intervals). */
-void pm_write_item_fields_with(FILE *fp, const pm_incidence_t *inc, size_t i, double lo,
-                               double hi, unsigned csv_flags);
+void pm_write_item_fields_with(FILE *fp, const pm_incidence_t *inc, size_t i, double lo, double hi,
+                               unsigned csv_flags);
 
 /* The one CSV text-cell writer: s as one field, quoted when it holds a delimiter, quote, line
  * break or edge spaces, with the apostrophe rule of PM_CSV_RAW above unless flags has it.

@@ -13,8 +13,8 @@
 #include <time.h>
 #include <unistd.h>
 
-#define ALL                                                                                 \
-    (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_UNFOLD | PM_CMD_COUNT |     \
+#define ALL                                                                                        \
+    (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_UNFOLD | PM_CMD_COUNT |   \
      PM_CMD_SEGMENTS)
 #define FROM_COUNTS (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS)
 #define SCORE (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS)
@@ -22,7 +22,7 @@
 typedef struct {
     const char *name;
     char shortname;
-    int arg;        /* takes a value */
+    int arg; /* takes a value */
     int repeatable;
     unsigned cmds;
 } opt_def;
@@ -79,7 +79,8 @@ static const opt_def OPTS[] = {
     {"segment-col", 0, 1, 1, PM_CMD_SEGMENTS},
     {"segment-file", 0, 1, 0, PM_CMD_SEGMENTS},
     {"segment-levels", 0, 1, 1, PM_CMD_SEGMENTS},
-    {"csv-raw", 0, 0, 0, PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_SEGMENTS},
+    {"csv-raw", 0, 0, 0,
+     PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_SEGMENTS},
     {"help", 'h', 0, 0, ALL},
 };
 #define NOPTS (sizeof OPTS / sizeof OPTS[0])
@@ -208,8 +209,9 @@ int pm_cli_check_unit(const pm_cli_t *c) {
         ok = strcmp(pm_text_shown(u, n, b, sizeof b, 0), u) == 0; /* valid UTF-8, no controls */
     }
     if (!ok) {
-        return pm_cli_usage_error(c, "--unit takes a plural noun of letters, digits, spaces or "
-                                     "hyphens (at most 32 bytes), got '%s'",
+        return pm_cli_usage_error(c,
+                                  "--unit takes a plural noun of letters, digits, spaces or "
+                                  "hyphens (at most 32 bytes), got '%s'",
                                   u);
     }
     return 0;
@@ -289,20 +291,19 @@ int pm_cli_parse(pm_cli_t *c, const char *command, unsigned cmd, int argc, char 
         } else if (!only_pos && a[0] == '-' && a[1] != '\0') {
             d = a[2] == '\0' ? find_short(a[1]) : NULL;
             if (!d) {
-                return pm_cli_usage_error(c, "unknown option '%s' for 'pairmap %s'", a,
-                                          command);
+                return pm_cli_usage_error(c, "unknown option '%s' for 'pairmap %s'", a, command);
             }
         } else {
             if (c->input) {
-                return pm_cli_usage_error(c, "more than one INPUT given ('%s' and '%s')",
-                                          c->input, a);
+                return pm_cli_usage_error(c, "more than one INPUT given ('%s' and '%s')", c->input,
+                                          a);
             }
             c->input = a;
             continue;
         }
         if (!(d->cmds & cmd)) {
-            return pm_cli_usage_error(c, "option --%s does not apply to 'pairmap %s'",
-                                      d->name, command);
+            return pm_cli_usage_error(c, "option --%s does not apply to 'pairmap %s'", d->name,
+                                      command);
         }
         if (strcmp(d->name, "help") == 0) {
             fputs(usage, stdout);
@@ -646,8 +647,9 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
                     (unsigned long long)s->header_line, s->header_text);
     }
     if (s->id_like_lines) {
-        pm_cli_note(c, "warning: the first field differs on each of the first %llu lines and "
-                       "looks like an id ('%s'); without --id-col 1 the ids become items",
+        pm_cli_note(c,
+                    "warning: the first field differs on each of the first %llu lines and "
+                    "looks like an id ('%s'); without --id-col 1 the ids become items",
                     (unsigned long long)s->id_like_lines, s->id_like_example);
     }
     if (ic->duplicates) {
@@ -655,28 +657,32 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
                     (unsigned long long)ic->duplicates);
     }
     if (s->empty_items && io.format == PM_FORMAT_WIDE) {
-        pm_cli_note(c, "note: %llu %s chose nothing in the selected questions and are "
-                       "kept in N (--base all)",
+        pm_cli_note(c,
+                    "note: %llu %s chose nothing in the selected questions and are "
+                    "kept in N (--base all)",
                     (unsigned long long)s->empty_items, pm_cli_unit(c));
     } else if (s->empty_items) {
         pm_cli_note(c, "note: %llu rows named no item (their %s count in N)",
                     (unsigned long long)s->empty_items, pm_cli_unit(c));
     }
     if (s->dropped_rows) {
-        pm_cli_note(c, "note: %llu rows dropped by --drop-item", (unsigned long long)s->dropped_rows);
+        pm_cli_note(c, "note: %llu rows dropped by --drop-item",
+                    (unsigned long long)s->dropped_rows);
     }
     if (s->merged_rows) {
         pm_cli_note(c, "note: %llu rows renamed by --merge-file (%llu entries)",
                     (unsigned long long)s->merged_rows, (unsigned long long)s->merge_entries);
     }
     if (s->blank_excluded) {
-        pm_cli_note(c, "note: %llu %s chose nothing in the selected questions and are "
-                       "left out of N (--base answered)",
+        pm_cli_note(c,
+                    "note: %llu %s chose nothing in the selected questions and are "
+                    "left out of N (--base answered)",
                     (unsigned long long)s->blank_excluded, pm_cli_unit(c));
     }
     if (ic->single_item) {
-        pm_cli_note(c, "note: %llu %s chose one item only (they count in N but form no "
-                       "pair)",
+        pm_cli_note(c,
+                    "note: %llu %s chose one item only (they count in N but form no "
+                    "pair)",
                     (unsigned long long)ic->single_item, pm_cli_unit(c));
     }
     return 0;
@@ -712,8 +718,9 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
     }
     const pm_pairs_t *pp = *pairs;
     if (pp->excluded_all) {
-        pm_cli_note(c, "note: %zu items chosen by all %s have no defined phi and are "
-                       "left out",
+        pm_cli_note(c,
+                    "note: %zu items chosen by all %s have no defined phi and are "
+                    "left out",
                     pp->excluded_all, pm_cli_unit(c));
     }
     if (pp->excluded_none) {

@@ -93,8 +93,7 @@ void pm_cli_note(const pm_cli_t *c, const char *fmt, ...)
 
 /* Reads INPUT and builds the incidence, printing the reader's notes. Returns 0 or the exit
  * status. */
-int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc,
-                double *t_read);
+int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, double *t_read);
 /* Scores every pair with the command line's options. */
 /* Scores every pair of inc. The rows of table t (whose incidence inc is) are taken from it
  * and serve as the counting's scratch memory: t has no rows afterwards. */
@@ -134,8 +133,7 @@ int pm_cmd_merge(int argc, char **argv);
 /* --from-counts FILE.pmc (src/cli/cmd_count.c): loads the shard as the run's table (a
  * stand-in without rows) and incidence (no rows), keeping its pairs for pm_cli_score. Returns
  * 0 or the exit status. */
-int pm_cli_load_counts(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc,
-                       double *t_read);
+int pm_cli_load_counts(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, double *t_read);
 /* The pairs of the shard loaded by pm_cli_load_counts (NULL when the run reads rows). */
 const pm_counts_t *pm_cli_given_counts(void);
 /* Writes run.json's "counts_from" object (nothing when the run read rows). */

@@ -128,7 +128,7 @@ typedef struct {
     size_t n_negative;
     double t_read, t_count, t_measures, t_graph, t_write;
     pm_svg_stats_t svg;
-    int iterations; /* the layout's, resolved */
+    int iterations;     /* the layout's, resolved */
     unsigned csv_flags; /* --csv-raw */
     /* edges.csv and the share intervals of nodes.csv need no clusters: with more than one
      * thread they are done on a thread of their own while the graph stage runs */
@@ -278,8 +278,8 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
         (s->iterations = pm_layout_default_iterations_for(s->n, m, s->ea, s->eb, s->wuse)) < 0) {
         return oom();
     }
-    if (pm_network_run(s->n, m, s->ea, s->eb, s->wuse, &co, no->seed, s->iterations, &s->cl,
-                       s->xy, &d)) {
+    if (pm_network_run(s->n, m, s->ea, s->eb, s->wuse, &co, no->seed, s->iterations, &s->cl, s->xy,
+                       &d)) {
         return pm_cli_fail(&d);
     }
     s->cluster_name = calloc(s->cl->n_clusters ? s->cl->n_clusters : 1, sizeof *s->cluster_name);
@@ -495,10 +495,9 @@ static void early_sync(FILE *fp) {
 static void *early_main(void *arg) {
     run_state *s = arg;
     /* one thread: the graph stage's processes use the other cores meanwhile */
-    (void)pm_assoc_share_intervals(s->inc, s->early.items, s->early.n, 1, s->early.lo,
-                                   s->early.hi, NULL);
-    s->early.rc =
-        pm_write_edges_csv(s->early.fp, s->pp, s->inc, s->e, s->csv_flags, &s->early.d);
+    (void)pm_assoc_share_intervals(s->inc, s->early.items, s->early.n, 1, s->early.lo, s->early.hi,
+                                   NULL);
+    s->early.rc = pm_write_edges_csv(s->early.fp, s->pp, s->inc, s->e, s->csv_flags, &s->early.d);
     early_sync(s->early.fp);
     return NULL;
 }

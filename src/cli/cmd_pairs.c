@@ -46,8 +46,7 @@ static int cmp_sort(const void *x, const void *y) {
 /* Reorders the kept edges by --sort (they come in name order). 0, or 1 after a usage error. */
 static int sort_edges(const pm_cli_t *c, const pm_pairs_t *pp, const pm_incidence_t *inc,
                       const pm_select_opts_t *sel, pm_edges_t *e) {
-    static const char *const keys[] = {"name", "together", "lift", "phi", "q", "confidence",
-                                       NULL};
+    static const char *const keys[] = {"name", "together", "lift", "phi", "q", "confidence", NULL};
     int by;
     if (pm_cli_choice(c, "sort", keys, 0, &by)) {
         return 1;
@@ -64,7 +63,7 @@ static int sort_edges(const pm_cli_t *c, const pm_pairs_t *pp, const pm_incidenc
     for (size_t i = 0; i < e->n; i++) {
         pm_measures_t m;
         pm_pairs_measures(pp, inc, e->idx[i], &m);
-        double k = by == 1 ? m.together
+        double k = by == 1   ? m.together
                    : by == 2 ? (neg ? -m.lift : m.lift)
                    : by == 3 ? (neg ? -m.phi : m.phi)
                    : by == 4 ? -m.q
@@ -131,11 +130,10 @@ int pm_cmd_pairs(int argc, char **argv) {
                 "%zu kept (removed: %llu below --min-count, %llu by --sign, %llu by --max-q, "
                 "%llu by --min-phi, %llu by --min-lift, %llu by --top-edges)",
                 (unsigned long long)inc->N, pm_cli_unit(&c), pp->n_eligible,
-                (unsigned long long)pp->hypotheses,
-                (unsigned long long)pp->seen, e->n, (unsigned long long)e->removed_count,
-                (unsigned long long)e->removed_sign, (unsigned long long)e->removed_q,
-                (unsigned long long)e->removed_phi, (unsigned long long)e->removed_lift,
-                (unsigned long long)e->removed_top);
+                (unsigned long long)pp->hypotheses, (unsigned long long)pp->seen, e->n,
+                (unsigned long long)e->removed_count, (unsigned long long)e->removed_sign,
+                (unsigned long long)e->removed_q, (unsigned long long)e->removed_phi,
+                (unsigned long long)e->removed_lift, (unsigned long long)e->removed_top);
     rc = pm_cli_close_stdout();
 done:
     pm_edges_free(e);

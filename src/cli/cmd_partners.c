@@ -358,9 +358,10 @@ int pm_cmd_partners(int argc, char **argv) {
         }
     }
     if (pm_cli_given_counts() && k > 1) { /* --from-counts holds pairs, not rows */
-        rc = pm_cli_usage_error(&c, "partners of a set of %zu items need the respondents' rows "
-                                    "(who chose all of them); a count shard holds pairs only: "
-                                    "give INPUT instead of --from-counts, or one --item",
+        rc = pm_cli_usage_error(&c,
+                                "partners of a set of %zu items need the respondents' rows "
+                                "(who chose all of them); a count shard holds pairs only: "
+                                "give INPUT instead of --from-counts, or one --item",
                                 k);
         goto done;
     }
@@ -471,8 +472,8 @@ int pm_cmd_partners(int argc, char **argv) {
                 printf("%s'%s'", shown_names++ ? " + " : "", pm_cli_shown(inc->name[i]));
             }
         }
-        printf(" (%llu of %llu %s, %.1f%%)", (unsigned long long)an.n,
-               (unsigned long long)inc->N, pm_cli_unit(&c), 100 * share);
+        printf(" (%llu of %llu %s, %.1f%%)", (unsigned long long)an.n, (unsigned long long)inc->N,
+               pm_cli_unit(&c), 100 * share);
         printf(", ranked by %s; together >= %u, q <= %g, %s associations%s\n", bys[by],
                sel.min_count, sel.max_q, pm_sign_name(sel.sign),
                k > 1 ? " (q over this set's own tests)" : "");
@@ -487,8 +488,9 @@ int pm_cmd_partners(int argc, char **argv) {
     }
     if (sel.sign == PM_SIGN_NEGATIVE && sel.min_count > 0) {
         /* the strongest substitutes are often the pairs almost never chosen together */
-        pm_cli_note(&c, "note: partners seen together fewer than %u times are hidden by "
-                        "--min-count (small-cell suppression); --min-count 0 shows them",
+        pm_cli_note(&c,
+                    "note: partners seen together fewer than %u times are hidden by "
+                    "--min-count (small-cell suppression); --min-count 0 shows them",
                     sel.min_count);
     }
     rc = pm_cli_close_stdout();

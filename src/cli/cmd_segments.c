@@ -88,9 +88,9 @@ static void rows(const pm_segcol_t *col, const pm_segstats_t *s, const pm_incide
             printf(",%llu,%llu,", (unsigned long long)col->base[k],
                    (unsigned long long)s->chose[j]);
             num(col->base[k] ? (double)s->chose[j] / (double)col->base[k] : NAN);
-            const double v[] = {s->share_low[j], s->share_high[j], s->shrunk[j],
-                                s->shrunk_low[j], s->shrunk_high[j],
-                                s->mu[i] > 0 ? s->shrunk[j] / s->mu[i] : NAN};
+            const double v[] = {s->share_low[j],   s->share_high[j],
+                                s->shrunk[j],      s->shrunk_low[j],
+                                s->shrunk_high[j], s->mu[i] > 0 ? s->shrunk[j] / s->mu[i] : NAN};
             for (size_t t = 0; t < sizeof v / sizeof v[0]; t++) {
                 fputc(',', stdout);
                 num(v[t]);
@@ -109,19 +109,21 @@ static void rows(const pm_segcol_t *col, const pm_segstats_t *s, const pm_incide
 }
 
 static void notes(const pm_cli_t *c, const pm_segcol_t *col, const pm_segstats_t *s) {
-    pm_cli_note(c, "note: segments of '%s': %zu (%s); %llu respondents with a segment, %llu "
-                   "without",
+    pm_cli_note(c,
+                "note: segments of '%s': %zu (%s); %llu respondents with a segment, %llu "
+                "without",
                 pm_cli_shown(col->column), col->n_levels, col->ordered ? "ordered" : "unordered",
                 (unsigned long long)s->B, (unsigned long long)col->none);
     if (col->unknown_ids) {
         pm_cli_note(c, "note: %llu ids of the segment file are not in the input",
                     (unsigned long long)col->unknown_ids);
     }
-    pm_cli_note(c, "note: '%s': prior strength m = %.17g pseudo-respondents, log-likelihood "
-                   "%.17g over %zu cells%s",
+    pm_cli_note(c,
+                "note: '%s': prior strength m = %.17g pseudo-respondents, log-likelihood "
+                "%.17g over %zu cells%s",
                 pm_cli_shown(col->column), s->m, s->loglik, s->cells_fitted,
-                s->m_at > 0 ? " (no spread beyond chance: m at its upper bound, every shrunk "
-                              "share is the item's overall share)"
+                s->m_at > 0   ? " (no spread beyond chance: m at its upper bound, every shrunk "
+                                "share is the item's overall share)"
                 : s->m_at < 0 ? " (m at its lower bound: the segments differ a lot)"
                               : "");
 }

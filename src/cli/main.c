@@ -48,8 +48,8 @@ int main(int argc, char **argv) {
         int (*fn)(int, char **);
     } cmds[] = {
         {"map", pm_cmd_map},     {"partners", pm_cmd_partners}, {"pairs", pm_cmd_pairs},
-        {"items", pm_cmd_items}, {"unfold", pm_cmd_unfold},
-        {"count", pm_cmd_count}, {"merge", pm_cmd_merge},   {"segments", pm_cmd_segments},
+        {"items", pm_cmd_items}, {"unfold", pm_cmd_unfold},     {"count", pm_cmd_count},
+        {"merge", pm_cmd_merge}, {"segments", pm_cmd_segments},
     };
     for (size_t i = 0; i < sizeof cmds / sizeof cmds[0]; i++) {
         if (strcmp(cmd, cmds[i].name) == 0) {
@@ -62,8 +62,9 @@ int main(int argc, char **argv) {
               stderr);
         return pm_cmd_unfold(argc - 2, argv + 2);
     }
-    fprintf(stderr, "pairmap: unknown command '%s'; the commands are map, partners, pairs, "
-                    "items, unfold, count, merge, segments (see pairmap --help)\n",
+    fprintf(stderr,
+            "pairmap: unknown command '%s'; the commands are map, partners, pairs, "
+            "items, unfold, count, merge, segments (see pairmap --help)\n",
             pm_cli_shown(cmd));
     return 1;
 }

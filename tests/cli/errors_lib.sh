@@ -116,6 +116,22 @@ expect_ok() {
     return 0
 }
 
+# bound_memory MB: from here on $PAIRMAP runs with at most MB megabytes: `ulimit -v` for a
+# normal build; for an AddressSanitizer build (which reserves terabytes of shadow address space
+# and so cannot start under ulimit -v) ASan's own hard_rss_limit_mb, which stops the process
+# with a report when its resident memory passes the bound.
+bound_memory() {
+    local mb="$1" real="$PAIRMAP"
+    if grep -q -a __asan_init "$real" 2>/dev/null; then
+        printf '#!/bin/sh\nASAN_OPTIONS="${ASAN_OPTIONS:+$ASAN_OPTIONS:}hard_rss_limit_mb=%s"\nexport ASAN_OPTIONS\nexec "%s" "$@"\n' \
+            "$mb" "$real" >"$TMP/bounded"
+    else
+        printf '#!/bin/sh\nulimit -v %s\nexec "%s" "$@"\n' "$((mb * 1000))" "$real" >"$TMP/bounded"
+    fi
+    chmod +x "$TMP/bounded"
+    PAIRMAP="$TMP/bounded"
+}
+
 # True when `pairmap CMD` is implemented (its --help succeeds).
 have_command() {
     "$PAIRMAP" "$1" --help >/dev/null 2>&1

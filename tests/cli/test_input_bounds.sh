@@ -2,20 +2,13 @@
 # A line of delimiters (issue 13 point 3): a row with more fields than the format can use stops
 # the read at once with the usual FILE:LINE message and exit 2, before the fields are held
 # (each held field costs about 20 bytes, so 100 million of them would need 2 GB). Every case
-# runs under `ulimit -v` (1 GB of address space), so a reader that holds the fields fails
+# runs under `ulimit -v` (an ASan build: its hard_rss_limit_mb, see bound_memory) (1 GB of address space), so a reader that holds the fields fails
 # fast with "out of memory" (exit 4) instead of taking the machine. The bounds: long and wide
 # rows have at most the header's (or first line's) count; any line at most PM_INPUT_MAX_FIELDS
 # (100,000, include/pairmap/input.h, README "Limits").
 source "$(dirname "${BASH_SOURCE[0]}")/errors_lib.sh"
 
-REAL="$PAIRMAP"
-cat >"$TMP/bounded" <<EOF
-#!/bin/sh
-ulimit -v 1000000
-exec "$REAL" "\$@"
-EOF
-chmod +x "$TMP/bounded"
-PAIRMAP="$TMP/bounded"
+bound_memory 1000
 
 commas() { head -c "$1" /dev/zero | tr '\0' ,; }
 

@@ -246,8 +246,10 @@ static void test_assoc_jeffreys_edges(void **state) {
     /* x = 0: lower bound 0 (Brown, Cai & DasGupta 2001), upper bound
      * scipy.stats.beta.ppf(0.975, 0.5, n + 0.5) for n = 1, 37, 1000, 1e6, 1e7 */
     static const double zero[][2] = {
-        {1, 0.8532536836904248},          {37, 0.06520745644543387},
-        {1000, 0.0025081643414222978},    {1000000, 2.5119393107467838e-06},
+        {1, 0.8532536836904248},
+        {37, 0.06520745644543387},
+        {1000, 0.0025081643414222978},
+        {1000000, 2.5119393107467838e-06},
         {10000000, 2.5119427153660024e-07},
     };
     for (size_t i = 0; i < sizeof zero / sizeof zero[0]; i++) {
@@ -703,8 +705,8 @@ static void test_assoc_fisher_half_at_most_expected(void **state) {
                         fail_msg("N=%d na=%d nb=%d nab=%d: P(X >= nab) = %.17g < 1/2", N, K, n, x,
                                  g);
                     }
-                    double pg = pm_assoc_fisher((uint64_t)N, (uint64_t)K, (uint64_t)n,
-                                                (uint64_t)x, 1);
+                    double pg =
+                        pm_assoc_fisher((uint64_t)N, (uint64_t)K, (uint64_t)n, (uint64_t)x, 1);
                     assert_true(pg >= 0.49);
                     lowest = pg < lowest ? pg : lowest;
                     checked++;

@@ -243,7 +243,8 @@ static void test_incidence_build_weighted_sums(void **state) {
     assert_int_equal(inc->n_items, 2); /* jam, tea */
     assert_non_null(inc->wcount);
     assert_true(pm_incidence_wunits(inc, inc->wcount[0]) == 4.0); /* jam: r1 + r3 */
-    assert_true(pm_incidence_wunits(inc, inc->wcount[1]) == 3.0); /* tea: r1 + r2, the duplicate not twice */
+    assert_true(pm_incidence_wunits(inc, inc->wcount[1]) ==
+                3.0); /* tea: r1 + r2, the duplicate not twice */
     assert_int_equal(inc->count[1], 2);
     /* held divided by 2^wexp (a power of two near the largest weight, 4 = 0.5 * 2^3) */
     assert_int_equal(inc->wexp, 3);

@@ -326,7 +326,8 @@ static void test_input_read_weight_valid(void **state) {
     assert_non_null(inc->weight);
     assert_true(pm_incidence_wunits(inc, inc->weight[0]) == 1.5);
     assert_true(pm_incidence_wunits(inc, inc->weight[1]) == 0.2);
-    assert_true(pm_incidence_wunits(inc, inc->weight[2]) == 3.0); /* the respondent who chose nothing keeps a weight */
+    assert_true(pm_incidence_wunits(inc, inc->weight[2]) ==
+                3.0); /* the respondent who chose nothing keeps a weight */
     pm_incidence_free(inc);
     rd_done(&r);
 }
@@ -707,18 +708,34 @@ static char *messy_text(uint64_t seed, size_t lines, const char *defect, size_t 
         unsigned kind = (unsigned)unit_below(&g, 400);
         const char *end = "\n";
         switch (kind) {
-        case 0: n += (size_t)snprintf(s + n, cap - n, " %s,%s", id, item); break;
-        case 1: n += (size_t)snprintf(s + n, cap - n, "%s ,%s", id, item); break;
-        case 2: n += (size_t)snprintf(s + n, cap - n, "%s,\t%s", id, item); break;
-        case 3: n += (size_t)snprintf(s + n, cap - n, "%s,%s  ", id, item); break;
-        case 4: n += (size_t)snprintf(s + n, cap - n, "%s,\"%s, large\"", id, item); break;
-        case 5: n += (size_t)snprintf(s + n, cap - n, "\n%s,%s", id, item); break; /* blank */
-        case 6: /* an empty item */
+        case 0:
+            n += (size_t)snprintf(s + n, cap - n, " %s,%s", id, item);
+            break;
+        case 1:
+            n += (size_t)snprintf(s + n, cap - n, "%s ,%s", id, item);
+            break;
+        case 2:
+            n += (size_t)snprintf(s + n, cap - n, "%s,\t%s", id, item);
+            break;
+        case 3:
+            n += (size_t)snprintf(s + n, cap - n, "%s,%s  ", id, item);
+            break;
+        case 4:
+            n += (size_t)snprintf(s + n, cap - n, "%s,\"%s, large\"", id, item);
+            break;
+        case 5:
+            n += (size_t)snprintf(s + n, cap - n, "\n%s,%s", id, item);
+            break; /* blank */
+        case 6:    /* an empty item */
             n += (size_t)(swap ? snprintf(s + n, cap - n, ",%s", item)
                                : snprintf(s + n, cap - n, "%s,", id));
             break;
-        case 7: n += (size_t)snprintf(s + n, cap - n, "%s,%s\tx", id, item); break;
-        default: n += (size_t)snprintf(s + n, cap - n, "%s,%s", id, item); break;
+        case 7:
+            n += (size_t)snprintf(s + n, cap - n, "%s,%s\tx", id, item);
+            break;
+        default:
+            n += (size_t)snprintf(s + n, cap - n, "%s,%s", id, item);
+            break;
         }
         if (kind >= 8 && kind < 40) {
             end = "\r\n";

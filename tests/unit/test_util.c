@@ -349,9 +349,9 @@ static void test_util_radix_sort_stable(void **state) {
                 rng ^= rng << 13;
                 rng ^= rng >> 7;
                 rng ^= rng << 17;
-                uint64_t k = kind == 0   ? rng                        /* all bits vary */
-                             : kind == 1 ? rng % 17                   /* many ties */
-                             : kind == 2 ? (rng & 0xFFFF00000000ULL)  /* one digit range */
+                uint64_t k = kind == 0   ? rng                       /* all bits vary */
+                             : kind == 1 ? rng % 17                  /* many ties */
+                             : kind == 2 ? (rng & 0xFFFF00000000ULL) /* one digit range */
                                          : 0x3FF0000000000000ULL + (rng >> 40);
                 memcpy(rec + i * size, &k, 8);
                 uint32_t pos = (uint32_t)i;

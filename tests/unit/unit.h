@@ -20,8 +20,8 @@
 /* cmocka 1.1's assert_float_equal converts its arguments to float, which rounds the values
  * compared and makes a tolerance below 1e-7 meaningless: here it compares doubles, and fails
  * on NaN. */
-static inline void unit_double_equal(double a, double b, double eps, const char *ea,
-                                     const char *eb, const char *file, int line) {
+static inline void unit_double_equal(double a, double b, double eps, const char *ea, const char *eb,
+                                     const char *file, int line) {
     if (!(fabs(a - b) <= eps) && !(a == b)) {
         print_error("%s = %.17g, %s = %.17g: differ by more than %.3g\n", ea, a, eb, b, eps);
         _fail(file, line);

@@ -112,3 +112,131 @@ const char *pm_text_shown(const char *s, size_t len, char *buf, size_t size, siz
     buf[o] = '\0';
     return buf;
 }
+
+size_t pm_text_utf8_decode(const unsigned char *s, size_t len, uint32_t *cp) {
+    size_t n = pm_text_utf8_len(s, len);
+    if (n) {
+        *cp = code_point(s, n);
+    }
+    return n;
+}
+
+/* ==== XML text ============================================================================ */
+static const char REPLACEMENT[] = "\xef\xbf\xbd"; /* U+FFFD */
+
+/* What the XML rule makes of the character (or bad byte) at s[0..len): its replacement in
+ * out (at most 8 bytes; returns the length) and the input bytes used in *used. A tab, LF or
+ * CR under PM_TEXT_XML_LINE comes back as one space. */
+static size_t xml_one(const unsigned char *s, size_t len, unsigned flags, char *out, size_t *used) {
+    uint32_t cp = 0;
+    size_t n = pm_text_utf8_decode(s, len, &cp);
+    if (n == 0) {
+        *used = 1;
+        memcpy(out, REPLACEMENT, 3);
+        return 3;
+    }
+    *used = n;
+    if (cp == '\t' || cp == '\n' || cp == '\r') {
+        out[0] = (flags & PM_TEXT_XML_LINE) ? ' ' : (char)cp;
+        return 1;
+    }
+    int bad = cp < 0x20 || cp == 0x7F || (cp >= 0x80 && cp <= 0x9F) ||
+              (cp >= 0xFDD0 && cp <= 0xFDEF) || (cp & 0xFFFEu) == 0xFFFEu;
+    if (bad) {
+        memcpy(out, REPLACEMENT, 3);
+        return 3;
+    }
+    if ((flags & PM_TEXT_XML_LINE) && is_bidi(cp)) {
+        return (size_t)snprintf(out, 8, "\\u%04X", (unsigned)cp);
+    }
+    memcpy(out, s, n);
+    return n;
+}
+
+size_t pm_text_xml_clean(const char *s, size_t len, unsigned flags, char *out) {
+    const unsigned char *u = (const unsigned char *)s;
+    int line = (flags & PM_TEXT_XML_LINE) != 0, space = 1; /* drop leading spaces */
+    size_t k = 0, used;
+    char tmp[8];
+    for (size_t i = 0; i < len; i += used) {
+        size_t m = xml_one(u + i, len - i, flags, tmp, &used);
+        if (line && m == 1 && tmp[0] == ' ') {
+            if (!space) {
+                out[k++] = ' ';
+            }
+            space = 1;
+            continue;
+        }
+        memcpy(out + k, tmp, m);
+        k += m;
+        space = 0;
+    }
+    while (line && k > 0 && out[k - 1] == ' ') {
+        k--;
+    }
+    out[k] = '\0';
+    return k;
+}
+
+void pm_text_xml_write(const char *s, size_t len, unsigned flags, pm_text_put_fn put, void *ctx) {
+    const unsigned char *u = (const unsigned char *)s;
+    int line = (flags & PM_TEXT_XML_LINE) != 0, space = 1;
+    size_t used, start = 0;
+    char tmp[8];
+    for (size_t i = 0; i < len; i += used) {
+        size_t m = xml_one(u + i, len - i, flags, tmp, &used);
+        if (line && m == 1 && tmp[0] == ' ') {
+            space = space ? space : 2; /* 2: a space is due before the next character */
+            continue;
+        }
+        if (space == 2 && start) {
+            put(ctx, " ", 1);
+        }
+        space = 0;
+        start = 1;
+        const char *e = NULL;
+        switch (m == 1 ? tmp[0] : 0) {
+        case '&':
+            e = "&amp;";
+            break;
+        case '<':
+            e = "&lt;";
+            break;
+        case '>':
+            e = "&gt;";
+            break;
+        case '"':
+            e = "&quot;";
+            break;
+        case '\'':
+            e = "&apos;";
+            break;
+        case '\t':
+            e = "&#9;";
+            break;
+        case '\n':
+            e = "&#10;";
+            break;
+        case '\r':
+            e = "&#13;"; /* a raw CR would be normalised away by the reader */
+            break;
+        default:
+            break;
+        }
+        if (e) {
+            put(ctx, e, strlen(e));
+        } else {
+            put(ctx, tmp, m);
+        }
+    }
+}
+
+static void put_file(void *ctx, const char *s, size_t n) {
+    fwrite(s, 1, n, (FILE *)ctx);
+}
+
+void pm_text_xml_fputs(FILE *fp, const char *s, unsigned flags) {
+    if (s) {
+        pm_text_xml_write(s, strlen(s), flags, put_file, fp);
+    }
+}

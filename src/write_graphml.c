@@ -6,44 +6,12 @@
 #include <string.h>
 
 #include "pairmap/mapwrite.h"
+#include "pairmap/text.h"
 #include "pairmap/write.h"
 #include "util.h"
 
 void pm_write_xml_text(FILE *fp, const char *s) {
-    for (const unsigned char *p = (const unsigned char *)s; *p; p++) {
-        switch (*p) {
-        case '&':
-            fputs("&amp;", fp);
-            break;
-        case '<':
-            fputs("&lt;", fp);
-            break;
-        case '>':
-            fputs("&gt;", fp);
-            break;
-        case '"':
-            fputs("&quot;", fp);
-            break;
-        case '\'':
-            fputs("&apos;", fp);
-            break;
-        case '\t':
-            fputs("&#9;", fp);
-            break;
-        case '\n':
-            fputs("&#10;", fp);
-            break;
-        case '\r':
-            fputs("&#13;", fp); /* a raw CR would be normalised away by the reader */
-            break;
-        default:
-            if (*p < 0x20 || *p == 0x7f) {
-                fputs("\xef\xbf\xbd", fp); /* not allowed in XML 1.0: U+FFFD */
-            } else {
-                fputc(*p, fp);
-            }
-        }
-    }
+    pm_text_xml_fputs(fp, s, 0); /* the one XML text cleaner (text.h) */
 }
 
 /* Line building for the edge loop (at most a few hundred bytes per edge). */

@@ -50,11 +50,12 @@ pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag);
  * ids (v_* for nodes, e_* for edges, g_* for the graph): node data name, category,
  * respondents, share, cluster, x, y; edge data together, phi, lift, jaccard, q_value, weight.
  * Numbers are printed as in the CSV files (NaN and infinities as NaN, INF, -INF, the
- * xs:double spellings). Names are escaped for XML; control characters other than tab, line
- * feed and carriage return cannot appear in XML 1.0 at all and are written as U+FFFD. */
+ * xs:double spellings). Names and the title go through the one XML text cleaner
+ * (pm_text_xml_write in text.h: bytes that are not UTF-8, controls and non-characters become
+ * U+FFFD; tab, LF, CR are kept as character references). */
 pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag);
 
-/* Writes s with XML escaping (& < > " ' and character references for tab, LF, CR). */
+/* Writes s cleaned and escaped for XML: pm_text_xml_fputs(fp, s, 0) (text.h). */
 void pm_write_xml_text(FILE *fp, const char *s);
 
 /* ---- JSON --------------------------------------------------------------------------------- */

@@ -1,6 +1,6 @@
-/* The SVG map (src/svgmap.c): a standalone SVG 1.1 picture of the clusters for a report.
- * Input is plain arrays so the drawing knows nothing of igraph; the picture is laid out afresh
- * for the drawn items with pm_layout_fr (network.h). */
+/* The SVG map (src/svgmap.c and its stages src/svg_*.c): a standalone SVG 1.1 picture of the
+ * clusters for a report. Input is plain arrays so the drawing knows nothing of igraph; the picture
+ * is laid out afresh for the drawn items with pm_layout_fr (network.h). */
 #ifndef PAIRMAP_SVGMAP_H
 #define PAIRMAP_SVGMAP_H
 
@@ -18,8 +18,9 @@ extern "C" {
  * cluster 1..n_clusters (1 = largest; clusters of one are items on their own), strength (sum
  * of positive edge weights; the array NULL: summed from the edges). Edge k joins ea[k] and
  * eb[k] with the edge measure weight[k]; negative weight = a negative (substitute) edge.
- * cluster_name NULL, or an entry NULL: "Cluster c". Text is UTF-8; ill-formed bytes and
- * control characters are repaired in the picture, never passed through. Everything is
+ * cluster_name NULL, or an entry NULL: "Cluster c". Text is UTF-8; every text goes through
+ * the one XML text cleaner (pm_text_xml_clean with PM_TEXT_XML_LINE, text.h): bad bytes,
+ * controls and non-characters become U+FFFD, bidirectional controls visible \u202E. Everything is
  * borrowed for the duration of the call. */
 typedef struct {
     size_t n_nodes;
@@ -64,7 +65,7 @@ void pm_svg_opts_init(pm_svg_opts_t *o);
 /* Machine-readable marks in the SVG (for scripts and tests/ref/svg_geometry.py): node
  * circles have class "node" with data-item, data-cluster, data-share (round-trip) and
  * data-category; their labels class "label" with data-item (a label's box is computable from
- * x, y, font-size, text-anchor and font-weight as src/svgmap.c measures text); edges class
+ * x, y, font-size, text-anchor and font-weight as src/svg_text.c measures text); edges class
  * "edge" (negative ones "edge negative") with data-a, data-b, data-weight; regions class
  * "region" and cluster names class "cluster-label" with data-cluster; legend entries of
  * clusters class "legend-cluster" with data-cluster, data-size, data-drawn.
@@ -79,6 +80,13 @@ void pm_svg_opts_init(pm_svg_opts_t *o);
  * the invariants above). */
 pm_err_t pm_svg_write(FILE *fp, const pm_svg_data_t *d, const pm_svg_opts_t *o,
                       pm_svg_stats_t *stats, pm_diag_t *diag);
+
+/* The same picture (byte for byte what pm_svg_write writes) into a new buffer, e.g. to put it
+ * inline into an HTML page: *out gets the whole SVG document (the XML declaration first),
+ * NUL-terminated, *len its length without the NUL; the caller frees *out with free(). On
+ * error *out is NULL and *len 0. Same options, errors and cost as pm_svg_write (no PM_EIO). */
+pm_err_t pm_svg_render(const pm_svg_data_t *d, const pm_svg_opts_t *o, char **out, size_t *len,
+                       pm_svg_stats_t *stats, pm_diag_t *diag);
 
 #ifdef __cplusplus
 }

@@ -8,6 +8,7 @@
 #   empty where no file applies), the message must contain the fixed string NEEDLE and follow
 #   STYLE.md section 5: lowercase start, no closing full stop, a single line.
 # expect_ok ARGS...       the command succeeds (exit 0)
+# check WHAT COMMAND...   the command (any, not only pairmap) succeeds; WHAT names the case
 # Sets FAILS; call finish at the end.
 
 set -u
@@ -24,6 +25,13 @@ CASES=0
 fail() {
     printf 'FAIL: %s\n' "$*" >&2
     FAILS=$((FAILS + 1))
+}
+
+check() {
+    local what="$1"
+    shift
+    CASES=$((CASES + 1))
+    "$@" || fail "$what"
 }
 
 # The one error line of $TMP/err (notes and warnings set aside); empty when there is not

@@ -44,8 +44,8 @@ line="$(error_line)"
 run_all 1 "$DEMO/cafe-orders.csv:1: " "'tier'" "$DEMO/cafe-orders.csv" --category-col tier
 run_all 1 "$DEMO/cafe-orders.csv:1: " "'w'" "$DEMO/cafe-orders.csv" --weight-col w
 # a column number past the row's width
-run_all 1 "$DEMO/cafe-orders.csv:1: " "--item-col 7 is past the 3 columns" "$DEMO/cafe-orders.csv" --item-col 7
-run_all 1 "$DEMO/cafe-orders.csv:1: " "--id-col 4 is past the 3 columns" "$DEMO/cafe-orders.csv" --id-col 4
+run_all 1 "$DEMO/cafe-orders.csv:1: " "--item-col 7 is past the 5 columns" "$DEMO/cafe-orders.csv" --item-col 7
+run_all 1 "$DEMO/cafe-orders.csv:1: " "--id-col 6 is past the 5 columns" "$DEMO/cafe-orders.csv" --id-col 6
 # lines format: an id column past a short line
 printf 'Espresso,Tea,Scone\nr2\n' >"$TMP/lines_short.csv"
 expect_fail 2 "$TMP/lines_short.csv:2: " "fewer than --id-col 3" -- pairs "$TMP/lines_short.csv" --format lines --id-col 3 --no-header

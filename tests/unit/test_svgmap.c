@@ -388,13 +388,13 @@ static void test_svgmap_write_demo(void **state) {
     assert_non_null(strstr(svg, "width=\"1600\" height=\"1100\" viewBox=\"0 0 1600 1100\""));
     assert_non_null(strstr(svg, "font-family=\"&apos;DejaVu Sans&apos;"));
     assert_true(valid_xml_utf8(svg, len));
-    /* the demo's 42 items fit the default canvas: all drawn, every kept edge drawn */
-    assert_int_equal(md.n, 42);
-    assert_int_equal(st.drawn, 42);
+    /* the demo's 44 items fit the default canvas: all drawn, every kept edge drawn */
+    assert_int_equal(md.n, 44);
+    assert_int_equal(st.drawn, 44);
     assert_int_equal(st.left_out, 0);
     assert_int_equal(st.edges_drawn, md.m);
-    assert_int_equal(count_of(svg, "<circle class=\"node\""), 42);
-    assert_int_equal(count_of(svg, "<text class=\"label\""), 42);
+    assert_int_equal(count_of(svg, "<circle class=\"node\""), 44);
+    assert_int_equal(count_of(svg, "<text class=\"label\""), 44);
     assert_int_equal(count_of(svg, "<line class=\"edge"), md.m);
     /* each multi-member cluster has a region and a cluster label */
     size_t multi = 0;

@@ -7,16 +7,17 @@
 
 #include "pairmap/assoc.h"
 #include "pairmap/incidence.h"
+#include "pairmap/oddsratio.h"
 #include "pairmap/select.h"
 
 #ifdef __cplusplus
 extern "C" {
 #endif
 
-/* The edges.csv columns of DESIGN.md (contract). */
+/* The edges.csv columns of DESIGN.md (contract), the odds ratio (pm_write_pair_oddsratio) last. */
 #define PM_EDGES_HEADER                                                                            \
     "item_a,item_b,together,expected,support,confidence_ab,confidence_ba,lift,phi,jaccard,"        \
-    "test,p_value,q_value"
+    "test,p_value,q_value,odds_ratio,odds_ratio_low,odds_ratio_high"
 
 /* Flags of the CSV text cells (pm_write_csv_field): PM_CSV_RAW writes text as it is; without
  * it, a cell that begins with = + - @, tab or CR gets a leading apostrophe so that a
@@ -28,6 +29,11 @@ extern "C" {
  * written with csv_flags. Returns PM_EIO when the stream reports an error. */
 pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
                             const pm_edges_t *e, unsigned csv_flags, pm_diag_t *diag);
+
+/* The odds ratio of listed pair k of pp (measures m from pm_pairs_measures: its test picks the
+ * branch), as edges.csv writes it. */
+void pm_write_pair_oddsratio(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k,
+                             const pm_measures_t *m, pm_oddsratio_t *r);
 
 /* `items`: item,category,respondents,share,share_low,share_high for every item (95% Jeffreys
  * interval; weighted input: share of the weight, interval on Kish's effective size). */

@@ -29,7 +29,8 @@ REPO = Path(__file__).resolve().parents[2]
 
 # Output columns, contract of DESIGN.md ("Output files").
 PAIR_COLUMNS = ["item_a", "item_b", "together", "expected", "support", "confidence_ab",
-                "confidence_ba", "lift", "phi", "jaccard", "test", "p_value", "q_value"]
+                "confidence_ba", "lift", "phi", "jaccard", "test", "p_value", "q_value",
+                "odds_ratio", "odds_ratio_low", "odds_ratio_high"]
 ITEM_COLUMNS = ["item", "category", "respondents", "share", "share_low", "share_high"]
 NUMERIC_PAIR_COLUMNS = PAIR_COLUMNS[2:10] + ["p_value", "q_value"]
 

@@ -74,6 +74,7 @@ void pm_i_svg_ctx_free(ctx_t *c) {
     pm_i_free(c->title);
     pm_i_free(c->thresholds);
     pm_i_free(c->measure);
+    pm_i_free(c->unit);
 }
 
 /* ==== preparation: clean text, sizes, colours, priority ==================================== */
@@ -248,9 +249,11 @@ pm_err_t pm_i_svg_prepare(ctx_t *c) {
     c->title = pm_i_svg_clean_text(c->o->title ? c->o->title : "Which items go together");
     c->thresholds = pm_i_svg_clean_text(d->thresholds);
     c->measure = pm_i_svg_clean_text(d->measure ? d->measure : "edge weight");
+    c->unit = pm_i_svg_clean_text(c->o->unit && c->o->unit[0] ? c->o->unit : "respondents");
     if (!c->name || !c->cat || !c->cname || !c->share || !c->strength || !c->colour ||
         !c->ccolour || !c->csize || !c->corder || !c->cfirst || !c->order || !c->rank ||
-        !c->negative || !c->cats || !c->catcolour || !c->title || !c->thresholds || !c->measure) {
+        !c->negative || !c->cats || !c->catcolour || !c->title || !c->thresholds || !c->measure ||
+        !c->unit) {
         return pm_i_svg_nomem(c);
     }
     for (size_t i = 0; i < n; i++) {

@@ -168,6 +168,7 @@ typedef struct {
     const char **cats; /* distinct categories by drawn count (category colouring), borrowed */
     int *catcolour;
     char *title, *thresholds, *measure;
+    char *unit;   /* clean; "respondents" by default */
     char **cname; /* clean cluster names */
 } ctx_t;
 

@@ -411,7 +411,7 @@ pm_err_t pm_i_svg_write_legend(ctx_t *c, const pic_t *p, sbuf *b, double wmin, d
     for (size_t i = 0; i < nv; i++) {
         rbig = fmax(rbig, fmax(c->rk * sqrt(v[i]), c->rmin));
     }
-    snprintf(size_head, sizeof size_head, "Circle area: share of respondents");
+    snprintf(size_head, sizeof size_head, "Circle area: share of %s", c->unit);
     snprintf(line_head, sizeof line_head, "Line width: %s", c->measure);
     snprintf(neg_text, sizeof neg_text, "dashed: chosen instead of each other");
     snprintf(foot, sizeof foot, "Layout: Fruchterman-Reingold, seed %llu \xc2\xb7 pairmap %s",

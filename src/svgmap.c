@@ -235,7 +235,9 @@ static pm_err_t write_nodes(ctx_t *c, const pic_t *p, sbuf *b) {
         pm_i_svg_fmt_percent(num, sizeof num, c->share[i]);
         pm_i_sb_puts(b, " \xe2\x80\x93 ");
         pm_i_sb_puts(b, num);
-        pm_i_sb_puts(b, " of respondents, ");
+        pm_i_sb_puts(b, " of ");
+        pm_i_sb_esc(b, c->unit);
+        pm_i_sb_puts(b, ", ");
         pm_i_sb_esc(b, c->cname[d->cluster[i] - 1]);
         pm_i_sb_puts(b, "</title></circle>\n");
     }
@@ -307,8 +309,10 @@ static void subtitle(const ctx_t *c, const pic_t *p, char *line, size_t size) {
     const pm_svg_data_t *d = c->d;
     char resp[40];
     pm_i_svg_fmt_count(resp, sizeof resp, d->respondents);
-    int k = snprintf(line, size, "%s respondent%s \xc2\xb7 %zu of %zu items drawn", resp,
-                     d->respondents == 1 ? "" : "s", p->nd, c->n);
+    /* "1 respondent" in the default words; a --unit word is used as it is given */
+    int plain = c->o->unit == NULL || c->o->unit[0] == '\0';
+    const char *word = plain && d->respondents == 1 ? "respondent" : c->unit;
+    int k = snprintf(line, size, "%s %s \xc2\xb7 %zu of %zu items drawn", resp, word, p->nd, c->n);
     k += snprintf(line + k, size - (size_t)k, " \xc2\xb7 %zu edge%s drawn", p->ne,
                   p->ne == 1 ? "" : "s");
     if (c->thresholds[0] && (size_t)k < size) {

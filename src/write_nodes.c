@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "pairmap/mapwrite.h"
+#include "pairmap/network.h"
 #include "pairmap/write.h"
 #include "util.h"
 
@@ -39,6 +40,29 @@ pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
         k[v].v = v;
     }
     qsort(k, map->n, sizeof *k, cmp_node);
+    /* the clusters' names: given, or made by the one naming function */
+    size_t nc = map->clusters->n_clusters;
+    char **own = NULL;
+    const char *const *cname = map->cluster_name;
+    pm_err_t rc = PM_ENOMEM;
+    if (!cname) {
+        const char **names = pm_i_malloc(map->n ? map->n : 1, sizeof *names);
+        own = pm_i_calloc(nc ? nc : 1, sizeof *own);
+        for (size_t v = 0; names && v < map->n; v++) {
+            names[v] = inc->name[map->item[v]];
+        }
+        for (size_t c = 0; names && own && c < nc; c++) {
+            if (!(own[c] = pm_cluster_name(map->clusters, c, names))) {
+                break;
+            }
+        }
+        int ok = names && own && (nc == 0 || own[nc - 1]);
+        pm_i_free(names);
+        if (!ok) {
+            goto cleanup;
+        }
+        cname = (const char *const *)own;
+    }
     fputs(PM_NODES_HEADER "\n", fp);
     for (size_t r = 0; r < map->n; r++) {
         size_t v = k[r].v;
@@ -48,13 +72,27 @@ pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
         } else {
             pm_write_item_fields(fp, inc, map->item[v], map->csv_flags);
         }
-        fprintf(fp, ",%u,%u,", map->clusters->cluster[v], map->degree[v]);
+        uint32_t cl = map->clusters->cluster[v];
+        fprintf(fp, ",%u,%u,", cl, map->degree[v]);
         pm_write_number(fp, map->xy[2 * v]);
         fputc(',', fp);
         pm_write_number(fp, map->xy[2 * v + 1]);
+        fputc(',', fp);
+        pm_write_csv_field(fp, cname[cl - 1], map->csv_flags);
         fputc('\n', fp);
     }
+    rc = PM_OK;
+cleanup:
+    if (own) {
+        for (size_t c = 0; c < nc; c++) {
+            free(own[c]);
+        }
+        free(own);
+    }
     free(k);
+    if (rc) {
+        return pm_diag_set(diag, rc, NULL, 0, "out of memory");
+    }
     if (ferror(fp)) {
         return pm_diag_set(diag, PM_EIO, NULL, 0, "cannot write nodes.csv: %s",
                            strerror(errno ? errno : EIO));

@@ -19,7 +19,8 @@ extern "C" {
 #endif
 
 /* The nodes.csv columns of DESIGN.md (contract). */
-#define PM_NODES_HEADER "item,category,respondents,share,share_low,share_high,cluster,degree,x,y"
+#define PM_NODES_HEADER                                                                            \
+    "item,category,respondents,share,share_low,share_high,cluster,degree,x,y,cluster_name"
 
 /* Everything the map's writers read. Vertex v is incidence item item[v]; vertices are in
  * canonical order (item[] increasing). Edge k is selected edge k of edges, joining vertices
@@ -40,10 +41,15 @@ typedef struct {
      * item[]); NULL: nodes.csv computes them */
     const double *share_low, *share_high;
     unsigned csv_flags; /* pm_write_csv_field flags of nodes.csv's names (write.h) */
+    /* [clusters->n_clusters] optional: the clusters' names (pm_cluster_name); NULL: made here
+     * by pm_cluster_name from the items' names */
+    const char *const *cluster_name;
 } pm_map_t;
 
 /* nodes.csv: one row per vertex, rows ordered by cluster, then share descending, then name
- * (bytes). share and its 95% Jeffreys interval as `pairmap items` prints them. */
+ * (bytes). share and its 95% Jeffreys interval as `pairmap items` prints them; cluster_name
+ * the name of the vertex's cluster (pm_cluster_name: its leading members, the legend's name
+ * of it). */
 pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag);
 
 /* map.graphml: GraphML 1.0, undirected, node ids n0.. in vertex order, typed keys with distinct

@@ -113,6 +113,16 @@ typedef struct {
     double *restart_q;     /* [restarts] modularity of each run */
 } pm_clusters_t;
 
+/* The name of cluster c (0-based: cluster c + 1) for people: its PM_CLUSTER_NAME_MEMBERS most
+ * central members, joined by " · " (U+00B7 between spaces). The most central members are
+ * the first of cl->members: the most weight on edges inside the cluster (weighted degree
+ * within it), ties by share, then by name. names[v] is the name of vertex v (UTF-8; each
+ * writer cleans it for its medium). Returns a new string (free() it); NULL when out of
+ * memory or c is out of range. The one naming function of the summary, run.json, nodes.csv,
+ * the SVG and the HTML view. O(length of the name). */
+#define PM_CLUSTER_NAME_MEMBERS 3
+char *pm_cluster_name(const pm_clusters_t *cl, size_t c, const char *const *names);
+
 /* Louvain (igraph_community_multilevel) with weights w (see the note at the top on unusable
  * edges), o->restarts runs from seeds derived from o->seed, the best modularity kept. Vertices
  * are taken in the order given (give them in canonical order for reproducible results).

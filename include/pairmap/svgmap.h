@@ -51,6 +51,8 @@ typedef struct {
     int color_by_category; /* 0: fill by cluster */
     uint64_t seed;         /* of the layout */
     int iterations;        /* layout iterations; 0: default */
+    const char *unit;      /* what one respondent is, a plural noun ("orders"), for the
+                            * subtitle, the size key and the tooltips; NULL: "respondents" */
 } pm_svg_opts_t;
 
 typedef struct {

@@ -109,8 +109,6 @@ typedef struct {
     int color_by;
 } net_opts;
 
-#define LEADING 3 /* members that name a cluster */
-
 typedef struct {
     pm_table_t *t;
     pm_incidence_t *inc;
@@ -184,30 +182,6 @@ static void state_free(run_state *s) {
 static int oom(void) {
     fputs("pairmap: out of memory\n", stderr);
     return 4;
-}
-
-/* "A · B · C": the cluster's leading members. */
-static char *cluster_label(const run_state *s, size_t c) {
-    const pm_clusters_t *cl = s->cl;
-    size_t k = cl->first[c + 1] - cl->first[c], len = 1;
-    if (k > LEADING) {
-        k = LEADING;
-    }
-    for (size_t j = 0; j < k; j++) {
-        len += strlen(s->names[cl->members[cl->first[c] + j]]) + 4;
-    }
-    char *out = malloc(len);
-    if (!out) {
-        return NULL;
-    }
-    out[0] = '\0';
-    for (size_t j = 0; j < k; j++) {
-        if (j) {
-            strcat(out, " \xc2\xb7 ");
-        }
-        strcat(out, s->names[cl->members[cl->first[c] + j]]);
-    }
-    return out;
 }
 
 static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_opts_t *sel,
@@ -288,7 +262,7 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
         return oom();
     }
     for (size_t k = 0; k < s->cl->n_clusters; k++) {
-        if (!(s->cluster_name[k] = cluster_label(s, k))) {
+        if (!(s->cluster_name[k] = pm_cluster_name(s->cl, k, s->names))) {
             return oom();
         }
     }
@@ -561,6 +535,7 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         .eb = s->eb,
         .title = no->title,
         .csv_flags = s->csv_flags,
+        .cluster_name = (const char *const *)s->cluster_name,
     };
     const char **cats = malloc((s->n ? s->n : 1) * sizeof *cats);
     double *slo = malloc((s->n ? s->n : 1) * sizeof *slo);
@@ -615,6 +590,7 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
     so.color_by_category = no->color_by == 1;
     so.seed = no->seed;
     so.iterations = (int)no->iterations;
+    so.unit = pm_cli_get(c, "unit"); /* NULL: "respondents" */
     /* The four files are created here, then written on two threads: GraphML and nodes.csv on
      * a second thread (plain text, no igraph), the SVG (whose layout calls igraph, which is
      * not thread-safe) and edges.csv on this one. They are finished in order afterwards. */

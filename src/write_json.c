@@ -9,7 +9,8 @@
 #include "pairmap/text.h"
 #include "pairmap/write.h"
 
-void pm_json_write_string(FILE *fp, const char *s) {
+/* script: also < > & as \u003c \u003e \u0026 and U+2028, U+2029 as \u2028, \u2029. */
+static void write_string(FILE *fp, const char *s, bool script) {
     fputc('"', fp);
     for (const unsigned char *p = (const unsigned char *)s; *p; p++) {
         switch (*p) {
@@ -29,7 +30,7 @@ void pm_json_write_string(FILE *fp, const char *s) {
             fputs("\\t", fp);
             break;
         default:
-            if (*p < 0x20 || *p == 0x7f) {
+            if (*p < 0x20 || *p == 0x7f || (script && (*p == '<' || *p == '>' || *p == '&'))) {
                 fprintf(fp, "\\u%04x", *p);
             } else if (*p < 0x80) {
                 fputc(*p, fp);
@@ -40,6 +41,10 @@ void pm_json_write_string(FILE *fp, const char *s) {
                 size_t n = pm_text_utf8_len(p, strlen((const char *)p));
                 if (n == 0) {
                     fprintf(fp, "\\u%04x", 0xDC00u + *p);
+                } else if (script && n == 3 && p[0] == 0xE2 && p[1] == 0x80 &&
+                           (p[2] == 0xA8 || p[2] == 0xA9)) {
+                    fprintf(fp, "\\u%04x", 0x2000u + (p[2] - 0x80u)); /* U+2028, U+2029 */
+                    p += 2;
                 } else {
                     fwrite(p, 1, n, fp);
                     p += n - 1;
@@ -48,6 +53,14 @@ void pm_json_write_string(FILE *fp, const char *s) {
         }
     }
     fputc('"', fp);
+}
+
+void pm_json_write_string(FILE *fp, const char *s) {
+    write_string(fp, s, false);
+}
+
+void pm_json_write_script_string(FILE *fp, const char *s) {
+    write_string(fp, s, true);
 }
 
 void pm_json_init(pm_json_t *j, FILE *fp) {

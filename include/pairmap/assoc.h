@@ -47,6 +47,13 @@ double pm_assoc_fisher(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, int a
  * with 0 as lower bound at x = 0 and 1 as upper bound at x = n (Brown, Cai & DasGupta 2001).
  * x and n may be fractional (weighted, effective sizes). */
 void pm_assoc_jeffreys(double x, double n, double alpha, double *lo, double *hi);
+/* Confidence of a -> b, n_ab / n_a (weighted: w_ab / w_a), with its 95% Jeffreys interval:
+ * unweighted on (n_ab, n_a); weighted on Kish's effective size of a's respondents,
+ * w_a^2 / w2_a (src/confidence.c; the numbers `pairmap partners` and the HTML page show).
+ * inc gives n_a, w_a and w2_a; w_ab is in inc's internal units, as pm_pairs_t.w_ab holds it
+ * (ignored when unweighted). */
+void pm_assoc_confidence(const pm_incidence_t *inc, uint32_t a, uint64_t n_ab, double w_ab,
+                         double *conf, double *lo, double *hi);
 /* The p-quantile of Beta(a, b), a, b > 0 (the robust solver behind pm_assoc_jeffreys: Newton
  * steps on GSL's beta CDF inside a shrinking bracket). */
 double pm_assoc_beta_quantile(double p, double a, double b);

@@ -94,6 +94,9 @@ pm_err_t pm_json_finish(pm_json_t *j, pm_diag_t *diag);
  * byte 0xHH that is not part of valid UTF-8 as \udcHH (the lone surrogate U+DC80..U+DCFF of
  * Python's "surrogateescape", PEP 383), so the file is always valid UTF-8 and no byte is lost. */
 void pm_json_write_string(FILE *fp, const char *s);
+/* The same for JSON inside an HTML <script> element: also < > & as \u003c \u003e \u0026
+ * (no "</script>" or "<!--" can appear) and U+2028, U+2029 as escapes. */
+void pm_json_write_script_string(FILE *fp, const char *s);
 
 #ifdef __cplusplus
 }

@@ -69,6 +69,7 @@ static const opt_def OPTS[] = {
     {"width", 0, 1, 0, PM_CMD_MAP},
     {"height", 0, 1, 0, PM_CMD_MAP},
     {"color-by", 0, 1, 0, PM_CMD_MAP},
+    {"no-html", 0, 0, 0, PM_CMD_MAP},
     /* partners */
     {"item", 0, 1, 1, PM_CMD_PARTNERS},
     {"top", 0, 1, 0, PM_CMD_PARTNERS},

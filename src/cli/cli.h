@@ -13,7 +13,10 @@
 #include "pairmap/error.h"
 #include "pairmap/incidence.h"
 #include "pairmap/input.h"
+#include "pairmap/mapwrite.h"
+#include "pairmap/outfile.h"
 #include "pairmap/select.h"
+#include "pairmap/svgmap.h"
 
 /* Commands, as a bit mask for the option table. */
 enum {
@@ -129,6 +132,22 @@ int pm_cmd_unfold(int argc, char **argv);
 int pm_cmd_count(int argc, char **argv);
 int pm_cmd_segments(int argc, char **argv);
 int pm_cmd_merge(int argc, char **argv);
+
+/* The picture step of `map` (src/cli/map_html.c): the SVG of svg/svg_opts to svg_fp and,
+ * unless --no-html, DIR/map.html (created in od and finished there) around the same SVG
+ * bytes. All borrowed. */
+typedef struct {
+    const pm_cli_t *cli;
+    pm_outdir_t *od;
+    const char *dir;
+    FILE *svg_fp;
+    const pm_svg_data_t *svg;
+    const pm_svg_opts_t *svg_opts;
+    const pm_map_t *map;
+    const pm_select_opts_t *sel;
+    const pm_table_t *table;
+} pm_cli_map_picture_t;
+pm_err_t pm_cli_map_picture(const pm_cli_map_picture_t *p, pm_svg_stats_t *stats, pm_diag_t *diag);
 
 /* --from-counts FILE.pmc (src/cli/cmd_count.c): loads the shard as the run's table (a
  * stand-in without rows) and incidence (no rows), keeping its pairs for pm_cli_score. Returns

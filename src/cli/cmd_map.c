@@ -26,6 +26,10 @@ static const char help[] =
     "               share, cluster, x, y; edge data together, phi, lift, jaccard, q_value,\n"
     "               weight)\n"
     "  map.svg      the picture, for a report\n"
+    "  map.html     the same picture in one offline page to explore in a browser: find an\n"
+    "               item, its partners with the numbers of `pairmap partners`, clusters,\n"
+    "               phi and q filters, zoom; the view is kept in the address's #fragment\n"
+    "               (item=NAME, cluster=N, phi=F, q=F); nothing is fetched from anywhere\n"
     "  edges.csv    the kept pairs, columns as `pairmap pairs`\n"
     "  nodes.csv    " PM_NODES_HEADER "\n"
     "               (one row per eligible item; rows by cluster, then share descending,\n"
@@ -52,6 +56,7 @@ static const char help[] =
     "                        GraphML and CSV files keep all\n"
     "  --width PX, --height PX   size of the SVG canvas\n"
     "  --color-by cluster|category   fill of the SVG's items (default cluster)\n"
+    "  --no-html             do not write map.html\n"
     "Edges are weighted by --measure. Only edges with phi > 0 take part in clustering and\n"
     "layout (both need positive weights): under --sign negative or both, the negative edges\n"
     "are written to the files but take no part in clustering or layout. An item with no such\n"
@@ -107,6 +112,7 @@ typedef struct {
     double resolution;
     const char *dir, *title;
     int color_by;
+    bool html; /* map.html too (not --no-html) */
 } net_opts;
 
 typedef struct {
@@ -619,7 +625,8 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         if (!threaded) {
             side_writer(&job);
         }
-        wrc[1] = pm_svg_write(fps[1], &sd, &so, &s->svg, &wd[1]);
+        pm_cli_map_picture_t pic = {c, s->od, no->dir, fps[1], &sd, &so, &map, sel, s->t};
+        wrc[1] = pm_cli_map_picture(&pic, &s->svg, &wd[1]); /* map.svg, map.html */
         early_sync(fps[1]);
         if (!early) {
             wrc[2] = pm_write_edges_csv(fps[2], s->pp, s->inc, s->e, s->csv_flags, &wd[2]);
@@ -644,7 +651,7 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         if (!rc && wrc[k]) {
             rc = wrc[k];
             d = wd[k];
-            if (d.code == PM_EIO) { /* one shape for every file: DIR/NAME: cannot write ... */
+            if (d.code == PM_EIO && !d.file[0]) { /* one shape: DIR/NAME: cannot write ... */
                 snprintf(d.file, sizeof d.file, "%s/%s", no->dir, files[k]);
                 size_t ml = strlen(d.msg);
                 snprintf(d.msg + ml, sizeof d.msg - ml,
@@ -670,7 +677,9 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
     FILE *fp;
     rc = pm_outdir_create(s->od, files[4], &fp, &d);
     if (!rc) {
-        rc = write_run_json(fp, c, no, sel, s, files, 5, &d);
+        static const char *const with_html[] = {"map.graphml", "map.svg",   "map.html",
+                                                "edges.csv",   "nodes.csv", "run.json"};
+        rc = write_run_json(fp, c, no, sel, s, no->html ? with_html : files, no->html ? 6 : 5, &d);
         pm_err_t rc2 = pm_outdir_finish(s->od, fp, rc ? NULL : &d);
         if (!rc) {
             rc = rc2;
@@ -771,8 +780,8 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
                "keep all; --draw and --width/--height change it)",
                s->svg.left_out);
     }
-    printf("\nwritten       %s/: map.graphml, map.svg, edges.csv, nodes.csv, run.json\n",
-           pm_cli_shown(no->dir));
+    printf("\nwritten       %s/: map.graphml, map.svg,%s edges.csv, nodes.csv, run.json\n",
+           pm_cli_shown(no->dir), no->html ? " map.html," : "");
 }
 
 /* ---- command ----------------------------------------------------------------------------------
@@ -784,6 +793,7 @@ static int net_options(const pm_cli_t *c, net_opts *no) {
         return pm_cli_usage_error(c, "'pairmap map' needs -o DIR (the output directory)");
     }
     no->title = pm_cli_get(c, "title");
+    no->html = !pm_cli_flag(c, "no-html");
     static const char *const colors[] = {"cluster", "category", NULL};
     if (pm_cli_uint(c, "seed", 1, 0, UINT64_MAX, &no->seed) ||
         pm_cli_uint(c, "restarts", 10, 1, 10000, &no->restarts) ||

@@ -257,8 +257,8 @@ static void anchor_free(anchor *an) {
     free(an->wb);
 }
 
-/* Confidence n_ab / n_a with its Jeffreys interval; weighted: on the anchor's effective size
- * (Kish, over the respondents who chose the anchor). */
+/* Confidence n_ab / n_a with its Jeffreys interval (pm_assoc_confidence for one item; a set's
+ * anchor sums otherwise). */
 static void confidence(const pm_incidence_t *inc, const anchor *an, uint32_t b, row *r) {
     if (inc->weight) {
         double neff = an->w2 > 0 ? an->w * an->w / an->w2 : 0;
@@ -401,9 +401,9 @@ int pm_cmd_partners(int argc, char **argv) {
             r->lift = m.lift;
             r->phi = m.phi;
             r->q = m.q;
-            an.nb[r->item] = pp->n_ab[idx];
-            an.wb[r->item] = pp->w_ab ? pp->w_ab[idx] : (double)pp->n_ab[idx];
-            confidence(inc, &an, r->item, r);
+            pm_assoc_confidence(inc, first, pp->n_ab[idx],
+                                pp->w_ab ? pp->w_ab[idx] : (double)pp->n_ab[idx], &r->conf, &r->lo,
+                                &r->hi);
         }
     } else if (an.n == 0 || an.n >= inc->N) {
         fprintf(stderr, "pairmap: %s: %s respondent chose all %zu items: no partner to rank\n", src,

@@ -39,7 +39,7 @@ CASES=$((CASES + 1))
 rc=$?
 [ "$rc" -eq 3 ] || fail "pairmap map > /dev/full: exit $rc, expected 3: $(cat "$TMP/err")"
 grep -q '^pairmap: cannot write to standard output' "$TMP/err" || fail "map > /dev/full: $(cat "$TMP/err")"
-[ "$(ls -A "$TMP/full-stdout" | wc -l)" -eq 5 ] || fail "map > /dev/full: files: $(ls -A "$TMP/full-stdout")"
+[ "$(ls -A "$TMP/full-stdout" | wc -l)" -eq 6 ] || fail "map > /dev/full: files: $(ls -A "$TMP/full-stdout")"
 
 # ---- the output directory ----------------------------------------------------------------------
 # its parent is a file
@@ -63,7 +63,7 @@ expect_ok map "$D" -o "$out" -q || fail "map on the demo failed"
 snapshot() { (cd "$1" && find . -mindepth 1 -printf '%p %s %T@ %m\n' | sort && sha256sum $(find . -type f | sort)); }
 snapshot "$out" >"$TMP/before"
 nfiles=$(find "$out" -type f | wc -l)
-[ "$nfiles" -eq 5 ] || fail "map wrote $nfiles files, expected 5"
+[ "$nfiles" -eq 6 ] || fail "map wrote $nfiles files, expected 6"
 check_untouched() { # WHAT
     snapshot "$out" >"$TMP/after"
     if ! cmp -s "$TMP/before" "$TMP/after"; then
@@ -159,7 +159,8 @@ done
 
 # ---- a signal at any moment: the directory holds the old set or the new set, never a mix ----
 # Reference results for --seed 1 (the "old" run) and --seed 2 (the "new" one): the layout
-# differs, so nodes.csv, map.graphml and map.svg tell the two apart (run.json by its seed).
+# differs, so nodes.csv, map.graphml, map.svg and map.html tell the two apart (run.json by its
+# seed).
 ref1="$TMP/ref1" ref2="$TMP/ref2" mix="$TMP/mix"
 expect_ok map "$D" -q -o "$ref1" --seed 1 --restarts 2
 expect_ok map "$D" -q -o "$ref2" --seed 2 --restarts 2
@@ -197,15 +198,15 @@ for i in $(seq 1 20); do
     *) fail "map stopped after ${delay} ms: exit $rc: $(cat "$TMP/err")" ;;
     esac
     versions=""
-    for f in edges.csv nodes.csv map.graphml map.svg run.json; do
+    for f in edges.csv nodes.csv map.graphml map.svg map.html run.json; do
         versions="$versions$(version_of "$mix/$f")"
     done
     # edges.csv does not depend on the seed: it matches either reference
     case "${versions:1}" in
-    1111 | 2222) ;;
-    *) fail "map stopped after ${delay} ms (exit $rc): files from different runs or broken ($versions for edges nodes graphml svg json)" ;;
+    11111 | 22222) ;;
+    *) fail "map stopped after ${delay} ms (exit $rc): files from different runs or broken ($versions for edges nodes graphml svg html json)" ;;
     esac
-    [ "$rc" -eq 0 ] && [ "${versions:1}" != 2222 ] && fail "map exited 0 after ${delay} ms but the files are the old ones"
+    [ "$rc" -eq 0 ] && [ "${versions:1}" != 22222 ] && fail "map exited 0 after ${delay} ms but the files are the old ones"
     left="$(find "$mix" -name '.*' -type f)"
     [ -z "$left" ] || fail "map stopped after ${delay} ms left temporary files: $left"
 done

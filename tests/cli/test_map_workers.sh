@@ -40,7 +40,7 @@ if [ -s "$TMP/t1/nodes.csv" ]; then
     json_core "$TMP/t1/run.json" >"$TMP/t1.json"
     for t in 2 3 4; do
         CASES=$((CASES + 1))
-        for f in map.graphml nodes.csv map.svg edges.csv; do
+        for f in map.graphml nodes.csv map.svg map.html edges.csv; do
             cmp -s "$TMP/t1/$f" "$TMP/t$t/$f" || fail "$f differs between --threads 1 and --threads $t"
         done
         json_core "$TMP/t$t/run.json" >"$TMP/t$t.json"

@@ -1,0 +1,55 @@
+/* The offline HTML view of a map (src/write_html.c): one self-contained page that holds the
+ * map's SVG inline, the items, kept pairs and clusters as embedded JSON, and a hand-written
+ * script and style sheet (src/html/), so a planner can search, filter and point at the map in
+ * a browser from a file:// URL with nothing fetched. */
+#ifndef PAIRMAP_HTMLMAP_H
+#define PAIRMAP_HTMLMAP_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+
+#include "pairmap/error.h"
+#include "pairmap/mapwrite.h"
+#include "pairmap/select.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* The run behind the page, for its footer (the values run.json records). All borrowed. */
+typedef struct {
+    const char *input;          /* the input's name as given */
+    uint64_t bytes, lines;      /* input size */
+    const char *sha256;         /* hex, or NULL */
+    const char *const *options; /* the options as given, one "--name value" string each */
+    size_t n_options;
+    const char *unit; /* plural noun for respondents (--unit), NULL: "respondents" */
+} pm_html_run_t;
+
+/* Everything the page shows. map: vertices, kept edges and clusters as the other files have
+ * them (share_low/share_high required); cluster_name[c - 1] names cluster c as the SVG legend
+ * does; svg, svg_len: map.svg's bytes as written (the XML declaration is dropped, the rest is
+ * put in the page as it is); sel: the selection behind the edges (the sign ranks partners;
+ * max_q bounds the q slider). drawn: items the SVG draws. All borrowed for the call. */
+typedef struct {
+    const pm_map_t *map;
+    const char *const *cluster_name;
+    const char *svg;
+    size_t svg_len;
+    const pm_select_opts_t *sel;
+    size_t drawn;
+    const pm_html_run_t *run;
+} pm_html_data_t;
+
+/* Writes the page to fp. Every text of the data reaches the page through one of two escapers:
+ * the XML escaper (pm_write_xml_text) for the title, and pm_json_write_script_string for the
+ * embedded JSON (which also escapes < > & and U+2028/U+2029, so no name can end the script
+ * element or start markup); the SVG comes escaped from pm_svg_write. Cost O(items + edges)
+ * plus one Jeffreys interval per edge end. Errors: PM_ENOMEM, PM_EIO (stream). */
+pm_err_t pm_html_write(FILE *fp, const pm_html_data_t *d, pm_diag_t *diag);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,321 @@
+/* map.html: the offline view (see htmlmap.h). The page is the SVG inline, the data as one JSON
+ * object in a <script type="application/json"> element, and the style sheet and script of
+ * src/html/ (compiled in by cmake/embed.cmake). Nothing in it refers to anything outside. */
+#include <errno.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "html_assets.h"
+#include "pairmap/htmlmap.h"
+#include "pairmap/write.h"
+#include "util.h"
+
+/* ---- JSON pieces (compact: the page's weight matters) ---------------------------------------- */
+static void jstr(FILE *fp, const char *s) {
+    if (s) {
+        pm_json_write_script_string(fp, s);
+    } else {
+        fputs("null", fp);
+    }
+}
+
+static void jnum(FILE *fp, double v) {
+    if (isfinite(v)) {
+        pm_write_number(fp, v);
+    } else {
+        fputs("null", fp);
+    }
+}
+
+static void jkey(FILE *fp, const char *key, int first) {
+    if (!first) {
+        fputc(',', fp);
+    }
+    jstr(fp, key);
+    fputc(':', fp);
+}
+
+/* "key":[v0,v1,...] of n numbers */
+static void jnums(FILE *fp, const char *key, const double *v, size_t n) {
+    jkey(fp, key, 0);
+    fputc('[', fp);
+    for (size_t i = 0; i < n; i++) {
+        if (i) {
+            fputc(',', fp);
+        }
+        jnum(fp, v[i]);
+    }
+    fputc(']', fp);
+}
+
+/* ---- the data -------------------------------------------------------------------------------- */
+static void write_items(FILE *fp, const pm_html_data_t *d, double *buf) {
+    const pm_map_t *map = d->map;
+    const pm_incidence_t *inc = map->inc;
+    size_t n = map->n;
+    jkey(fp, "items", 0);
+    fputc('{', fp);
+    jkey(fp, "name", 1);
+    fputc('[', fp);
+    for (size_t v = 0; v < n; v++) {
+        if (v) {
+            fputc(',', fp);
+        }
+        jstr(fp, inc->name[map->item[v]]);
+    }
+    fputs("]", fp);
+    jkey(fp, "category", 0);
+    fputc('[', fp);
+    for (size_t v = 0; v < n; v++) {
+        if (v) {
+            fputc(',', fp);
+        }
+        jstr(fp, inc->category ? inc->category[map->item[v]] : NULL);
+    }
+    fputs("]", fp);
+    for (size_t v = 0; v < n; v++) {
+        buf[v] = (double)inc->count[map->item[v]];
+    }
+    jnums(fp, "respondents", buf, n);
+    for (size_t v = 0; v < n; v++) {
+        buf[v] = pm_incidence_share(inc, map->item[v]);
+    }
+    jnums(fp, "share", buf, n);
+    jnums(fp, "share_low", map->share_low, n);
+    jnums(fp, "share_high", map->share_high, n);
+    for (size_t v = 0; v < n; v++) {
+        buf[v] = map->clusters->cluster[v];
+    }
+    jnums(fp, "cluster", buf, n);
+    for (size_t v = 0; v < n; v++) {
+        buf[v] = map->degree[v];
+    }
+    jnums(fp, "degree", buf, n);
+    fputc('}', fp);
+}
+
+/* The kept edges, columnar: vertex indices a < b and the numbers of the partner table for
+ * both directions (buf: EDGE_COLS * edges numbers). */
+#define EDGE_COLS 11
+static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
+    const pm_map_t *map = d->map;
+    const pm_incidence_t *inc = map->inc;
+    const pm_pairs_t *pp = map->pairs;
+    size_t m = map->edges->n;
+    jkey(fp, "edges", 0);
+    fputc('{', fp);
+    jkey(fp, "a", 1);
+    fputc('[', fp);
+    for (size_t k = 0; k < m; k++) {
+        fprintf(fp, k ? ",%u" : "%u", map->ea[k]);
+    }
+    fputc(']', fp);
+    jkey(fp, "b", 0);
+    fputc('[', fp);
+    for (size_t k = 0; k < m; k++) {
+        fprintf(fp, k ? ",%u" : "%u", map->eb[k]);
+    }
+    fputc(']', fp);
+    static const char *const cols[EDGE_COLS] = {"together",
+                                                "expected",
+                                                "lift",
+                                                "phi",
+                                                "q_value",
+                                                "confidence_ab",
+                                                "confidence_ab_low",
+                                                "confidence_ab_high",
+                                                "confidence_ba",
+                                                "confidence_ba_low",
+                                                "confidence_ba_high"};
+    for (size_t k = 0; k < m; k++) {
+        size_t idx = map->edges->idx[k];
+        double w_ab = pp->w_ab ? pp->w_ab[idx] : (double)pp->n_ab[idx];
+        pm_measures_t ms;
+        pm_pairs_measures(pp, inc, idx, &ms);
+        double *r = buf + k * EDGE_COLS;
+        r[0] = ms.together;
+        r[1] = ms.expected;
+        r[2] = ms.lift;
+        r[3] = ms.phi;
+        r[4] = ms.q;
+        /* a -> b and b -> a, as `partners --item a` and `--item b` print them */
+        pm_assoc_confidence(inc, pp->a[idx], pp->n_ab[idx], w_ab, &r[5], &r[6], &r[7]);
+        pm_assoc_confidence(inc, pp->b[idx], pp->n_ab[idx], w_ab, &r[8], &r[9], &r[10]);
+    }
+    for (size_t col = 0; col < EDGE_COLS; col++) {
+        jkey(fp, cols[col], 0);
+        fputc('[', fp);
+        for (size_t k = 0; k < m; k++) {
+            if (k) {
+                fputc(',', fp);
+            }
+            jnum(fp, buf[k * EDGE_COLS + col]);
+        }
+        fputc(']', fp);
+    }
+    fputc('}', fp);
+}
+
+static void write_clusters(FILE *fp, const pm_html_data_t *d) {
+    const pm_clusters_t *cl = d->map->clusters;
+    jkey(fp, "clusters", 0);
+    fputc('[', fp);
+    for (size_t c = 0; c < cl->n_clusters; c++) {
+        fputs(c ? ",{" : "{", fp);
+        jkey(fp, "name", 1);
+        jstr(fp, d->cluster_name ? d->cluster_name[c] : NULL);
+        fprintf(fp, ",\"size\":%zu}", cl->size[c]);
+    }
+    fputc(']', fp);
+}
+
+static void write_run(FILE *fp, const pm_html_data_t *d) {
+    const pm_html_run_t *r = d->run;
+    const pm_select_opts_t *sel = d->sel;
+    const pm_incidence_t *inc = d->map->inc;
+    jkey(fp, "run", 0);
+    fputc('{', fp);
+    jkey(fp, "version", 1);
+    jstr(fp, pm_version());
+    jkey(fp, "input", 0);
+    jstr(fp, r ? r->input : NULL);
+    jkey(fp, "bytes", 0);
+    fprintf(fp, "%llu", r ? (unsigned long long)r->bytes : 0ULL);
+    jkey(fp, "lines", 0);
+    fprintf(fp, "%llu", r ? (unsigned long long)r->lines : 0ULL);
+    jkey(fp, "sha256", 0);
+    jstr(fp, r ? r->sha256 : NULL);
+    jkey(fp, "unit", 0);
+    jstr(fp, r && r->unit ? r->unit : "respondents");
+    jkey(fp, "options", 0);
+    fputc('[', fp);
+    for (size_t i = 0; r && i < r->n_options; i++) {
+        if (i) {
+            fputc(',', fp);
+        }
+        jstr(fp, r->options[i]);
+    }
+    fputc(']', fp);
+    jkey(fp, "respondents", 0);
+    fprintf(fp, "%llu", (unsigned long long)inc->N);
+    jkey(fp, "items_read", 0);
+    fprintf(fp, "%zu", inc->n_items);
+    jkey(fp, "drawn", 0);
+    fprintf(fp, "%zu", d->drawn);
+    jkey(fp, "weighted", 0);
+    fputs(inc->weight ? "true" : "false", fp);
+    jkey(fp, "sign", 0);
+    jstr(fp, pm_sign_name(sel->sign));
+    jkey(fp, "min_count", 0);
+    fprintf(fp, "%u", sel->min_count);
+    jkey(fp, "max_q", 0);
+    jnum(fp, sel->max_q);
+    jkey(fp, "min_phi", 0);
+    jnum(fp, sel->min_phi);
+    jkey(fp, "min_lift", 0);
+    jnum(fp, sel->min_lift);
+    jkey(fp, "top_edges", 0);
+    fprintf(fp, "%zu", sel->top_edges);
+    jkey(fp, "measure", 0);
+    jstr(fp, pm_measure_name(sel->measure));
+    fputc('}', fp);
+}
+
+/* ---- the page -------------------------------------------------------------------------------- */
+static const char page_head[] =
+    "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+    "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
+    "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; "
+    "style-src 'unsafe-inline'; script-src 'unsafe-inline'\">\n<title>";
+
+/* The controls; the script fills in the lists, the panel and the footer. */
+static const char page_body[] =
+    "</h1>\n<p id=\"pm-sub\"></p>\n"
+    "<div class=\"pm-controls\" role=\"search\">\n"
+    "<div class=\"pm-find\"><label for=\"pm-search\">Find an item</label>\n"
+    "<input id=\"pm-search\" type=\"text\" role=\"combobox\" autocomplete=\"off\" "
+    "spellcheck=\"false\" aria-autocomplete=\"list\" aria-expanded=\"false\" "
+    "aria-controls=\"pm-suggest\" aria-describedby=\"pm-search-help\" placeholder=\"type a "
+    "name\">\n"
+    "<span id=\"pm-search-help\" class=\"pm-hidden\">Suggestions follow as you type; arrow "
+    "keys move through them, Enter chooses, Escape closes.</span>\n"
+    "<ul id=\"pm-suggest\" role=\"listbox\" aria-label=\"Matching items\" hidden></ul></div>\n"
+    "<div class=\"pm-filter\"><label for=\"pm-phi\">phi at least <output id=\"pm-phi-out\" "
+    "for=\"pm-phi\"></output></label>\n"
+    "<input id=\"pm-phi\" type=\"range\" min=\"0\" max=\"1\" step=\"0.01\" value=\"0\" "
+    "aria-label=\"Hide pairs whose phi is below this value\"></div>\n"
+    "<div class=\"pm-filter\"><label for=\"pm-q\">q at most <output id=\"pm-q-out\" "
+    "for=\"pm-q\"></output></label>\n"
+    "<input id=\"pm-q\" type=\"range\" min=\"-12\" max=\"0\" step=\"0.1\" value=\"0\" "
+    "aria-label=\"Hide pairs whose q-value is above this value (log scale)\"></div>\n"
+    "<div class=\"pm-filter\" id=\"pm-neg-box\" hidden><label><input id=\"pm-neg\" "
+    "type=\"checkbox\" checked> negative pairs</label></div>\n"
+    "<div class=\"pm-filter\" id=\"pm-seg-box\" hidden><label for=\"pm-seg\">segment</label>\n"
+    "<select id=\"pm-seg\" aria-label=\"Tint items by their index in a segment\">"
+    "</select></div>\n"
+    "<button type=\"button\" id=\"pm-clear\">Clear</button>\n"
+    "</div>\n</header>\n<main>\n"
+    "<section id=\"pm-view\" tabindex=\"0\" aria-label=\"The map. Arrow keys pan, plus and "
+    "minus zoom, 0 shows it all; the mouse wheel zooms and dragging pans.\">\n"
+    "<div class=\"pm-zoom\"><button type=\"button\" id=\"pm-zoom-in\" aria-label=\"Zoom "
+    "in\">+</button><button type=\"button\" id=\"pm-zoom-out\" aria-label=\"Zoom "
+    "out\">&#8722;</button><button type=\"button\" id=\"pm-zoom-fit\" aria-label=\"Show the "
+    "whole map\">&#8634;</button></div>\n";
+
+static const char page_side[] =
+    "\n</section>\n<aside id=\"pm-side\">\n"
+    "<section id=\"pm-panel\" aria-live=\"polite\" aria-label=\"Chosen item or cluster\">"
+    "</section>\n"
+    "<nav id=\"pm-clusters\" aria-label=\"Clusters\"><h2>Clusters</h2><ul id=\"pm-cluster-list\">"
+    "</ul></nav>\n</aside>\n</main>\n<footer id=\"pm-footer\"></footer>\n"
+    "<script type=\"application/json\" id=\"pm-data\">";
+
+/* The SVG without its XML declaration (and anything else before the root element). */
+static void write_svg(FILE *fp, const char *svg, size_t len) {
+    const char *p = svg;
+    while (p && (size_t)(p - svg) + 4 <= len) {
+        if (memcmp(p, "<svg", 4) == 0) {
+            fwrite(p, 1, len - (size_t)(p - svg), fp);
+            return;
+        }
+        p = memchr(p + 1, '<', len - (size_t)(p + 1 - svg));
+    }
+}
+
+pm_err_t pm_html_write(FILE *fp, const pm_html_data_t *d, pm_diag_t *diag) {
+    const pm_map_t *map = d->map;
+    size_t m = map->edges->n;
+    if (m > SIZE_MAX / EDGE_COLS) {
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
+    size_t cap = map->n > m * EDGE_COLS ? map->n : m * EDGE_COLS;
+    double *buf = pm_i_malloc(cap ? cap : 1, sizeof *buf);
+    if (!buf) {
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
+    const char *title = map->title && map->title[0] ? map->title : "Which items go together";
+    fputs(page_head, fp);
+    pm_write_xml_text(fp, title);
+    fputs("</title>\n<style>\n", fp);
+    fwrite(pm_i_page_css, 1, pm_i_page_css_len, fp);
+    fputs("</style>\n</head>\n<body>\n<header>\n<h1 id=\"pm-title\">", fp);
+    pm_write_xml_text(fp, title);
+    fputs(page_body, fp);
+    write_svg(fp, d->svg, d->svg_len);
+    fputs(page_side, fp);
+    fputs("{\"format\":1", fp);
+    write_items(fp, d, buf);
+    write_edges(fp, d, buf);
+    write_clusters(fp, d);
+    write_run(fp, d);
+    fputs("}</script>\n<script>\n", fp);
+    fwrite(pm_i_page_js, 1, pm_i_page_js_len, fp);
+    fputs("</script>\n</body>\n</html>\n", fp);
+    pm_i_free(buf);
+    if (ferror(fp)) {
+        return pm_diag_set(diag, PM_EIO, NULL, 0, "cannot write map.html: %s",
+                           strerror(errno ? errno : EIO));
+    }
+    return PM_OK;
+}

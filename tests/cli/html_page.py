@@ -1,0 +1,323 @@
+"""map.html in a real browser (Debian's chromium, headless): the page's numbers against the
+CLI's own documented outputs, its escaping against hostile names, and its offline promise.
+
+References, outside the page's code:
+- `pairmap partners INPUT --item X --csv --top 0` (with --min-phi / --max-q for the filters):
+  the documented ranked partner list the side panel must repeat, row for row, number for
+  number (the page's data-v attributes parse to the same doubles as the CSV's numbers);
+- `pairmap pairs INPUT --min-phi F` and edges.csv: which edges a filter keeps;
+- nodes.csv: cluster members and their order (cluster, share descending, name);
+- the DOM Chromium builds, dumped with --dump-dom (HTML parsed by Python's html.parser);
+- a screenshot checked with PIL (not blank: many colours, much non-white);
+- with networking disabled (a new network namespace, unshare -n) the same DOM.
+Run as `python3 html_page.py PAIRMAP REPO TMPDIR`.
+"""
+import csv
+import io
+import os
+import re
+import shutil
+import subprocess
+import sys
+import urllib.parse
+from html.parser import HTMLParser
+
+PAIRMAP, REPO, TMP = sys.argv[1], sys.argv[2], sys.argv[3]
+DEMO = os.path.join(REPO, "demo", "cafe-orders.csv")
+FAILS = []
+
+
+def fail(msg):
+    FAILS.append(msg)
+    print("FAIL: " + msg, file=sys.stderr)
+
+
+def check(cond, msg):
+    if not cond:
+        fail(msg)
+    return cond
+
+
+def run(args, **kw):
+    return subprocess.run(args, check=True, capture_output=True, **kw)
+
+
+def cli_csv(args):
+    out = run([PAIRMAP] + args).stdout.decode("utf-8")
+    return list(csv.DictReader(io.StringIO(out)))
+
+
+CHROME = shutil.which("chromium")
+FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
+         "--disable-extensions", "--virtual-time-budget=3000"]
+
+
+def browser(url, extra=(), wrap=()):
+    r = subprocess.run(list(wrap) + [CHROME] + FLAGS + list(extra) + [url],
+                       capture_output=True, timeout=120)
+    if r.returncode != 0:
+        fail("chromium failed on %s: %s" % (url, r.stderr.decode("utf-8", "replace")[-400:]))
+    return r.stdout.decode("utf-8")
+
+
+def dump(page, fragment="", wrap=()):
+    url = "file://" + urllib.parse.quote(page) + ("#" + fragment if fragment else "")
+    return browser(url, ["--dump-dom"], wrap)
+
+
+class Dom(HTMLParser):
+    """Every element as (tag, attrs, text inside it), plus the text of the whole document."""
+
+    def __init__(self, text):
+        super().__init__(convert_charrefs=True)
+        self.elems, self.stack = [], []
+        self.feed(text)
+
+    def handle_starttag(self, tag, attrs):
+        e = {"tag": tag, "attrs": dict(attrs), "text": []}
+        self.elems.append(e)
+        if tag not in ("meta", "input", "br", "img", "link", "line", "circle", "path",
+                       "rect", "stop", "use", "ellipse", "polygon", "polyline"):
+            self.stack.append(e)
+
+    def handle_startendtag(self, tag, attrs):
+        self.elems.append({"tag": tag, "attrs": dict(attrs), "text": []})
+
+    def handle_endtag(self, tag):
+        for i in range(len(self.stack) - 1, -1, -1):
+            if self.stack[i]["tag"] == tag:
+                del self.stack[i:]
+                break
+
+    def handle_data(self, data):
+        for e in self.stack:
+            e["text"].append(data)
+
+    def find(self, pred):
+        return [e for e in self.elems if pred(e)]
+
+    def by_id(self, id_):
+        got = self.find(lambda e: e["attrs"].get("id") == id_)
+        return got[0] if got else None
+
+
+def classes(e):
+    return (e["attrs"].get("class") or "").split()
+
+
+def text(e):
+    return "".join(e["text"])
+
+
+def ready(dom, what):
+    body = dom.find(lambda e: e["tag"] == "body")
+    return check(body and body[0]["attrs"].get("data-ready") == "1",
+                 "%s: the page's script did not finish (no data-ready on body)" % what)
+
+
+def highlighted(dom):
+    return {e["attrs"]["data-item"] for e in dom.find(
+        lambda e: e["tag"] == "circle" and "node" in classes(e) and "pm-hl" in classes(e))}
+
+
+def panel_rows(dom, table_id):
+    """The rows of a panel table: the partner's name and each cell's data-* values."""
+    rows = []
+    in_table = False
+    for e in dom.elems:
+        if e["tag"] == "table":
+            in_table = e["attrs"].get("id") == table_id
+        elif in_table and e["tag"] == "tr" and "data-item" in e["attrs"]:
+            rows.append({"name": e["attrs"]["data-item"], "cells": {}})
+        elif in_table and e["tag"] == "td" and rows:
+            rows[-1]["cells"][e["attrs"].get("data-col")] = e["attrs"]
+    return rows
+
+
+# columns of `partners --csv` and where the panel holds each
+COLS = [("together", "together", "data-v"), ("expected", "expected", "data-v"),
+        ("confidence", "confidence", "data-v"), ("confidence_low", "confidence", "data-low"),
+        ("confidence_high", "confidence", "data-high"), ("lift", "lift", "data-v"),
+        ("phi", "phi", "data-v"), ("q_value", "q_value", "data-v")]
+
+
+def same_partners(dom, item, ref, what):
+    """The panel's rows equal `partners --csv` rows: same names, order, numbers (as doubles:
+    the CSV prints shortest round-trip numbers, the page JavaScript's Number)."""
+    rows = panel_rows(dom, "pm-partners")
+    check([r["name"] for r in rows] == [r["partner"] for r in ref],
+          "%s: partner order %s, partners --csv %s" % (what, [r["name"] for r in rows],
+                                                      [r["partner"] for r in ref]))
+    for got, want in zip(rows, ref):
+        for col, cell, attr in COLS:
+            g = got["cells"].get(cell, {}).get(attr)
+            if not check(g is not None and float(g) == float(want[col]),
+                         "%s: %s / %s: page %s, partners --csv %s" % (what, want["partner"], col,
+                                                                     g, want[col])):
+                return
+    return rows
+
+
+def back_confidence(dom, item, rows, what):
+    """The 'back' column: confidence of the partner towards the item, which is the
+    confidence column of `partners --item PARTNER` on the item's row."""
+    for r in rows[:3]:
+        ref = cli_csv(["partners", DEMO, "--item", r["name"], "--csv", "--top", "0", "-q"])
+        want = [x for x in ref if x["partner"] == item]
+        g = r["cells"].get("confidence_back", {}).get("data-v")
+        check(want and g is not None and float(g) == float(want[0]["confidence"]),
+              "%s: back confidence of %s: page %s, partners --item %s: %s" % (
+                  what, r["name"], g, r["name"], want[0]["confidence"] if want else None))
+
+
+def item_view(page, item, extra_frag="", cli_extra=(), what=None):
+    what = what or "item %r %s" % (item, extra_frag)
+    frag = "item=" + urllib.parse.quote(item, safe="") + extra_frag
+    raw = dump(page, frag)
+    dom = Dom(raw)
+    dom.raw = raw
+    if not ready(dom, what):
+        return dom, []
+    ref = cli_csv(["partners", DEMO, "--item", item, "--csv", "--top", "0", "-q"] +
+                  list(cli_extra))
+    check(len(ref) > 0, "%s: the reference lists no partner (a test that cannot fail)" % what)
+    h = dom.by_id("pm-item")
+    check(h is not None and text(h) == item, "%s: panel heading %r" % (what, h and text(h)))
+    rows = same_partners(dom, item, ref, what) or []
+    want = {item} | {r["partner"] for r in ref}
+    check(highlighted(dom) == want, "%s: highlighted %s, want the item and its partners %s" % (
+        what, sorted(highlighted(dom)), sorted(want)))
+    return dom, rows
+
+
+def main():
+    out = os.path.join(TMP, "cafe")
+    run([PAIRMAP, "map", DEMO, "-o", out, "-q"])
+    page = os.path.join(out, "map.html")
+    raw = open(page, "rb").read()
+    size = len(raw)
+    print("cafe page: %d bytes" % size)
+    check(size < 300 * 1024, "the cafe page weighs %d bytes (limit 300 KB)" % size)
+
+    # no URL but XML namespace names: nothing to fetch
+    urls = set(re.findall(rb"https?:[^\s\"'<>)]*", raw))
+    allowed = {b"http://www.w3.org/2000/svg", b"http://www.w3.org/1999/xlink",
+               b"http://www.w3.org/XML/1998/namespace"}
+    check(urls <= allowed, "URLs in the page: %s" % sorted(urls - allowed))
+    check(not re.search(rb"<(link|img|iframe|object|embed)\b|\bsrc=|@import|url\(", raw),
+          "the page names an external resource")
+
+    # 1. Espresso: the panel repeats `partners`, the back column `partners` of each partner
+    dom, rows = item_view(page, "Espresso")
+    back_confidence(dom, "Espresso", rows, "Espresso")
+    plain_dom = dom.raw
+
+    # 2. a name with a comma, 3. one with an accent and a phi filter (= partners --min-phi)
+    item_view(page, "Apple strudel, warm")
+    d3, _ = item_view(page, "Crème caramel", "&phi=0.2", ["--min-phi", "0.2"])
+    # the filter hides exactly the edges that `pairs --min-phi 0.2` leaves out
+    kept = {(r["item_a"], r["item_b"]) for r in cli_csv(["pairs", DEMO, "--min-phi", "0.2",
+                                                          "-q"])}
+    shown = {(e["attrs"]["data-a"], e["attrs"]["data-b"]) for e in d3.find(
+        lambda e: e["tag"] == "line" and "edge" in classes(e) and "pm-off" not in classes(e))}
+    shown = {tuple(sorted(p, key=lambda s: s.encode())) for p in shown}
+    check(shown == kept and len(kept) > 0,
+          "phi=0.2: %d edges shown, pairs --min-phi 0.2 keeps %d" % (len(shown), len(kept)))
+
+    # 4. a cluster with a q filter: members as nodes.csv lists them, in its order
+    nodes = list(csv.DictReader(open(os.path.join(out, "nodes.csv"), encoding="utf-8")))
+    frag = "cluster=2&q=1e-20"
+    d4 = Dom(dump(page, frag))
+    if ready(d4, frag):
+        want = [r["item"] for r in nodes if r["cluster"] == "2"]
+        got = [r["name"] for r in panel_rows(d4, "pm-members")]
+        check(got == want, "cluster 2: panel lists %s, nodes.csv %s" % (got, want))
+        check(highlighted(d4) == set(want), "cluster 2: highlighted %s" % sorted(highlighted(d4)))
+        edges = list(csv.DictReader(open(os.path.join(out, "edges.csv"), encoding="utf-8")))
+        want_e = {(r["item_a"], r["item_b"]) for r in edges if float(r["q_value"]) <= 1e-20}
+        got_e = {tuple(sorted((e["attrs"]["data-a"], e["attrs"]["data-b"]),
+                              key=lambda s: s.encode())) for e in d4.find(
+            lambda e: e["tag"] == "line" and "edge" in classes(e) and "pm-off" not in classes(e))}
+        check(got_e == want_e and 0 < len(want_e) < len(edges),
+              "q=1e-20: %d edges shown, edges.csv has %d with q <= 1e-20" % (len(got_e),
+                                                                          len(want_e)))
+
+    # 5. networking disabled: the same DOM
+    if os.geteuid() == 0 or subprocess.run(["unshare", "-rn", "true"]).returncode == 0:
+        wrap = ["unshare", "-n"] if os.geteuid() == 0 else ["unshare", "-rn"]
+        offline = dump(page, "item=Espresso", wrap)
+        check(offline == plain_dom and "pm-partners" in offline,
+              "the DOM differs with networking disabled")
+    else:
+        fail("cannot disable networking here (unshare -n): the offline check did not run")
+
+    # 6. a screenshot at 1280x800, not blank
+    shot = os.path.join(TMP, "cafe.png")
+    browser("file://" + urllib.parse.quote(page) + "#item=Espresso",
+            ["--window-size=1280,800", "--screenshot=" + shot])
+    from PIL import Image
+    im = Image.open(shot).convert("RGB")
+    check(im.size == (1280, 800), "screenshot size %s" % (im.size,))
+    px = list(im.getdata())
+    nonwhite = sum(1 for p in px if min(p) < 235) / len(px)
+    colours = len(set(px))
+    print("screenshot: %.1f%% not white, %d colours" % (100 * nonwhite, colours))
+    check(nonwhite > 0.05 and colours > 200, "the screenshot looks blank")
+
+    hostile(os.path.join(TMP, "hostile"))
+
+
+HOSTILE = [
+    "<script>document.body.setAttribute('data-pwned','1')</script>",
+    "</script><script>document.body.setAttribute('data-pwned','2')</script>",
+    "<img src=x onerror=\"document.body.setAttribute('data-pwned','3')\">",
+    "\"quoted\" and 'single' & <b>bold</b>",
+    "left \u202eright\u202c \u2066isolate\u2069 \u2028line",
+    "<!-- comment",
+]
+
+
+def hostile(out):
+    """Names that try to end the script element, run a script or reorder text."""
+    src = os.path.join(TMP, "hostile.csv")
+    with open(src, "w", encoding="utf-8", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(["order", "item"])
+        for r in range(300):  # every hostile name with its neighbour, plus a filler item
+            w.writerow(["o%d" % r, HOSTILE[r % len(HOSTILE)]])
+            w.writerow(["o%d" % r, HOSTILE[(r + 1) % len(HOSTILE)]])
+            if r % 3 == 0:
+                w.writerow(["o%d" % r, "Filler"])
+        for r in range(300, 600):
+            w.writerow(["o%d" % r, "Filler"])
+            w.writerow(["o%d" % r, "Other"])
+    run([PAIRMAP, "map", src, "-o", out, "-q", "--title", "<script>x</script> title"])
+    page = os.path.join(out, "map.html")
+    raw = open(page, encoding="utf-8").read()
+    check(raw.count("</script>") == 2, "a name ended a script element early")
+    for name in (HOSTILE[1], HOSTILE[4]):
+        dom = Dom(dump(page, "item=" + urllib.parse.quote(name, safe="")))
+        what = "hostile name %r" % name
+        if not ready(dom, what):
+            continue
+        body = dom.find(lambda e: e["tag"] == "body")[0]
+        check("data-pwned" not in body["attrs"], "%s: an injected script ran" % what)
+        check(not dom.find(lambda e: e["tag"] in ("img", "b")),
+              "%s: a name became markup" % what)
+        h = dom.by_id("pm-item")
+        check(h is not None and text(h) == name, "%s: heading shows %r" % (what, h and text(h)))
+        check(len(panel_rows(dom, "pm-partners")) > 0, "%s: no partner row" % what)
+        title = dom.find(lambda e: e["tag"] == "title")
+        check(title and text(title[0]) == "<script>x</script> title",
+              "the title is not shown as text: %r" % (title and text(title[0])))
+        drawn = {e["attrs"].get("data-item") for e in dom.find(
+            lambda e: e["tag"] == "circle" and "node" in classes(e))}
+        for other in HOSTILE:
+            check(other in drawn, "%s: %r is not drawn as text" % (what, other))
+
+
+main()
+if FAILS:
+    print("%d check(s) failed" % len(FAILS), file=sys.stderr)
+    sys.exit(1)
+print("html page: all checks passed")

@@ -8,6 +8,7 @@
 
 #include "html_assets.h"
 #include "pairmap/htmlmap.h"
+#include "pairmap/text.h"
 #include "pairmap/write.h"
 #include "util.h"
 
@@ -50,7 +51,7 @@ static void jnums(FILE *fp, const char *key, const double *v, size_t n) {
 }
 
 /* ---- the data -------------------------------------------------------------------------------- */
-static void write_items(FILE *fp, const pm_html_data_t *d, double *buf) {
+static pm_err_t write_items(FILE *fp, const pm_html_data_t *d, double *buf) {
     const pm_map_t *map = d->map;
     const pm_incidence_t *inc = map->inc;
     size_t n = map->n;
@@ -92,7 +93,30 @@ static void write_items(FILE *fp, const pm_html_data_t *d, double *buf) {
         buf[v] = map->degree[v];
     }
     jnums(fp, "degree", buf, n);
-    fputc('}', fp);
+    /* names as the SVG writes them (data-item, data-a, data-b) where the XML cleaner changes
+     * them: [[vertex, name], ...] */
+    jkey(fp, "svg_name", 0);
+    fputc('[', fp);
+    int first = 1;
+    for (size_t v = 0; v < n; v++) {
+        const char *name = inc->name[map->item[v]];
+        size_t len = strlen(name);
+        char *clean =
+            len <= (SIZE_MAX - 1) / 3 ? pm_i_malloc(PM_TEXT_XML_CLEAN_SIZE(len), 1) : NULL;
+        if (!clean) {
+            return PM_ENOMEM;
+        }
+        pm_text_xml_clean(name, len, PM_TEXT_XML_LINE, clean);
+        if (strcmp(clean, name) != 0) {
+            fprintf(fp, first ? "[%zu," : ",[%zu,", v);
+            jstr(fp, clean);
+            fputc(']', fp);
+            first = 0;
+        }
+        pm_i_free(clean);
+    }
+    fputs("]}", fp);
+    return PM_OK;
 }
 
 /* The kept edges, columnar: vertex indices a < b and the numbers of the partner table for
@@ -296,16 +320,19 @@ pm_err_t pm_html_write(FILE *fp, const pm_html_data_t *d, pm_diag_t *diag) {
     }
     const char *title = map->title && map->title[0] ? map->title : "Which items go together";
     fputs(page_head, fp);
-    pm_write_xml_text(fp, title);
+    pm_text_xml_fputs(fp, title, PM_TEXT_XML_LINE); /* as the SVG's title */
     fputs("</title>\n<style>\n", fp);
     fwrite(pm_i_page_css, 1, pm_i_page_css_len, fp);
     fputs("</style>\n</head>\n<body>\n<header>\n<h1 id=\"pm-title\">", fp);
-    pm_write_xml_text(fp, title);
+    pm_text_xml_fputs(fp, title, PM_TEXT_XML_LINE);
     fputs(page_body, fp);
     write_svg(fp, d->svg, d->svg_len);
     fputs(page_side, fp);
     fputs("{\"format\":1", fp);
-    write_items(fp, d, buf);
+    if (write_items(fp, d, buf) != PM_OK) {
+        pm_i_free(buf);
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
     write_edges(fp, d, buf);
     write_clusters(fp, d);
     write_run(fp, d);

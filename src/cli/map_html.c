@@ -66,14 +66,7 @@ static char **option_strings(const pm_cli_t *c, size_t *n) {
 pm_err_t pm_cli_map_picture(const pm_cli_map_picture_t *p, pm_svg_stats_t *stats, pm_diag_t *diag) {
     char *svg = NULL;
     size_t len = 0;
-    FILE *mem = open_memstream(&svg, &len);
-    if (!mem) {
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-    }
-    pm_err_t rc = pm_svg_write(mem, p->svg, p->svg_opts, stats, diag);
-    if (fclose(mem) != 0 && !rc) {
-        rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-    }
+    pm_err_t rc = pm_svg_render(p->svg, p->svg_opts, &svg, &len, stats, diag);
     if (!rc && fwrite(svg, 1, len, p->svg_fp) != len) {
         rc = pm_diag_set(diag, PM_EIO, NULL, 0, "cannot write map.svg");
     }

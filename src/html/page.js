@@ -31,18 +31,14 @@
     return q < 0.001 ? q.toExponential(1) : q.toPrecision(2);
   }
   function count(x) { return Number.isInteger(x) ? thousands(x) : x.toFixed(1); }
-  /* the key under which the SVG names an item: its cleaner collapses white space and
-   * controls to one space, trims, and shows ill-formed text as U+FFFD */
-  function svgKey(s) {
-    return s.replace(/[\uD800-\uDBFF](?![\uDC00-\uDFFF])|(?:^|[^\uD800-\uDBFF])[\uDC00-\uDFFF]/g,
-      function (c) { return c.length === 2 ? c[0] + '\uFFFD' : '\uFFFD'; })
-      .replace(/[\u0000-\u0020\u007f-\u009f]+/g, ' ').trim();
-  }
-
   /* ---- the data --------------------------------------------------------------------------- */
   var folded = I.name.map(function (s) { return s.toLowerCase(); });
+  /* the SVG names items by their names cleaned for XML; svg_name lists those that differ */
+  var svgName = I.name.slice();
+  (I.svg_name || []).forEach(function (x) { svgName[x[0]] = x[1]; });
+  function svgKey(i) { return svgName[i]; }
   var byKey = new Map();
-  I.name.forEach(function (s, i) { if (!byKey.has(svgKey(s))) { byKey.set(svgKey(s), i); } });
+  svgName.forEach(function (s, i) { if (!byKey.has(s)) { byKey.set(s, i); } });
   var adj = [];
   for (var i = 0; i < n; i++) { adj.push([]); }
   var hasNeg = false, maxPhi = 0, minQ = Infinity;
@@ -73,8 +69,8 @@
     });
     var ekey = new Map();
     for (k = 0; k < m; k++) {
-      ekey.set(svgKey(I.name[E.a[k]]) + '\u0000' + svgKey(I.name[E.b[k]]), k);
-      ekey.set(svgKey(I.name[E.b[k]]) + '\u0000' + svgKey(I.name[E.a[k]]), k);
+      ekey.set(svgKey(E.a[k]) + '\u0000' + svgKey(E.b[k]), k);
+      ekey.set(svgKey(E.b[k]) + '\u0000' + svgKey(E.a[k]), k);
     }
     svg.querySelectorAll('.edge[data-a]').forEach(function (e) {
       var kk = ekey.get(e.getAttribute('data-a') + '\u0000' + e.getAttribute('data-b'));

@@ -39,6 +39,18 @@
   function svgKey(i) { return svgName[i]; }
   var byKey = new Map();
   svgName.forEach(function (s, i) { if (!byKey.has(s)) { byKey.set(s, i); } });
+  if (!E.expected) {
+    /* unweighted: the same double operations as src/assoc.c, in its order (IEEE 754 rounds
+     * each the same way), from the integer counts */
+    E.expected = []; E.lift = []; E.confidence_ab = []; E.confidence_ba = [];
+    for (var e = 0; e < m; e++) {
+      var da = I.respondents[E.a[e]], db = I.respondents[E.b[e]], dab = E.together[e];
+      E.expected.push(da * db / R.respondents);
+      E.lift.push(R.respondents * dab / (da * db));
+      E.confidence_ab.push(dab / da);
+      E.confidence_ba.push(dab / db);
+    }
+  }
   var adj = [];
   for (var i = 0; i < n; i++) { adj.push([]); }
   var hasNeg = false, maxPhi = 0, minQ = Infinity;

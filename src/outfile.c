@@ -175,12 +175,18 @@ static pm_err_t open_tmp(pm_outdir_t *od, const char *name, char **path, int *sl
                        ? pm_diag_set(diag, PM_EIO, od->dir, 0, "output path too long")
                        : pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
         }
+        /* registered and created under g_commit: a signal's clean-up (pm_outdir_stop, on
+         * another thread) runs before or after both, never between them, so it cannot unlink
+         * the name before the file exists and leave the file behind */
+        pthread_mutex_lock(&g_commit);
         int s = reg_add(t);
         if (s < 0) {
+            pthread_mutex_unlock(&g_commit);
             free(t);
             return pm_diag_set(diag, PM_EUSAGE, NULL, 0, "too many output files at once");
         }
         int f = open(t, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
+        pthread_mutex_unlock(&g_commit);
         if (f >= 0) {
             *path = t;
             *slot = s;

@@ -341,6 +341,8 @@ pm_err_t pm_html_write(FILE *fp, const pm_html_data_t *d, pm_diag_t *diag) {
     }
     write_edges(fp, d, buf);
     write_clusters(fp, d);
+    /* the run on a line of its own: what names this run (input, options, size), as run.json */
+    fputs("}</script>\n<script type=\"application/json\" id=\"pm-run\">{\"format\":1", fp);
     write_run(fp, d);
     fputs("}</script>\n<script>\n", fp);
     fwrite(pm_i_page_js, 1, pm_i_page_js_len, fp);

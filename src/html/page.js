@@ -4,7 +4,8 @@
 (function () {
   'use strict';
   var D = JSON.parse(document.getElementById('pm-data').textContent);
-  var I = D.items, E = D.edges, R = D.run, C = D.clusters;
+  var I = D.items, E = D.edges, C = D.clusters;
+  var R = JSON.parse(document.getElementById('pm-run').textContent).run;
   var n = I.name.length, m = E.a.length;
   var UNIT = R.unit || 'respondents';
   var svg = document.querySelector('#pm-view > svg');
@@ -216,8 +217,8 @@
    * smallest first, both by |phi|; ties by the partner's name in byte order, which is the
    * items' order here */
   function rankKey(phi) {
-    var v = D.run.sign === 'both' ? Math.abs(phi) : phi;
-    if (D.run.sign === 'negative') { v = -v; }
+    var v = R.sign === 'both' ? Math.abs(phi) : phi;
+    if (R.sign === 'negative') { v = -v; }
     return isFinite(v) ? v : (v > 0 ? Infinity : -Infinity);
   }
   function partners(v) {

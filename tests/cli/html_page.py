@@ -7,7 +7,9 @@ References, outside the page's code:
   number (the page's data-v attributes parse to the same doubles as the CSV's numbers);
 - `pairmap pairs INPUT --min-phi F` and edges.csv: which edges a filter keeps;
 - nodes.csv: cluster members and their order (cluster, share descending, name);
-- the DOM Chromium builds, dumped with --dump-dom (HTML parsed by Python's html.parser);
+- the DOM Chromium builds (document.documentElement.outerHTML after a fresh load of each
+  page#fragment, over the DevTools pipe of one headless browser: scripts/cdp_pipe.py),
+  parsed by Python's html.parser;
 - a screenshot checked with PIL (not blank: many colours, much non-white);
 - with networking disabled (a new network namespace, unshare -n) the same DOM.
 Run as `python3 html_page.py PAIRMAP REPO TMPDIR`.
@@ -47,22 +49,33 @@ def cli_csv(args):
     return list(csv.DictReader(io.StringIO(out)))
 
 
-CHROME = shutil.which("chromium")
-FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
-         "--disable-extensions", "--virtual-time-budget=3000"]
+sys.path.insert(0, os.path.join(REPO, "scripts"))
+from cdp_pipe import Browser  # noqa: E402  (one headless chromium for every page load)
+
+BROWSERS = {}
 
 
-def browser(url, extra=(), wrap=()):
-    r = subprocess.run(list(wrap) + [CHROME] + FLAGS + list(extra) + [url],
-                       capture_output=True, timeout=120)
-    if r.returncode != 0:
-        fail("chromium failed on %s: %s" % (url, r.stderr.decode("utf-8", "replace")[-400:]))
-    return r.stdout.decode("utf-8")
+def browser(wrap=()):
+    key = tuple(wrap)
+    if key not in BROWSERS:
+        BROWSERS[key] = Browser(os.path.join(TMP, "chromium-%d" % len(BROWSERS)), wrap)
+        # the viewport of the screenshot: 1280x800 CSS pixels at scale 1
+        BROWSERS[key].call("Emulation.setDeviceMetricsOverride", session=True, width=1280,
+                           height=800, deviceScaleFactor=1, mobile=False)
+    return BROWSERS[key]
+
+
+def url_of(page, fragment=""):
+    return "file://" + urllib.parse.quote(page) + ("#" + fragment if fragment else "")
 
 
 def dump(page, fragment="", wrap=()):
-    url = "file://" + urllib.parse.quote(page) + ("#" + fragment if fragment else "")
-    return browser(url, ["--dump-dom"], wrap)
+    """The DOM after a fresh load of page#fragment and two drawn frames."""
+    b = browser(wrap)
+    b.load(url_of(page, fragment))
+    b.js("new Promise(function (r) { requestAnimationFrame(function () {"
+         " requestAnimationFrame(function () { r(1); }); }); })")
+    return b.dom()
 
 
 class Dom(HTMLParser):
@@ -214,15 +227,19 @@ def main():
 
     # 2. a name with a comma, 3. one with an accent and a phi filter (= partners --min-phi)
     item_view(page, "Apple strudel, warm")
-    d3, _ = item_view(page, "Crème caramel", "&phi=0.2", ["--min-phi", "0.2"])
-    # the filter hides exactly the edges that `pairs --min-phi 0.2` leaves out
-    kept = {(r["item_a"], r["item_b"]) for r in cli_csv(["pairs", DEMO, "--min-phi", "0.2",
+    # the threshold is the phi of its second partner, to the last digit: a pair at the
+    # threshold stays (|phi| >= F, as --min-phi)
+    thr = cli_csv(["partners", DEMO, "--item", "Crème caramel", "--csv", "--top", "0",
+                   "-q"])[1]["phi"]
+    d3, _ = item_view(page, "Crème caramel", "&phi=" + thr, ["--min-phi", thr])
+    # the filter hides exactly the edges that `pairs --min-phi F` leaves out
+    kept = {(r["item_a"], r["item_b"]) for r in cli_csv(["pairs", DEMO, "--min-phi", thr,
                                                           "-q"])}
     shown = {(e["attrs"]["data-a"], e["attrs"]["data-b"]) for e in d3.find(
         lambda e: e["tag"] == "line" and "edge" in classes(e) and "pm-off" not in classes(e))}
     shown = {tuple(sorted(p, key=lambda s: s.encode())) for p in shown}
     check(shown == kept and len(kept) > 0,
-          "phi=0.2: %d edges shown, pairs --min-phi 0.2 keeps %d" % (len(shown), len(kept)))
+          "phi=%s: %d edges shown, pairs --min-phi keeps %d" % (thr, len(shown), len(kept)))
 
     # 4. a cluster with a q filter: members as nodes.csv lists them, in its order
     nodes = list(csv.DictReader(open(os.path.join(out, "nodes.csv"), encoding="utf-8")))
@@ -253,8 +270,8 @@ def main():
 
     # 6. a screenshot at 1280x800, not blank
     shot = os.path.join(TMP, "cafe.png")
-    browser("file://" + urllib.parse.quote(page) + "#item=Espresso",
-            ["--window-size=1280,800", "--screenshot=" + shot])
+    dump(page, "item=Espresso")
+    browser().screenshot(shot)
     from PIL import Image
     im = Image.open(shot).convert("RGB")
     check(im.size == (1280, 800), "screenshot size %s" % (im.size,))
@@ -264,7 +281,35 @@ def main():
     print("screenshot: %.1f%% not white, %d colours" % (100 * nonwhite, colours))
     check(nonwhite > 0.05 and colours > 200, "the screenshot looks blank")
 
+    weighted_both(os.path.join(TMP, "weighted"))
     hostile(os.path.join(TMP, "hostile"))
+
+
+def weighted_both(out):
+    """Weighted input under --sign both: the panel ranks by |phi| and shows the weighted
+    numbers as `partners` does; neg=0 hides the negative partners (the positive rows of the
+    same list remain, in the same order). Weights invented: 1 + (order number mod 5) / 4."""
+    src = os.path.join(TMP, "weighted.csv")
+    with open(DEMO, encoding="utf-8", newline="") as f, \
+            open(src, "w", encoding="utf-8", newline="") as g:
+        r, w = csv.reader(f), csv.writer(g)
+        w.writerow(next(r) + ["weight"])
+        for row in r:
+            w.writerow(row + [str(1 + (int(row[0][1:]) % 5) / 4)])
+    opts = ["--weight-col", "weight", "--sign", "both", "--min-count", "3"]
+    run([PAIRMAP, "map", src, "-o", out, "-q"] + opts)
+    page = os.path.join(out, "map.html")
+    ref = cli_csv(["partners", src, "--item", "Espresso", "--csv", "--top", "0", "-q"] + opts)
+    check(any(float(r["phi"]) < 0 for r in ref) and any(float(r["phi"]) > 0 for r in ref),
+          "weighted --sign both: the reference needs partners of both signs")
+    for frag, want in (("", ref), ("&neg=0", [r for r in ref if float(r["phi"]) > 0])):
+        what = "weighted, --sign both, Espresso" + frag
+        dom = Dom(dump(page, "item=Espresso" + frag))
+        if not ready(dom, what):
+            continue
+        same_partners(dom, "Espresso", want, what)
+        check(highlighted(dom) == {"Espresso"} | {r["partner"] for r in want},
+              "%s: highlighted %s" % (what, sorted(highlighted(dom))))
 
 
 HOSTILE = [
@@ -294,7 +339,7 @@ def hostile(out):
     run([PAIRMAP, "map", src, "-o", out, "-q", "--title", "<script>x</script> title"])
     page = os.path.join(out, "map.html")
     raw = open(page, encoding="utf-8").read()
-    check(raw.count("</script>") == 2, "a name ended a script element early")
+    check(raw.count("</script>") == 3, "a name ended a script element early")  # data, run, code
     for name in (HOSTILE[1], HOSTILE[4]):
         dom = Dom(dump(page, "item=" + urllib.parse.quote(name, safe="")))
         what = "hostile name %r" % name
@@ -327,7 +372,11 @@ def hostile(out):
             check(other in drawn, "%s: %r is not drawn as text" % (what, other))
 
 
-main()
+try:
+    main()
+finally:
+    for b in BROWSERS.values():
+        b.close()
 if FAILS:
     print("%d check(s) failed" % len(FAILS), file=sys.stderr)
     sys.exit(1)

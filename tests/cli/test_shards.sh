@@ -20,6 +20,9 @@ all_outputs() {
     "$PAIRMAP" map "$@" -q -o "$out/map" --restarts 3 >"$out/map.txt" 2>"$out/err" ||
         fail "map $*: exit $?: $(head -c 300 "$out/err")"
     rm -f "$out/map/run.json"
+    # map.html's run block (input, options, size: what run.json says) is its one line that
+    # names the run; the rest of the page must match
+    sed -i '/^<script type="application\/json" id="pm-run">/d' "$out/map/map.html"
     sed -i '/^written /d' "$out/map.txt"
     "$PAIRMAP" pairs "$@" -q >"$out/pairs.csv" || fail "pairs $*"
     "$PAIRMAP" pairs "$@" -q --sign both --min-count 0 --max-q 1 >"$out/pairs_all.csv" ||

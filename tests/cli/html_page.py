@@ -281,8 +281,104 @@ def main():
     print("screenshot: %.1f%% not white, %d colours" % (100 * nonwhite, colours))
     check(nonwhite > 0.05 and colours > 200, "the screenshot looks blank")
 
+    interaction(page)
     weighted_both(os.path.join(TMP, "weighted"))
     hostile(os.path.join(TMP, "hostile"))
+
+
+def key(b, k, code, vk, text=None):
+    """A real key press, as the keyboard sends it (Input.dispatchKeyEvent)."""
+    down = dict(type="keyDown", key=k, code=code, windowsVirtualKeyCode=vk)
+    if text:
+        down["text"] = text
+    b.call("Input.dispatchKeyEvent", session=True, **down)
+    b.call("Input.dispatchKeyEvent", session=True, type="keyUp", key=k, code=code,
+           windowsVirtualKeyCode=vk)
+
+
+FRAMES = ("new Promise(function (r) { requestAnimationFrame(function () {"
+          " requestAnimationFrame(function () { r(1); }); }); })")
+# the view box, the scale of user units to screen pixels (meet) and each label's size on the
+# screen
+VIEW_JS = """(function () {
+  var v = document.getElementById('pm-view'), s = v.querySelector('svg');
+  var b = s.getAttribute('viewBox').split(' ').map(Number);
+  var k = Math.min(v.clientWidth / b[2], v.clientHeight / b[3]);
+  var px = [].map.call(s.querySelectorAll('text.label'), function (t) {
+    return parseFloat(t.getAttribute('font-size')) * k; });
+  return {box: b, scale: k, min: Math.min.apply(null, px), max: Math.max.apply(null, px)};
+})()"""
+
+
+def interaction(page):
+    """Keyboard and mouse, as a person uses the page: every control reached by Tab with a
+    visible focus ring and a name in Chromium's accessibility tree; + and - zoom by 1.25, the
+    arrows pan, the wheel zooms about the pointer; labels stay at least 11 px on the screen
+    (README) and never grow past their drawn size once zoomed in."""
+    b = browser()
+    b.load(url_of(page, "item=Espresso"))
+    b.js(FRAMES)
+    # Tab order: what receives the focus, and whether the focus is drawn
+    seen = {}
+    for _ in range(45):
+        key(b, "Tab", "Tab", 9)
+        who, style, width = b.js(
+            "(function () { var e = document.activeElement, c = getComputedStyle(e);"
+            " return [e.id || (e.getAttribute('data-cluster') ? 'cluster' : '') ||"
+            " (e.getAttribute('data-item') ? 'item' : e.tagName), c.outlineStyle,"
+            " parseFloat(c.outlineWidth)]; })()")
+        seen[who] = seen.get(who, True) and style != "none" and width >= 2
+    for want in ("pm-search", "pm-phi", "pm-q", "pm-clear", "pm-view", "pm-zoom-in",
+                 "pm-zoom-out", "pm-zoom-fit", "cluster", "item"):
+        check(want in seen, "Tab never reaches %s (reached: %s)" % (want, sorted(seen)))
+        check(seen.get(want), "%s has no visible focus ring" % want)
+    b.call("Accessibility.enable", session=True)
+    nodes = b.call("Accessibility.getFullAXTree", session=True)["nodes"]
+    roles = ("button", "textbox", "combobox", "slider", "checkbox", "searchbox")
+    unnamed = [n.get("role", {}).get("value") for n in nodes
+               if n.get("role", {}).get("value") in roles and not n.get("ignored")
+               and not (n.get("name") or {}).get("value")]
+    named = [n for n in nodes if n.get("role", {}).get("value") in roles]
+    check(len(named) >= 10 and not unnamed, "controls without an accessible name: %s" % unnamed)
+    # zoom and pan by keyboard
+    b.js("document.getElementById('pm-view').focus()")
+    v0 = b.js(VIEW_JS)
+    check(v0["min"] >= 11 - 0.01, "labels %.2f px on the screen at the whole view" % v0["min"])
+    key(b, "+", "Equal", 187, "+")
+    b.js(FRAMES)
+    v1 = b.js(VIEW_JS)
+    check(abs(v0["box"][2] / v1["box"][2] - 1.25) < 1e-9, "+ zoomed %r -> %r" % (v0["box"],
+                                                                               v1["box"]))
+    for _ in range(8):
+        key(b, "+", "Equal", 187, "+")
+    b.js(FRAMES)
+    v2 = b.js(VIEW_JS)
+    check(v2["min"] >= 11 - 0.01 and v2["max"] <= 13 + 0.01,  # font-size has 3 decimals
+          "zoomed in: labels %.2f..%.2f px on the screen" % (v2["min"], v2["max"]))
+    key(b, "ArrowRight", "ArrowRight", 39)
+    b.js(FRAMES)
+    v3 = b.js(VIEW_JS)
+    check(v3["box"][0] > v2["box"][0] and v3["box"][1] == v2["box"][1],
+          "ArrowRight did not pan right: %r -> %r" % (v2["box"], v3["box"]))
+    key(b, "0", "Digit0", 48, "0")
+    b.js(FRAMES)
+    check(b.js(VIEW_JS)["box"] == v0["box"], "0 did not show the whole map again")
+    # the wheel: zoom by 1.2 about the pointer (the map point under it stays under it)
+    r = b.js("(function () { var e = document.getElementById('pm-view')"
+             ".getBoundingClientRect(); return [e.left, e.top, e.width, e.height]; })()")
+    x, y = r[0] + r[2] * 0.3, r[1] + r[3] * 0.4
+    under = "(function () { var s = document.querySelector('#pm-view svg');" \
+            " var p = s.createSVGPoint(); p.x = %f; p.y = %f;" \
+            " p = p.matrixTransform(s.getScreenCTM().inverse()); return [p.x, p.y]; })()" % (x, y)
+    p0 = b.js(under)
+    b.call("Input.dispatchMouseEvent", session=True, type="mouseWheel", x=x, y=y, deltaX=0,
+           deltaY=-120)
+    b.js(FRAMES)
+    v4, p1 = b.js(VIEW_JS), b.js(under)
+    check(abs(v0["box"][2] / v4["box"][2] - 1.2) < 1e-9, "the wheel zoomed %r -> %r" % (
+        v0["box"], v4["box"]))
+    check(abs(p0[0] - p1[0]) < 0.5 and abs(p0[1] - p1[1]) < 0.5,
+          "the point under the pointer moved: %r -> %r" % (p0, p1))
 
 
 def weighted_both(out):

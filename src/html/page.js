@@ -33,7 +33,12 @@
   }
   function count(x) { return Number.isInteger(x) ? thousands(x) : x.toFixed(1); }
   /* ---- the data --------------------------------------------------------------------------- */
-  var folded = I.name.map(function (s) { return s.toLowerCase(); });
+  /* letter case folded as --item folds it (src/itemfind.c): ASCII and Latin-1 letters */
+  function fold(t) {
+    return t.replace(/[A-Z\u00C0-\u00D6\u00D8-\u00DE]/g, function (c) {
+      return String.fromCharCode(c.charCodeAt(0) + 32); });
+  }
+  var folded = I.name.map(fold);
   /* the SVG names items by their names cleaned for XML; svg_name lists those that differ */
   var svgName = I.name.slice();
   (I.svg_name || []).forEach(function (x) { svgName[x[0]] = x[1]; });
@@ -151,8 +156,9 @@
     readHash(); syncControls(); render();
   });
 
-  /* ---- finding an item: exact name, then case-insensitive equal, prefix, substring, then
-   * the closest names by edit distance (the rules of --item) ------------------------------ */
+  /* ---- finding an item as you type: names equal ignoring letter case, then those that
+   * start with the text, then those that contain it (each group in byte order), then the
+   * closest by edit distance: the order of --item's suggestions (src/itemfind.c) ---------- */
   function edit(a, b, cap) {
     if (Math.abs(a.length - b.length) > cap) { return cap + 1; }
     var prev = [], cur = [];
@@ -171,7 +177,7 @@
     return prev[b.length];
   }
   function matches(text, limit) {
-    var f = text.trim().toLowerCase(), out = [];
+    var f = fold(text.trim()), out = [];
     if (!f) { return out; }
     var equal = [], pre = [], sub = [];
     for (var j = 0; j < n; j++) {
@@ -195,14 +201,20 @@
     }
     return out.slice(0, limit);
   }
+  /* a name in the fragment, by the rules of --item: the exact name, else the one name equal
+   * to it ignoring letter case, else the one wide-survey item "NAME (question)"; anything
+   * else is not taken (the panel then lists the closest names) */
   function resolve(name) {
     var j = I.name.indexOf(name);
     if (j >= 0) { return j; }
-    var f = name.trim().toLowerCase(), hit = -1, hits = 0;
+    var f = fold(name.trim()), hit = -1, hits = 0;
     for (j = 0; j < n; j++) { if (folded[j] === f) { hit = j; hits++; } }
     if (hits === 1) { return hit; }
-    hits = 0;
-    for (j = 0; j < n; j++) { if (folded[j].indexOf(f) === 0) { hit = j; hits++; } }
+    if (hits > 1) { return -1; }
+    for (j = 0; j < n; j++) {
+      if (folded[j].length > f.length + 3 && folded[j].indexOf(f + ' (') === 0 &&
+          folded[j][folded[j].length - 1] === ')') { hit = j; hits++; }
+    }
     return hits === 1 ? hit : -1;
   }
 
@@ -558,7 +570,17 @@
     }
     /* the view holds the drawing itself: the page shows the title and the clusters (the
      * SVG's own title and legend stay outside the box) */
-    var box = null;
+    vb0 = b;
+    b = fitBox(b);
+    vb0 = b;
+    Z.cx = b[0] + b[2] / 2; Z.cy = b[1] + b[3] / 2;
+    sizeLabels(); /* labels grown to 11 px may reach past the box: fit once more */
+    b = fitBox((svg.getAttribute('viewBox') || '').split(/[\s,]+/).map(Number));
+    vb0 = b;
+    Z.cx = b[0] + b[2] / 2; Z.cy = b[1] + b[3] / 2;
+  }
+  function fitBox(full) {
+    var box = null, b = full.slice();
     svg.querySelectorAll('.node, .label, .region, .cluster-label').forEach(function (e) {
       var r = e.getBBox();
       if (!(r.width > 0 || r.height > 0)) { return; }
@@ -568,15 +590,11 @@
     });
     if (box) {
       var pad = 14;
-      b = [Math.max(b[0], box[0] - pad), Math.max(b[1], box[1] - pad), 0, 0];
-      b[2] = Math.min(box[2] + pad, vb0x(svg) ) - b[0];
-      b[3] = Math.min(box[3] + pad, vb0y(svg)) - b[1];
+      /* the marks, labels grown for legibility included (they may reach past the canvas) */
+      b = [box[0] - pad, box[1] - pad, box[2] - box[0] + 2 * pad, box[3] - box[1] + 2 * pad];
     }
-    vb0 = b;
-    Z.cx = b[0] + b[2] / 2; Z.cy = b[1] + b[3] / 2;
+    return b;
   }
-  function vb0x(s) { var v = s.viewBox.baseVal; return v && v.width ? v.x + v.width : Infinity; }
-  function vb0y(s) { var v = s.viewBox.baseVal; return v && v.height ? v.y + v.height : Infinity; }
   function scale0() {
     return Math.min(view.clientWidth / vb0[2], view.clientHeight / vb0[3]) || 1;
   }
@@ -589,14 +607,14 @@
     svg.setAttribute('viewBox', [Z.cx - w / 2, Z.cy - h / 2, w, h].join(' '));
     if (pending) { return; }
     pending = true;
-    requestAnimationFrame(function () {
-      pending = false;
-      /* labels: at least 11 px on the screen, and no larger than drawn once zoomed in */
-      var g = scale0() * Z.z;
-      labels.forEach(function (x) {
-        var px = Math.min(Math.max(x[1] * g, 11), Math.max(x[1], 11));
-        x[0].setAttribute('font-size', (px / g).toFixed(3));
-      });
+    requestAnimationFrame(function () { pending = false; sizeLabels(); });
+  }
+  /* labels: at least 11 px on the screen, and no larger than drawn once zoomed in */
+  function sizeLabels() {
+    var g = scale0() * Z.z;
+    labels.forEach(function (x) {
+      var px = Math.min(Math.max(x[1] * g, 11), Math.max(x[1], 11));
+      x[0].setAttribute('font-size', (px / g).toFixed(3));
     });
   }
   function zoomAt(f, px, py) {

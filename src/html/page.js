@@ -416,8 +416,8 @@
     ['item', 'share', 'kept pairs'].forEach(function (x) { head.appendChild(el('th', { scope: 'col' }, x)); });
     thead.appendChild(head);
     t.appendChild(thead);
-    var body = el('tbody');
-    list.forEach(function (v) {
+    var body = el('tbody'), LIMIT = 300;
+    list.slice(0, LIMIT).forEach(function (v) {
       var tr = el('tr', { 'data-item': I.name[v] }), th = el('th', { scope: 'row' });
       th.appendChild(chooseButton(v));
       tr.appendChild(th);
@@ -427,6 +427,10 @@
     });
     t.appendChild(body);
     p.appendChild(t);
+    if (list.length > LIMIT) {
+      p.appendChild(el('p', { 'class': 'pm-note' }, 'and ' + thousands(list.length - LIMIT) +
+        ' more with smaller shares (the search finds every item)'));
+    }
   }
 
   /* ---- the cluster list ------------------------------------------------------------------ */

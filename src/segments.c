@@ -386,3 +386,49 @@ cleanup:
     }
     return rc;
 }
+
+pm_err_t pm_segcol_keep(pm_segcol_t *c, const unsigned char *keep) {
+    int32_t *to = pm_i_malloc(c->n_levels ? c->n_levels : 1, sizeof *to);
+    if (!to) {
+        return PM_ENOMEM;
+    }
+    size_t k = 0;
+    for (size_t r = 0; r < c->n_resp; r++) {
+        if (keep[r]) {
+            c->of[k++] = c->of[r];
+        }
+    }
+    c->n_resp = k;
+    for (size_t s = 0; s < c->n_levels; s++) {
+        c->base[s] = 0;
+    }
+    c->none = 0;
+    for (size_t r = 0; r < k; r++) {
+        if (c->of[r] >= 0) {
+            c->base[c->of[r]]++;
+        } else {
+            c->none++;
+        }
+    }
+    /* the levels someone kept holds, in their order */
+    size_t nl = 0;
+    for (size_t s = 0; s < c->n_levels; s++) {
+        if (c->base[s] == 0) {
+            free(c->level[s]);
+            to[s] = -1;
+            continue;
+        }
+        to[s] = (int32_t)nl;
+        c->level[nl] = c->level[s];
+        c->base[nl] = c->base[s];
+        nl++;
+    }
+    c->n_levels = nl;
+    for (size_t r = 0; r < k; r++) {
+        if (c->of[r] >= 0) {
+            c->of[r] = to[c->of[r]];
+        }
+    }
+    free(to);
+    return PM_OK;
+}

@@ -72,11 +72,10 @@ static void tlist(tbuf *b, const char *name, const char *const *v, size_t n, int
     free(s);
 }
 
-static pm_err_t file_sha256(const char *path, char hex[65], pm_diag_t *diag) {
+static pm_err_t file_sha256(const char *path, const char *what, char hex[65], pm_diag_t *diag) {
     FILE *fp = fopen(path, "rb");
     if (!fp) {
-        return pm_diag_set(diag, PM_EIO, path, 0, "cannot open the merge file: %s",
-                           strerror(errno));
+        return pm_diag_set(diag, PM_EIO, path, 0, "cannot open the %s: %s", what, strerror(errno));
     }
     pm_i_sha256 h;
     pm_i_sha256_init(&h);
@@ -88,7 +87,7 @@ static pm_err_t file_sha256(const char *path, char hex[65], pm_diag_t *diag) {
     int err = ferror(fp);
     fclose(fp);
     if (err) {
-        return pm_diag_set(diag, PM_EIO, path, 0, "cannot read the merge file");
+        return pm_diag_set(diag, PM_EIO, path, 0, "cannot read the %s", what);
     }
     unsigned char d[32];
     pm_i_sha256_final(&h, d);
@@ -116,7 +115,7 @@ pm_err_t pm_shard_fingerprint(const pm_input_opts_t *o, char **out, pm_diag_t *d
     tlist(&b, "drop-item", o->drop_items, o->n_drop_items, 0);
     char hex[65] = "";
     if (o->merge_file) {
-        pm_err_t rc = file_sha256(o->merge_file, hex, diag);
+        pm_err_t rc = file_sha256(o->merge_file, "merge file", hex, diag);
         if (rc) {
             free(b.p);
             return rc;
@@ -127,6 +126,17 @@ pm_err_t pm_shard_fingerprint(const pm_input_opts_t *o, char **out, pm_diag_t *d
     tlist(&b, "drop-value", o->drop_values, o->n_drop_values, 0);
     tlist(&b, "skip-col", o->skip_cols, o->n_skip_cols, 0);
     tline(&b, "base", o->format != PM_FORMAT_WIDE ? "" : o->base_all ? "all" : "answered");
+    /* a restriction to some respondents (--only-segment): lines only when given, so that the
+     * fingerprints of unrestricted shards stay as they were */
+    tlist(&b, "only-segment", o->only_segments, o->n_only_segments, 0);
+    if (o->n_only_segments && o->segment_file) {
+        pm_err_t rc = file_sha256(o->segment_file, "segment file", hex, diag);
+        if (rc) {
+            free(b.p);
+            return rc;
+        }
+        tline(&b, "segment-file-sha256", hex);
+    }
     if (b.fail) {
         free(b.p);
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");

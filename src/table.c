@@ -635,3 +635,87 @@ size_t pm_table_nitems(const pm_table_t *t) {
 double pm_table_respondent_weight(const pm_table_t *t, size_t r) {
     return t->weighted ? t->resp_weight[r] : NAN;
 }
+
+/* ==== restriction to some respondents (--only-segment) ===================================== */
+pm_err_t pm_table_keep(pm_table_t *t, const unsigned char *keep, pm_diag_t *diag) {
+    size_t nr = (size_t)t->stats.respondents, ni = t->items.count;
+    uint32_t *newr = pm_i_malloc(nr ? nr : 1, sizeof *newr);
+    int64_t *newi = pm_i_malloc(ni ? ni : 1, sizeof *newi);
+    const char **ids = t->n_anon ? NULL : pm_i_malloc(nr ? nr : 1, sizeof *ids);
+    pm_i_strtab items;
+    pm_i_strtab_init(&items);
+    if (!newr || !newi || (!t->n_anon && !ids)) {
+        free(newr);
+        free(newi);
+        free((void *)ids);
+        return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+    }
+    size_t k = 0;
+    for (size_t r = 0; r < nr; r++) {
+        if (!keep[r]) {
+            newr[r] = UINT32_MAX;
+            continue;
+        }
+        newr[r] = (uint32_t)k;
+        if (ids) {
+            ids[k] = pm_table_respondent(t, r); /* addresses stay valid: the arena is kept */
+        }
+        t->resp_weight[k] = t->resp_weight[r];
+        t->resp_line[k] = t->resp_line[r];
+        t->resp_has_item[k] = t->resp_has_item[r];
+        k++;
+    }
+    for (size_t i = 0; i < ni; i++) {
+        newi[i] = -1;
+    }
+    size_t w = 0;
+    for (size_t i = 0; i < t->n_rows; i++) {
+        uint32_t r = newr[t->row_resp[i]];
+        if (r != UINT32_MAX) {
+            t->row_resp[w] = r;
+            t->row_item[w] = t->row_item[i];
+            newi[t->row_item[i]] = 0; /* used */
+            w++;
+        }
+    }
+    /* the items that still have a row, renumbered in their old order (so that the item
+     * arrays compact in place): the table is the one the kept respondents' rows alone give */
+    pm_err_t rc = PM_OK;
+    for (size_t i = 0; i < ni && rc == PM_OK; i++) {
+        if (newi[i] < 0) {
+            continue;
+        }
+        newi[i] = pm_i_strtab_intern(&items, t->items.str[i], t->items.len[i], NULL);
+        if (newi[i] < 0) {
+            rc = pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+        } else {
+            t->item_cat[newi[i]] = t->item_cat[i];
+            t->item_line[newi[i]] = t->item_line[i];
+        }
+    }
+    if (rc != PM_OK) {
+        pm_i_strtab_destroy(&items);
+        free(newr);
+        free(newi);
+        free((void *)ids);
+        return rc;
+    }
+    for (size_t i = 0; i < w; i++) {
+        t->row_item[i] = (uint32_t)newi[t->row_item[i]];
+    }
+    pm_i_strtab_destroy(&t->items);
+    t->items = items;
+    t->n_rows = w;
+    if (ids) {
+        free((void *)t->rstr);
+        t->rstr = ids;
+    } else {
+        t->n_anon = k;
+    }
+    t->stats.respondents_left_out += nr - k;
+    t->stats.respondents = k;
+    t->respondents_override = 0; /* respondents not in the file have no segment */
+    free(newr);
+    free(newi);
+    return PM_OK;
+}

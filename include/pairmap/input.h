@@ -44,7 +44,13 @@ typedef struct {
     size_t n_drop_values;
     const char *const *skip_cols; /* columns never read as options */
     size_t n_skip_cols;
-    bool base_all;            /* wide: keep respondents who chose nothing in N */
+    bool base_all; /* wide: keep respondents who chose nothing in N */
+    /* --only-segment COL=NAME values and the --segment-file: not used by the reader (the
+     * caller restricts the table, pm_table_keep), only recorded in a count shard's
+     * fingerprint (pm_shard_fingerprint) so that shards of different restrictions never add */
+    const char *const *only_segments;
+    size_t n_only_segments;
+    const char *segment_file;
     const char *display_name; /* name used in messages; NULL: the path ("-" shows "stdin") */
     /* progress while reading: done and total bytes (total = done when the size is unknown) */
     void (*progress)(void *ud, const char *stage, uint64_t done, uint64_t total);
@@ -64,17 +70,18 @@ void pm_input_opts_init(pm_input_opts_t *o);
 
 /* What the reader saw; counted once each, never printed per row. */
 typedef struct {
-    uint64_t lines;           /* physical lines read */
-    uint64_t records;         /* data records (header excluded) */
-    uint64_t rows;            /* respondent-item rows kept (before deduplication) */
-    uint64_t empty_items;     /* rows or lines that named no item */
-    uint64_t dropped_rows;    /* rows removed by --drop-item */
-    uint64_t merged_rows;     /* rows renamed by --merge-file */
-    uint64_t merge_entries;   /* entries in the merge file */
-    uint64_t respondents;     /* distinct respondents seen */
-    uint64_t blank_excluded;  /* wide --base answered: respondents who chose nothing, left out */
-    uint64_t bytes;           /* bytes read */
-    unsigned char sha256[32]; /* SHA-256 of the bytes read */
+    uint64_t lines;          /* physical lines read */
+    uint64_t records;        /* data records (header excluded) */
+    uint64_t rows;           /* respondent-item rows kept (before deduplication) */
+    uint64_t empty_items;    /* rows or lines that named no item */
+    uint64_t dropped_rows;   /* rows removed by --drop-item */
+    uint64_t merged_rows;    /* rows renamed by --merge-file */
+    uint64_t merge_entries;  /* entries in the merge file */
+    uint64_t respondents;    /* distinct respondents seen */
+    uint64_t blank_excluded; /* wide --base answered: respondents who chose nothing, left out */
+    uint64_t respondents_left_out; /* removed by pm_table_keep (--only-segment) */
+    uint64_t bytes;                /* bytes read */
+    unsigned char sha256[32];      /* SHA-256 of the bytes read */
     /* For notes the caller shows (the library prints nothing). */
     uint64_t header_line;  /* the line read as the header; 0: none (--no-header) */
     char header_text[128]; /* that line as shown in a message (escaped, shortened) */
@@ -104,6 +111,13 @@ const pm_input_stats_t *pm_table_stats(const pm_table_t *t);
  * Afterwards the table has no rows (pm_table_nrows is 0): for callers done with them, e.g.
  * once the incidence is built, to reuse the memory as scratch. */
 size_t pm_table_take_rows(pm_table_t *t, uint32_t **resp, uint32_t **item);
+/* Restricts the table to the respondents r with keep[r] (keep has pm_table_nrespondents()
+ * entries): the other respondents and their rows are removed, the kept ones renumbered in
+ * their order, items left without a row removed, --respondents dropped (respondents not in
+ * the file are not kept). The table is then the one a file of the kept respondents' rows
+ * gives; stats stay those of the file read, with respondents the kept count and
+ * respondents_left_out the others. Errors: PM_ENOMEM (the table is then unchanged). */
+pm_err_t pm_table_keep(pm_table_t *t, const unsigned char *keep, pm_diag_t *diag);
 /* Waits for a SHA-256 left to finish in the background (defer_hash) and sets stats.sha256.
  * PM_OK at once when there is none; PM_EIO (diag set) when the file changed while it was read
  * or could not be read again for the hash. */

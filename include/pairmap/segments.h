@@ -57,6 +57,11 @@ typedef struct {
 pm_err_t pm_segcol_read(const pm_table_t *t, const pm_segcol_src_t *src, pm_segcol_t *out,
                         pm_diag_t *diag);
 void pm_segcol_destroy(pm_segcol_t *c);
+/* Restricts column c to the respondents r with keep[r] (c->n_resp entries; pm_table_keep with
+ * the same mask renumbers the table alike): of[] compacted, bases and `none` recounted, levels
+ * no kept respondent holds removed (the others keep their order). Errors: PM_ENOMEM (c is
+ * then unchanged). */
+pm_err_t pm_segcol_keep(pm_segcol_t *c, const unsigned char *keep);
 
 /* The first number in a label (NaN when it holds none): "16-24" 16, "€1,000-1,999" 1000,
  * "5 to 9 km" 5, "2.5 kg" 2.5. */

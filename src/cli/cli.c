@@ -18,6 +18,7 @@
      PM_CMD_SEGMENTS)
 #define FROM_COUNTS (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS)
 #define SCORE (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS)
+#define SEGMENTED (SCORE | PM_CMD_SEGMENTS)
 
 typedef struct {
     const char *name;
@@ -77,9 +78,10 @@ static const opt_def OPTS[] = {
     {"csv", 0, 0, 0, PM_CMD_PARTNERS},
     {"sort", 0, 1, 0, PM_CMD_PAIRS | PM_CMD_ITEMS},
     /* segments */
-    {"segment-col", 0, 1, 1, PM_CMD_SEGMENTS},
-    {"segment-file", 0, 1, 0, PM_CMD_SEGMENTS},
-    {"segment-levels", 0, 1, 1, PM_CMD_SEGMENTS},
+    {"segment-col", 0, 1, 1, SEGMENTED},
+    {"segment-file", 0, 1, 0, ALL},
+    {"segment-levels", 0, 1, 1, SEGMENTED},
+    {"only-segment", 0, 1, 1, ALL},
     {"csv-raw", 0, 0, 0,
      PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_SEGMENTS},
     {"help", 'h', 0, 0, ALL},
@@ -462,6 +464,8 @@ int pm_cli_input_opts(const pm_cli_t *c, pm_input_opts_t *o) {
     o->columns = pm_cli_all(c, "columns", &o->n_columns);
     o->drop_values = pm_cli_all(c, "drop-value", &o->n_drop_values);
     o->skip_cols = pm_cli_all(c, "skip-col", &o->n_skip_cols);
+    o->only_segments = pm_cli_all(c, "only-segment", &o->n_only_segments);
+    o->segment_file = pm_cli_get(c, "segment-file");
     static const char *const bases[] = {"answered", "all", NULL};
     int b;
     if (pm_cli_choice(c, "base", bases, 0, &b)) {
@@ -602,6 +606,13 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     *table = NULL;
     *inc = NULL;
     if (pm_cli_get(c, "from-counts")) {
+        size_t a, b;
+        pm_cli_all(c, "segment-col", &a);
+        pm_cli_all(c, "only-segment", &b);
+        if (a + b) { /* a shard holds pair counts, not who is in which segment */
+            return pm_cli_usage_error(c, "--segment-col and --only-segment need the rows; "
+                                         "they do not apply to --from-counts");
+        }
         return pm_cli_load_counts(c, table, inc, t_read);
     }
     pm_input_opts_t io;
@@ -629,6 +640,13 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     pm_cli_progress_end(c);
     if (rc) {
         return pm_cli_fail(&d);
+    }
+    /* segments: read once here, --only-segment applied to the table before the incidence */
+    int src = pm_cli_segments_load(c, *table);
+    if (src) {
+        pm_table_free(*table);
+        *table = NULL;
+        return src;
     }
     rc = pm_incidence_build_threads(*table, io.threads, inc, &d);
     if (rc) {

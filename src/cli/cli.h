@@ -15,6 +15,7 @@
 #include "pairmap/input.h"
 #include "pairmap/mapwrite.h"
 #include "pairmap/outfile.h"
+#include "pairmap/segments.h"
 #include "pairmap/select.h"
 #include "pairmap/svgmap.h"
 
@@ -102,6 +103,20 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
  * and serve as the counting's scratch memory: t has no rows afterwards. */
 int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
                  const pm_select_opts_t *sel, pm_pairs_t **pairs);
+
+/* ---- segments (src/cli/cli_segments.c) ---- */
+/* Reads the run's segment columns (--segment-col, and the columns --only-segment names) from
+ * the input or --segment-file, and applies --only-segment to table t (pm_table_keep). Called
+ * by pm_cli_load before the incidence is built. Returns 0 or the exit status (reported). */
+int pm_cli_segments_load(const pm_cli_t *c, pm_table_t *t);
+/* The --segment-col columns of the run, in the order given, restricted to the kept
+ * respondents (respondent r of the table and of the incidence); *n = 0 when none. */
+const pm_segcol_t *pm_cli_segcols(size_t *n);
+void pm_cli_segments_free(void);
+/* Help blocks: --segment-col and --segment-levels (map, pairs, partners); --segment-file and
+ * --only-segment (every command that reads rows). */
+extern const char pm_cli_segment_help[];
+extern const char pm_cli_only_help[];
 
 /* Progress on stderr (a terminal only, and not with --quiet). */
 void pm_cli_progress(void *ud, const char *stage, uint64_t done, uint64_t total);

@@ -106,7 +106,7 @@ static int parse_part(const pm_cli_t *c, uint64_t *k, uint64_t *m) {
 int pm_cmd_count(int argc, char **argv) {
     pm_cli_t c;
     static char full[8192];
-    snprintf(full, sizeof full, "%s%s", help, pm_cli_input_help);
+    snprintf(full, sizeof full, "%s%s%s", help, pm_cli_input_help, pm_cli_only_help);
     int rc = pm_cli_parse(&c, "count", PM_CMD_COUNT, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;

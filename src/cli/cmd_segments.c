@@ -40,8 +40,6 @@ static const char help[] =
     "                        row of a respondent) or of --segment-file (repeatable: each\n"
     "                        column on its own). An empty cell: no segment (left out of that\n"
     "                        column's figures, counted in a note)\n"
-    "  --segment-file FILE   CSV with a header, first column the respondent id, holding the\n"
-    "                        segment columns (any format, lines with --id-col 1 included)\n"
     "  --segment-levels COL=A,B,C   the order of COL's segments (then COL is ordered).\n"
     "                        Otherwise labels that hold a number come first, by their first\n"
     "                        number (16-24 before 65 and over; 1,000 is a thousand; 'under 25'\n"
@@ -52,19 +50,6 @@ static const char help[] =
     "  --csv-raw             names as they are (default: a leading apostrophe before = + - @)\n"
     "Weighted input (--weight-col) is not supported by this command yet.\n"
     "\n";
-
-/* The --segment-levels value for column col, or NULL. */
-static const char *levels_for(const pm_cli_t *c, const char *col) {
-    size_t n;
-    const char *const *v = pm_cli_all(c, "segment-levels", &n);
-    size_t cl = strlen(col);
-    for (size_t i = 0; i < n; i++) {
-        if (strncmp(v[i], col, cl) == 0 && v[i][cl] == '=') {
-            return v[i] + cl + 1;
-        }
-    }
-    return NULL;
-}
 
 static void num(double v) {
     if (!isnan(v)) {
@@ -128,41 +113,16 @@ static void notes(const pm_cli_t *c, const pm_segcol_t *col, const pm_segstats_t
                               : "");
 }
 
-static int one_column(const pm_cli_t *c, const pm_table_t *t, const pm_incidence_t *inc,
-                      const char *col, pm_segcol_t *sc, pm_segstats_t *st) {
-    const char *file = pm_cli_get(c, "segment-file");
-    pm_segcol_src_t src = {0};
-    src.path = file ? file : c->input;
-    src.is_input = file == NULL;
-    src.id_col = file ? NULL : pm_cli_get(c, "id-col");
-    src.column = col;
-    src.levels = levels_for(c, col);
-    if (!file) {
-        const char *sep = pm_cli_get(c, "sep");
-        src.sep = sep && strcmp(sep, "tab") == 0 ? '\t' : sep ? sep[0] : 0;
-    }
-    pm_diag_t d;
-    pm_diag_clear(&d);
-    if (pm_segcol_read(t, &src, sc, &d)) {
-        return pm_cli_fail(&d);
-    }
-    if (pm_segstats_run(inc, sc, st, &d)) {
-        pm_segcol_destroy(sc);
-        return pm_cli_fail(&d);
-    }
-    return 0;
-}
-
 int pm_cmd_segments(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s", help, pm_cli_input_help);
+    snprintf(full, sizeof full, "%s%s%s", help, pm_cli_input_help, pm_cli_only_help);
     int rc = pm_cli_parse(&c, "segments", PM_CMD_SEGMENTS, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
     }
     size_t ncol;
-    const char *const *cols = pm_cli_all(&c, "segment-col", &ncol);
+    pm_cli_all(&c, "segment-col", &ncol);
     if (ncol == 0) {
         return pm_cli_usage_error(&c, "give --segment-col COL");
     }
@@ -174,17 +134,20 @@ int pm_cmd_segments(int argc, char **argv) {
     if ((rc = pm_cli_load(&c, &t, &inc, NULL)) != 0) {
         return rc;
     }
-    /* every column read and computed before the first byte of output: an error leaves
-     * standard output empty */
-    pm_segcol_t *sc = calloc(ncol, sizeof *sc);
+    /* every column computed before the first byte of output: an error leaves standard
+     * output empty */
+    const pm_segcol_t *sc = pm_cli_segcols(&ncol);
     pm_segstats_t *st = calloc(ncol, sizeof *st);
     size_t done = 0;
-    if (!sc || !st) {
+    if (!st) {
         fputs("pairmap: out of memory\n", stderr);
         rc = 4;
     }
     for (; rc == 0 && done < ncol; done++) {
-        if ((rc = one_column(&c, t, inc, cols[done], &sc[done], &st[done])) != 0) {
+        pm_diag_t d;
+        pm_diag_clear(&d);
+        if (pm_segstats_run(inc, &sc[done], &st[done], &d)) {
+            rc = pm_cli_fail(&d);
             break;
         }
     }
@@ -197,12 +160,11 @@ int pm_cmd_segments(int argc, char **argv) {
             rows(&sc[i], &st[i], inc, pm_cli_csv_flags(&c));
         }
     }
-    for (size_t i = 0; sc && st && i < done; i++) {
+    for (size_t i = 0; st && i < done; i++) {
         pm_segstats_destroy(&st[i]);
-        pm_segcol_destroy(&sc[i]);
     }
-    free(sc);
     free(st);
+    pm_cli_segments_free();
     pm_incidence_free(inc);
     pm_table_free(t);
     return rc ? rc : pm_cli_close_stdout();

@@ -41,7 +41,7 @@ static const char help[] =
 int pm_cmd_unfold(int argc, char **argv) {
     pm_cli_t c;
     static char full[8192];
-    snprintf(full, sizeof full, "%s%s", help, pm_cli_input_help);
+    snprintf(full, sizeof full, "%s%s%s", help, pm_cli_input_help, pm_cli_only_help);
     int rc = pm_cli_parse(&c, "unfold", PM_CMD_UNFOLD, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
@@ -55,6 +55,10 @@ int pm_cmd_unfold(int argc, char **argv) {
     pm_table_t *t = NULL;
     if (pm_input_read(c.input, &io, &t, &d)) {
         return pm_cli_fail(&d);
+    }
+    if ((rc = pm_cli_segments_load(&c, t)) != 0) {
+        pm_table_free(t);
+        return rc;
     }
     size_t nr = pm_table_nrespondents(t), nrows = pm_table_nrows(t), ni = pm_table_nitems(t);
     size_t *start = NULL, *order = NULL, *seen = NULL;

@@ -11,6 +11,7 @@
 /* the command-line parser lives in the executable, not the library: compile it in */
 #include "../../src/cli/cli.c"
 #include "../../src/cli/cli_counts.c"
+#include "../../src/cli/cli_segments.c"
 
 /* the harnesses, with their libFuzzer entry points renamed */
 #define LLVMFuzzerInitialize fuzz_input_init

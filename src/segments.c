@@ -80,6 +80,13 @@ typedef struct {
     long idc, segc;     /* 0-based columns */
     int header_done;
     uint64_t unknown;
+    /* the previous row's id and label (a respondent's rows usually follow each other): the
+     * same bytes again skip the look-ups */
+    const char *last_id, *last_v;
+    size_t last_il, last_vl;
+    int64_t last_resp, last_lab;
+    char *keep; /* copies of last_id and last_v (the record's fields do not outlive it) */
+    size_t keep_cap;
 } reader;
 
 /* Column spec s (a header name or a 1-based number) in header r; -1 when absent. */
@@ -133,20 +140,39 @@ static pm_err_t record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     size_t il = r->len[rd->idc], vl = r->len[rd->segc];
     trim(&id, &il);
     trim(&v, &vl);
-    int64_t resp = pm_i_strtab_find(&rd->ids, id, il);
+    int same_id = rd->last_id && il == rd->last_il && memcmp(id, rd->last_id, il) == 0;
+    int64_t resp = same_id ? rd->last_resp : pm_i_strtab_find(&rd->ids, id, il);
     if (resp < 0) {
         rd->unknown += !rd->src->is_input; /* the input's rows are all in the table */
         return PM_OK;
     }
-    if (!pm_i_utf8_valid(v, vl)) {
-        char b[96];
-        return pm_diag_set(diag, PM_EDATA, rd->file, (long)r->line,
-                           "invalid UTF-8 in segment '%s'; save the file as UTF-8",
-                           pm_i_shown(v, vl, b, sizeof b));
-    }
+    int same_v = rd->last_v && vl == rd->last_vl && memcmp(v, rd->last_v, vl) == 0;
     int64_t lab = -1;
-    if (vl > 0 && (lab = pm_i_strtab_intern(&rd->labels, v, vl, NULL)) < 0) {
-        return pm_diag_set(diag, PM_ENOMEM, rd->file, 0, "out of memory");
+    if (same_v) {
+        lab = rd->last_lab; /* checked and interned on an earlier row */
+    } else {
+        if (!pm_i_utf8_valid(v, vl)) {
+            char b[96];
+            return pm_diag_set(diag, PM_EDATA, rd->file, (long)r->line,
+                               "invalid UTF-8 in segment '%s'; save the file as UTF-8",
+                               pm_i_shown(v, vl, b, sizeof b));
+        }
+        if (vl > 0 && (lab = pm_i_strtab_intern(&rd->labels, v, vl, NULL)) < 0) {
+            return pm_diag_set(diag, PM_ENOMEM, rd->file, 0, "out of memory");
+        }
+    }
+    if (!same_id || !same_v) {
+        if (pm_i_grow((void **)&rd->keep, &rd->keep_cap, il + vl + 1, 1)) {
+            return pm_diag_set(diag, PM_ENOMEM, rd->file, 0, "out of memory");
+        }
+        memcpy(rd->keep, id, il);
+        memcpy(rd->keep + il, v, vl);
+        rd->last_id = rd->keep;
+        rd->last_v = rd->keep + il;
+        rd->last_il = il;
+        rd->last_vl = vl;
+        rd->last_resp = resp;
+        rd->last_lab = lab;
     }
     if (rd->line[resp]) {
         if (!rd->src->is_input) {
@@ -379,6 +405,7 @@ cleanup:
     free(rank);
     free(rd.lab);
     free(rd.line);
+    pm_i_free(rd.keep);
     pm_i_strtab_destroy(&rd.ids);
     pm_i_strtab_destroy(&rd.labels);
     if (rc != PM_OK) {

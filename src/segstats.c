@@ -11,7 +11,9 @@
 #include <string.h>
 
 #include "pairmap/assoc.h"
+#include "pairmap/cooccur.h"
 #include "pairmap/segments.h"
+#include "parallel.h"
 #include "util.h"
 
 void pm_segstats_destroy(pm_segstats_t *s) {
@@ -62,18 +64,30 @@ static double lnpoch(double a, double x) {
 }
 
 /* ==== the beta-binomial fit ================================================================= */
+/* The log-likelihood is a sum over items, cut into FIT_CHUNKS fixed ranges of items that the
+ * threads share; the partial sums are added in chunk order, so the result does not depend on
+ * the number of threads. */
+#define FIT_CHUNKS 64
 typedef struct {
     const pm_segstats_t *s;
     const pm_segcol_t *c;
+    unsigned threads;
+    double m;
+    int with_const;
+    double *lpn; /* [levels] lnpoch(m, n_k): the same for every item */
+    double part[FIT_CHUNKS];
 } fit_ctx;
 
-/* Log-likelihood of the cells at prior strength m: sum over cells of
+/* Log-likelihood of the cells of chunk ch at prior strength f->m: sum over cells of
  * log C(n, x) + log B(x + m mu, n - x + m (1 - mu)) - log B(m mu, m (1 - mu)), over items with
  * 0 < mu < 1 (an item chosen by none or by all of them carries no information on m). */
-static double loglik_c(const fit_ctx *f, double m, int with_const) {
+static int ll_chunk(void *ud, size_t ch, unsigned th) {
+    (void)th;
+    fit_ctx *f = ud;
     const pm_segstats_t *s = f->s;
-    double ll = 0;
-    for (size_t i = 0; i < s->n_items; i++) {
+    size_t i0 = s->n_items * ch / FIT_CHUNKS, i1 = s->n_items * (ch + 1) / FIT_CHUNKS;
+    double ll = 0, m = f->m;
+    for (size_t i = i0; i < i1; i++) {
         double mu = s->mu[i];
         if (!(mu > 0 && mu < 1)) {
             continue;
@@ -86,17 +100,36 @@ static double loglik_c(const fit_ctx *f, double m, int with_const) {
             }
             /* log B(x + a, n - x + b) - log B(a, b) as Pochhammer terms: no cancellation of
              * two large log-betas when m is large */
-            ll += lnpoch(a, x) + lnpoch(b, n - x) - lnpoch(a + b, n);
-            if (with_const) {
+            ll += lnpoch(a, x) + lnpoch(b, n - x) - f->lpn[k];
+            if (f->with_const) {
                 ll += gsl_sf_lnchoose((unsigned)n, (unsigned)x);
             }
         }
+    }
+    f->part[ch] = ll;
+    return 0;
+}
+
+static double loglik_c(fit_ctx *f, double m, int with_const) {
+    f->m = m;
+    f->with_const = with_const;
+    for (size_t k = 0; k < f->s->n_levels; k++) {
+        f->lpn[k] = lnpoch(m, (double)f->c->base[k]);
+    }
+    if (f->threads < 2 || pm_i_parallel(f->threads, FIT_CHUNKS, ll_chunk, f) != 0) {
+        for (size_t ch = 0; ch < FIT_CHUNKS; ch++) {
+            ll_chunk(f, ch, 0);
+        }
+    }
+    double ll = 0;
+    for (size_t ch = 0; ch < FIT_CHUNKS; ch++) {
+        ll += f->part[ch];
     }
     return ll;
 }
 
 /* Without the binomial terms, which do not depend on m: for the search. */
-static double loglik(const fit_ctx *f, double m) {
+static double loglik(fit_ctx *f, double m) {
     return loglik_c(f, m, 0);
 }
 
@@ -104,36 +137,94 @@ static double neg_ll_log(double lm, void *v) {
     return -loglik(v, exp(lm));
 }
 
-/* Maximises the log-likelihood over log m: a grid of 61 points over [log M_MIN, log M_MAX],
- * then GSL's Brent minimiser inside the best point's neighbours. At a grid end the optimum
- * is that bound (reported in m_at). */
-static void fit_m(pm_segstats_t *s, const pm_segcol_t *c) {
-    fit_ctx f = {s, c};
-    enum { G = 241 }; /* ten points a decade */
-    double lo = log(PM_SEG_M_MIN), hi = log(PM_SEG_M_MAX), best = -INFINITY;
-    int bi = 0;
+/* The search grid: G points, 22 a decade, over [log M_MIN, log M_MAX]. Its points are
+ * evaluated lazily: every COARSE-th first, then the fine points around the best coarse one,
+ * climbing while the best lies at the edge of what has been evaluated, so that the fine grid's
+ * best point near the coarse optimum is found with about a fifth of the evaluations. */
+enum { G = 241, COARSE = 6 };
+typedef struct {
+    fit_ctx *f;
+    double lo, hi;
     double val[G];
-    for (int g = 0; g < G; g++) {
-        double lm = lo + (hi - lo) * g / (G - 1);
-        val[g] = loglik(&f, exp(lm));
-        if (val[g] > best) {
-            best = val[g];
-            bi = g;
+    unsigned char done[G];
+} grid_t;
+
+static double grid_lm(const grid_t *g, int i) {
+    return g->lo + (g->hi - g->lo) * i / (G - 1);
+}
+
+static double grid_at(grid_t *g, int i) {
+    if (!g->done[i]) {
+        g->val[i] = loglik(g->f, exp(grid_lm(g, i)));
+        g->done[i] = 1;
+    }
+    return g->val[i];
+}
+
+/* the best evaluated point after the coarse pass and the climb (ties: the lower point) */
+static int grid_best(grid_t *g) {
+    int bi = 0;
+    for (int i = 0; i < G; i += COARSE) {
+        if (grid_at(g, i) > grid_at(g, bi)) {
+            bi = i;
         }
     }
-    double lm = lo + (hi - lo) * bi / (G - 1);
+    int lo = bi - COARSE < 0 ? 0 : bi - COARSE, hi = bi + COARSE > G - 1 ? G - 1 : bi + COARSE;
+    for (;;) {
+        for (int i = lo; i <= hi; i++) {
+            if (grid_at(g, i) > grid_at(g, bi)) {
+                bi = i;
+            }
+        }
+        if (bi == lo && lo > 0) {
+            lo = lo - COARSE < 0 ? 0 : lo - COARSE;
+        } else if (bi == hi && hi < G - 1) {
+            hi = hi + COARSE > G - 1 ? G - 1 : hi + COARSE;
+        } else {
+            return bi;
+        }
+    }
+}
+
+/* Maximises the log-likelihood over log m: the grid above, then GSL's Brent minimiser inside
+ * the best point's neighbours. At a grid end the optimum is that bound (reported in m_at). */
+static pm_err_t fit_m(pm_segstats_t *s, const pm_segcol_t *c, unsigned threads) {
+    grid_t *g = pm_i_calloc(1, sizeof *g);
+    fit_ctx f = {s,  c, threads, 0, 0, pm_i_malloc(s->n_levels ? s->n_levels : 1, sizeof(double)),
+                 {0}};
+    if (!g || !f.lpn) {
+        pm_i_free(g);
+        pm_i_free(f.lpn);
+        return PM_ENOMEM;
+    }
+    g->f = &f;
+    g->lo = log(PM_SEG_M_MIN);
+    g->hi = log(PM_SEG_M_MAX);
+    double lo = g->lo, hi = g->hi;
+    int bi = grid_best(g);
+    double best = grid_at(g, bi);
+    double lm = grid_lm(g, bi);
     if (bi == 0 || bi == G - 1) {
         /* at a grid end: the optimum may still lie between the end and its neighbour (the
          * likelihood is flat towards m -> infinity); a golden-section search there */
         int nb = bi == 0 ? 1 : G - 2;
-        double a = lo + (hi - lo) * (bi < nb ? bi : nb) / (G - 1), b = a + (hi - lo) / (G - 1);
+        double a = grid_lm(g, bi < nb ? bi : nb), b = a + (hi - lo) / (G - 1);
         const double r = 0.6180339887498949;
-        for (int it = 0; it < 80; it++) {
-            double c1 = b - r * (b - a), c2 = a + r * (b - a);
-            if (-neg_ll_log(c1, &f) >= -neg_ll_log(c2, &f)) {
+        double c1 = b - r * (b - a), c2 = a + r * (b - a);
+        double f1 = loglik(&f, exp(c1)), f2 = loglik(&f, exp(c2));
+        for (int it = 0; it < 48; it++) { /* the bracket to 0.618^48: 1e-11 of a step */
+            if (f1 >= f2) {
                 b = c2;
+                c2 = c1;
+                f2 = f1;
+                c1 = b - r * (b - a);
+                f1 = loglik(&f, exp(c1));
             } else {
                 a = c1;
+                c1 = c2;
+                f1 = f2;
+                c2 = a + r * (b - a);
+                f2 = loglik(&f, exp(c2));
             }
         }
         double mid = 0.5 * (a + b), v = loglik(&f, exp(mid));
@@ -152,11 +243,11 @@ static void fit_m(pm_segstats_t *s, const pm_segcol_t *c) {
         s->m_at = 0;
     }
     if (bi > 0 && bi < G - 1) {
-        double a = lo + (hi - lo) * (bi - 1) / (G - 1), b = lo + (hi - lo) * (bi + 1) / (G - 1);
+        double a = grid_lm(g, bi - 1), b = grid_lm(g, bi + 1);
         gsl_function F = {neg_ll_log, &f};
         gsl_min_fminimizer *mn = gsl_min_fminimizer_alloc(gsl_min_fminimizer_brent);
-        if (mn && gsl_min_fminimizer_set_with_values(mn, &F, lm, -val[bi], a, -val[bi - 1], b,
-                                                     -val[bi + 1]) == GSL_SUCCESS) {
+        if (mn && gsl_min_fminimizer_set_with_values(mn, &F, lm, -best, a, -grid_at(g, bi - 1), b,
+                                                     -grid_at(g, bi + 1)) == GSL_SUCCESS) {
             for (int it = 0; it < 100; it++) {
                 if (gsl_min_fminimizer_iterate(mn) != GSL_SUCCESS) {
                     break;
@@ -181,6 +272,9 @@ static void fit_m(pm_segstats_t *s, const pm_segcol_t *c) {
     }
     s->m = s->m_at > 0 ? PM_SEG_M_MAX : s->m_at < 0 ? PM_SEG_M_MIN : exp(lm);
     s->loglik = loglik_c(&f, s->m, 1);
+    pm_i_free(g);
+    pm_i_free(f.lpn);
+    return PM_OK;
 }
 
 /* ==== per cell ============================================================================== */
@@ -201,6 +295,24 @@ static void cell(pm_segstats_t *s, const pm_segcol_t *c, size_t k, size_t i, uin
         s->p[j] = m.p;
         s->test[j] = m.test == PM_TEST_FISHER ? 1 : 2;
     }
+}
+
+/* The cells in CELL_CHUNKS fixed ranges shared by the threads (each cell on its own). */
+#define CELL_CHUNKS 64
+typedef struct {
+    pm_segstats_t *s;
+    const pm_segcol_t *c;
+    const uint64_t *tot;
+} cell_job;
+
+static int cell_chunk(void *ud, size_t ch, unsigned th) {
+    (void)th;
+    cell_job *j = ud;
+    size_t n = j->s->n_levels * j->s->n_items, ni = j->s->n_items;
+    for (size_t x = n * ch / CELL_CHUNKS; x < n * (ch + 1) / CELL_CHUNKS; x++) {
+        cell(j->s, j->c, x / ni, x % ni, j->tot[x % ni]);
+    }
+    return 0;
 }
 
 /* Cochran-Armitage test of a linear trend in item i's share over the ordered levels, scores
@@ -245,8 +357,8 @@ static pm_err_t alloc_all(pm_segstats_t *s, size_t k, size_t ni) {
     return ok ? PM_OK : PM_ENOMEM;
 }
 
-pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, pm_segstats_t *s,
-                         pm_diag_t *diag) {
+pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, unsigned threads,
+                         pm_segstats_t *s, pm_diag_t *diag) {
     memset(s, 0, sizeof *s);
     size_t k = c->n_levels, ni = inc->n_items;
     s->n_levels = k;
@@ -280,10 +392,18 @@ pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, pm_seg
         s->mu[i] = s->B ? (double)tot[i] / (double)s->B : NAN;
         s->cells_fitted += (tot[i] > 0 && tot[i] < s->B) ? k : 0;
     }
-    fit_m(s, c);
-    for (size_t j = 0; j < k; j++) {
-        for (size_t i = 0; i < ni; i++) {
-            cell(s, c, j, i, tot[i]);
+    if (threads == 0) {
+        threads = pm_cpu_count();
+    }
+    if (fit_m(s, c, threads) != PM_OK) {
+        free(tot);
+        pm_segstats_destroy(s);
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
+    cell_job cj = {s, c, tot};
+    if (threads < 2 || pm_i_parallel(threads, CELL_CHUNKS, cell_chunk, &cj) != 0) {
+        for (size_t ch = 0; ch < CELL_CHUNKS; ch++) {
+            cell_chunk(&cj, ch, 0);
         }
     }
     for (size_t i = 0; i < ni; i++) {

@@ -103,6 +103,14 @@ pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
         fprintf(fp, "  <key id=\"%s\" for=\"%s\" attr.name=\"%s\" attr.type=\"%s\"/>\n", KEYS[k].id,
                 KEYS[k].domain, KEYS[k].name, KEYS[k].type);
     }
+    for (size_t j = 0; j < map->n_seg; j++) {
+        for (int k = 0; k < 2; k++) {
+            fprintf(fp, "  <key id=\"item.%s.%zu\" for=\"node\" attr.name=\"%s (",
+                    k ? "top_index" : "top_segment", j + 1, k ? "top_index" : "top_segment");
+            pm_write_xml_text(fp, map->segcols[j].column);
+            fprintf(fp, ")\" attr.type=\"%s\"/>\n", k ? "double" : "string");
+        }
+    }
     fputs("  <graph id=\"G\" edgedefault=\"undirected\">\n", fp);
     if (map->title) {
         fputs("    <data key=\"map.title\">", fp);
@@ -122,6 +130,17 @@ pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
         data_uint(fp, "item.cluster", map->clusters->cluster[v]);
         data_num(fp, "item.x", map->xy[2 * v]);
         data_num(fp, "item.y", map->xy[2 * v + 1]);
+        for (size_t j = 0; j < map->n_seg; j++) {
+            size_t lv = 0;
+            double ix = 0;
+            if (pm_segstats_top(&map->segstats[j], i, &lv, &ix)) {
+                char key[48];
+                snprintf(key, sizeof key, "item.top_segment.%zu", j + 1);
+                data_str(fp, key, map->segcols[j].level[lv]);
+                snprintf(key, sizeof key, "item.top_index.%zu", j + 1);
+                data_num(fp, key, ix);
+            }
+        }
         fputs("    </node>\n", fp);
         if ((v & 1023) == 0 && ferror(fp)) {
             break;

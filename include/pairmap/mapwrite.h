@@ -12,6 +12,7 @@
 #include "pairmap/assoc.h"
 #include "pairmap/incidence.h"
 #include "pairmap/network.h"
+#include "pairmap/segments.h"
 #include "pairmap/select.h"
 
 #ifdef __cplusplus
@@ -44,6 +45,11 @@ typedef struct {
     /* [clusters->n_clusters] optional: the clusters' names (pm_cluster_name); NULL: made here
      * by pm_cluster_name from the items' names */
     const char *const *cluster_name;
+    /* optional (n_seg 0: none): the segment columns of --segment-col and their tables over
+     * the items of inc, for map.graphml's top segment of every vertex */
+    size_t n_seg;
+    const pm_segcol_t *segcols;
+    const pm_segstats_t *segstats;
 } pm_map_t;
 
 /* nodes.csv: one row per vertex, rows ordered by cluster, then share descending, then name
@@ -55,6 +61,10 @@ pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag);
 /* map.graphml: GraphML 1.0, undirected, node ids n0.. in vertex order, typed keys with distinct
  * ids (v_* for nodes, e_* for edges, g_* for the graph): node data name, category,
  * respondents, share, cluster, x, y; edge data together, phi, lift, jaccard, q_value, weight.
+ * With segment columns (n_seg > 0), per column j (1-based) also node keys item.top_segment.j
+ * ("top_segment (COL)", string: the segment with the highest shrunk index of the vertex, the
+ * first on ties) and item.top_index.j ("top_index (COL)", double: that index); no data where
+ * no index is defined.
  * Numbers are printed as in the CSV files (NaN and infinities as NaN, INF, -INF, the
  * xs:double spellings). Names and the title go through the one XML text cleaner
  * (pm_text_xml_write in text.h: bytes that are not UTF-8, controls and non-characters become

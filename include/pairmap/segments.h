@@ -9,6 +9,7 @@
 #include <stdbool.h>
 #include <stddef.h>
 #include <stdint.h>
+#include <stdio.h>
 
 #include "pairmap/error.h"
 #include "pairmap/incidence.h"
@@ -89,11 +90,34 @@ typedef struct {
 
 /* Computes the table of column c over incidence inc (unweighted). m is fitted by maximum
  * likelihood over every (item, segment) cell of items with 0 < chosen < B, on log m in
- * [PM_SEG_M_MIN, PM_SEG_M_MAX] (a grid, then GSL's Brent minimiser). *out owned by the caller
- * (pm_segstats_destroy). Errors: PM_ENOMEM. Cost O(rows + levels * items * grid). */
-pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, pm_segstats_t *out,
-                         pm_diag_t *diag);
+ * [PM_SEG_M_MIN, PM_SEG_M_MAX]: a grid of 241 points (22 a decade) evaluated coarse to fine
+ * (every 6th point, then the fine points around the best, climbing while the best is at the
+ * edge), then GSL's Brent minimiser. The likelihood and the cells are computed on `threads`
+ * threads (0: every core); the result is the same for any number. *out owned by the caller
+ * (pm_segstats_destroy). Errors: PM_ENOMEM. Cost O(rows + levels * items * evaluations),
+ * about 60 evaluations. */
+pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, unsigned threads,
+                         pm_segstats_t *out, pm_diag_t *diag);
 void pm_segstats_destroy(pm_segstats_t *s);
+
+/* The CSV header of the segments table (contract, DESIGN.md). */
+#define PM_SEGMENTS_HEADER                                                                         \
+    "attribute,segment,item,category,base,chose,share,share_low,share_high,shrunk,shrunk_low,"     \
+    "shrunk_high,index,test,p_value,q_value,trend_z,trend_p"
+
+/* The shrunk index of item at level: shrunk / mu (NaN when mu is 0). */
+double pm_segstats_index(const pm_segstats_t *s, size_t level, size_t item);
+
+/* The level with the highest shrunk index of item into *level and that index into *index
+ * (ties: the first level); 0 when no index is defined (the item chosen by nobody with a
+ * segment), 1 otherwise. O(levels). */
+int pm_segstats_top(const pm_segstats_t *s, size_t item, size_t *level, double *index);
+
+/* Writes the rows of column col (table s over the items of inc) as CSV, without the header:
+ * one row per (segment, item), segment-major, numbers round-trip, undefined ones empty. flags:
+ * pm_write_csv_field's (write.h). PM_EIO when the stream has an error. */
+pm_err_t pm_segstats_write_csv(FILE *fp, const pm_segcol_t *col, const pm_segstats_t *s,
+                               const pm_incidence_t *inc, unsigned flags);
 
 #ifdef __cplusplus
 }

@@ -13,6 +13,7 @@
 #include "cli.h"
 #include "pairmap/mapwrite.h"
 #include "pairmap/network.h"
+#include "map_segments.h"
 #include "pairmap/outfile.h"
 #include "pairmap/svgmap.h"
 #include "pairmap/write.h"
@@ -132,8 +133,9 @@ typedef struct {
     size_t n_negative;
     double t_read, t_count, t_measures, t_graph, t_write;
     pm_svg_stats_t svg;
-    int iterations;     /* the layout's, resolved */
-    unsigned csv_flags; /* --csv-raw */
+    pm_cli_mapseg_t seg; /* --segment-col: segments.csv, segments.svg */
+    int iterations;      /* the layout's, resolved */
+    unsigned csv_flags;  /* --csv-raw */
     /* edges.csv and the share intervals of nodes.csv need no clusters: with more than one
      * thread they are done on a thread of their own while the graph stage runs */
     struct {
@@ -157,6 +159,7 @@ static void early_join(run_state *s) {
 
 static void state_free(run_state *s) {
     early_join(s);
+    pm_cli_mapseg_free(&s->seg);
     free(s->early.items);
     free(s->early.lo);
     free(s->early.hi);
@@ -419,6 +422,7 @@ static pm_err_t write_run_json(FILE *fp, const pm_cli_t *c, const net_opts *no,
     }
     pm_json_end_array(&j);
 
+    pm_cli_mapseg_json(&s->seg, &j);
     pm_json_begin_object(&j, "svg");
     pm_json_uint(&j, "items_drawn", s->svg.drawn);
     pm_json_uint(&j, "items_left_out", s->svg.left_out);
@@ -542,6 +546,9 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         .title = no->title,
         .csv_flags = s->csv_flags,
         .cluster_name = (const char *const *)s->cluster_name,
+        .n_seg = s->seg.n,
+        .segcols = s->seg.cols,
+        .segstats = s->seg.stats,
     };
     const char **cats = malloc((s->n ? s->n : 1) * sizeof *cats);
     double *slo = malloc((s->n ? s->n : 1) * sizeof *slo);
@@ -673,13 +680,38 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         }
         return pm_cli_fail(&d);
     }
+    pm_segsvg_data_t pic = {.n = s->n,
+                            .item = s->item,
+                            .cluster = s->cluster_int,
+                            .share = s->share,
+                            .name = (const char *const *)s->inc->name,
+                            .n_clusters = s->cl->n_clusters,
+                            .cluster_name = (const char *const *)s->cluster_name,
+                            .max_q = sel->max_q,
+                            .draw = (size_t)no->draw,
+                            .title = no->title,
+                            .respondents = s->inc->N};
+    if ((rc = pm_cli_mapseg_write(&s->seg, s->od, s->inc, pic, s->csv_flags, &d)) != PM_OK) {
+        return pm_cli_fail(&d);
+    }
     s->t_write = pm_cli_now() - t0;
     FILE *fp;
     rc = pm_outdir_create(s->od, files[4], &fp, &d);
     if (!rc) {
-        static const char *const with_html[] = {"map.graphml", "map.svg",   "map.html",
-                                                "edges.csv",   "nodes.csv", "run.json"};
-        rc = write_run_json(fp, c, no, sel, s, no->html ? with_html : files, no->html ? 6 : 5, &d);
+        const char *names[8];
+        size_t nf = 0;
+        static const char *const base[] = {"map.graphml", "map.svg",   "map.html",
+                                           "edges.csv",   "nodes.csv", "run.json"};
+        for (size_t k = 0; k < 6; k++) {
+            if (k != 2 || no->html) {
+                names[nf++] = base[k];
+            }
+        }
+        if (s->seg.n) {
+            names[nf++] = "segments.csv";
+            names[nf++] = "segments.svg";
+        }
+        rc = write_run_json(fp, c, no, sel, s, names, nf, &d);
         pm_err_t rc2 = pm_outdir_finish(s->od, fp, rc ? NULL : &d);
         if (!rc) {
             rc = rc2;
@@ -780,8 +812,18 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
                "keep all; --draw and --width/--height change it)",
                s->svg.left_out);
     }
-    printf("\nwritten       %s/: map.graphml, map.svg,%s edges.csv, nodes.csv, run.json\n",
-           pm_cli_shown(no->dir), no->html ? " map.html," : "");
+    if (s->seg.n) {
+        printf("\nsegments      %zu of %zu items in segments.svg, %zu segments of %zu column%s",
+               s->seg.svg.rows_drawn, s->n, s->seg.svg.segments_drawn, s->seg.n,
+               s->seg.n == 1 ? "" : "s");
+        if (s->seg.svg.rows_left_out) {
+            printf(" (the items whose segments differ most; --draw changes it, segments.csv "
+                   "holds all)");
+        }
+    }
+    printf("\nwritten       %s/: map.graphml, map.svg,%s edges.csv, nodes.csv, run.json%s\n",
+           pm_cli_shown(no->dir), no->html ? " map.html," : "",
+           s->seg.n ? ", segments.csv, segments.svg" : "");
 }
 
 /* ---- command ----------------------------------------------------------------------------------
@@ -811,8 +853,9 @@ static int net_options(const pm_cli_t *c, net_opts *no) {
 int pm_cmd_map(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s%s%s%s\n%s%s", help, pm_cli_input_help, pm_cli_only_help,
-             pm_cli_segment_help, pm_cli_csv_help, pm_cli_select_help, pm_cli_edge_help);
+    snprintf(full, sizeof full, "%s%s%s%s%s\n%s%s%s", help, pm_cli_input_help, pm_cli_only_help,
+             pm_cli_segment_help, pm_cli_csv_help, pm_cli_select_help, pm_cli_edge_help,
+             pm_cli_mapseg_help);
     int rc = pm_cli_parse(&c, "map", PM_CMD_MAP, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
@@ -820,7 +863,8 @@ int pm_cmd_map(int argc, char **argv) {
     pm_select_opts_t sel;
     net_opts no;
     unsigned th;
-    if (pm_cli_select_opts(&c, &sel) || net_options(&c, &no) || pm_cli_threads(&c, &th)) {
+    if (pm_cli_select_opts(&c, &sel) || net_options(&c, &no) || pm_cli_threads(&c, &th) ||
+        pm_cli_mapseg_check(&c)) {
         return 1;
     }
     pm_input_opts_t io;
@@ -859,6 +903,9 @@ int pm_cmd_map(int argc, char **argv) {
         goto done;
     }
     s.t_graph = pm_cli_now() - t0;
+    if ((rc = pm_cli_mapseg_run(&s.seg, s.inc, th)) != 0) {
+        goto done;
+    }
     rc = write_files(&c, &no, &sel, &s);
     while (atomic_load(&g_stop_sig)) {
         pause(); /* a signal came during the commit: its thread reports it and exits */

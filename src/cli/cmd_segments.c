@@ -51,48 +51,6 @@ static const char help[] =
     "Weighted input (--weight-col) is not supported by this command yet.\n"
     "\n";
 
-static void num(double v) {
-    if (!isnan(v)) {
-        pm_write_number(stdout, v);
-    }
-}
-
-static void rows(const pm_segcol_t *col, const pm_segstats_t *s, const pm_incidence_t *inc,
-                 unsigned flags) {
-    static const char *const tests[] = {"", "fisher", "chi2"};
-    for (size_t k = 0; k < s->n_levels; k++) {
-        for (size_t i = 0; i < s->n_items; i++) {
-            size_t j = k * s->n_items + i;
-            pm_write_csv_field(stdout, col->column, flags);
-            fputc(',', stdout);
-            pm_write_csv_field(stdout, col->level[k], flags);
-            fputc(',', stdout);
-            pm_write_csv_field(stdout, inc->name[i], flags);
-            fputc(',', stdout);
-            pm_write_csv_field(stdout, inc->category[i] ? inc->category[i] : "", flags);
-            printf(",%llu,%llu,", (unsigned long long)col->base[k],
-                   (unsigned long long)s->chose[j]);
-            num(col->base[k] ? (double)s->chose[j] / (double)col->base[k] : NAN);
-            const double v[] = {s->share_low[j],   s->share_high[j],
-                                s->shrunk[j],      s->shrunk_low[j],
-                                s->shrunk_high[j], s->mu[i] > 0 ? s->shrunk[j] / s->mu[i] : NAN};
-            for (size_t t = 0; t < sizeof v / sizeof v[0]; t++) {
-                fputc(',', stdout);
-                num(v[t]);
-            }
-            printf(",%s,", tests[s->test[j]]);
-            num(s->p[j]);
-            fputc(',', stdout);
-            num(s->q[j]);
-            fputc(',', stdout);
-            num(s->trend_z[i]);
-            fputc(',', stdout);
-            num(s->trend_p[i]);
-            fputc('\n', stdout);
-        }
-    }
-}
-
 static void notes(const pm_cli_t *c, const pm_segcol_t *col, const pm_segstats_t *s) {
     pm_cli_note(c,
                 "note: segments of '%s': %zu (%s); %llu respondents with a segment, %llu "
@@ -146,18 +104,16 @@ int pm_cmd_segments(int argc, char **argv) {
     for (; rc == 0 && done < ncol; done++) {
         pm_diag_t d;
         pm_diag_clear(&d);
-        if (pm_segstats_run(inc, &sc[done], &st[done], &d)) {
+        if (pm_segstats_run(inc, &sc[done], 0, &st[done], &d)) {
             rc = pm_cli_fail(&d);
             break;
         }
     }
     if (rc == 0) {
-        fputs("attribute,segment,item,category,base,chose,share,share_low,share_high,shrunk,"
-              "shrunk_low,shrunk_high,index,test,p_value,q_value,trend_z,trend_p\n",
-              stdout);
+        fputs(PM_SEGMENTS_HEADER "\n", stdout);
         for (size_t i = 0; i < ncol; i++) {
             notes(&c, &sc[i], &st[i]);
-            rows(&sc[i], &st[i], inc, pm_cli_csv_flags(&c));
+            pm_segstats_write_csv(stdout, &sc[i], &st[i], inc, pm_cli_csv_flags(&c));
         }
     }
     for (size_t i = 0; st && i < done; i++) {

@@ -572,10 +572,11 @@ static void subtitle(const seg_ctx *c, char *buf, size_t size) {
     pm_i_svg_fmt_count(n, sizeof n, d->respondents);
     size_t k = (size_t)snprintf(buf, size, "%s respondents \xc2\xb7 ", n);
     if (c->nrow < d->n) {
-        k += (size_t)snprintf(buf + k, size - k,
-                              "the %zu of %zu items whose segments differ most, then the most chosen (all in "
-                              "segments.csv)",
-                              c->nrow, d->n);
+        k += (size_t)snprintf(
+            buf + k, size - k,
+            "the %zu of %zu items whose segments differ most, then the most chosen (all in "
+            "segments.csv)",
+            c->nrow, d->n);
     } else {
         k += (size_t)snprintf(buf + k, size - k, "%zu items", d->n);
     }

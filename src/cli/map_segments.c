@@ -15,12 +15,12 @@ const char pm_cli_mapseg_help[] =
     "  segments.svg the items as rows grouped by the map's clusters, the segments as columns\n"
     "               headed by their base; each cell shows the shrunk share, tinted by the\n"
     "               shrunk index from blue (1/4 or less) through light grey (1: as everywhere)\n"
-    "               to vermillion (4 or more), on log2(index) / 2; outlined where q <=\n"
-    "               --max-q; ordered columns get a trend column (Cochran-Armitage z; bold where\n"
-    "               its Benjamini-Hochberg q over the column's items is <= --max-q). At most\n"
-    "               --draw rows (default 60, and 20,000 cells): those whose segments differ\n"
-    "               most (largest |log index| to 3 decimals), then the most chosen; at most 40\n"
-    "               segments per column\n";
+    "               to vermillion (4 or more), on log2(index) / 2; outlined where q is at\n"
+    "               most --max-q; ordered columns get a trend column (Cochran-Armitage z;\n"
+    "               bold where its Benjamini-Hochberg q over the column's items is at most\n"
+    "               the same --max-q). Rows: at most --draw (default 60, and 20,000 cells),\n"
+    "               the items whose segments differ most (largest |log index| to 3\n"
+    "               decimals), then the most chosen; at most 40 segments per column\n";
 
 int pm_cli_mapseg_check(const pm_cli_t *c) {
     size_t n = 0;

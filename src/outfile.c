@@ -17,15 +17,20 @@
 #include "util.h"
 
 #define PATH_CAP 4096
-#define MAX_CREATED_DIRS 32
 
 /* ---- the registry the signal handler reads ------------------------------------------------ */
 /* A slot is published by writing the path first and setting used last, so a handler never
  * sees a half-written path. unlink(2) and rmdir(2) are async-signal-safe. */
 static char g_tmp[PM_OUTDIR_MAX_FILES * 2][PATH_CAP];
 static volatile sig_atomic_t g_tmp_used[PM_OUTDIR_MAX_FILES * 2];
-static char g_dirs[MAX_CREATED_DIRS][PATH_CAP];
-static volatile sig_atomic_t g_dirs_used[MAX_CREATED_DIRS];
+/* The directories a run created: mkdir -p creates a chain, every level below the first one it
+ * made, so the deepest path and the length of the first created level say it all (any depth). */
+static char g_made[PATH_CAP];
+static size_t g_made_from; /* length of the first level created */
+static volatile sig_atomic_t g_made_used;
+/* The lock file of DIR (pm_outdir_lock), removed on every way out, signals included. */
+static char g_lock[PATH_CAP];
+static volatile sig_atomic_t g_lock_used;
 
 static int reg_add(const char *path) {
     for (int i = 0; i < PM_OUTDIR_MAX_FILES * 2; i++) {
@@ -44,15 +49,36 @@ static void reg_drop(int slot) {
     }
 }
 
-static int dir_add(const char *path) {
-    for (int i = 0; i < MAX_CREATED_DIRS; i++) {
-        if (!g_dirs_used[i]) {
-            memcpy(g_dirs[i], path, strlen(path) + 1);
-            g_dirs_used[i] = 1;
-            return i;
-        }
+/* rmdir of the created chain, deepest first, stopping at the first that is not empty: only
+ * async-signal-safe calls (rmdir), on a copy of the path. */
+static void remove_made_dirs(void) {
+    if (!g_made_used) {
+        return;
     }
-    return -1;
+    char buf[PATH_CAP];
+    size_t n = 0;
+    while (n < PATH_CAP - 1 && g_made[n]) {
+        buf[n] = g_made[n];
+        n++;
+    }
+    buf[n] = '\0';
+    int saved = errno;
+    while (n >= g_made_from && n > 0) {
+        if (rmdir(buf) != 0 && errno != ENOENT) {
+            break; /* not empty: the levels above are not ours to empty */
+        }
+        while (n > 0 && buf[n - 1] != '/') {
+            n--;
+        }
+        while (n > 1 && buf[n - 1] == '/') {
+            n--; /* "a//b" */
+        }
+        if (n == 0 || buf[n - 1] == '/') {
+            break; /* reached the root or a relative path's first level */
+        }
+        buf[n] = '\0';
+    }
+    errno = saved;
 }
 
 void pm_outdir_remove_temporaries(void) {
@@ -61,11 +87,10 @@ void pm_outdir_remove_temporaries(void) {
             (void)unlink(g_tmp[i]);
         }
     }
-    for (int i = MAX_CREATED_DIRS - 1; i >= 0; i--) {
-        if (g_dirs_used[i]) {
-            (void)rmdir(g_dirs[i]); /* only succeeds when empty */
-        }
+    if (g_lock_used) {
+        (void)unlink(g_lock);
     }
+    remove_made_dirs();
 }
 
 /* The rename phase holds g_commit; pm_outdir_stop (the CLI's signal thread) takes it, so a
@@ -100,8 +125,8 @@ typedef struct {
 
 struct pm_outdir {
     char *dir;
-    int created[MAX_CREATED_DIRS]; /* registry slots of directories we created, in order */
-    size_t n_created;
+    int made;   /* created directories (g_made) to remove when nothing is committed */
+    int locked; /* holds DIR's lock file (g_lock) */
     outfile f[PM_OUTDIR_MAX_FILES];
     size_t nf;
     int committed;
@@ -137,9 +162,11 @@ static pm_err_t make_dirs(pm_outdir_t *od, pm_diag_t *diag) {
         p[i] = '\0';
         if (i == len || p[i - 1] != '/') {
             if (mkdir(p, 0777) == 0) {
-                int slot = od->n_created < MAX_CREATED_DIRS ? dir_add(p) : -1;
-                if (slot >= 0) {
-                    od->created[od->n_created++] = slot;
+                if (!od->made && len < PATH_CAP && !g_made_used) {
+                    memcpy(g_made, od->dir, len + 1); /* the deepest level, set once */
+                    g_made_from = i;
+                    g_made_used = 1;
+                    od->made = 1;
                 }
             } else if (errno != EEXIST) {
                 pm_err_t rc = pm_diag_set(
@@ -333,6 +360,59 @@ static void sync_dir(const char *dir) {
     }
 }
 
+/* PM_TEST_NO_LINK=1: every backup link fails, as on a file system without hard links.
+ * PM_TEST_COMMIT_FAIL=k: the k-th rename (1-based) fails with EIO. Both for the roll-back tests. */
+static int test_env_is(const char *name, size_t k) {
+    const char *v = getenv(name);
+    return v && *v && (size_t)strtoul(v, NULL, 10) == k;
+}
+
+enum { BAK_NONE = 0, BAK_LINK = 1, BAK_RENAMED = 2 };
+
+/* Keeps what stands at each final name (a file, a symlink, anything but a directory) under a
+ * backup name: a hard link where the file system allows, else the entry itself renamed away,
+ * so that a roll-back can put back exactly what was there (linkat without
+ * AT_SYMLINK_FOLLOW links a symlink itself, not its target). Runs with the commit lock held. */
+static pm_err_t take_backups(pm_outdir_t *od, char **bak, int *kind, pm_diag_t *diag) {
+    for (size_t i = 0; i < od->nf; i++) {
+        struct stat st;
+        if (lstat(od->f[i].final, &st) != 0 || S_ISDIR(st.st_mode)) {
+            continue; /* nothing to keep (a directory makes the rename fail below) */
+        }
+        char tail[64];
+        snprintf(tail, sizeof tail, ".%ld.bak", (long)getpid());
+        bak[i] = join(od->dir, ".", od->f[i].name, tail);
+        if (!bak[i]) {
+            return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+        }
+        (void)unlink(bak[i]);
+        if (!test_env_is("PM_TEST_NO_LINK", 1) &&
+            linkat(AT_FDCWD, od->f[i].final, AT_FDCWD, bak[i], 0) == 0) {
+            kind[i] = BAK_LINK;
+        } else if (rename(od->f[i].final, bak[i]) == 0) {
+            kind[i] = BAK_RENAMED; /* the name is empty until the new file takes it */
+        } else {
+            return pm_diag_set(diag, PM_EIO, od->f[i].final, 0,
+                               "cannot keep the earlier file for a roll-back: %s; nothing was "
+                               "replaced",
+                               strerror(errno));
+        }
+    }
+    return PM_OK;
+}
+
+/* Puts every backup back under its name (the new files taken away first), newest state
+ * undone: files 0..done-1 were replaced. */
+static void roll_back(pm_outdir_t *od, char **bak, const int *kind, size_t done) {
+    for (size_t j = 0; j < od->nf; j++) {
+        if (kind[j] != BAK_NONE) {
+            (void)rename(bak[j], od->f[j].final); /* over the new file, or into the gap */
+        } else if (j < done) {
+            (void)unlink(od->f[j].final); /* nothing was there before */
+        }
+    }
+}
+
 pm_err_t pm_outdir_commit(pm_outdir_t *od, pm_diag_t *diag) {
     for (size_t i = 0; i < od->nf; i++) {
         if (od->f[i].state != F_DONE) {
@@ -340,32 +420,11 @@ pm_err_t pm_outdir_commit(pm_outdir_t *od, pm_diag_t *diag) {
                                od->f[i].final, 0, "output not complete: nothing was replaced");
         }
     }
-    /* hard links to the files about to be replaced, so a failure part way can undo */
     char *bak[PM_OUTDIR_MAX_FILES] = {0};
-    int bslot[PM_OUTDIR_MAX_FILES];
-    pm_err_t rc = PM_OK;
-    for (size_t i = 0; i < od->nf; i++) {
-        bslot[i] = -1;
-        struct stat st;
-        if (lstat(od->f[i].final, &st) != 0 || !S_ISREG(st.st_mode)) {
-            continue; /* nothing to keep (a non-file target makes the rename fail below) */
-        }
-        char tail[64];
-        snprintf(tail, sizeof tail, ".%ld.bak", (long)getpid());
-        bak[i] = join(od->dir, ".", od->f[i].name, tail);
-        if (!bak[i]) {
-            rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-            goto undo_links;
-        }
-        bslot[i] = reg_add(bak[i]);
-        (void)unlink(bak[i]);
-        if (link(od->f[i].final, bak[i]) != 0) {
-            reg_drop(bslot[i]);
-            bslot[i] = -1;
-            free(bak[i]);
-            bak[i] = NULL; /* no hard links here: replace without a way back */
-        }
-    }
+    int kind[PM_OUTDIR_MAX_FILES] = {0};
+    /* the backups, the renames and any roll-back all happen with the stop signals held back
+     * and the commit lock taken (pm_outdir_stop waits for it), so no signal finds a file
+     * renamed away */
     sigset_t block, old;
     sigemptyset(&block);
     sigaddset(&block, SIGINT);
@@ -374,10 +433,14 @@ pm_err_t pm_outdir_commit(pm_outdir_t *od, pm_diag_t *diag) {
     sigaddset(&block, SIGQUIT);
     pthread_sigmask(SIG_BLOCK, &block, &old);
     pthread_mutex_lock(&g_commit);
+    pm_err_t rc = take_backups(od, bak, kind, diag);
     size_t done = 0;
-    for (; done < od->nf; done++) {
+    for (; !rc && done < od->nf; done++) {
         test_pause(done);
-        if (rename(od->f[done].tmp, od->f[done].final) != 0) {
+        int fail = test_env_is("PM_TEST_COMMIT_FAIL", done + 1)
+                       ? (errno = EIO, 1)
+                       : rename(od->f[done].tmp, od->f[done].final);
+        if (fail != 0) {
             int e = errno;
             rc = pm_diag_set(diag, PM_EIO, od->f[done].final, 0,
                              "cannot put the output in place: %s; the earlier files were "
@@ -387,13 +450,7 @@ pm_err_t pm_outdir_commit(pm_outdir_t *od, pm_diag_t *diag) {
         }
     }
     if (rc) {
-        for (size_t j = 0; j < done; j++) { /* undo, newest first would not matter: distinct */
-            if (bak[j]) {
-                (void)rename(bak[j], od->f[j].final);
-            } else {
-                (void)unlink(od->f[j].final);
-            }
-        }
+        roll_back(od, bak, kind, done);
     } else {
         for (size_t j = 0; j < od->nf; j++) {
             od->f[j].state = F_COMMITTED;
@@ -403,17 +460,151 @@ pm_err_t pm_outdir_commit(pm_outdir_t *od, pm_diag_t *diag) {
         od->committed = 1;
         atomic_store(&g_replaced, 1);
     }
-    sync_dir(od->dir);
-    pthread_mutex_unlock(&g_commit);
-    pthread_sigmask(SIG_SETMASK, &old, NULL);
-undo_links:
     for (size_t i = 0; i < od->nf; i++) {
         if (bak[i]) {
-            (void)unlink(bak[i]); /* after a roll-back it no longer exists: harmless */
-            reg_drop(bslot[i]);
+            if (!rc || kind[i] == BAK_LINK) {
+                (void)unlink(bak[i]); /* after a roll-back by rename it no longer exists */
+            }
             free(bak[i]);
         }
     }
+    sync_dir(od->dir);
+    pthread_mutex_unlock(&g_commit);
+    pthread_sigmask(SIG_SETMASK, &old, NULL);
+    return rc;
+}
+
+/* ---- the lock of DIR --------------------------------------------------------------------------
+ */
+#define LOCK_NAME ".pairmap.lock"
+
+/* Reads "PID HOST" from a lock file; 0 when it does not hold that. */
+static int read_lock(const char *path, long *pid, char *host, size_t hsize) {
+    int fd = open(path, O_RDONLY | O_CLOEXEC | O_NOFOLLOW);
+    if (fd < 0) {
+        return 0;
+    }
+    char buf[512];
+    ssize_t n = read(fd, buf, sizeof buf - 1);
+    close(fd);
+    if (n <= 0) {
+        return 0;
+    }
+    buf[n] = '\0';
+    char *end = NULL;
+    errno = 0;
+    long p = strtol(buf, &end, 10);
+    if (errno || end == buf || p <= 0 || *end != ' ') {
+        return 0;
+    }
+    size_t h = strcspn(end + 1, "\n");
+    if (h == 0 || h >= hsize || end[1 + h] != '\n') {
+        return 0;
+    }
+    memcpy(host, end + 1, h);
+    host[h] = '\0';
+    *pid = p;
+    return 1;
+}
+
+static void this_host(char *host, size_t size) {
+    if (gethostname(host, size) != 0) {
+        snprintf(host, size, "localhost");
+    }
+    host[size - 1] = '\0';
+    for (char *c = host; *c; c++) {
+        if ((unsigned char)*c <= ' ' || *c == 0x7f) {
+            *c = '_'; /* one line, one field */
+        }
+    }
+}
+
+/* Creates the lock exclusively with our pid and host; 0, or the errno. */
+static int create_lock(const char *path, const char *host) {
+    int fd = open(path, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
+    if (fd < 0) {
+        return errno;
+    }
+    memcpy(g_lock, path, strlen(path) + 1);
+    g_lock_used = 1; /* from here on every way out removes it */
+    char line[400];
+    int n = snprintf(line, sizeof line, "%ld %s\n", (long)getpid(), host);
+    int e = 0;
+    if (n <= 0 || write(fd, line, (size_t)n) != (ssize_t)n) {
+        e = errno ? errno : EIO;
+    }
+    if (close(fd) != 0 && !e) {
+        e = errno;
+    }
+    if (e) {
+        (void)unlink(path);
+        g_lock_used = 0;
+    }
+    return e;
+}
+
+pm_err_t pm_outdir_lock(pm_outdir_t *od, char *note, size_t note_size, pm_diag_t *diag) {
+    if (note_size) {
+        note[0] = '\0';
+    }
+    if (od->locked || g_lock_used) {
+        return pm_diag_set(diag, PM_EINTERNAL, od->dir, 0, "a lock is held already");
+    }
+    char *path = join(od->dir, LOCK_NAME, "", "");
+    if (!path) {
+        return pm_diag_set(diag, PM_EIO, od->dir, 0, "output path too long");
+    }
+    char host[256];
+    this_host(host, sizeof host);
+    pm_err_t rc = PM_OK;
+    for (int attempt = 0; attempt < 2; attempt++) {
+        int e = create_lock(path, host);
+        if (e == 0) {
+            od->locked = 1;
+            break;
+        }
+        if (e != EEXIST) {
+            rc = pm_diag_set(diag, PM_EIO, path, 0, "cannot create the lock file: %s", strerror(e));
+            break;
+        }
+        long pid = 0;
+        char other[256];
+        int known = read_lock(path, &pid, other, sizeof other);
+        int dead = known && strcmp(other, host) == 0 && kill((pid_t)pid, 0) != 0 && errno == ESRCH;
+        if (!dead || attempt > 0) {
+            rc = known ? pm_diag_set(diag, PM_EIO, od->dir, 0,
+                                     "the output directory is in use by another run (process "
+                                     "%ld on %s holds %s); wait for it, or remove the lock if "
+                                     "that run is gone",
+                                     pid, other, LOCK_NAME)
+                       : pm_diag_set(diag, PM_EIO, od->dir, 0,
+                                     "the output directory is locked (%s exists but names no "
+                                     "process); remove it if no run uses the directory",
+                                     LOCK_NAME);
+            break;
+        }
+        /* stale: its process is gone. Renamed aside first, so that of two runs finding it only
+         * one takes it away; the other then finds the winner's lock. */
+        char tail[64];
+        snprintf(tail, sizeof tail, ".stale.%ld", (long)getpid());
+        char *aside = join(od->dir, LOCK_NAME, tail, "");
+        long pid2 = 0;
+        char other2[256];
+        if (aside && rename(path, aside) == 0) {
+            if (read_lock(aside, &pid2, other2, sizeof other2) && pid2 == pid &&
+                strcmp(other2, other) == 0) {
+                (void)unlink(aside);
+                snprintf(note, note_size,
+                         "removed a stale lock of process %ld on %s, which no longer runs", pid,
+                         other);
+            } else { /* another run's fresh lock: put it back */
+                (void)linkat(AT_FDCWD, aside, AT_FDCWD, path, 0);
+                (void)unlink(aside);
+            }
+        }
+        free(aside);
+    }
+    free(path);
     return rc;
 }
 
@@ -433,12 +624,15 @@ void pm_outdir_free(pm_outdir_t *od) {
         free(f->tmp);
         free(f->final);
     }
-    for (size_t i = od->n_created; i-- > 0;) {
-        int s = od->created[i];
+    if (od->locked) {
+        (void)unlink(g_lock);
+        g_lock_used = 0;
+    }
+    if (od->made) {
         if (!od->committed) {
-            (void)rmdir(g_dirs[s]);
+            remove_made_dirs();
         }
-        g_dirs_used[s] = 0;
+        g_made_used = 0;
     }
     free(od->dir);
     free(od);

@@ -49,10 +49,19 @@ pm_err_t pm_outdir_finish(pm_outdir_t *od, FILE *fp, pm_diag_t *diag);
 
 /* Renames every temporary file into place, in the order created, then syncs the directory.
  * Requires every file to be finished without error (else PM_EUSAGE/PM_EIO and nothing is
- * renamed). Should a rename fail part way, the files already replaced are restored from hard
- * links taken beforehand (where the file system allows them) and PM_EIO is returned. SIGINT
- * and SIGTERM are held back during the renames. */
+ * renamed). Should a rename fail part way, the entries that stood under the final names are
+ * put back exactly (same inode; a symlink stays a symlink): they are kept beforehand by a hard
+ * link, or renamed aside where no link can be made, and PM_EIO is returned. SIGINT, SIGTERM,
+ * SIGHUP and SIGQUIT are held back, and pm_outdir_stop waits, from the backups to the end. */
 pm_err_t pm_outdir_commit(pm_outdir_t *od, pm_diag_t *diag);
+
+/* Takes DIR's lock: creates DIR/.pairmap.lock exclusively (O_CREAT | O_EXCL, as version-control
+ * tools create theirs) holding "PID HOST\n". The lock is removed by pm_outdir_free, by
+ * pm_outdir_stop and by pm_outdir_remove_temporaries, so every exit path but SIGKILL (or a
+ * crash) removes it. A lock whose process no longer runs on this host is stale: it is replaced
+ * and note (note_size bytes, may be 0) says so; otherwise PM_EIO with a message naming the
+ * process and host that hold it. One lock per process. */
+pm_err_t pm_outdir_lock(pm_outdir_t *od, char *note, size_t note_size, pm_diag_t *diag);
 
 /* Removes the temporary files not committed (closing any still open), directories created and
  * left empty, and frees od. Accepts NULL. */

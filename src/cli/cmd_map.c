@@ -881,6 +881,14 @@ int pm_cmd_map(int argc, char **argv) {
     if (pm_outdir_open(no.dir, &s.od, &d)) {
         return pm_cli_fail(&d);
     }
+    char lock_note[640];
+    if (pm_outdir_lock(s.od, lock_note, sizeof lock_note, &d)) { /* one run per DIR */
+        pm_outdir_free(s.od);
+        return pm_cli_fail(&d);
+    }
+    if (lock_note[0]) {
+        pm_cli_note(&c, "warning: %s: %s", pm_cli_shown(no.dir), lock_note);
+    }
     rc = pm_cli_load(&c, &s.t, &s.inc, &s.t_read);
     if (rc) {
         goto done;

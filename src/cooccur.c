@@ -893,3 +893,102 @@ cleanup:
     *out = res;
     return PM_OK;
 }
+
+/* ---- the cost, before counting ------------------------------------------------------------- */
+static uint64_t sat_add(uint64_t a, uint64_t b) {
+    return a > UINT64_MAX - b ? UINT64_MAX : a + b;
+}
+
+static uint64_t sat_mul(uint64_t a, uint64_t b) {
+    return b && a > UINT64_MAX / b ? UINT64_MAX : a * b;
+}
+
+/* The pairs that can be seen, and kept: item a has at most min(E - 1, d_a) partners, d_a the
+ * pair visits involving a (sum of k - 1 over its rows), of which at most d_a / min_keep are
+ * seen min_keep times; each pair is counted from both of its items. O(rows); -1 when out of
+ * memory. */
+static int pair_bounds(const pm_incidence_t *inc, const unsigned char *el, uint64_t E, uint64_t mk,
+                       pm_counts_cost_t *out) {
+    uint64_t *d = pm_i_calloc(inc->n_items ? inc->n_items : 1, sizeof *d);
+    if (!d) {
+        return -1;
+    }
+    for (size_t r = 0; r < inc->n_resp; r++) {
+        uint64_t m = 0;
+        for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
+            m += !el || el[inc->col[q]];
+        }
+        if (m > out->largest) {
+            out->largest = m;
+        }
+        if (m < 2) {
+            continue;
+        }
+        out->work = sat_add(out->work, m * (m - 1) / 2);
+        for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
+            if (!el || el[inc->col[q]]) {
+                d[inc->col[q]] = sat_add(d[inc->col[q]], m - 1);
+            }
+        }
+    }
+    uint64_t seen2 = 0, kept2 = 0;
+    for (size_t i = 0; i < inc->n_items; i++) {
+        uint64_t lim = E > 0 ? E - 1 : 0;
+        seen2 = sat_add(seen2, d[i] < lim ? d[i] : lim);
+        kept2 = sat_add(kept2, d[i] / mk < lim ? d[i] / mk : lim);
+    }
+    free(d);
+    out->pairs_max = seen2 / 2;
+    out->kept_max = kept2 / 2;
+    return 0;
+}
+
+pm_err_t pm_counts_cost(const pm_incidence_t *inc, const pm_counts_opts_t *o,
+                        pm_counts_cost_t *out) {
+    memset(out, 0, sizeof *out);
+    if (o->given) { /* the pairs are counted already (a shard): they are the result */
+        out->pairs_max = out->kept_max = o->given->n_pairs;
+        out->bytes = sat_mul(o->given->n_pairs, PM_COUNTS_KEPT_BYTES(inc->weight != NULL));
+        return PM_OK;
+    }
+    uint64_t E = 0, nnz = 0, R = 0;
+    for (size_t i = 0; i < inc->n_items; i++) {
+        E += !o->eligible || o->eligible[i];
+    }
+    for (size_t r = 0; r < inc->n_resp; r++) {
+        uint64_t m = 0;
+        for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
+            m += !o->eligible || o->eligible[inc->col[q]];
+        }
+        nnz += m >= 2 ? m : 0;
+        R += m >= 2;
+    }
+    uint64_t mk = o->min_keep > 1 ? o->min_keep : 1;
+    if (pair_bounds(inc, o->eligible, E, mk, out) != 0) {
+        return PM_ENOMEM;
+    }
+    uint64_t all = E * (E - (E > 0)) / 2;
+    int weighted = inc->weight != NULL;
+    unsigned th = o->threads ? o->threads : pm_cpu_count();
+    th = th > 256 ? 256 : th;
+    size_t dmax = o->dense_max_items ? o->dense_max_items : 2048;
+    int kernel = o->kernel;
+    if (kernel == PM_COUNTS_AUTO) {
+        kernel = (!weighted && E <= dmax) ? PM_COUNTS_DENSE : PM_COUNTS_SPARSE;
+    }
+    if (kernel == PM_COUNTS_DENSE && weighted) {
+        kernel = PM_COUNTS_SPARSE;
+    }
+    /* the filtered rows (8 R + 4 nnz, weights 24 R), then the kernel's scratch */
+    uint64_t b = sat_add(sat_mul(R, weighted ? 32 : 8), sat_mul(nnz, 4));
+    if (kernel == PM_COUNTS_SPARSE) {
+        /* transpose 8-12 per entry; tp and cost 16 per item; per thread acc and touched (and
+         * 16-byte weighted sums), and the transpose's two counters per item */
+        b = sat_add(b, sat_mul(nnz, weighted ? 12 : 8));
+        b = sat_add(b, sat_mul(E, 16 + (uint64_t)th * (weighted ? 40 : 24)));
+    } else {
+        b = sat_add(b, sat_mul(sat_mul(all, 4), th)); /* one triangle per thread */
+    }
+    out->bytes = sat_add(b, sat_mul(out->kept_max, PM_COUNTS_KEPT_BYTES(weighted)));
+    return PM_OK;
+}

@@ -27,6 +27,7 @@ void pm_incidence_free(pm_incidence_t *inc) {
     free(inc->col);
     free(inc->weight);
     free(inc->storage);
+    free(inc->left_out);
     free(inc);
 }
 
@@ -217,6 +218,84 @@ static int scatter_chunk(void *ud, size_t c, unsigned th) {
     return 0;
 }
 
+/* Items that only left-out respondents chose (had[i] and now no total) are dropped from the
+ * incidence, the others renumbered in order (canonical order kept). Frees had. */
+static int drop_gone_items(pm_incidence_t *inc, unsigned char *had) {
+    size_t ni = inc->n_items, at = 0;
+    uint32_t *to = pm_i_malloc(ni ? ni : 1, sizeof *to);
+    if (!to) {
+        free(had);
+        return -1;
+    }
+    for (size_t i = 0; i < ni; i++) {
+        if (had[i] && inc->count[i] == 0) {
+            to[i] = UINT32_MAX;
+            continue;
+        }
+        to[i] = (uint32_t)at;
+        inc->name[at] = inc->name[i];
+        inc->category[at] = inc->category[i];
+        inc->count[at] = inc->count[i];
+        at++;
+    }
+    uint64_t nnz = inc->row_ptr[inc->n_resp];
+    for (uint64_t q = 0; q < nnz; q++) {
+        inc->col[q] = to[inc->col[q]]; /* never a dropped item: those rows are gone */
+    }
+    inc->n_items = at;
+    free(to);
+    free(had);
+    return 0;
+}
+
+/* --max-basket k: a respondent with more than k items (after deduplication) is left out: the
+ * row emptied (the others moved up in place), the items' totals without it, flagged in
+ * left_out. Common practice for store-level or test baskets. 0, or -1 out of memory. */
+static int leave_out_large(pm_incidence_t *inc, size_t nr, uint64_t k) {
+    unsigned char *had = pm_i_malloc(inc->n_items ? inc->n_items : 1, 1);
+    if (!had) {
+        return -1;
+    }
+    for (size_t i = 0; i < inc->n_items; i++) {
+        had[i] = inc->count[i] > 0;
+    }
+    uint64_t w = 0, beg = inc->row_ptr[0];
+    for (size_t r = 0; r < nr; r++) {
+        uint64_t end = inc->row_ptr[r + 1];
+        inc->row_ptr[r] = w;
+        if (end - beg > k) {
+            if (!inc->left_out && !(inc->left_out = pm_i_calloc(nr, 1))) {
+                free(had);
+                return -1;
+            }
+            inc->left_out[r] = 1;
+            inc->n_left_out++;
+            if (end - beg > inc->largest_left_out) {
+                inc->largest_left_out = end - beg;
+            }
+            for (uint64_t q = beg; q < end; q++) {
+                inc->count[inc->col[q]]--;
+            }
+        } else {
+            if (w != beg) {
+                memmove(inc->col + w, inc->col + beg, (size_t)(end - beg) * sizeof *inc->col);
+            }
+            w += end - beg;
+        }
+        beg = end;
+    }
+    inc->row_ptr[nr] = w;
+    if (!inc->n_left_out) {
+        free(had);
+        return 0;
+    }
+    return drop_gone_items(inc, had);
+}
+
+static int is_left_out(const pm_incidence_t *inc, size_t r) {
+    return inc->left_out && inc->left_out[r];
+}
+
 /* The respondents' weights divided by 2^wexp, a power of two near the largest (issue 13: the
  * same weight 1e160 on every row overflowed the sum of squares, 1e308 the sum, 1e-308
  * underflowed the squares; scaling every weight by 2^k now changes no bit of any result). The
@@ -229,6 +308,9 @@ static pm_err_t scale_weights(const pm_table_t *t, pm_incidence_t *inc, pm_diag_
     size_t rmax = 0;
     for (size_t r = 0; r < nr; r++) {
         double wr = t->resp_weight[r];
+        if (is_left_out(inc, r)) {
+            continue; /* weighs nothing, checked for nothing */
+        }
         if (wr != wr) {
             return pm_diag_set(diag, PM_EDATA, t->source, (long)t->resp_line[r],
                                "respondent has no weight");
@@ -244,6 +326,10 @@ static pm_err_t scale_weights(const pm_table_t *t, pm_incidence_t *inc, pm_diag_
     long double W = 0, W2 = 0;
     for (size_t r = 0; r < nr; r++) {
         double wr = ldexp(t->resp_weight[r], -e);
+        if (is_left_out(inc, r)) {
+            inc->weight[r] = 0;
+            continue;
+        }
         if (wr < DBL_MIN) {
             return pm_diag_set(diag, PM_EDATA, t->source, (long)t->resp_line[r],
                                "weight %.17g is over 2^1021 times smaller than the weight "
@@ -448,8 +534,13 @@ pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_in
     }
     inc->n_items = ni;
     inc->n_resp = nr;
-    inc->N = t->respondents_override ? t->respondents_override : nr;
-    inc->no_item += inc->N - nr;
+    if (t->max_basket && leave_out_large(inc, nr, t->max_basket) != 0) {
+        rc = PM_ENOMEM;
+        goto cleanup;
+    }
+    uint64_t base = t->respondents_override ? t->respondents_override : nr;
+    inc->no_item += base - nr;
+    inc->N = base - inc->n_left_out;
     inc->W = (double)inc->N;
     inc->W2 = (double)inc->N;
     if (t->weighted) {

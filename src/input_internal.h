@@ -46,6 +46,7 @@ struct pm_table {
     uint64_t n_anon; /* respondents without id (lines format without --id-col) */
     bool weighted, has_category;
     uint64_t respondents_override;
+    uint64_t max_basket; /* --max-basket (pm_input_opts_t), applied by the incidence */
     pm_input_stats_t stats;
     /* hygiene */
     pm_i_strtab drop; /* --drop-item names */

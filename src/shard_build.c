@@ -112,6 +112,10 @@ pm_err_t pm_shard_fingerprint(const pm_input_opts_t *o, char **out, pm_diag_t *d
     tline(&b, "header", o->no_header ? "no" : "yes");
     snprintf(num, sizeof num, "%llu", (unsigned long long)o->respondents);
     tline(&b, "respondents", o->respondents ? num : "");
+    if (o->max_basket) { /* only when given: older shards keep their fingerprints */
+        snprintf(num, sizeof num, "%llu", (unsigned long long)o->max_basket);
+        tline(&b, "max-basket", num);
+    }
     tlist(&b, "drop-item", o->drop_items, o->n_drop_items, 0);
     char hex[65] = "";
     if (o->merge_file) {
@@ -360,6 +364,9 @@ pm_err_t pm_shard_build(const pm_table_t *t, const pm_incidence_t *inc, uint64_t
             id = num;
         }
         sel[r] = m == 1 || pm_shard_part_of(id, strlen(id), m) == k;
+        if (inc->left_out && inc->left_out[r]) {
+            sel[r] = 0; /* --max-basket: in no part */
+        }
     }
     const pm_incidence_t *use = inc;
     if (m > 1) {
@@ -383,7 +390,7 @@ pm_err_t pm_shard_build(const pm_table_t *t, const pm_incidence_t *inc, uint64_t
     s->parts[0].k = k;
     s->n_parts = 1;
     s->N = m == 1 ? inc->N : sub.N;
-    s->respondents = use->n_resp;
+    s->respondents = use->n_resp - (m == 1 ? inc->n_left_out : 0); /* sub: none left out */
     for (size_t i = 0; i < pm_table_nrows(t); i++) {
         size_t r, it;
         pm_table_row_index(t, i, &r, &it);

@@ -539,6 +539,7 @@ pm_err_t pm_i_table_finish(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *d
         }
         t->respondents_override = o->respondents;
     }
+    t->max_basket = o->max_basket;
     return PM_OK;
 }
 

@@ -116,6 +116,17 @@ typedef struct {
     double q_limit; /* as in the options: q-values above it are only known to be so */
 } pm_pairs_t;
 
+/* What pm_assoc_run(inc, o) will cost, before any of it is allocated: the counting's cost
+ * (pm_counts_cost, min_keep = min_count) with bytes raised to an upper bound of the whole
+ * scoring stage's peak: per kept pair PM_ASSOC_KEPT_BYTES, per pair seen fewer than min_count
+ * times PM_ASSOC_PRUNED_BYTES, and, with sign negative and min_count 0, every pair of eligible
+ * items listed. The constants are upper bounds of the measured peaks (README, Limits).
+ * Errors: PM_ENOMEM. O(rows + items). */
+#define PM_ASSOC_KEPT_BYTES(weighted) ((weighted) ? 96u : 64u)
+#define PM_ASSOC_PRUNED_BYTES(weighted, ids) ((ids) ? ((weighted) ? 64u : 48u) : 32u)
+pm_err_t pm_assoc_cost(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_counts_cost_t *out,
+                       pm_diag_t *diag);
+
 /* Counts, tests and corrects every pair of eligible items of inc. *out owns the result
  * (pm_pairs_free). Cost O(sum k^2 + seen pairs log seen pairs + D^2) where D is the number of
  * distinct item totals (classes of never-seen pairs share one p-value). */

@@ -67,6 +67,27 @@ pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o, p
                          pm_diag_t *diag);
 void pm_counts_free(pm_counts_t *c);
 
+/* What pm_counts_build(inc, o) will cost, known before any of it is allocated. */
+typedef struct {
+    uint64_t work;      /* pair visits: sum over respondents of k(k-1)/2, k their eligible items */
+    uint64_t pairs_max; /* an upper bound of the distinct pairs seen (pm_counts_cost) */
+    uint64_t kept_max;  /* of them, at most this many can reach min_keep */
+    uint64_t largest;   /* eligible items of the largest basket */
+    uint64_t bytes;     /* an upper bound of the memory counting holds at its peak: the kernel's
+                         * scratch plus PM_COUNTS_KEPT_BYTES per kept pair (saturates) */
+} pm_counts_cost_t;
+
+/* Peak bytes per kept pair: the chunk buffers (a, b, n and w when weighted, grown by doubling:
+ * up to twice the length) and the result they are concatenated into. */
+#define PM_COUNTS_KEPT_BYTES(weighted) ((weighted) ? 60u : 36u)
+
+/* Fills *out for counting inc with o (eligible, min_keep, threads, kernel, dense_max_items and
+ * given are read as pm_counts_build reads them). The pair bounds: item a has at most
+ * min(E - 1, d_a) partners, d_a the pair visits involving it, and at most d_a / min_keep of
+ * them kept. O(rows), 8 bytes per item. Errors: PM_ENOMEM. */
+pm_err_t pm_counts_cost(const pm_incidence_t *inc, const pm_counts_opts_t *o,
+                        pm_counts_cost_t *out);
+
 /* Index of pair (a, b), a < b, in c, or -1. O(log pairs). */
 long pm_counts_find(const pm_counts_t *c, uint32_t a, uint32_t b);
 

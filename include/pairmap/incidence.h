@@ -18,7 +18,7 @@ extern "C" {
 /* Invariants: for respondent r, col[row_ptr[r] .. row_ptr[r+1]) are strictly increasing item
  * indices; count[i] = number of respondents who chose item i; names sorted by bytes.
  * Respondents of the file come first (0 .. n_rows-1); N may exceed n_rows when --respondents
- * adds respondents who chose nothing. */
+ * adds respondents who chose nothing, and be below it when --max-basket left some out. */
 typedef struct {
     size_t n_items;
     const char **name;     /* item -> name (owned by the incidence) */
@@ -41,7 +41,12 @@ typedef struct {
     uint64_t duplicates;  /* duplicate respondent-item rows merged */
     uint64_t single_item; /* respondents with exactly one item */
     uint64_t no_item;     /* respondents with no item (in N) */
-    char *storage;        /* owns the names */
+    /* --max-basket: respondents with more items are left out. Their rows are empty, they are
+     * in no item's total, weigh nothing and are not in N (so N may be below n_resp). */
+    unsigned char *left_out;   /* [n_resp] 1 for a respondent left out; NULL when none */
+    uint64_t n_left_out;       /* how many */
+    uint64_t largest_left_out; /* items of the largest of them */
+    char *storage;             /* owns the names */
 } pm_incidence_t;
 
 /* Builds the incidence of table t. On success *out owns a new incidence (pm_incidence_free).

@@ -34,6 +34,8 @@ typedef struct {
     char sep;                      /* 0: detect from the first line among , TAB ; | */
     bool no_header;                /* the first line is data */
     uint64_t respondents;          /* 0: N = respondents seen; else N outright (>= seen) */
+    uint64_t max_basket;           /* 0: none; else respondents with more items are left out
+                                    * (of the rows and of N) by pm_incidence_build */
     const char *const *drop_items; /* items removed before counting */
     size_t n_drop_items;
     const char *merge_file; /* CSV item,group: items renamed to their group; NULL: none */

@@ -47,6 +47,8 @@ static const opt_def OPTS[] = {
     {"quiet", 'q', 0, 0, ALL},
     {"threads", 0, 1, 0, ALL},
     {"unit", 0, 1, 0, FROM_COUNTS},
+    {"max-basket", 0, 1, 0, FROM_COUNTS | PM_CMD_COUNT},
+    {"max-memory", 0, 1, 0, SCORE | PM_CMD_COUNT},
     /* selection */
     {"min-count", 0, 1, 0, SCORE},
     {"min-share", 0, 1, 0, SCORE},
@@ -117,6 +119,16 @@ const char pm_cli_input_help[] =
     "  -q, --quiet           no notes, no progress\n"
     "A long row with an empty item registers a respondent who chose nothing (counted in N).\n"
     "Duplicate respondent-item rows count once. Item names are trimmed of white space.\n";
+
+const char pm_cli_basket_help[] =
+    "Bounds:\n"
+    "  --max-basket K        leave out respondents with more than K items (duplicates merged)\n"
+    "                        and out of N: store-level or test baskets (a note says how many)\n";
+
+const char pm_cli_memory_help[] =
+    "  --max-memory SIZE     refuse before counting when the pairs would need more than SIZE\n"
+    "                        (K, M, G, T: powers of 1024; default: physical memory, or the\n"
+    "                        ulimit -v, ulimit -d or control-group bound when lower)\n";
 
 const char pm_cli_edge_help[] =
     "Edges (map and pairs):\n"
@@ -459,6 +471,10 @@ int pm_cli_input_opts(const pm_cli_t *c, pm_input_opts_t *o) {
         return 1;
     }
     o->respondents = n;
+    if (pm_cli_uint(c, "max-basket", 0, 1, UINT32_MAX, &n)) {
+        return 1;
+    }
+    o->max_basket = n;
     o->drop_items = pm_cli_all(c, "drop-item", &o->n_drop_items);
     o->merge_file = pm_cli_get(c, "merge-file");
     o->columns = pm_cli_all(c, "columns", &o->n_columns);
@@ -613,11 +629,21 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
             return pm_cli_usage_error(c, "--segment-col and --only-segment need the rows; "
                                          "they do not apply to --from-counts");
         }
+        if (pm_cli_get(c, "max-basket")) {
+            return pm_cli_usage_error(c, "--max-basket applies to rows, not to a shard: give it "
+                                         "to 'pairmap count'");
+        }
         return pm_cli_load_counts(c, table, inc, t_read);
     }
     pm_input_opts_t io;
     if (pm_cli_input_opts(c, &io)) {
         return 1;
+    }
+    size_t nseg = 0;
+    pm_cli_all(c, "segment-col", &nseg);
+    if (io.max_basket && nseg) { /* the segment tables would still count those respondents */
+        return pm_cli_usage_error(c, "--max-basket does not combine with --segment-col: leave "
+                                     "the large baskets out of the file instead");
     }
     if (strcmp(c->input, "-") != 0) {
         struct stat st;
@@ -698,6 +724,13 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
                     "left out of N (--base answered)",
                     (unsigned long long)s->blank_excluded, pm_cli_unit(c));
     }
+    if (ic->n_left_out) {
+        pm_cli_note(c,
+                    "note: %llu %s with more than %s items left out (--max-basket; the largest "
+                    "held %llu items); N is %llu without them",
+                    (unsigned long long)ic->n_left_out, pm_cli_unit(c), pm_cli_get(c, "max-basket"),
+                    (unsigned long long)ic->largest_left_out, (unsigned long long)ic->N);
+    }
     if (ic->single_item) {
         pm_cli_note(c,
                     "note: %llu %s chose one item only (they count in N but form no "
@@ -722,12 +755,22 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
     if (pm_cli_show_progress(c)) {
         ao.progress = pm_cli_progress;
     }
-    /* the table's rows (no longer needed: the incidence is built) as the counting's scratch,
-     * memory in use already instead of some 80 MB of fresh pages on the benchmark file */
-    ao.scratch_n = pm_table_take_rows(t, &ao.scratch[0], &ao.scratch[1]);
     ao.given = pm_cli_given_counts(); /* --from-counts: the shard's pairs */
     pm_diag_t d;
     pm_diag_clear(&d);
+    pm_counts_cost_t cost;
+    if (!ao.given) { /* the bound before the counting allocates anything */
+        if (pm_assoc_cost(inc, &ao, &cost, &d)) {
+            return pm_cli_fail(&d);
+        }
+        int mrc = pm_cli_check_memory(c, &cost);
+        if (mrc) {
+            return mrc;
+        }
+    }
+    /* the table's rows (no longer needed: the incidence is built) as the counting's scratch,
+     * memory in use already instead of some 80 MB of fresh pages on the benchmark file */
+    ao.scratch_n = pm_table_take_rows(t, &ao.scratch[0], &ao.scratch[1]);
     pm_err_t rc = pm_assoc_run(inc, &ao, pairs, &d);
     free(ao.scratch[0]);
     free(ao.scratch[1]);

@@ -98,6 +98,13 @@ void pm_cli_note(const pm_cli_t *c, const char *fmt, ...)
 /* Reads INPUT and builds the incidence, printing the reader's notes. Returns 0 or the exit
  * status. */
 int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, double *t_read);
+/* Before counting (src/cli/cli_memory.c): 0 when cost->bytes plus the memory in use fits the
+ * bound (--max-memory, else the least of physical memory, the control group's memory.max,
+ * ulimit -v and ulimit -d); else prints the one-line reason (the largest basket's size, never
+ * its id, and the likely cause) and returns 4; 1 after a bad --max-memory. */
+int pm_cli_check_memory(const pm_cli_t *c, const pm_counts_cost_t *cost);
+/* --max-memory in bytes (0 when absent); 1 after a usage error. */
+int pm_cli_max_memory(const pm_cli_t *c, uint64_t *bytes);
 /* Scores every pair with the command line's options. */
 /* Scores every pair of inc. The rows of table t (whose incidence inc is) are taken from it
  * and serve as the counting's scratch memory: t has no rows afterwards. */
@@ -131,6 +138,8 @@ int pm_cli_close_stdout(void);
 
 /* The common help texts. */
 extern const char pm_cli_input_help[];
+extern const char pm_cli_basket_help[]; /* --max-basket (map, pairs, partners, items, count) */
+extern const char pm_cli_memory_help[]; /* --max-memory (map, pairs, partners, count) */
 extern const char pm_cli_select_help[];
 /* --csv-raw's help lines, and the pm_write_csv_field flags it gives. */
 extern const char pm_cli_csv_help[];

@@ -106,7 +106,8 @@ static int parse_part(const pm_cli_t *c, uint64_t *k, uint64_t *m) {
 int pm_cmd_count(int argc, char **argv) {
     pm_cli_t c;
     static char full[8192];
-    snprintf(full, sizeof full, "%s%s%s", help, pm_cli_input_help, pm_cli_only_help);
+    snprintf(full, sizeof full, "%s%s%s%s%s", help, pm_cli_input_help, pm_cli_only_help,
+             pm_cli_basket_help, pm_cli_memory_help);
     int rc = pm_cli_parse(&c, "count", PM_CMD_COUNT, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
@@ -138,6 +139,21 @@ int pm_cmd_count(int argc, char **argv) {
     unsigned char *buf = NULL;
     size_t len = 0;
     rc = pm_cli_load(&c, &t, &inc, NULL);
+    if (!rc) { /* the bound before the counting allocates anything */
+        pm_counts_opts_t co;
+        pm_counts_opts_init(&co);
+        co.threads = th;
+        pm_counts_cost_t cost;
+        if (pm_counts_cost(inc, &co, &cost)) {
+            fprintf(stderr, "pairmap: out of memory\n");
+            rc = 4;
+        }
+        /* and the shard's copy of every pair (with its exact weighted sum) */
+        long double b =
+            (long double)cost.bytes + (long double)cost.pairs_max * (inc->weight ? 28 : 12);
+        cost.bytes = b >= 1.8e19L ? UINT64_MAX : (uint64_t)b;
+        rc = rc ? rc : pm_cli_check_memory(&c, &cost);
+    }
     if (!rc && (pm_table_wait_hash(t, &d) || pm_shard_build(t, inc, k, m, fp, th, &s, &d) ||
                 pm_shard_encode(s, &buf, &len, &d))) {
         rc = pm_cli_fail(&d);

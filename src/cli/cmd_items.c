@@ -52,8 +52,8 @@ static pm_err_t write_by_share(const pm_incidence_t *inc, unsigned flags, pm_dia
 int pm_cmd_items(int argc, char **argv) {
     pm_cli_t c;
     static char full[8192];
-    snprintf(full, sizeof full, "%s%s%s%s", help, pm_cli_input_help, pm_cli_only_help,
-             pm_cli_csv_help);
+    snprintf(full, sizeof full, "%s%s%s%s%s", help, pm_cli_input_help, pm_cli_only_help,
+             pm_cli_basket_help, pm_cli_csv_help);
     int rc = pm_cli_parse(&c, "items", PM_CMD_ITEMS, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;

@@ -853,9 +853,9 @@ static int net_options(const pm_cli_t *c, net_opts *no) {
 int pm_cmd_map(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s%s%s%s\n%s%s%s", help, pm_cli_input_help, pm_cli_only_help,
-             pm_cli_segment_help, pm_cli_csv_help, pm_cli_select_help, pm_cli_edge_help,
-             pm_cli_mapseg_help);
+    snprintf(full, sizeof full, "%s%s%s%s%s%s%s\n%s%s%s", help, pm_cli_input_help, pm_cli_only_help,
+             pm_cli_segment_help, pm_cli_basket_help, pm_cli_memory_help, pm_cli_csv_help,
+             pm_cli_select_help, pm_cli_edge_help, pm_cli_mapseg_help);
     int rc = pm_cli_parse(&c, "map", PM_CMD_MAP, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;

@@ -82,8 +82,9 @@ static int sort_edges(const pm_cli_t *c, const pm_pairs_t *pp, const pm_incidenc
 int pm_cmd_pairs(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s%s%s%s\n%s%s", help, pm_cli_input_help, pm_cli_only_help,
-             pm_cli_segment_help, pm_cli_csv_help, pm_cli_select_help, pm_cli_edge_help);
+    snprintf(full, sizeof full, "%s%s%s%s%s%s%s\n%s%s", help, pm_cli_input_help, pm_cli_only_help,
+             pm_cli_segment_help, pm_cli_basket_help, pm_cli_memory_help, pm_cli_csv_help,
+             pm_cli_select_help, pm_cli_edge_help);
     int rc = pm_cli_parse(&c, "pairs", PM_CMD_PAIRS, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;

@@ -294,8 +294,9 @@ static bool eligible(const pm_incidence_t *inc, size_t i, double min_share) {
 int pm_cmd_partners(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s%s%s%s\n%s", help, pm_cli_input_help, pm_cli_only_help,
-             pm_cli_segment_help, pm_cli_csv_help, pm_cli_select_help);
+    snprintf(full, sizeof full, "%s%s%s%s%s%s%s\n%s", help, pm_cli_input_help, pm_cli_only_help,
+             pm_cli_segment_help, pm_cli_basket_help, pm_cli_memory_help, pm_cli_csv_help,
+             pm_cli_select_help);
     int rc = pm_cli_parse(&c, "partners", PM_CMD_PARTNERS, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;

@@ -14,7 +14,7 @@ cflags="-std=c11 -g -O1 $san -D_POSIX_C_SOURCE=200809L -DPM_VERSION_STRING=\"fuz
  -Iinclude -Isrc $(pkg-config --cflags igraph gsl)"
 libs="$(pkg-config --libs igraph gsl) -lcsv -lpthread -lm"
 objs=""
-for f in src/*.c src/cli/cli.c src/cli/cli_counts.c src/cli/cli_segments.c; do
+for f in src/*.c src/cli/cli.c src/cli/cli_counts.c src/cli/cli_segments.c src/cli/cli_memory.c; do
     o="$out/obj/$(echo "$f" | tr / _).o"
     if [ ! -f "$o" ] || [ "$f" -nt "$o" ] || [ "$0" -nt "$o" ]; then
         # shellcheck disable=SC2086

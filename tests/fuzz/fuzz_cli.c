@@ -33,15 +33,14 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size) {
     static const struct {
         const char *name;
         unsigned mask;
-    } cmds[] = {{"map", PM_CMD_MAP},
-                {"partners", PM_CMD_PARTNERS},
-                {"pairs", PM_CMD_PAIRS},
-                {"items", PM_CMD_ITEMS},
-                {"unfold", PM_CMD_UNFOLD}};
+    } cmds[] = {{"map", PM_CMD_MAP},          {"partners", PM_CMD_PARTNERS},
+                {"pairs", PM_CMD_PAIRS},      {"items", PM_CMD_ITEMS},
+                {"unfold", PM_CMD_UNFOLD},    {"count", PM_CMD_COUNT},
+                {"segments", PM_CMD_SEGMENTS}};
     if (size < 1 || size > 8192) {
         return 0;
     }
-    unsigned ci = data[0] % 5;
+    unsigned ci = data[0] % 7;
     char *buf = malloc(size); /* argv strings: each NUL-terminated, the last one too */
     if (!buf) {
         return 0;
@@ -87,6 +86,7 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size) {
                 abort();
             }
         }
+        (void)pm_cli_max_memory(&c, &u);
         (void)pm_cli_get(&c, "output");
         (void)pm_cli_flag(&c, "csv");
     } else if (rc != 1 && rc != -1) {

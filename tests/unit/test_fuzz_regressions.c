@@ -12,6 +12,7 @@
 #include "../../src/cli/cli.c"
 #include "../../src/cli/cli_counts.c"
 #include "../../src/cli/cli_segments.c"
+#include "../../src/cli/cli_memory.c"
 
 /* the harnesses, with their libFuzzer entry points renamed */
 #define LLVMFuzzerInitialize fuzz_input_init

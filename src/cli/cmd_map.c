@@ -99,6 +99,7 @@ static void catch_signals(void) {
     sigaddset(&g_stop_set, SIGQUIT);
     pthread_sigmask(SIG_BLOCK, &g_stop_set, NULL);
     signal(SIGXFSZ, SIG_IGN);
+    signal(SIGPIPE, SIG_IGN); /* a closed stdout: EPIPE, exit 3, the lock removed on the way */
     pthread_t th;
     if (pthread_create(&th, NULL, signal_main, NULL) == 0) {
         pthread_detach(th);

@@ -3,7 +3,8 @@
 # created exclusively (O_CREAT | O_EXCL, as version-control tools create their lock files:
 # common practice) with "PID HOST"; a second run into the same DIR fails at once with exit 3 and
 # a message naming the holder, and leaves the first run's files alone; the lock goes on every
-# way out (success, bad input, a failed commit, SIGINT/SIGTERM/SIGHUP/SIGQUIT); a lock left by
+# way out (success, bad input, a failed commit, SIGINT/SIGTERM/SIGHUP/SIGQUIT, a closed stdout:
+# SIGPIPE is ignored, so the write fails with EPIPE, exit 3); a lock left by
 # a process that no longer runs on this host is reported and replaced.
 # Usage: bash test_outdir_lock.sh /path/to/pairmap
 source "$(dirname "${BASH_SOURCE[0]}")/errors_lib.sh"
@@ -51,6 +52,13 @@ for sig in INT TERM HUP QUIT; do
     [ "$rc" -eq 130 ] || [ "$rc" -eq 143 ] || fail "SIG$sig: exit $rc: $(cat "$TMP/err")"
     nolock "SIG$sig"
 done
+# a closed standard output (SIGPIPE, ignored: the summary's write fails with EPIPE, exit 3)
+CASES=$((CASES + 1))
+"$PAIRMAP" map "$D" -o "$out" --seed 6 2>"$TMP/err" | true
+rc=${PIPESTATUS[0]}
+[ "$rc" -eq 3 ] || fail "map into a closed pipe: exit $rc, expected 3: $(cat "$TMP/err")"
+grep -q "cannot write to standard output" "$TMP/err" || fail "map into a closed pipe: $(cat "$TMP/err")"
+nolock "a closed standard output"
 # a signal while the commit is paused (the run holds the commit lock then)
 CASES=$((CASES + 1))
 PM_TEST_COMMIT_PAUSE=2 "$PAIRMAP" map "$D" -q -o "$out" --seed 4 >/dev/null 2>"$TMP/err" &

@@ -122,7 +122,7 @@ typedef struct {
  * times PM_ASSOC_PRUNED_BYTES, and, with sign negative and min_count 0, every pair of eligible
  * items listed. The constants are upper bounds of the measured peaks (README, Limits).
  * Errors: PM_ENOMEM. O(rows + items). */
-#define PM_ASSOC_KEPT_BYTES(weighted) ((weighted) ? 96u : 64u)
+#define PM_ASSOC_KEPT_BYTES(weighted) ((weighted) ? 128u : 96u)
 #define PM_ASSOC_PRUNED_BYTES(weighted, ids) ((ids) ? ((weighted) ? 64u : 48u) : 32u)
 pm_err_t pm_assoc_cost(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_counts_cost_t *out,
                        pm_diag_t *diag);

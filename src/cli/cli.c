@@ -724,6 +724,16 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
                     "left out of N (--base answered)",
                     (unsigned long long)s->blank_excluded, pm_cli_unit(c));
     }
+    if (ic->n_left_out && ic->N == 0) {
+        fprintf(stderr, "pairmap: %s: --max-basket %s leaves out every one of the %s\n",
+                c->input[0] == '-' && !c->input[1] ? "stdin" : pm_cli_shown(c->input),
+                pm_cli_get(c, "max-basket"), pm_cli_unit(c));
+        pm_incidence_free(*inc);
+        pm_table_free(*table);
+        *inc = NULL;
+        *table = NULL;
+        return 1;
+    }
     if (ic->n_left_out) {
         pm_cli_note(c,
                     "note: %llu %s with more than %s items left out (--max-basket; the largest "

@@ -78,6 +78,8 @@ cp "$TMP/out" "$TMP/pairs.shard.csv"
 expect_ok pairs "$TMP/big.csv" --max-basket 50 -q --min-count 1
 cmp -s "$TMP/out" "$TMP/pairs.shard.csv" || fail "--max-basket: the shard's pairs differ from the rows'"
 expect_fail 1 "" "--max-basket applies to rows" -- pairs --from-counts "$TMP/c.pmc" --max-basket 50
+printf 'order,dish\n1,tea\n1,cake\n2,tea\n2,soup\n' >"$TMP/two.csv"
+expect_fail 1 "$TMP/two.csv: " "--max-basket 1 leaves out every one of the respondents" -- items "$TMP/two.csv" --max-basket 1
 for bad in 0 -1 x; do
     expect_fail 1 "" "--max-basket expects a whole number" -- pairs "$TMP/big.csv" --max-basket "$bad"
 done

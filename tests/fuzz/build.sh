@@ -22,6 +22,19 @@ for f in src/*.c src/cli/cli.c src/cli/cli_counts.c src/cli/cli_segments.c src/c
     fi
     objs="$objs $o"
 done
+# the HTML page's style sheet and script, embedded as the CMake build does (cmake/embed.cmake)
+mkdir -p "$out/generated"
+for a in page.css page.js; do
+    sym="pm_i_$(echo "$a" | tr . _)"
+    g="$out/generated/$sym.c"
+    o="$out/obj/$sym.o"
+    if [ ! -f "$o" ] || [ "src/html/$a" -nt "$o" ] || [ cmake/embed.cmake -nt "$o" ]; then
+        cmake -DIN="src/html/$a" -DOUT="$g" -DNAME="$sym" -P cmake/embed.cmake
+        # shellcheck disable=SC2086
+        $CC $cflags -fsanitize=fuzzer-no-link -c "$g" -o "$o"
+    fi
+    objs="$objs $o"
+done
 lib_objs=$(echo "$objs" | tr ' ' '\n' | grep -v src_cli_ | tr '\n' ' ')
 # shellcheck disable=SC2086
 $CC $cflags -fsanitize=fuzzer tests/fuzz/fuzz_input.c $lib_objs $libs -o "$out/fuzz_input"

@@ -5,6 +5,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include <math.h>
+
 #include "pairmap/oddsratio.h"
 #include "parallel.h"
 #include "util.h"
@@ -92,9 +94,42 @@ static int or_chunk(void *ud, size_t c, unsigned th) {
     return 0;
 }
 
+/* The within-segment cells of one row (empty where not defined or st is NULL). */
+static char *strat_cells(char *o, const pm_strat_t *st) {
+    const double v[5] = {st ? st->mh_or : NAN, st ? st->mh_low : NAN, st ? st->mh_high : NAN,
+                         st ? st->cmh_p : NAN, st ? st->het_p : NAN};
+    for (int j = 0; j < 5; j++) {
+        *o++ = ',';
+        if (!isnan(v[j])) {
+            o += pm_i_fmt_double(o, 64, v[j]);
+        }
+    }
+    *o++ = ',';
+    if (st && st->reversed >= 0) {
+        *o++ = (char)('0' + st->reversed);
+    }
+    return o;
+}
+
+static pm_err_t edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
+                          const pm_edges_t *e, int with_strat, const pm_strat_t *st,
+                          unsigned csv_flags, pm_diag_t *diag);
+
 pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
                             const pm_edges_t *e, unsigned csv_flags, pm_diag_t *diag) {
-    fputs(PM_EDGES_HEADER "\n", fp);
+    return edges_csv(fp, pp, inc, e, 0, NULL, csv_flags, diag);
+}
+
+pm_err_t pm_write_edges_csv_strat(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
+                                  const pm_edges_t *e, const pm_strat_t *st, unsigned csv_flags,
+                                  pm_diag_t *diag) {
+    return edges_csv(fp, pp, inc, e, 1, st, csv_flags, diag);
+}
+
+static pm_err_t edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
+                          const pm_edges_t *e, int with_strat, const pm_strat_t *st,
+                          unsigned csv_flags, pm_diag_t *diag) {
+    fputs(with_strat ? PM_EDGES_HEADER PM_STRAT_HEADER "\n" : PM_EDGES_HEADER "\n", fp);
     /* without memory for them, or without threads, each row computes its own */
     or_job oj = {pp, inc, e, pm_i_malloc(e->n ? e->n : 1, sizeof(pm_oddsratio_t))};
     if (oj.r && pm_i_parallel(pm_cpu_count(), (e->n + OR_CHUNK - 1) / OR_CHUNK, or_chunk, &oj)) {
@@ -110,7 +145,7 @@ pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t
         pm_write_csv_field(fp, inc->name[pp->b[k]], csv_flags);
         const double v[8] = {m.together,      m.expected, m.support, m.confidence_ab,
                              m.confidence_ba, m.lift,     m.phi,     m.jaccard};
-        char buf[16 * 64], *o = buf; /* the numbers of the row, written at once */
+        char buf[24 * 64], *o = buf; /* the numbers of the row, written at once */
         for (int j = 0; j < 8; j++) {
             *o++ = ',';
             o += pm_i_fmt_double(o, 64, v[j]);
@@ -131,6 +166,9 @@ pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t
         for (int j = 0; j < 3; j++) {
             *o++ = ',';
             o += pm_i_fmt_double(o, 64, orv[j]);
+        }
+        if (with_strat) {
+            o = strat_cells(o, st ? &st[i] : NULL);
         }
         *o++ = '\n';
         fwrite(buf, 1, (size_t)(o - buf), fp);

@@ -9,6 +9,7 @@
 #include "pairmap/incidence.h"
 #include "pairmap/oddsratio.h"
 #include "pairmap/select.h"
+#include "pairmap/stratified.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -29,6 +30,13 @@ extern "C" {
  * written with csv_flags. Returns PM_EIO when the stream reports an error. */
 pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
                             const pm_edges_t *e, unsigned csv_flags, pm_diag_t *diag);
+/* The within-segment columns (--segment-col), appended after PM_EDGES_HEADER's. */
+#define PM_STRAT_HEADER ",mh_odds_ratio,mh_low,mh_high,cmh_p,heterogeneity_p,reversed"
+/* The same with the columns of PM_STRAT_HEADER appended: st[i] for edge i of e, or, with st
+ * NULL, empty cells (weighted input). */
+pm_err_t pm_write_edges_csv_strat(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
+                                  const pm_edges_t *e, const pm_strat_t *st, unsigned csv_flags,
+                                  pm_diag_t *diag);
 
 /* The odds ratio of listed pair k of pp (measures m from pm_pairs_measures: its test picks the
  * branch), as edges.csv writes it. */

@@ -17,6 +17,7 @@
 #include "pairmap/outfile.h"
 #include "pairmap/segments.h"
 #include "pairmap/select.h"
+#include "pairmap/stratified.h"
 #include "pairmap/svgmap.h"
 
 /* Commands, as a bit mask for the option table. */
@@ -120,6 +121,12 @@ int pm_cli_segments_load(const pm_cli_t *c, pm_table_t *t);
  * respondents (respondent r of the table and of the incidence); *n = 0 when none. */
 const pm_segcol_t *pm_cli_segcols(size_t *n);
 void pm_cli_segments_free(void);
+/* The within-segment figures of the edges over the first column seg[0] (nseg > 0): *st
+ * allocated (free()), or NULL with a note when the input is weighted (the columns stay
+ * empty). Returns 0 or the exit status. */
+int pm_cli_strat(const pm_cli_t *c, const pm_incidence_t *inc, const pm_segcol_t *seg, size_t nseg,
+                 const pm_pairs_t *pp, const pm_edges_t *e, const pm_select_opts_t *sel,
+                 pm_strat_t **st);
 /* Help blocks: --segment-col and --segment-levels (map, pairs, partners); --segment-file and
  * --only-segment (every command that reads rows). */
 extern const char pm_cli_segment_help[];

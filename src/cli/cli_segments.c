@@ -16,7 +16,14 @@ const char pm_cli_segment_help[] =
     "                        has no segment of that column (counted in a note)\n"
     "  --segment-levels COL=A,B,C   the order of COL's segments (then COL is ordered);\n"
     "                        otherwise labels that hold a number first, by that number, then\n"
-    "                        the others by label\n";
+    "                        the others by label\n"
+    "With --segment-col, pairs, partners --csv (one item) and map's edges.csv gain the\n"
+    "columns mh_odds_ratio,mh_low,mh_high,cmh_p,heterogeneity_p,reversed over the segments\n"
+    "of the first column: the Mantel-Haenszel odds ratio with its 95% interval (Robins-\n"
+    "Breslow-Greenland), the Cochran-Mantel-Haenszel test (no continuity correction; one-\n"
+    "or two-sided as --sign), the Breslow-Day test of equal odds ratios (Tarone), and\n"
+    "reversed = 1 when the pooled and the within-segment odds ratio lie on opposite sides\n"
+    "of 1 with both 95% intervals excluding 1. Unweighted only (weighted: empty cells).\n";
 
 const char pm_cli_only_help[] =
     "Respondents:\n"
@@ -268,4 +275,28 @@ int pm_cli_segments_load(const pm_cli_t *c, pm_table_t *t) {
         rc = restrict_run(c, t, only, n_only);
     }
     return rc;
+}
+
+int pm_cli_strat(const pm_cli_t *c, const pm_incidence_t *inc, const pm_segcol_t *seg, size_t nseg,
+                 const pm_pairs_t *pp, const pm_edges_t *e, const pm_select_opts_t *sel,
+                 pm_strat_t **st) {
+    *st = NULL;
+    if (nseg == 0) {
+        return 0;
+    }
+    if (inc->weight) {
+        pm_cli_note(c, "note: weighted input: the Mantel-Haenszel columns are left empty (they "
+                       "take unweighted counts)");
+        return 0;
+    }
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    if (pm_stratified_edges(inc, &seg[0], pp, e, sel->sign, st, &d) != PM_OK) {
+        return pm_cli_fail(&d);
+    }
+    pm_cli_note(c,
+                "note: pairs within the %zu segments of '%s' (Mantel-Haenszel; %llu %s "
+                "without a segment left out of those columns)",
+                seg[0].n_levels, seg[0].column, (unsigned long long)seg[0].none, pm_cli_unit(c));
+    return 0;
 }

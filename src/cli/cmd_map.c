@@ -137,6 +137,8 @@ typedef struct {
     pm_cli_mapseg_t seg; /* --segment-col: segments.csv, segments.svg */
     int iterations;      /* the layout's, resolved */
     unsigned csv_flags;  /* --csv-raw */
+    int with_strat;      /* --segment-col: edges.csv gains the within-segment columns */
+    pm_strat_t *strat;   /* [e->n] (NULL: empty cells, weighted input) */
     /* edges.csv and the share intervals of nodes.csv need no clusters: with more than one
      * thread they are done on a thread of their own while the graph stage runs */
     struct {
@@ -161,6 +163,7 @@ static void early_join(run_state *s) {
 static void state_free(run_state *s) {
     early_join(s);
     pm_cli_mapseg_free(&s->seg);
+    free(s->strat);
     free(s->early.items);
     free(s->early.lo);
     free(s->early.hi);
@@ -477,12 +480,18 @@ static void early_sync(FILE *fp) {
     (void)fsync(fileno(fp));
 }
 
+static pm_err_t write_edges(const run_state *s, FILE *fp, pm_diag_t *d) {
+    return s->with_strat
+               ? pm_write_edges_csv_strat(fp, s->pp, s->inc, s->e, s->strat, s->csv_flags, d)
+               : pm_write_edges_csv(fp, s->pp, s->inc, s->e, s->csv_flags, d);
+}
+
 static void *early_main(void *arg) {
     run_state *s = arg;
     /* one thread: the graph stage's processes use the other cores meanwhile */
     (void)pm_assoc_share_intervals(s->inc, s->early.items, s->early.n, 1, s->early.lo, s->early.hi,
                                    NULL);
-    s->early.rc = pm_write_edges_csv(s->early.fp, s->pp, s->inc, s->e, s->csv_flags, &s->early.d);
+    s->early.rc = write_edges(s, s->early.fp, &s->early.d);
     early_sync(s->early.fp);
     return NULL;
 }
@@ -637,7 +646,7 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         wrc[1] = pm_cli_map_picture(&pic, &s->svg, &wd[1]); /* map.svg, map.html */
         early_sync(fps[1]);
         if (!early) {
-            wrc[2] = pm_write_edges_csv(fps[2], s->pp, s->inc, s->e, s->csv_flags, &wd[2]);
+            wrc[2] = write_edges(s, fps[2], &wd[2]);
             early_sync(fps[2]);
         }
         if (threaded) {
@@ -902,6 +911,14 @@ int pm_cmd_map(int argc, char **argv) {
     if (pm_select_run(s.pp, s.inc, &sel, &s.e, &d)) {
         rc = pm_cli_fail(&d);
         goto done;
+    }
+    {
+        size_t nseg;
+        const pm_segcol_t *seg = pm_cli_segcols(&nseg);
+        s.with_strat = nseg > 0;
+        if ((rc = pm_cli_strat(&c, s.inc, seg, nseg, s.pp, s.e, &sel, &s.strat)) != 0) {
+            goto done;
+        }
     }
     s.t_count = s.pp->t_count;
     s.t_measures = s.pp->t_measures + (pm_cli_now() - t0);

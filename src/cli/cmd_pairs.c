@@ -118,7 +118,16 @@ int pm_cmd_pairs(int argc, char **argv) {
     if ((rc = sort_edges(&c, pp, inc, &sel, e)) != 0) {
         goto done;
     }
-    if (pm_write_edges_csv(stdout, pp, inc, e, pm_cli_csv_flags(&c), &d)) {
+    size_t nseg;
+    const pm_segcol_t *seg = pm_cli_segcols(&nseg);
+    pm_strat_t *st = NULL;
+    if ((rc = pm_cli_strat(&c, inc, seg, nseg, pp, e, &sel, &st)) != 0) {
+        goto done;
+    }
+    pm_err_t wr = nseg ? pm_write_edges_csv_strat(stdout, pp, inc, e, st, pm_cli_csv_flags(&c), &d)
+                       : pm_write_edges_csv(stdout, pp, inc, e, pm_cli_csv_flags(&c), &d);
+    free(st);
+    if (wr) {
         /* a failed write is reported as one on standard output (full disk, issue 6) */
         rc = d.code == PM_EIO && ferror(stdout) ? pm_cli_close_stdout() : 0;
         if (rc == 0) {

@@ -48,6 +48,8 @@ typedef struct {
     uint32_t item;
     double together, expected, conf, lo, hi, lift, phi, q;
     double key;
+    pm_strat_t st; /* within segments (--segment-col; one item only) */
+    int has_st;
 } row;
 
 /* ---- closest names ----------------------------------------------------------------------- */
@@ -181,8 +183,9 @@ static void print_text(const pm_incidence_t *inc, const row *r, size_t n, bool w
     }
 }
 
-static void print_csv(const pm_incidence_t *inc, const row *r, size_t n, unsigned flags) {
-    fputs(CSV_HEADER "\n", stdout);
+static void print_csv(const pm_incidence_t *inc, const row *r, size_t n, unsigned flags,
+                      int with_strat) {
+    fputs(with_strat ? CSV_HEADER PM_STRAT_HEADER "\n" : CSV_HEADER "\n", stdout);
     for (size_t i = 0; i < n; i++) {
         pm_write_csv_field(stdout, inc->name[r[i].item], flags);
         const double v[8] = {r[i].together, r[i].expected, r[i].conf, r[i].lo,
@@ -191,8 +194,52 @@ static void print_csv(const pm_incidence_t *inc, const row *r, size_t n, unsigne
             fputc(',', stdout);
             pm_write_number(stdout, v[k]);
         }
+        if (with_strat) { /* empty cells where not defined (a set, weighted input) */
+            const pm_strat_t *s = r[i].has_st ? &r[i].st : NULL;
+            const double w[5] = {s ? s->mh_or : NAN, s ? s->mh_low : NAN, s ? s->mh_high : NAN,
+                                 s ? s->cmh_p : NAN, s ? s->het_p : NAN};
+            for (int k = 0; k < 5; k++) {
+                fputc(',', stdout);
+                if (!isnan(w[k])) {
+                    pm_write_number(stdout, w[k]);
+                }
+            }
+            fputc(',', stdout);
+            if (s && s->reversed >= 0) {
+                fputc('0' + s->reversed, stdout);
+            }
+        }
         fputc('\n', stdout);
     }
+}
+
+/* The figures within segments (--segment-col) of the edges of e that hold item `first`, in
+ * e's order: *st NULL without segments or with weights. Returns 0 or the exit status. */
+static int item_strat(const pm_cli_t *c, const pm_incidence_t *inc, const pm_pairs_t *pp,
+                      const pm_edges_t *e, uint32_t first, const pm_select_opts_t *sel,
+                      pm_strat_t **st) {
+    size_t nseg, ne = 0;
+    const pm_segcol_t *seg = pm_cli_segcols(&nseg);
+    *st = NULL;
+    if (nseg == 0) {
+        return 0;
+    }
+    size_t *mine = malloc((e->n ? e->n : 1) * sizeof *mine);
+    if (!mine) {
+        fputs("pairmap: out of memory\n", stderr);
+        return 4;
+    }
+    for (size_t j = 0; j < e->n; j++) {
+        if (pp->a[e->idx[j]] == first || pp->b[e->idx[j]] == first) {
+            mine[ne++] = e->idx[j];
+        }
+    }
+    pm_edges_t sub = {0};
+    sub.n = ne;
+    sub.idx = mine;
+    int rc = pm_cli_strat(c, inc, seg, nseg, pp, &sub, sel, st);
+    free(mine);
+    return rc;
 }
 
 /* ---- the anchor set ------------------------------------------------------------------------- */
@@ -388,11 +435,20 @@ int pm_cmd_partners(int argc, char **argv) {
             rc = pm_cli_fail(&d);
             goto done;
         }
-        for (size_t j = 0; j < e->n; j++) {
+        pm_strat_t *st = NULL;
+        if ((rc = item_strat(&c, inc, pp, e, first, &sel, &st)) != 0) {
+            goto done;
+        }
+        for (size_t j = 0, me = 0; j < e->n; j++) {
             size_t idx = e->idx[j];
             if (pp->a[idx] != first && pp->b[idx] != first) {
                 continue;
             }
+            if (st) {
+                rows[nrows].st = st[me];
+                rows[nrows].has_st = 1;
+            }
+            me++;
             pm_measures_t m;
             pm_pairs_measures(pp, inc, idx, &m);
             row *r = &rows[nrows++];
@@ -406,6 +462,7 @@ int pm_cmd_partners(int argc, char **argv) {
                                 pp->w_ab ? pp->w_ab[idx] : (double)pp->n_ab[idx], &r->conf, &r->lo,
                                 &r->hi);
         }
+        free(st);
     } else if (an.n == 0 || an.n >= inc->N) {
         fprintf(stderr, "pairmap: %s: %s respondent chose all %zu items: no partner to rank\n", src,
                 an.n == 0 ? "no" : "every", k);
@@ -463,7 +520,9 @@ int pm_cmd_partners(int argc, char **argv) {
     qsort(rows, nrows, sizeof *rows, cmp_row);
     size_t shown = top && top < nrows ? (size_t)top : nrows;
     if (csv) {
-        print_csv(inc, rows, shown, pm_cli_csv_flags(&c));
+        size_t nseg;
+        pm_cli_segcols(&nseg);
+        print_csv(inc, rows, shown, pm_cli_csv_flags(&c), nseg > 0);
     } else {
         double share = inc->weight ? an.w / inc->W : (double)an.n / (double)inc->N;
         printf("Partners of ");

@@ -278,11 +278,21 @@ static pm_err_t fit_m(pm_segstats_t *s, const pm_segcol_t *c, unsigned threads) 
 }
 
 /* ==== per cell ============================================================================== */
-static void cell(pm_segstats_t *s, const pm_segcol_t *c, size_t k, size_t i, uint64_t tot) {
+/* The Jeffreys intervals of the counts 0..JT of every segment, computed once (most items
+ * are rare: their counts repeat from item to item); jt[(k * (JT + 1) + x) * 2 + 0/1]. The
+ * same function on the same arguments: the same bits as computing them per cell. */
+#define JT 64
+static void cell(pm_segstats_t *s, const pm_segcol_t *c, const double *jt, size_t k, size_t i,
+                 uint64_t tot) {
     size_t j = k * s->n_items + i;
     uint64_t n = c->base[k], x = s->chose[j];
     double mu = s->mu[i];
-    pm_assoc_jeffreys((double)x, (double)n, 0.05, &s->share_low[j], &s->share_high[j]);
+    if (jt && x <= JT && x <= n) {
+        s->share_low[j] = jt[(k * (JT + 1) + x) * 2];
+        s->share_high[j] = jt[(k * (JT + 1) + x) * 2 + 1];
+    } else {
+        pm_assoc_jeffreys((double)x, (double)n, 0.05, &s->share_low[j], &s->share_high[j]);
+    }
     double a = (double)x + s->m * mu, b = (double)(n - x) + s->m * (1 - mu);
     s->shrunk[j] = a / (a + b);
     s->shrunk_low[j] = a <= 0 ? 0 : pm_assoc_beta_quantile(0.025, a, b);
@@ -303,14 +313,29 @@ typedef struct {
     pm_segstats_t *s;
     const pm_segcol_t *c;
     const uint64_t *tot;
+    double *jt; /* NULL: no table */
 } cell_job;
+
+static int jt_chunk(void *ud, size_t ch, unsigned th) {
+    (void)th;
+    cell_job *j = ud;
+    size_t nl = j->s->n_levels;
+    for (size_t k = nl * ch / CELL_CHUNKS; k < nl * (ch + 1) / CELL_CHUNKS; k++) {
+        uint64_t n = j->c->base[k];
+        for (uint64_t x = 0; x <= JT && x <= n; x++) {
+            double *o = &j->jt[(k * (JT + 1) + x) * 2];
+            pm_assoc_jeffreys((double)x, (double)n, 0.05, &o[0], &o[1]);
+        }
+    }
+    return 0;
+}
 
 static int cell_chunk(void *ud, size_t ch, unsigned th) {
     (void)th;
     cell_job *j = ud;
     size_t n = j->s->n_levels * j->s->n_items, ni = j->s->n_items;
     for (size_t x = n * ch / CELL_CHUNKS; x < n * (ch + 1) / CELL_CHUNKS; x++) {
-        cell(j->s, j->c, x / ni, x % ni, j->tot[x % ni]);
+        cell(j->s, j->c, j->jt, x / ni, x % ni, j->tot[x % ni]);
     }
     return 0;
 }
@@ -400,12 +425,20 @@ pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, unsign
         pm_segstats_destroy(s);
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
     }
-    cell_job cj = {s, c, tot};
+    /* the table only where it costs fewer quantiles than it saves at most */
+    double *jt = ni > 2 * (JT + 1) ? pm_i_malloc(k * (JT + 1) * 2, sizeof *jt) : NULL;
+    cell_job cj = {s, c, tot, jt};
+    if (jt && (threads < 2 || pm_i_parallel(threads, CELL_CHUNKS, jt_chunk, &cj) != 0)) {
+        for (size_t ch = 0; ch < CELL_CHUNKS; ch++) {
+            jt_chunk(&cj, ch, 0);
+        }
+    }
     if (threads < 2 || pm_i_parallel(threads, CELL_CHUNKS, cell_chunk, &cj) != 0) {
         for (size_t ch = 0; ch < CELL_CHUNKS; ch++) {
             cell_chunk(&cj, ch, 0);
         }
     }
+    pm_i_free(jt);
     for (size_t i = 0; i < ni; i++) {
         trend(s, c, i, tot[i]);
     }

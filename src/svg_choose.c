@@ -58,11 +58,16 @@ void pm_i_svg_ctx_free(ctx_t *c) {
     }
     pm_i_free(c->name);
     pm_i_free(c->cat);
+    for (size_t i = 0; c->cshort && i < c->d->n_clusters; i++) {
+        pm_i_free(c->cshort[i]);
+    }
+    pm_i_free(c->cshort);
     pm_i_free(c->cname);
     pm_i_free(c->share);
     pm_i_free(c->strength);
     pm_i_free(c->colour);
     pm_i_free(c->ccolour);
+    pm_i_free(c->ccycle);
     pm_i_free(c->csize);
     pm_i_free(c->corder);
     pm_i_free(c->cfirst);
@@ -185,43 +190,90 @@ void pm_i_svg_set_canvas(ctx_t *c) {
 }
 
 /* The priority order of items to draw (see prepare). */
+/* Items by share, most chosen first; ties by name (bytes), then index. */
+typedef struct {
+    double share;
+    const char *name;
+    size_t i;
+} share_key;
+
+static int cmp_share(const void *pa, const void *pb) {
+    const share_key *a = pa, *b = pb;
+    if (a->share != b->share) {
+        return a->share > b->share ? -1 : 1;
+    }
+    int k = pm_i_bytecmp(a->name, b->name);
+    if (k) {
+        return k;
+    }
+    return a->i < b->i ? -1 : (a->i > b->i);
+}
+
+/* Appends item i to the order unless it is there already. */
+static void take(ctx_t *c, unsigned char *taken, size_t *no, size_t i) {
+    if (!taken[i]) {
+        taken[i] = 1;
+        c->order[(*no)++] = i;
+    }
+}
+
 pm_err_t pm_i_svg_make_order(ctx_t *c, int cluster_major) {
     size_t n = c->n, nc = c->d->n_clusters;
     slot_key *slot = pm_i_malloc(n ? n : 1, sizeof *slot);
-    if (!slot) {
+    share_key *sk = pm_i_malloc(n ? n : 1, sizeof *sk);
+    unsigned char *taken = pm_i_calloc(n ? n : 1, 1);
+    if (!slot || !sk || !taken) {
+        pm_i_free(slot);
+        pm_i_free(sk);
+        pm_i_free(taken);
         return pm_i_svg_nomem(c);
     }
+    for (size_t i = 0; i < n; i++) {
+        sk[i] = (share_key){c->share[i], c->name[i], i};
+    }
+    qsort(sk, n, sizeof *sk, cmp_share);
     size_t no = 0, ns = 0;
-    if (cluster_major) {
-        /* a budget too small for every sizeable cluster: the largest clusters (1 = largest)
-         * with QUOTA members each, rather than one member of many */
-        for (size_t k = 0; k < nc; k++) {
-            for (size_t round = 0; round < QUOTA; round++) {
-                if (c->csize[k] >= SIZEABLE && c->csize[k] > round) {
-                    c->order[no++] = c->corder[c->cfirst[k] + round];
-                }
-            }
-        }
-    } else {
-        for (size_t round = 0; round < QUOTA; round++) {
-            for (size_t k = 0; k < nc; k++) {
-                if (c->csize[k] >= SIZEABLE && c->csize[k] > round) {
-                    c->order[no++] = c->corder[c->cfirst[k] + round];
-                }
+    /* 1. the most chosen items, whatever their cluster */
+    c->n_top = n < TOP ? n : TOP;
+    for (size_t j = 0; j < c->n_top; j++) {
+        take(c, taken, &no, sk[j].i);
+    }
+    /* 2. the hubs: QUOTA rounds over the sizeable clusters (round by round; with a budget too
+     * small for every sizeable cluster, cluster by cluster: the largest clusters (1 = largest)
+     * with QUOTA members each, rather than one member of many) */
+    size_t outer = cluster_major ? nc : QUOTA, inner = cluster_major ? QUOTA : nc;
+    for (size_t a = 0; a < outer; a++) {
+        for (size_t b = 0; b < inner; b++) {
+            size_t k = cluster_major ? a : b, round = cluster_major ? b : a;
+            if (c->csize[k] >= SIZEABLE && c->csize[k] > round) {
+                take(c, taken, &no, c->corder[c->cfirst[k] + round]);
             }
         }
     }
+    /* 3. more members of the sizeable clusters in proportion to cluster size */
     for (size_t k = 0; k < nc; k++) {
-        size_t t0 = c->csize[k] >= SIZEABLE ? (c->csize[k] < QUOTA ? c->csize[k] : QUOTA) : 0;
-        for (size_t t = t0; t < c->csize[k]; t++) {
+        size_t t0 = c->csize[k] < QUOTA ? c->csize[k] : QUOTA;
+        for (size_t t = t0; c->csize[k] >= SIZEABLE && t < c->csize[k]; t++) {
             slot[ns++] = (slot_key){c->csize[k], k, t};
         }
     }
     qsort(slot, ns, sizeof *slot, cmp_slot);
     for (size_t j = 0; j < ns; j++) {
-        c->order[no++] = c->corder[c->cfirst[slot[j].k] + slot[j].t];
+        take(c, taken, &no, c->corder[c->cfirst[slot[j].k] + slot[j].t]);
+    }
+    /* 4. items on their own, most chosen first; 5. last, the members of clusters too small to
+     * show (drawn only when there is room for everything) */
+    for (int pass = 0; pass < 2; pass++) {
+        for (size_t j = 0; j < n; j++) {
+            size_t i = sk[j].i, k = (size_t)c->d->cluster[i] - 1;
+            if ((pass == 0) == (c->csize[k] == 1)) {
+                take(c, taken, &no, i);
+            }
+        }
     }
     pm_i_free(slot);
+    pm_i_free(sk);
+    pm_i_free(taken);
     for (size_t i = 0; i < n; i++) {
         c->rank[c->order[i]] = i;
     }
@@ -238,6 +290,8 @@ pm_err_t pm_i_svg_prepare(ctx_t *c) {
     c->strength = pm_i_calloc(n, sizeof *c->strength);
     c->colour = pm_i_calloc(n, sizeof *c->colour);
     c->ccolour = pm_i_calloc(nc, sizeof *c->ccolour);
+    c->ccycle = pm_i_calloc(nc, sizeof *c->ccycle);
+    c->cshort = pm_i_calloc(nc, sizeof *c->cshort);
     c->csize = pm_i_calloc(nc, sizeof *c->csize);
     c->corder = pm_i_calloc(n, sizeof *c->corder);
     c->cfirst = pm_i_calloc(nc + 1, sizeof *c->cfirst);
@@ -251,9 +305,9 @@ pm_err_t pm_i_svg_prepare(ctx_t *c) {
     c->measure = pm_i_svg_clean_text(d->measure ? d->measure : "edge weight");
     c->unit = pm_i_svg_clean_text(c->o->unit && c->o->unit[0] ? c->o->unit : "respondents");
     if (!c->name || !c->cat || !c->cname || !c->share || !c->strength || !c->colour ||
-        !c->ccolour || !c->csize || !c->corder || !c->cfirst || !c->order || !c->rank ||
-        !c->negative || !c->cats || !c->catcolour || !c->title || !c->thresholds || !c->measure ||
-        !c->unit) {
+        !c->ccolour || !c->ccycle || !c->cshort || !c->csize || !c->corder || !c->cfirst ||
+        !c->order || !c->rank || !c->negative || !c->cats || !c->catcolour || !c->title ||
+        !c->thresholds || !c->measure || !c->unit) {
         return pm_i_svg_nomem(c);
     }
     for (size_t i = 0; i < n; i++) {
@@ -289,6 +343,21 @@ pm_err_t pm_i_svg_prepare(ctx_t *c) {
                 return pm_i_svg_nomem(c);
             }
         }
+        /* the label of cluster k + 1, the same in the map and the legend: its number, then its
+         * name shortened (never below MIN_KEEP characters) to about two legend lines */
+        char num[32];
+        snprintf(num, sizeof num, "%zu: ", k + 1);
+        double room = 1.7 * (c->legend.x1 - c->legend.x0 - 1.4 * c->fs_leg) / (BOLD * c->fs_leg) -
+                      pm_i_svg_text_units(num);
+        char *sh = pm_i_svg_shorten(c->cname[k], fmax(room, pm_i_svg_min_units(c->cname[k])));
+        c->cshort[k] = sh ? pm_i_malloc(strlen(num) + strlen(sh) + 1, 1) : NULL;
+        if (!c->cshort[k]) {
+            pm_i_free(sh);
+            return pm_i_svg_nomem(c);
+        }
+        strcpy(c->cshort[k], num);
+        strcat(c->cshort[k], sh);
+        pm_i_free(sh);
     }
     for (size_t k = 0; k < m; k++) {
         double w = d->weight[k];
@@ -308,9 +377,8 @@ pm_err_t pm_i_svg_prepare(ctx_t *c) {
         }
     }
     /* palette: clusters of two or more members in cluster order (1 = largest) */
-    int next = 0;
     for (size_t k = 0; k < nc; k++) {
-        c->ccolour[k] = (c->csize[k] >= 2 && next < N_PAL) ? next++ : -1;
+        c->ccolour[k] = -1; /* set for the drawn picture by pm_i_svg_colours */
     }
     /* members of each cluster by strength */
     member_key *mk = pm_i_malloc(n ? n : 1, sizeof *mk);
@@ -332,12 +400,13 @@ pm_err_t pm_i_svg_prepare(ctx_t *c) {
         }
         c->cfirst[k + 1] = i;
     }
-    /* priority: QUOTA rounds over the sizeable clusters (each cluster's most connected
-     * members first, so every sizeable cluster is shown), then the remaining members cluster
-     * by cluster in proportion to cluster size (D'Hondt's highest averages: the next slot
-     * goes to the cluster with the largest size / (taken + 1)), each cluster giving its
-     * strongest remaining member. By strength alone the densest cluster would take every
-     * remaining slot; items on their own (clusters of one) come last. */
+    /* priority (the draw budget): the TOP most chosen items; QUOTA rounds over the sizeable
+     * clusters (each cluster's hubs, its most connected members inside it, so every sizeable
+     * cluster is shown readably); then the remaining members in proportion to cluster size
+     * (D'Hondt's highest averages: the next slot goes to the cluster with the largest
+     * size / (taken + 1)), each cluster giving its strongest remaining member (by strength
+     * alone the densest cluster would take every slot); then items on their own by share;
+     * last the members of clusters of two, which the legend summarises instead. */
     pm_err_t orc = pm_i_svg_make_order(c, 0);
     if (orc) {
         return orc;
@@ -472,8 +541,7 @@ pm_err_t pm_i_svg_pic_init(ctx_t *c, pic_t *p, size_t nd) {
         p->grp[byc[j]] = g;
     }
     for (g = 0; g < ng; g++) {
-        int col = c->ccolour[p->g[g].cluster - 1];
-        p->g[g].region = p->g[g].n >= 2 || col >= 0;
+        p->g[g].region = p->g[g].n >= 2 || c->csize[p->g[g].cluster - 1] >= 2;
     }
     pm_i_free(pos);
     pm_i_free(byc);
@@ -481,6 +549,28 @@ pm_err_t pm_i_svg_pic_init(ctx_t *c, pic_t *p, size_t nd) {
 }
 
 /* Space one item needs in the picture: its node and label box with some air around. */
+/* Colours of the drawn picture: every drawn cluster of two or more items takes the palette
+ * in cluster order (1 = largest); past the palette's end the colours come round again with a
+ * dashed outline, and the cluster's number in the map and the legend tells them apart. Grey
+ * is for items on their own only. */
+void pm_i_svg_colours(ctx_t *c, const pic_t *p) {
+    size_t nc = c->d->n_clusters, next = 0;
+    for (size_t k = 0; k < nc; k++) {
+        c->ccolour[k] = -1;
+        c->ccycle[k] = 0;
+    }
+    for (size_t g = 0; g < p->ng; g++) { /* groups are in cluster order */
+        size_t k = (size_t)p->g[g].cluster - 1;
+        if (c->csize[k] >= 2 && c->ccolour[k] < 0) {
+            c->ccolour[k] = (int)(next % N_PAL);
+            c->ccycle[k] = (int)(next / N_PAL);
+            next++;
+        }
+    }
+}
+
+/* Colours by category: the distinct categories of the drawn items, most drawn first (ties
+ * by name), get the palette in turn; past it, "other categories" in grey. */
 pm_err_t pm_i_svg_categories(ctx_t *c, const pic_t *p) {
     size_t nc = 0;
     size_t *cnt = pm_i_calloc(c->n ? c->n : 1, sizeof *cnt);

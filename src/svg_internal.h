@@ -27,8 +27,10 @@
 #define DEFAULT_H 1100
 #define MIN_W 400
 #define MIN_H 300
-#define QUOTA 3    /* members per sizeable cluster taken before the strongest remaining */
-#define SIZEABLE 3 /* a cluster of this many members or more is shown */
+#define QUOTA 3     /* members per sizeable cluster taken before the strongest remaining */
+#define TOP 6       /* the most chosen items, always drawn first */
+#define MIN_KEEP 12 /* a shortened label keeps at least this many characters */
+#define SIZEABLE 3  /* a cluster of this many members or more is shown */
 #define N_PAL 7
 #define MAX_ATTEMPTS 40
 #define PI 3.14159265358979323846
@@ -49,6 +51,7 @@ static const double GREY_TINT = 0.13;
 static const char INK[] = "#1B1B1B";
 static const char FONT_STACK[] = "'DejaVu Sans', 'Bitstream Vera Sans', Verdana, sans-serif";
 static const char ELLIPSIS[] = "\xe2\x80\xa6";
+#define NBSP "\xc2\xa0" /* U+00A0: word wrap never breaks there */
 
 /* ==== output buffer ========================================================================= */
 /* The whole picture is built in memory and written with one fwrite, so a failed run writes
@@ -163,13 +166,17 @@ typedef struct {
     size_t *cfirst; /* corder[cfirst[c] .. cfirst[c+1]) */
     size_t *order;  /* priority order of all items */
     size_t *rank;   /* item -> position in order */
+    size_t n_top;   /* the first n_top of order are the most chosen items */
     int *negative;  /* per edge */
     size_t ncat;
     const char **cats; /* distinct categories by drawn count (category colouring), borrowed */
     int *catcolour;
     char *title, *thresholds, *measure;
-    char *unit;   /* clean; "respondents" by default */
-    char **cname; /* clean cluster names */
+    char *unit;    /* clean; "respondents" by default */
+    char **cname;  /* clean cluster names */
+    char **cshort; /* "k: name", shortened once: the cluster's label in the map and legend */
+    int *ccycle;   /* per cluster: how often the palette came round before its colour (0:
+                    * solid outline; more: dashed), set by pm_i_svg_colours */
 } ctx_t;
 
 /* ---- text (svg_text.c) ---- */
@@ -178,6 +185,7 @@ double pm_i_svg_char_em(uint32_t cp);
 double pm_i_svg_text_units(const char *s);
 double pm_i_svg_text_width(const char *s, double fs, int bold);
 char *pm_i_svg_shorten(const char *s, double max_units);
+double pm_i_svg_min_units(const char *s); /* the narrowest pm_i_svg_shorten allows */
 long pm_i_svg_wrap_text(const char *text, double max_u, char **out, size_t max_lines);
 void pm_i_svg_write_text(sbuf *b, const char *cls, double x, double y, double fs, int anchor,
                          int bold, const char *fill, const char *text, const char *item,
@@ -194,6 +202,7 @@ pm_err_t pm_i_svg_make_order(ctx_t *c, int cluster_major);
 size_t pm_i_svg_auto_budget(const ctx_t *c);
 pm_err_t pm_i_svg_pic_init(ctx_t *c, pic_t *p, size_t nd);
 pm_err_t pm_i_svg_categories(ctx_t *c, const pic_t *p);
+void pm_i_svg_colours(ctx_t *c, const pic_t *p);
 void pm_i_svg_lab_clear(lab_t *l);
 void pm_i_svg_pic_free(pic_t *p);
 void pm_i_svg_ctx_free(ctx_t *c);

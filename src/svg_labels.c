@@ -195,6 +195,9 @@ static void lab_put(lab_t *l, const cand_t *k) {
 
 static int try_node_label(const ctx_t *c, pic_t *p, size_t k) {
     lab_t *l = &p->lab[k];
+    if (!l->text) {
+        return 0;
+    }
     cand_t cs[MAX_CANDS], best = {0};
     double h = (ASCENT + DESCENT) * l->fs;
     int nc = node_cands(p->x[k], p->y[k], p->r[k], l->w, h, l->fs, p->max_ring, cs);
@@ -211,6 +214,9 @@ static int try_cluster_label(const ctx_t *c, pic_t *p, size_t g) {
     lab_t *l = &q->lab;
     if (q->nh == 0) {
         return 0;
+    }
+    if (!l->text) {
+        return 1; /* left out: nothing to place */
     }
     double x0 = INFINITY, y0 = INFINITY, x1 = -INFINITY, y1 = -INFINITY;
     double topx = 0, botx = 0;
@@ -256,6 +262,9 @@ static int try_cluster_label(const ctx_t *c, pic_t *p, size_t g) {
  * label, when that label can move elsewhere. */
 static int repair_label(const ctx_t *c, pic_t *p, size_t k) {
     lab_t *l = &p->lab[k];
+    if (!l->text) {
+        return 0;
+    }
     cand_t cs[MAX_CANDS];
     double h = (ASCENT + DESCENT) * l->fs;
     int nc = node_cands(p->x[k], p->y[k], p->r[k], l->w, h, l->fs, p->max_ring, cs);
@@ -303,7 +312,16 @@ static int repair_label(const ctx_t *c, pic_t *p, size_t k) {
     return 0;
 }
 
+/* The label's text: whole, shortened to max_u (never below MIN_KEEP characters), or none
+ * (left out) when even that does not fit. */
 static pm_err_t set_label_text(lab_t *l, const char *text, double fs, int bold, double max_u) {
+    if (max_u < pm_i_svg_min_units(text)) {
+        pm_i_free(l->text);
+        l->text = NULL;
+        l->w = 0;
+        l->placed = 0;
+        return PM_OK;
+    }
     char *t = pm_i_svg_shorten(text, max_u);
     if (!t) {
         return PM_ENOMEM;
@@ -314,6 +332,48 @@ static pm_err_t set_label_text(lab_t *l, const char *text, double fs, int bold, 
     l->bold = bold;
     l->w = pm_i_svg_text_width(t, fs, bold);
     l->placed = 0;
+    return PM_OK;
+}
+
+/* A cluster's label that found no place: shortened by the same rule to about its region's
+ * width, and at last its number alone (which the legend shows beside its name). */
+static pm_err_t cluster_label_fallback(ctx_t *c, pic_t *p, size_t g) {
+    const group_t *q = &p->g[g];
+    lab_t *l = &p->g[g].lab;
+    double x0 = INFINITY, x1 = -INFINITY;
+    for (size_t i = 0; i < q->nh; i++) {
+        x0 = fmin(x0, q->hull[i].x);
+        x1 = fmax(x1, q->hull[i].x);
+    }
+    double maxu = fmax(1.2 * (x1 - x0), 10 * BOLD * c->fs_cluster) / (BOLD * c->fs_cluster);
+    char num[32];
+    snprintf(num, sizeof num, "%d: ", q->cluster);
+    const char *name = c->cname[q->cluster - 1];
+    maxu -= pm_i_svg_text_units(num); /* the number does not count towards MIN_KEEP */
+    if (maxu < pm_i_svg_text_units(c->cshort[q->cluster - 1]) && maxu >= pm_i_svg_min_units(name)) {
+        char *sh = pm_i_svg_shorten(name, maxu);
+        char *t = sh ? pm_i_malloc(strlen(num) + strlen(sh) + 1, 1) : NULL;
+        if (!t) {
+            pm_i_free(sh);
+            return pm_i_svg_nomem(c);
+        }
+        strcpy(t, num);
+        strcat(t, sh);
+        pm_i_free(sh);
+        pm_err_t rc = set_label_text(l, t, c->fs_cluster, 1, INFINITY);
+        pm_i_free(t);
+        if (rc) {
+            return pm_i_svg_nomem(c);
+        }
+        if (try_cluster_label(c, p, g)) {
+            return PM_OK;
+        }
+    }
+    snprintf(num, sizeof num, "%d", q->cluster);
+    if (set_label_text(l, num, c->fs_cluster, 1, INFINITY)) {
+        return pm_i_svg_nomem(c);
+    }
+    try_cluster_label(c, p, g);
     return PM_OK;
 }
 
@@ -331,30 +391,25 @@ static pm_err_t place_labels(ctx_t *c, pic_t *p, int allow_short) {
     for (size_t g = 0; g < p->ng; g++) {
         pm_i_svg_lab_clear(&p->g[g].lab);
         if (p->g[g].region) {
-            /* a cluster's name runs about as wide as its region, at least 16 characters */
-            double rw = 0;
-            const group_t *q = &p->g[g];
-            if (q->nh) {
-                double x0 = INFINITY, x1 = -INFINITY;
-                for (size_t i = 0; i < q->nh; i++) {
-                    x0 = fmin(x0, q->hull[i].x);
-                    x1 = fmax(x1, q->hull[i].x);
-                }
-                rw = x1 - x0;
-            }
-            double maxu = fmin(fmax(1.2 * rw, 10 * BOLD * c->fs_cluster), 0.5 * mapw) /
-                          (BOLD * c->fs_cluster);
-            if (set_label_text(&p->g[g].lab, c->cname[p->g[g].cluster - 1], c->fs_cluster, 1,
-                               maxu)) {
+            /* the cluster's label as the legend gives it (shortened once, in prepare) */
+            if (set_label_text(&p->g[g].lab, c->cshort[p->g[g].cluster - 1], c->fs_cluster, 1,
+                               INFINITY)) {
                 return pm_i_svg_nomem(c);
             }
         }
     }
     p->cfails = 0;
-    for (size_t g = 0; g < p->ng; g++) {
+    for (size_t g = 0; g < p->ng && p->cfails == 0; g++) {
         if (p->g[g].region && !try_cluster_label(c, p, g)) {
-            p->cfails++;
+            pm_err_t rc = cluster_label_fallback(c, p, g);
+            if (rc) {
+                return rc;
+            }
         }
+    }
+    p->cfails = 0;
+    for (size_t g = 0; g < p->ng; g++) {
+        p->cfails += p->g[g].region && p->g[g].lab.text && !p->g[g].lab.placed;
     }
     for (size_t j = 0; j < p->nd; j++) {
         try_node_label(c, p, p->prio[j]);
@@ -381,8 +436,8 @@ static pm_err_t place_labels(ctx_t *c, pic_t *p, int allow_short) {
             double u = pm_i_svg_text_units(c->name[p->item[k]]);
             for (double f = 0.8; f > 0.25 && !l->placed; f -= 0.15) {
                 double mu = u * f;
-                if (mu < 4.5) {
-                    break;
+                if (mu < pm_i_svg_min_units(c->name[p->item[k]])) {
+                    break; /* never cut below MIN_KEEP characters */
                 }
                 if (set_label_text(l, c->name[p->item[k]], c->fs_label, 0, mu)) {
                     return pm_i_svg_nomem(c);
@@ -418,7 +473,7 @@ static void repel(const ctx_t *c, pic_t *p) {
     }
     for (size_t k = 0; k < p->nd; k++) {
         lab_t *l = &p->lab[k];
-        if (l->placed) {
+        if (l->placed || !l->text) {
             continue;
         }
         cand_t cs[MAX_CANDS];

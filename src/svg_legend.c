@@ -157,8 +157,9 @@ static int name_lists(const char *cname, const char *member) {
 /* The grey entries below the coloured clusters: the small clusters together, then the items
  * on their own, each with its leading members. */
 static double grey_entries(ctx_t *c, sbuf *b, double y, double keys_top, size_t mem_lines,
-                           size_t small, size_t small_items, size_t alone, size_t *tmp,
-                           pm_err_t *err) {
+                           const size_t counts[3], size_t alone_out, const size_t *drawn_in,
+                           size_t *tmp, pm_err_t *err) {
+    size_t small = counts[0], small_items = counts[1], alone = counts[2];
     const pm_svg_data_t *d = c->d;
     double x = c->legend.x0, xi = x + 1.4 * c->fs_leg;
     double fs = c->fs_leg, fs2 = c->fs_small;
@@ -171,22 +172,32 @@ static double grey_entries(ctx_t *c, sbuf *b, double y, double keys_top, size_t 
         if (count == 0 || y + lh > keys_top) {
             continue;
         }
-        swatch_circle(b, x + 0.45 * fs, y - 0.35 * fs, 0.45 * fs, GREY_FILL);
-        if (grey == 0) {
-            snprintf(line, sizeof line, "%zu more cluster%s (%zu items)", small,
-                     small == 1 ? "" : "s", small_items);
+        if (grey == 0) { /* not in the picture: no swatch */
+            snprintf(line, sizeof line, "%zu cluster%s of 2, not drawn", small,
+                     small == 1 ? "" : "s");
         } else {
-            snprintf(line, sizeof line, "%zu item%s on %s own", alone, alone == 1 ? "" : "s",
-                     alone == 1 ? "its" : "their");
+            swatch_circle(b, x + 0.45 * fs, y - 0.35 * fs, 0.45 * fs, GREY_FILL);
+            if (alone_out) { /* the drawn ones are listed, the others only counted */
+                char all[32];
+                pm_i_svg_fmt_count(all, sizeof all, alone + alone_out);
+                snprintf(line, sizeof line, "%zu of %s items on their own", alone, all);
+            } else {
+                snprintf(line, sizeof line, "%zu item%s on %s own", alone, alone == 1 ? "" : "s",
+                         alone == 1 ? "its" : "their");
+            }
         }
         rc = legend_para(c, b, xi, y, fs, 1, GREY_TEXT, line, 1, &nl);
         y += 1.15 * lh;
         size_t m = 0, total = grey == 0 ? small_items : alone;
         for (size_t j = 0; j < c->n; j++) { /* by priority */
             size_t i = c->order[j], k = (size_t)d->cluster[i] - 1;
-            if (c->ccolour[k] < 0 && (grey == 0) == (c->csize[k] >= 2)) {
+            int want = grey == 0 ? c->csize[k] >= 2 : drawn_in[k] > 0;
+            if (c->ccolour[k] < 0 && want) {
                 tmp[m++] = i;
             }
+        }
+        if (grey == 1 && alone_out) {
+            total = m; /* the drawn ones only; say how many more the files hold */
         }
         if (mem_lines) {
             members_text(c, tmp, m, total, xi, fs2, (long)mem_lines, line, sizeof line);
@@ -220,15 +231,17 @@ static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y
     (void)p;
     /* each coloured cluster with its leading members; then the small ones together, and the
      * items on their own (clusters of one) */
-    size_t coloured = 0, listed = 0, small = 0, small_items = 0, alone = 0;
+    size_t coloured = 0, listed = 0, small = 0, small_items = 0, alone = 0, alone_out = 0;
     for (size_t k = 0; k < nc; k++) {
         if (c->ccolour[k] >= 0) {
             coloured++;
         } else if (c->csize[k] >= 2) {
-            small++;
+            small++; /* not drawn */
             small_items += c->csize[k];
+        } else if (drawn_in[k]) {
+            alone++; /* drawn: the items on their own that are not drawn are not listed */
         } else {
-            alone++;
+            alone_out++;
         }
     }
     double more_h = lh2 + 0.4 * fs;
@@ -256,12 +269,14 @@ static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y
                 memcpy(line, "also ", 5);
             }
         }
+        /* "k: name (size)": the size joined to the last word by no-break spaces, so that it
+         * never wraps onto a line of its own */
         char head[1200];
         if (drawn_in[k] == c->csize[k]) {
-            snprintf(head, sizeof head, "%s (%zu)", c->cname[k], c->csize[k]);
+            snprintf(head, sizeof head, "%s" NBSP "(%zu)", c->cshort[k], c->csize[k]);
         } else {
-            snprintf(head, sizeof head, "%s (%zu, %zu drawn)", c->cname[k], c->csize[k],
-                     drawn_in[k]);
+            snprintf(head, sizeof head, "%s" NBSP "(%zu," NBSP "%zu" NBSP "drawn)", c->cshort[k],
+                     c->csize[k], drawn_in[k]);
         }
         size_t hl = para_lines(c, xi, fs, 1, head, head_lines);
         size_t ml = cnt && mem_lines ? para_lines(c, xi, fs2, 0, line, mem_lines) : 0;
@@ -282,6 +297,14 @@ static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y
             swatch_region(b, x, y - 0.8 * fs, 1.1 * fs, 0.9 * fs, GREY_FILL, GREY_TINT);
         } else {
             swatch_circle(b, x + 0.45 * fs, y - 0.35 * fs, 0.45 * fs, PAL_FILL[col]);
+            if (c->ccycle[k] > 0) { /* the palette came round: dashed, as the region */
+                pm_i_sb_puts(b, "<circle class=\"swatch\"");
+                pm_i_sb_attr_num(b, "cx", x + 0.45 * fs);
+                pm_i_sb_attr_num(b, "cy", y - 0.35 * fs);
+                pm_i_sb_attr_num(b, "r", 0.45 * fs + 2);
+                pm_i_sb_attr(b, "stroke", PAL_FILL[col]);
+                pm_i_sb_puts(b, " fill=\"none\" stroke-width=\"1.2\" stroke-dasharray=\"3 2\"/>\n");
+            }
         }
         rc = legend_para(c, b, xi, y, fs, 1, cat_mode ? INK : PAL_TEXT[col], head, head_lines, &nl);
         y += (double)nl * 1.15 * lh;
@@ -299,7 +322,8 @@ static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y
         y += lh2 + 0.4 * fs;
     }
     if (!rc) {
-        y = grey_entries(c, b, y, keys_top, mem_lines, small, small_items, alone, tmp, &rc);
+        size_t counts[3] = {small, small_items, alone};
+        y = grey_entries(c, b, y, keys_top, mem_lines, counts, alone_out, drawn_in, tmp, &rc);
     }
     *unlisted = coloured - listed;
     *err = rc;
@@ -492,6 +516,3 @@ pm_err_t pm_i_svg_write_legend(ctx_t *c, const pic_t *p, sbuf *b, double wmin, d
     pm_i_sb_puts(b, "</g>\n");
     return rc;
 }
-
-/* Colours by category: the distinct categories of the drawn items, most drawn first (ties
- * by name), get the palette in turn; past it, "other categories" in grey. */

@@ -162,11 +162,36 @@ static char *concat(const char *s, size_t len, const char *tail) {
     return c;
 }
 
+/* The number of code points in s[0..len). */
+static size_t chars_in(const char *s, size_t len) {
+    size_t k = 0;
+    for (size_t i = 0; i < len; i++) {
+        k += ((unsigned char)s[i] & 0xC0) != 0x80;
+    }
+    return k;
+}
+
+double pm_i_svg_min_units(const char *s) {
+    const unsigned char *p = (const unsigned char *)s;
+    size_t i = 0, n = strlen(s), k = 0;
+    double u = 0;
+    while (i < n && k < MIN_KEEP) {
+        uint32_t cp = 0;
+        size_t l = pm_text_utf8_decode(p + i, n - i, &cp);
+        u += pm_i_svg_char_em(cp);
+        i += l ? l : 1;
+        k++;
+    }
+    return i >= n ? u : u + pm_i_svg_char_em(0x2026);
+}
+
 /* A copy of clean text s shortened to at most max_units font sizes wide and ending in an
- * ellipsis; a plain copy when it fits. Cuts where a reader expects it: after a whole part of
- * a list separated by middle dots whenever one part fits (then it ends in a middle dot and
- * the ellipsis), else after a whole word when that keeps at least 60% of the room, else after
- * the last code point that fits. NULL when out of memory or when nothing fits. */
+ * ellipsis; a plain copy when it fits. Never shorter than MIN_KEEP characters before the
+ * ellipsis: NULL when that does not fit (pm_i_svg_min_units says so beforehand) or when out
+ * of memory. Cuts where a reader expects it: after a whole part of a list separated by
+ * middle dots whenever one part fits (then it ends in a middle dot and the ellipsis), else
+ * after a whole word when that keeps at least 60% of the room, else after the last code
+ * point that fits. */
 char *pm_i_svg_shorten(const char *s, double max_units) {
     size_t n = strlen(s);
     if (pm_i_svg_text_units(s) <= max_units) {
@@ -175,14 +200,14 @@ char *pm_i_svg_shorten(const char *s, double max_units) {
     static const char dot_tail[] = " \xc2\xb7 \xe2\x80\xa6", word_tail[] = " \xe2\x80\xa6";
     double dot_u = pm_i_svg_text_units(dot_tail), word_u = pm_i_svg_text_units(word_tail),
            ell_u = pm_i_svg_char_em(0x2026);
-    if (max_units < ell_u + 0.6) {
+    if (max_units < pm_i_svg_min_units(s)) {
         return NULL;
     }
     static const char dot[] = " \xc2\xb7 "; /* " · " */
     size_t best = 0;
     for (const char *q = strstr(s, dot); q; q = strstr(q + 1, dot)) {
         size_t len = (size_t)(q - s);
-        if (prefix_units(s, len) + dot_u <= max_units) {
+        if (chars_in(s, len) >= MIN_KEEP && prefix_units(s, len) + dot_u <= max_units) {
             best = len;
         }
     }
@@ -196,7 +221,8 @@ char *pm_i_svg_shorten(const char *s, double max_units) {
             while (len > 0 && (s[len - 1] == ',' || s[len - 1] == '-' || s[len - 1] == ':')) {
                 len--;
             }
-            if (len > 0 && prefix_units(s, len) + word_u <= max_units) {
+            if (len > 0 && chars_in(s, len) >= MIN_KEEP &&
+                prefix_units(s, len) + word_u <= max_units) {
                 best = len;
             }
         }
@@ -220,11 +246,16 @@ char *pm_i_svg_shorten(const char *s, double max_units) {
     while (cut > 0 && (s[cut - 1] == ' ' || s[cut - 1] == ',' || s[cut - 1] == '-')) {
         cut--;
     }
-    if (cut == 0) {
-        return NULL;
+    if (chars_in(s, cut) < MIN_KEEP) { /* trailing separators gone: keep MIN_KEEP whole */
+        cut = 0;
+        for (size_t k = 0; p[cut] && k < MIN_KEEP; k++) {
+            size_t len = pm_text_utf8_len(p + cut, n - cut);
+            cut += len ? len : 1;
+        }
     }
     return concat(s, cut, ELLIPSIS);
 }
+
 void pm_i_svg_write_text(sbuf *b, const char *cls, double x, double y, double fs, int anchor,
                          int bold, const char *fill, const char *text, const char *item,
                          int cluster) {
@@ -329,6 +360,9 @@ long pm_i_svg_wrap_text(const char *text, double max_u, char **out, size_t max_l
             memcpy(t, text + start, len);
             t[len] = '\0';
             out[lines] = pm_i_svg_shorten(t, max_u);
+            if (!out[lines] && max_u < pm_i_svg_min_units(t)) { /* too narrow: whole */
+                out[lines] = concat(t, len, "");
+            }
             pm_i_free(t);
             if (!out[lines]) {
                 return -1;

@@ -94,7 +94,12 @@ static void write_regions(const ctx_t *c, const pic_t *p, sbuf *b) {
         pm_i_sb_attr(b, "fill", fill);
         pm_i_sb_attr_num(b, "fill-opacity", tint);
         pm_i_sb_attr(b, "stroke", fill);
-        pm_i_sb_puts(b, " stroke-opacity=\"0.45\"");
+        if (col >= 0 && !cat_mode && c->ccycle[q->cluster - 1] > 0) {
+            /* the palette came round: a dashed, stronger outline tells the clusters apart */
+            pm_i_sb_puts(b, " stroke-opacity=\"0.8\" stroke-dasharray=\"5 3\"");
+        } else {
+            pm_i_sb_puts(b, " stroke-opacity=\"0.45\"");
+        }
         pm_i_sb_attr_num(b, "stroke-width", 1.2 * c->s);
         pm_i_sb_puts(b, " stroke-linejoin=\"round\"/>\n");
     }
@@ -255,7 +260,9 @@ static void write_labels(const ctx_t *c, const pic_t *p, sbuf *b) {
     pm_i_sb_puts(b, " opacity=\"0.85\">\n");
     for (size_t kk = 0; kk < p->nd; kk++) {
         const lab_t *l = &p->lab[kk];
-        pm_i_svg_write_text(b, "halo", l->x, l->y, l->fs, l->anchor, 0, NULL, l->text, NULL, 0);
+        if (l->placed && l->text) {
+            pm_i_svg_write_text(b, "halo", l->x, l->y, l->fs, l->anchor, 0, NULL, l->text, NULL, 0);
+        }
     }
     for (size_t g = 0; g < p->ng; g++) {
         const lab_t *l = &p->g[g].lab;
@@ -267,6 +274,9 @@ static void write_labels(const ctx_t *c, const pic_t *p, sbuf *b) {
     for (size_t kk = 0; kk < p->nd; kk++) {
         const lab_t *l = &p->lab[kk];
         size_t i = p->item[kk];
+        if (!l->placed || !l->text) {
+            continue; /* left out: the node's tooltip names it */
+        }
         pm_i_svg_write_text(b, "label", l->x, l->y, l->fs, l->anchor, 0, INK, l->text, c->name[i],
                             d->cluster[i]);
     }
@@ -320,8 +330,44 @@ static void subtitle(const ctx_t *c, const pic_t *p, char *line, size_t size) {
     }
 }
 
+/* What the picture holds, for the summary: see pm_svg_stats_t. */
+static void picture_stats(const ctx_t *c, const pic_t *p, pm_svg_stats_t *st) {
+    const pm_svg_data_t *d = c->d;
+    memset(st, 0, sizeof *st);
+    st->drawn = p->nd;
+    st->left_out = c->n - p->nd;
+    st->edges_drawn = p->ne;
+    for (size_t j = 0; j < c->n_top && j < c->n; j++) {
+        st->top_drawn += c->rank[c->order[j]] < p->nd; /* the order's first nd are drawn */
+    }
+    st->top = c->n_top;
+    for (size_t k = 0; k < p->nd; k++) {
+        size_t i = p->item[k];
+        const lab_t *l = &p->lab[k];
+        if (!l->placed || !l->text) {
+            st->labels_left_out++;
+        } else if (strcmp(l->text, c->name[i]) != 0) {
+            st->labels_shortened++;
+        }
+        st->alone_drawn += c->csize[d->cluster[i] - 1] == 1;
+    }
+    for (size_t g = 0; g < p->ng; g++) {
+        size_t k = (size_t)p->g[g].cluster - 1;
+        if (c->csize[k] >= SIZEABLE) {
+            st->clusters_drawn++;
+        } else if (c->csize[k] >= 2) {
+            st->small_drawn++;
+        }
+    }
+    for (size_t k = 0; k < d->n_clusters; k++) {
+        st->clusters += c->csize[k] >= SIZEABLE;
+        st->small += c->csize[k] >= 2 && c->csize[k] < SIZEABLE;
+    }
+}
+
 static pm_err_t write_svg(ctx_t *c, pic_t *p, sbuf *b, pm_svg_stats_t *st) {
     char line[2048];
+    pm_i_svg_colours(c, p);
     if (c->o->color_by_category && pm_i_svg_categories(c, p)) {
         return PM_ENOMEM;
     }
@@ -350,9 +396,7 @@ static pm_err_t write_svg(ctx_t *c, pic_t *p, sbuf *b, pm_svg_stats_t *st) {
         rc = pm_i_svg_write_legend(c, p, b, wmin, wmax, any_negative);
     }
     pm_i_sb_puts(b, "</svg>\n");
-    st->drawn = p->nd;
-    st->left_out = c->n - p->nd;
-    st->edges_drawn = p->ne;
+    picture_stats(c, p, st);
     if (!rc && b->oom) {
         rc = pm_i_svg_nomem(c);
     }

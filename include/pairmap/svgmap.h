@@ -59,6 +59,13 @@ typedef struct {
     size_t drawn;    /* items drawn */
     size_t left_out; /* items not drawn */
     size_t edges_drawn;
+    /* what was chosen and why (the draw budget; see pm_svg_write) */
+    size_t top, top_drawn; /* the most chosen items (always first) and how many were drawn */
+    size_t clusters, clusters_drawn; /* clusters of 3 or more items; drawn (hubs first) */
+    size_t small, small_drawn;       /* clusters of two: summarised in the legend; drawn */
+    size_t alone_drawn;              /* items on their own drawn */
+    size_t labels_shortened;         /* shortened with an ellipsis (never below 12 characters) */
+    size_t labels_left_out;          /* no room even shortened: the tooltip names the item */
 } pm_svg_stats_t;
 
 /* Defaults: seed 1, everything else 0. */
@@ -74,12 +81,18 @@ void pm_svg_opts_init(pm_svg_opts_t *o);
  *
  * Writes the SVG to fp in one piece (nothing on error). Deterministic for the same data and
  * options. Draws at most o->draw items (fewer when their labels cannot all fit without
- * overlap), chosen by structure: each sizeable cluster's most connected members first, then
- * more members of each cluster in proportion to its size; stats says how many were drawn and
- * left out. o NULL: defaults; stats and diag may be NULL. Cost: a few layouts of the drawn
- * items (Fruchterman-Reingold, O(iterations * drawn^2) each). Errors: PM_EUSAGE (canvas below
- * 400x300 or above 20000 px), PM_EIO (stream), PM_ENOMEM, PM_EINTERNAL (layout; data that breaks
- * the invariants above). */
+ * overlap), chosen in this order (the draw budget): the 6 most chosen items; the hubs of each
+ * cluster of 3 or more items (its 3 members with the most strength, the largest clusters
+ * first when the budget cannot hold 3 of every cluster); more members of those clusters in
+ * proportion to cluster size; items on their own by share; last the members of clusters of
+ * two, which the legend otherwise summarises. A label is shown whole, shortened with an
+ * ellipsis to no fewer than 12 characters, or left out (the node's tooltip names it); a
+ * cluster's label is "k: " and its name shortened once, the same in the map and the legend.
+ * Clusters beyond the palette's seven colours reuse them with a dashed outline; grey is for
+ * items on their own. stats says what was drawn and why. o NULL: defaults; stats and diag may be
+ * NULL. Cost: a few layouts of the drawn items (Fruchterman-Reingold, O(iterations * drawn^2)
+ * each). Errors: PM_EUSAGE (canvas below 400x300 or above 20000 px), PM_EIO (stream), PM_ENOMEM,
+ * PM_EINTERNAL (layout; data that breaks the invariants above). */
 pm_err_t pm_svg_write(FILE *fp, const pm_svg_data_t *d, const pm_svg_opts_t *o,
                       pm_svg_stats_t *stats, pm_diag_t *diag);
 

@@ -592,7 +592,7 @@ static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_op
         .category = cats,
         .share = s->share,
         .cluster = s->cluster_int,
-        .strength = s->cl->strength,
+        .strength = s->cl->inner, /* hubs: weighted degree inside the cluster */
         .n_edges = s->e->n,
         .ea = s->ea,
         .eb = s->eb,
@@ -815,10 +815,23 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
                "partitions; 1 = all agree)\n",
                cl->stability, (unsigned long long)no->restarts);
     }
-    printf("picture       %zu of %zu items drawn, %zu edges", s->svg.drawn, s->n,
-           s->svg.edges_drawn);
+    const pm_svg_stats_t *v = &s->svg;
+    printf("picture       %zu of %zu items drawn, %zu edges", v->drawn, s->n, v->edges_drawn);
+    /* what was chosen and why (the draw budget, README "The picture") */
+    printf("\n              chosen: the %zu most chosen items, the hubs of %zu of %zu clusters of "
+           "3 or more items and more members in proportion to cluster size, %zu items on their "
+           "own by share",
+           v->top_drawn, v->clusters_drawn, v->clusters, v->alone_drawn);
+    if (v->small > v->small_drawn) {
+        printf("; %zu clusters of 2 summarised in the legend, not drawn",
+               v->small - v->small_drawn);
+    }
+    printf("\n              labels: %zu shortened (to 12 characters or more), %zu left out "
+           "(named in the tooltip)",
+           v->labels_shortened, v->labels_left_out);
     if (s->svg.left_out) {
-        printf(" (%zu items left out of map.svg so that labels fit; the GraphML and CSV files "
+        printf("\n              %zu items left out of map.svg so that labels fit (the GraphML and "
+               "CSV files "
                "keep all; --draw and --width/--height change it)",
                s->svg.left_out);
     }

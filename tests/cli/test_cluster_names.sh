@@ -54,7 +54,9 @@ for g in svg.iter(S + "g"):
     c = int(g.get("data-cluster"))
     # the heading: its bold lines (wrapped at spaces), after the cluster's number
     head = " ".join("".join(t.itertext()) for t in g.iter(S + "text") if t.get("font-weight") == "bold")
-    head = head.split(" ", 1)[1] if head.split(" ", 1)[0] == str(c) else head
+    if not head.startswith("%d: " % c):
+        print("legend of cluster", c, "does not start with its number:", repr(head)); bad += 1
+    head = head[len("%d: " % c):].rsplit("\u00a0(", 1)[0]  # the size follows a no-break space
     name = want[c]
     ok = head.startswith(name) or (head.endswith("\u2026") and name.startswith(head.rstrip("\u2026 \u00b7")))
     if not ok:

@@ -20,6 +20,7 @@ void pm_i_svg_pic_free(pic_t *p) {
     if (!p) {
         return;
     }
+    pm_i_svg_spatial_free(p);
     if (p->lab) {
         for (size_t k = 0; k < p->nd; k++) {
             pm_i_svg_lab_clear(&p->lab[k]);

@@ -127,6 +127,31 @@ typedef struct {
     lab_t lab;
 } group_t;
 
+/* A uniform grid over the canvas (svg_grid.c), the spatial index of label placement and
+ * overlap removal: each entry (an id) sits in every cell its box covers; a query returns each
+ * id whose entry shares a cell with the query box once (stamps), for the exact test after. */
+typedef struct {
+    double x0, y0, cell;
+    int nx, ny;
+    int32_t *head; /* [nx * ny] first entry of the cell, -1: none */
+    int32_t *next; /* per entry */
+    uint32_t *id;  /* per entry */
+    size_t n, cap;
+    uint32_t *stamp; /* per id: the query that last returned it */
+    size_t nid;
+    uint32_t mark;
+} grid_t;
+
+/* The spatial index of one picture: nodes (circle boxes), edges (segments), placed labels
+ * (node labels 0..nd-1, cluster labels nd + g; a label drawn with a leader covers its node
+ * too). Entries of moved labels stay behind: queries test the current boxes. */
+typedef struct {
+    grid_t nodes, edges, labels;
+    uint32_t *buf; /* query results */
+    size_t cap;
+    int oom;
+} spatial_t;
+
 /* One attempt at a picture of nd items. */
 typedef struct {
     size_t nd;
@@ -142,7 +167,8 @@ typedef struct {
     size_t *edge;      /* into d's edges, both ends drawn */
     uint32_t *ea, *eb; /* drawn indices of the ends */
     size_t fails, cfails, strained;
-    int max_ring; /* label candidates: 0 beside the node only, 1 and 2 further out */
+    int max_ring;  /* label candidates: 0 beside the node only, 1 and 2 further out */
+    spatial_t *sp; /* owned; the index for label placement (NULL: none yet) */
 } pic_t;
 
 typedef struct {
@@ -215,6 +241,17 @@ double pm_i_svg_hull_pad(const ctx_t *c);
 void pm_i_svg_separate_nodes(const ctx_t *c, pic_t *p, int iters);
 pm_err_t pm_i_svg_layout(ctx_t *c, pic_t *p);
 pm_err_t pm_i_svg_regions(ctx_t *c, pic_t *p);
+
+/* ---- the spatial index (svg_grid.c) ---- */
+int pm_i_svg_grid_init(grid_t *g, const box_t *area, double cell, size_t nid);
+void pm_i_svg_grid_clear(grid_t *g);
+void pm_i_svg_grid_free(grid_t *g);
+int pm_i_svg_grid_add(grid_t *g, uint32_t id, const box_t *b);
+int pm_i_svg_grid_add_segment(grid_t *g, uint32_t id, double x0, double y0, double x1, double y1);
+size_t pm_i_svg_grid_query(grid_t *g, const box_t *b, spatial_t *sp);
+pm_err_t pm_i_svg_spatial_build(const ctx_t *c, pic_t *p); /* nodes, edges; labels emptied */
+void pm_i_svg_spatial_free(pic_t *p);
+void pm_i_svg_spatial_add_label(pic_t *p, size_t id);
 
 /* ---- labels (svg_labels.c) ---- */
 pm_err_t pm_i_svg_fit(ctx_t *c, pic_t *p, size_t nd);

@@ -52,18 +52,30 @@ static int node_cands(double cx, double cy, double r, double w, double h, double
     return nc;
 }
 
-/* Hard test: inside the map, clear of every node and every placed label. Returns the number
- * of conflicts (0 = free); *soft gets the edge crossings and foreign regions it covers. */
+static box_t grown(const box_t *b, double d) {
+    return (box_t){b->x0 - d, b->y0 - d, b->x1 + d, b->y1 + d};
+}
+
+static const lab_t *lab_of(const pic_t *p, uint32_t id) {
+    return id < p->nd ? &p->lab[id] : &p->g[id - p->nd].lab;
+}
+
+/* Hard test: inside the map, clear of every node and every placed label (near ones, from the
+ * spatial index). Returns the number of conflicts (0 = free); *soft gets the edge crossings. */
 static int label_conflicts(const ctx_t *c, const pic_t *p, const box_t *b, const lab_t *self,
                            int count_all, double *soft) {
     int bad = 0;
+    spatial_t *sp = p->sp;
     if (!box_inside(b, &c->map)) {
         bad++;
         if (!count_all) {
             return bad;
         }
     }
-    for (size_t j = 0; j < p->nd; j++) {
+    box_t near = grown(b, CLEAR + 0.5);
+    size_t n = pm_i_svg_grid_query(&sp->nodes, &near, sp);
+    for (size_t i = 0; i < n; i++) {
+        size_t j = sp->buf[i];
         if (circle_hit(p->x[j], p->y[j], p->r[j], b, CLEAR)) {
             bad++;
             if (!count_all) {
@@ -71,15 +83,17 @@ static int label_conflicts(const ctx_t *c, const pic_t *p, const box_t *b, const
             }
         }
     }
-    for (size_t j = 0; j < p->nd; j++) {
-        const lab_t *l = &p->lab[j];
+    n = pm_i_svg_grid_query(&sp->labels, &near, sp);
+    for (size_t i = 0; i < n; i++) {
+        uint32_t id = sp->buf[i];
+        const lab_t *l = lab_of(p, id);
         if (l == self || !l->placed) {
             continue;
         }
         int hit = box_hit(b, &l->b, CLEAR);
-        if (!hit && l->ring > 0) { /* its leader */
-            hit = pm_i_svg_segment_hits_box(p->x[j], p->y[j], clampd(p->x[j], l->b.x0, l->b.x1),
-                                            clampd(p->y[j], l->b.y0, l->b.y1), b);
+        if (!hit && id < p->nd && l->ring > 0) { /* its leader */
+            hit = pm_i_svg_segment_hits_box(p->x[id], p->y[id], clampd(p->x[id], l->b.x0, l->b.x1),
+                                            clampd(p->y[id], l->b.y0, l->b.y1), b);
         }
         if (hit) {
             bad++;
@@ -88,23 +102,14 @@ static int label_conflicts(const ctx_t *c, const pic_t *p, const box_t *b, const
             }
         }
     }
-    for (size_t g = 0; g < p->ng; g++) {
-        const lab_t *l = &p->g[g].lab;
-        if (l != self && l->placed && box_hit(b, &l->b, CLEAR)) {
-            bad++;
-            if (!count_all) {
-                return bad;
-            }
-        }
-    }
     if (soft) {
         double s = 0;
-        if (p->ne <= 20000) {
-            for (size_t k = 0; k < p->ne; k++) {
-                if (pm_i_svg_segment_hits_box(p->x[p->ea[k]], p->y[p->ea[k]], p->x[p->eb[k]],
-                                              p->y[p->eb[k]], b)) {
-                    s += 1.0;
-                }
+        n = pm_i_svg_grid_query(&sp->edges, &near, sp);
+        for (size_t i = 0; i < n; i++) {
+            size_t k = sp->buf[i];
+            if (pm_i_svg_segment_hits_box(p->x[p->ea[k]], p->y[p->ea[k]], p->x[p->eb[k]],
+                                          p->y[p->eb[k]], b)) {
+                s += 1.0;
             }
         }
         *soft = s;
@@ -118,11 +123,18 @@ static int label_conflicts(const ctx_t *c, const pic_t *p, const box_t *b, const
 static int leader_blocked(const pic_t *p, size_t k, const box_t *b, const lab_t *self) {
     double tx = clampd(p->x[k], b->x0, b->x1), ty = clampd(p->y[k], b->y0, b->y1);
     double x0 = p->x[k], y0 = p->y[k];
-    for (size_t j = 0; j < p->nd; j++) {
-        const lab_t *l = &p->lab[j];
+    spatial_t *sp = p->sp;
+    box_t seg = {fmin(x0, tx) - 1, fmin(y0, ty) - 1, fmax(x0, tx) + 1, fmax(y0, ty) + 1};
+    size_t n = pm_i_svg_grid_query(&sp->labels, &seg, sp);
+    for (size_t i = 0; i < n; i++) {
+        const lab_t *l = lab_of(p, sp->buf[i]);
         if (l != self && l->placed && pm_i_svg_segment_hits_box(x0, y0, tx, ty, &l->b)) {
             return 1;
         }
+    }
+    n = pm_i_svg_grid_query(&sp->nodes, &seg, sp);
+    for (size_t i = 0; i < n; i++) {
+        size_t j = sp->buf[i];
         if (j == k) {
             continue;
         }
@@ -131,12 +143,6 @@ static int leader_blocked(const pic_t *p, size_t k, const box_t *b, const lab_t 
         double t = ll > 0 ? clampd(((p->x[j] - x0) * ex + (p->y[j] - y0) * ey) / ll, 0, 1) : 0;
         double dx = p->x[j] - x0 - t * ex, dy = p->y[j] - y0 - t * ey;
         if (dx * dx + dy * dy < (p->r[j] + 1) * (p->r[j] + 1)) {
-            return 1;
-        }
-    }
-    for (size_t g = 0; g < p->ng; g++) {
-        const lab_t *l = &p->g[g].lab;
-        if (l->placed && pm_i_svg_segment_hits_box(x0, y0, tx, ty, &l->b)) {
             return 1;
         }
     }
@@ -183,7 +189,8 @@ static int best_free(const ctx_t *c, const pic_t *p, const cand_t *cs, int nc, c
     return found;
 }
 
-static void lab_put(lab_t *l, const cand_t *k) {
+/* Puts label id (node labels 0..nd-1, cluster labels nd + g) at candidate k. */
+static void lab_put(pic_t *p, size_t id, lab_t *l, const cand_t *k) {
     l->b = k->b;
     l->x = k->x;
     l->y = k->y;
@@ -191,6 +198,7 @@ static void lab_put(lab_t *l, const cand_t *k) {
     l->placed = 1;
     l->strained = k->cost >= 7.9; /* the outermost ring (see node_cands) */
     l->ring = k->cost >= 7.9 ? 2 : (k->cost >= 3.9 ? 1 : 0);
+    pm_i_svg_spatial_add_label(p, id);
 }
 
 static int try_node_label(const ctx_t *c, pic_t *p, size_t k) {
@@ -202,7 +210,7 @@ static int try_node_label(const ctx_t *c, pic_t *p, size_t k) {
     double h = (ASCENT + DESCENT) * l->fs;
     int nc = node_cands(p->x[k], p->y[k], p->r[k], l->w, h, l->fs, p->max_ring, cs);
     if (best_free(c, p, cs, nc, l, (int)p->grp[k], (long)k, &best)) {
-        lab_put(l, &best);
+        lab_put(p, k, l, &best);
         return 1;
     }
     return 0;
@@ -252,7 +260,7 @@ static int try_cluster_label(const ctx_t *c, pic_t *p, size_t g) {
     cand_add(cs, &nc, xc - 0.5 * w, y1 + h + 1, w, h, 1, fs, 3.2);
     cand_t best = {0};
     if (best_free(c, p, cs, nc, l, -1, -1, &best)) {
-        lab_put(l, &best);
+        lab_put(p, p->nd + g, l, &best);
         return 1;
     }
     return 0;
@@ -274,24 +282,29 @@ static int repair_label(const ctx_t *c, pic_t *p, size_t k) {
             continue;
         }
         int blocked = 0;
-        for (size_t j = 0; j < p->nd && !blocked; j++) {
+        spatial_t *sp = p->sp;
+        box_t near = grown(b, CLEAR + 0.5);
+        size_t n = pm_i_svg_grid_query(&sp->nodes, &near, sp);
+        for (size_t q = 0; q < n && !blocked; q++) {
+            size_t j = sp->buf[q];
             blocked = circle_hit(p->x[j], p->y[j], p->r[j], b, CLEAR);
         }
-        for (size_t g = 0; g < p->ng && !blocked; g++) {
-            blocked = p->g[g].lab.placed && box_hit(b, &p->g[g].lab.b, CLEAR);
+        long other = -1;
+        n = blocked ? 0 : pm_i_svg_grid_query(&sp->labels, &near, sp);
+        for (size_t q = 0; q < n && !blocked; q++) {
+            uint32_t id = sp->buf[q];
+            const lab_t *o = lab_of(p, id);
+            if (id == k || !o->placed || !box_hit(b, &o->b, CLEAR)) {
+                continue;
+            }
+            if (id >= p->nd) {
+                blocked = 1; /* a cluster's name */
+            } else {
+                other = other == -1 ? (long)id : -2;
+            }
         }
         if (blocked) {
             continue;
-        }
-        long other = -1;
-        for (size_t j = 0; j < p->nd; j++) {
-            if (j != k && p->lab[j].placed && box_hit(b, &p->lab[j].b, CLEAR)) {
-                if (other >= 0) {
-                    other = -2;
-                    break;
-                }
-                other = (long)j;
-            }
         }
         if (other < 0) {
             continue; /* free (cannot be: k would have taken it) or several in the way */
@@ -302,7 +315,7 @@ static int repair_label(const ctx_t *c, pic_t *p, size_t k) {
         lab_t *o = &p->lab[other];
         lab_t saved = *o;
         o->placed = 0;
-        lab_put(l, &cs[i]);
+        lab_put(p, k, l, &cs[i]);
         if (try_node_label(c, p, (size_t)other)) {
             return 1;
         }
@@ -381,6 +394,15 @@ static pm_err_t cluster_label_fallback(ctx_t *c, pic_t *p, size_t g) {
  * step. Sets p->fails (node labels not placed) and p->cfails (cluster names). */
 static pm_err_t place_labels(ctx_t *c, pic_t *p, int allow_short) {
     double mapw = c->map.x1 - c->map.x0;
+    for (size_t k = 0; k < p->nd; k++) {
+        p->lab[k].placed = 0;
+    }
+    for (size_t g = 0; g < p->ng; g++) {
+        p->g[g].lab.placed = 0;
+    }
+    if (pm_i_svg_spatial_build(c, p)) { /* the nodes and edges where they are now */
+        return pm_i_svg_nomem(c);
+    }
     for (size_t k = 0; k < p->nd; k++) {
         /* a name longer than the map is never drawn whole */
         double maxu = 0.6 * mapw / c->fs_label;

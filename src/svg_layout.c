@@ -117,39 +117,80 @@ double pm_i_svg_hull_pad(const ctx_t *c) {
     return fmax(7, 10 * c->s);
 }
 
+/* Pushes a and b apart when their circles (plus room) overlap; returns 1 when it did. */
+static int push_apart(pic_t *p, size_t a, size_t b, double pad, double xgap) {
+    double need = p->r[a] + p->r[b] + 2 * pad;
+    if (p->grp[a] != p->grp[b]) {
+        need = fmax(need, p->r[a] + p->r[b] + xgap);
+    }
+    double dx = p->x[b] - p->x[a], dy = p->y[b] - p->y[a];
+    double dd = dx * dx + dy * dy;
+    if (dd >= need * need) {
+        return 0;
+    }
+    double dist = sqrt(dd);
+    double push = 0.5 * (need - dist) * 1.02;
+    if (dist < 1e-6) { /* coincident: a fixed direction by index */
+        double ang = 2.399963229728653 * (double)(a + b);
+        dx = cos(ang);
+        dy = sin(ang);
+    } else {
+        dx /= dist;
+        dy /= dist;
+    }
+    p->x[a] -= dx * push;
+    p->y[a] -= dy * push;
+    p->x[b] += dx * push;
+    p->y[b] += dy * push;
+    return 1;
+}
+
 /* Pushes apart nodes whose circles (plus room for a label line) overlap; nodes of different
- * clusters keep room for both regions' padding between them. */
+ * clusters keep room for both regions' padding between them. Only the pairs a grid of the
+ * positions at the start of each sweep finds near (a sweep with no push is exact, so the result has
+ * no overlap the double loop would remove). */
 void pm_i_svg_separate_nodes(const ctx_t *c, pic_t *p, int iters) {
     double lh = (ASCENT + DESCENT) * c->fs_label;
-    double pad = 0.5 * lh, xgap = 2 * pm_i_svg_hull_pad(c) + 6;
-    for (int it = 0; it < iters; it++) {
+    double pad = 0.5 * lh, xgap = 2 * pm_i_svg_hull_pad(c) + 6, rmax = 0;
+    for (size_t k = 0; k < p->nd; k++) {
+        rmax = fmax(rmax, p->r[k]);
+    }
+    /* cells at least the largest distance that needs a push: a node's partners are in its
+     * own cell and the eight around it */
+    double reach = fmax(2 * rmax + fmax(2 * pad, xgap), 8);
+    grid_t g;
+    box_t area = {0, 0, c->W, c->H};
+    if (pm_i_svg_grid_init(&g, &area, reach, p->nd)) {
+        return; /* out of memory: the labels then find less room; harmless */
+    }
+    int oom = 0;
+    for (int it = 0; it < iters && !oom; it++) {
         int moved = 0;
-        for (size_t a = 0; a < p->nd; a++) {
-            for (size_t b = a + 1; b < p->nd; b++) {
-                double need = p->r[a] + p->r[b] + 2 * pad;
-                if (p->grp[a] != p->grp[b]) {
-                    need = fmax(need, p->r[a] + p->r[b] + xgap);
+        pm_i_svg_grid_clear(&g);
+        for (size_t k = 0; k < p->nd && !oom; k++) {
+            box_t b = {p->x[k], p->y[k], p->x[k], p->y[k]};
+            oom = pm_i_svg_grid_add(&g, (uint32_t)k, &b) != 0;
+        }
+        /* each pair once: within a cell, and with the cells right, below-left, below and
+         * below-right of it */
+        static const int nb[4][2] = {{1, 0}, {-1, 1}, {0, 1}, {1, 1}};
+        for (int cy = 0; cy < g.ny && !oom; cy++) {
+            for (int cx = 0; cx < g.nx; cx++) {
+                for (int32_t e = g.head[cy * g.nx + cx]; e >= 0; e = g.next[e]) {
+                    size_t a = g.id[e];
+                    for (int32_t f = g.next[e]; f >= 0; f = g.next[f]) {
+                        moved |= push_apart(p, a, g.id[f], pad, xgap);
+                    }
+                    for (int q = 0; q < 4; q++) {
+                        int x = cx + nb[q][0], y = cy + nb[q][1];
+                        if (x < 0 || x >= g.nx || y >= g.ny) {
+                            continue;
+                        }
+                        for (int32_t f = g.head[y * g.nx + x]; f >= 0; f = g.next[f]) {
+                            moved |= push_apart(p, a, g.id[f], pad, xgap);
+                        }
+                    }
                 }
-                double dx = p->x[b] - p->x[a], dy = p->y[b] - p->y[a];
-                double dd = dx * dx + dy * dy;
-                if (dd >= need * need) {
-                    continue;
-                }
-                double dist = sqrt(dd);
-                double push = 0.5 * (need - dist) * 1.02;
-                if (dist < 1e-6) { /* coincident: a fixed direction by index */
-                    double ang = 2.399963229728653 * (double)(a + b);
-                    dx = cos(ang);
-                    dy = sin(ang);
-                } else {
-                    dx /= dist;
-                    dy /= dist;
-                }
-                p->x[a] -= dx * push;
-                p->y[a] -= dy * push;
-                p->x[b] += dx * push;
-                p->y[b] += dy * push;
-                moved = 1;
             }
         }
         for (size_t k = 0; k < p->nd; k++) {
@@ -159,17 +200,46 @@ void pm_i_svg_separate_nodes(const ctx_t *c, pic_t *p, int iters) {
             break;
         }
     }
+    pm_i_svg_grid_free(&g);
 }
 
 /* Separates the groups' discs and stretches their arrangement to fill the map. */
+typedef struct {
+    double left;
+    size_t i;
+} edge_key;
+
+static int cmp_edge(const void *pa, const void *pb) {
+    const edge_key *a = pa, *b = pb;
+    if (a->left != b->left) {
+        return a->left < b->left ? -1 : 1;
+    }
+    return a->i < b->i ? -1 : (a->i > b->i);
+}
+
 static void pack_groups(const ctx_t *c, pic_t *p) {
     const box_t *m = &c->map;
     double gap = 2 * pm_i_svg_hull_pad(c) + 0.9 * c->fs_cluster;
+    edge_key *sweep = pm_i_malloc(p->ng ? p->ng : 1, sizeof *sweep); /* NULL: every pair */
     for (int round = 0; round < 4; round++) {
         for (int it = 0; it < 150; it++) {
             int moved = 0;
-            for (size_t a = 0; a < p->ng; a++) {
-                for (size_t b = a + 1; b < p->ng; b++) {
+            /* sweep and prune: discs by left edge, pairs whose x ranges (plus the gap) meet */
+            for (size_t g = 0; g < p->ng && sweep; g++) {
+                sweep[g] = (edge_key){p->g[g].cx - p->g[g].R, g};
+            }
+            if (sweep) {
+                qsort(sweep, p->ng, sizeof *sweep, cmp_edge);
+            }
+            for (size_t s = 0; s < p->ng; s++) {
+                size_t sa = sweep ? sweep[s].i : s;
+                double right = sweep ? p->g[sa].cx + p->g[sa].R + gap : INFINITY;
+                for (size_t t = s + 1; t < p->ng; t++) {
+                    if (sweep && sweep[t].left > right) {
+                        break;
+                    }
+                    size_t sb = sweep ? sweep[t].i : t;
+                    size_t a = sa < sb ? sa : sb, b = sa < sb ? sb : sa;
                     group_t *ga = &p->g[a], *gb = &p->g[b];
                     double need = ga->R + gb->R + gap;
                     double dx = gb->cx - ga->cx, dy = gb->cy - ga->cy;
@@ -232,6 +302,7 @@ static void pack_groups(const ctx_t *c, pic_t *p) {
             q->cy = my + (q->cy - bcy) * fy;
         }
     }
+    pm_i_free(sweep);
 }
 
 /* Fruchterman-Reingold on the drawn items, then our post-processing in pixels. The layout

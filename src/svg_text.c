@@ -187,7 +187,8 @@ double pm_i_svg_min_units(const char *s) {
 
 /* A copy of clean text s shortened to at most max_units font sizes wide and ending in an
  * ellipsis; a plain copy when it fits. Never shorter than MIN_KEEP characters before the
- * ellipsis: NULL when that does not fit (pm_i_svg_min_units says so beforehand) or when out
+ * ellipsis unless what is kept is whole parts of a list ("Walnut cake · …"): NULL when that
+ * does not fit (pm_i_svg_min_units says so beforehand) or when out
  * of memory. Cuts where a reader expects it: after a whole part of a list separated by
  * middle dots whenever one part fits (then it ends in a middle dot and the ellipsis), else
  * after a whole word when that keeps at least 60% of the room, else after the last code
@@ -207,7 +208,7 @@ char *pm_i_svg_shorten(const char *s, double max_units) {
     size_t best = 0;
     for (const char *q = strstr(s, dot); q; q = strstr(q + 1, dot)) {
         size_t len = (size_t)(q - s);
-        if (chars_in(s, len) >= MIN_KEEP && prefix_units(s, len) + dot_u <= max_units) {
+        if (prefix_units(s, len) + dot_u <= max_units) { /* whole parts: never "cut" */
             best = len;
         }
     }
@@ -218,8 +219,10 @@ char *pm_i_svg_shorten(const char *s, double max_units) {
     for (size_t i = 1; i < n; i++) {
         if (s[i] == ' ' && s[i - 1] != ' ') {
             size_t len = i;
-            while (len > 0 && (s[len - 1] == ',' || s[len - 1] == '-' || s[len - 1] == ':')) {
-                len--;
+            while (len > 0 && (s[len - 1] == ',' || s[len - 1] == '-' || s[len - 1] == ':' ||
+                               s[len - 1] == ' ' || (unsigned char)s[len - 1] == 0xB7 ||
+                               (unsigned char)s[len - 1] == 0xC2)) {
+                len--; /* no separator (nor a middle dot) before the ellipsis */
             }
             if (len > 0 && chars_in(s, len) >= MIN_KEEP &&
                 prefix_units(s, len) + word_u <= max_units) {

@@ -409,6 +409,26 @@ void pm_svg_opts_init(pm_svg_opts_t *o) {
     o->seed = 1;
 }
 
+/* No more items than the map can hold with their labels: labels may not overlap, so the
+ * first nd items of the order fit only while their label boxes (each at its narrowest, the
+ * MIN_KEEP-character form) and circles add up to no more than the map's area. A hard bound,
+ * so that a large --draw does not try pictures that cannot work. */
+static size_t area_bound(const ctx_t *c, size_t nd) {
+    double area = (c->map.x1 - c->map.x0) * (c->map.y1 - c->map.y0), sum = 0;
+    double lh = (ASCENT + DESCENT) * c->fs_label;
+    for (size_t j = 0; j < nd; j++) {
+        size_t i = c->order[j];
+        double r = c->rk * sqrt(c->share[i]);
+        r = r < c->rmin ? c->rmin : r;
+        double u = fmin(pm_i_svg_text_units(c->name[i]), pm_i_svg_min_units(c->name[i]));
+        sum += u * c->fs_label * lh + 4 * r * r;
+        if (sum > area) {
+            return j > 0 ? j : 1;
+        }
+    }
+    return nd;
+}
+
 pm_err_t pm_svg_render(const pm_svg_data_t *d, const pm_svg_opts_t *o, char **out, size_t *len,
                        pm_svg_stats_t *stats, pm_diag_t *diag) {
     pm_svg_opts_t defaults;
@@ -463,6 +483,7 @@ pm_err_t pm_svg_render(const pm_svg_data_t *d, const pm_svg_opts_t *o, char **ou
             goto cleanup;
         }
     }
+    nd = area_bound(&c, nd);
     rc = pm_i_svg_fit(&c, &p, nd);
     if (!rc) {
         rc = write_svg(&c, &p, &b, stats);

@@ -26,7 +26,8 @@ bad = []
 drawn = {c.get("data-item") for c in svg.iter(S + "circle") if c.get("class") == "node"}
 edges = [l for l in svg.iter(S + "line") if (l.get("class") or "").startswith("edge")]
 labels = [(t.get("data-item"), "".join(t.itertext())) for t in svg.iter(S + "text") if t.get("class") == "label"]
-# labels: whole, or >= 12 characters and an ellipsis (a prefix of the name), or left out
+# labels: whole, or >= 12 characters and an ellipsis (a prefix of the name), or left out;
+# a cluster's label may also keep whole members of its name ("3: Walnut cake · …")
 short = 0
 for item, lab in labels:
     if lab == item:
@@ -45,7 +46,8 @@ for t in svg.iter(S + "text"):
     if lab == whole or lab == str(c):
         continue
     head = lab[:-1].rstrip(" \u00b7") if lab.endswith(ELL) else ""
-    if len(head) - len("%d: " % c) < 12 or not whole.startswith(head):
+    whole_parts = whole.startswith(head + " \u00b7 ")  # whole members kept: not a cut name
+    if (len(head) - len("%d: " % c) < 12 and not whole_parts) or not whole.startswith(head):
         bad.append("cluster label %r" % lab)
 # the summary's counts
 m = re.search(r"picture +(\d+) of (\d+) items drawn, (\d+) edges", text)

@@ -281,6 +281,43 @@ pm_err_t pm_i_svg_make_order(ctx_t *c, int cluster_major) {
     return PM_OK;
 }
 
+/* Clean cluster names (cname) and the clusters' labels (cshort). */
+static pm_err_t cluster_labels(ctx_t *c) {
+    const pm_svg_data_t *d = c->d;
+    size_t nc = d->n_clusters;
+    for (size_t k = 0; k < nc; k++) {
+        char def[48];
+        snprintf(def, sizeof def, "Cluster %zu", k + 1);
+        const char *nm = d->cluster_name && d->cluster_name[k] ? d->cluster_name[k] : def;
+        c->cname[k] = pm_i_svg_clean_text(nm);
+        if (!c->cname[k]) {
+            return pm_i_svg_nomem(c);
+        }
+        if (!c->cname[k][0]) {
+            pm_i_free(c->cname[k]);
+            if (!(c->cname[k] = pm_i_svg_clean_text(def))) {
+                return pm_i_svg_nomem(c);
+            }
+        }
+        /* the label of cluster k + 1, the same in the map and the legend: its number, then its
+         * name shortened (never below MIN_KEEP characters) to about two legend lines */
+        char num[32];
+        snprintf(num, sizeof num, "%zu: ", k + 1);
+        double room = 1.7 * (c->legend.x1 - c->legend.x0 - 1.4 * c->fs_leg) / (BOLD * c->fs_leg) -
+                      pm_i_svg_text_units(num);
+        char *sh = pm_i_svg_shorten(c->cname[k], fmax(room, pm_i_svg_min_units(c->cname[k])));
+        c->cshort[k] = sh ? pm_i_malloc(strlen(num) + strlen(sh) + 1, 1) : NULL;
+        if (!c->cshort[k]) {
+            pm_i_free(sh);
+            return pm_i_svg_nomem(c);
+        }
+        strcpy(c->cshort[k], num);
+        strcat(c->cshort[k], sh);
+        pm_i_free(sh);
+    }
+    return PM_OK;
+}
+
 pm_err_t pm_i_svg_prepare(ctx_t *c) {
     const pm_svg_data_t *d = c->d;
     size_t n = c->n = d->n_nodes, nc = d->n_clusters, m = d->n_edges;
@@ -330,35 +367,9 @@ pm_err_t pm_i_svg_prepare(ctx_t *c) {
         c->share[i] = isfinite(sh) && sh > 0 ? fmin(sh, 1.0) : 0.0;
         c->csize[d->cluster[i] - 1]++;
     }
-    for (size_t k = 0; k < nc; k++) {
-        char def[48];
-        snprintf(def, sizeof def, "Cluster %zu", k + 1);
-        const char *nm = d->cluster_name && d->cluster_name[k] ? d->cluster_name[k] : def;
-        c->cname[k] = pm_i_svg_clean_text(nm);
-        if (!c->cname[k]) {
-            return pm_i_svg_nomem(c);
-        }
-        if (!c->cname[k][0]) {
-            pm_i_free(c->cname[k]);
-            if (!(c->cname[k] = pm_i_svg_clean_text(def))) {
-                return pm_i_svg_nomem(c);
-            }
-        }
-        /* the label of cluster k + 1, the same in the map and the legend: its number, then its
-         * name shortened (never below MIN_KEEP characters) to about two legend lines */
-        char num[32];
-        snprintf(num, sizeof num, "%zu: ", k + 1);
-        double room = 1.7 * (c->legend.x1 - c->legend.x0 - 1.4 * c->fs_leg) / (BOLD * c->fs_leg) -
-                      pm_i_svg_text_units(num);
-        char *sh = pm_i_svg_shorten(c->cname[k], fmax(room, pm_i_svg_min_units(c->cname[k])));
-        c->cshort[k] = sh ? pm_i_malloc(strlen(num) + strlen(sh) + 1, 1) : NULL;
-        if (!c->cshort[k]) {
-            pm_i_free(sh);
-            return pm_i_svg_nomem(c);
-        }
-        strcpy(c->cshort[k], num);
-        strcat(c->cshort[k], sh);
-        pm_i_free(sh);
+    pm_err_t lrc = cluster_labels(c);
+    if (lrc) {
+        return lrc;
     }
     for (size_t k = 0; k < m; k++) {
         double w = d->weight[k];
@@ -444,6 +455,55 @@ size_t pm_i_svg_auto_budget(const ctx_t *c) {
 }
 
 /* ==== layout ================================================================================ */
+/* Negative pairs in the picture: strongest first (|weight|, ties by edge), an edge is drawn
+ * while both its items have fewer than NEG_PER_ITEM dashed lines; the others are counted in
+ * p->neg_left_out (the files keep them all). Positive edges all stay. */
+static pm_err_t thin_negatives(ctx_t *c, pic_t *p) {
+    const pm_svg_data_t *d = c->d;
+    num_key *nk = pm_i_malloc(p->ne ? p->ne : 1, sizeof *nk);
+    unsigned char *keep = pm_i_malloc(p->ne ? p->ne : 1, 1);
+    unsigned *cnt = pm_i_calloc(p->nd ? p->nd : 1, sizeof *cnt);
+    if (!nk || !keep || !cnt) {
+        pm_i_free(nk);
+        pm_i_free(keep);
+        pm_i_free(cnt);
+        return pm_i_svg_nomem(c);
+    }
+    size_t nn = 0;
+    for (size_t e = 0; e < p->ne; e++) {
+        keep[e] = !c->negative[p->edge[e]];
+        if (!keep[e]) {
+            double w = fabs(d->weight[p->edge[e]]);
+            nk[nn++] = (num_key){isfinite(w) ? w : 0, e};
+        }
+    }
+    qsort(nk, nn, sizeof *nk, cmp_num_down);
+    for (size_t j = 0; j < nn; j++) {
+        size_t e = nk[j].i;
+        if (cnt[p->ea[e]] < NEG_PER_ITEM && cnt[p->eb[e]] < NEG_PER_ITEM) {
+            keep[e] = 1;
+            cnt[p->ea[e]]++;
+            cnt[p->eb[e]]++;
+        } else {
+            p->neg_left_out++;
+        }
+    }
+    size_t m = 0;
+    for (size_t e = 0; e < p->ne; e++) {
+        if (keep[e]) {
+            p->edge[m] = p->edge[e];
+            p->ea[m] = p->ea[e];
+            p->eb[m] = p->eb[e];
+            m++;
+        }
+    }
+    p->ne = m;
+    pm_i_free(nk);
+    pm_i_free(keep);
+    pm_i_free(cnt);
+    return PM_OK;
+}
+
 /* Picks the first nd items of the priority order and builds the drawn subgraph. */
 pm_err_t pm_i_svg_pic_init(ctx_t *c, pic_t *p, size_t nd) {
     const pm_svg_data_t *d = c->d;
@@ -546,7 +606,7 @@ pm_err_t pm_i_svg_pic_init(ctx_t *c, pic_t *p, size_t nd) {
     }
     pm_i_free(pos);
     pm_i_free(byc);
-    return PM_OK;
+    return thin_negatives(c, p);
 }
 
 /* Space one item needs in the picture: its node and label box with some air around. */

@@ -27,10 +27,11 @@
 #define DEFAULT_H 1100
 #define MIN_W 400
 #define MIN_H 300
-#define QUOTA 3     /* members per sizeable cluster taken before the strongest remaining */
-#define TOP 6       /* the most chosen items, always drawn first */
-#define MIN_KEEP 12 /* a shortened label keeps at least this many characters */
-#define SIZEABLE 3  /* a cluster of this many members or more is shown */
+#define QUOTA 3        /* members per sizeable cluster taken before the strongest remaining */
+#define TOP 6          /* the most chosen items, always drawn first */
+#define MIN_KEEP 12    /* a shortened label keeps at least this many characters */
+#define NEG_PER_ITEM 2 /* dashed lines (negative pairs) at most at one item */
+#define SIZEABLE 3     /* a cluster of this many members or more is shown */
 #define N_PAL 7
 #define MAX_ATTEMPTS 40
 #define PI 3.14159265358979323846
@@ -61,6 +62,28 @@ typedef struct {
     size_t n, cap;
     int oom;
 } sbuf;
+
+/* Sort keys of numbers with a tie-break index, up and down. */
+typedef struct {
+    double v;
+    size_t i;
+} num_key;
+
+static inline int cmp_num_up(const void *pa, const void *pb) {
+    const num_key *a = pa, *b = pb;
+    if (a->v != b->v) {
+        return a->v < b->v ? -1 : 1;
+    }
+    return a->i < b->i ? -1 : (a->i > b->i);
+}
+
+static inline int cmp_num_down(const void *pa, const void *pb) {
+    const num_key *a = pa, *b = pb;
+    if (a->v != b->v) {
+        return a->v > b->v ? -1 : 1;
+    }
+    return a->i < b->i ? -1 : (a->i > b->i);
+}
 
 /* ---- the output buffer (svg_text.c); b may be NULL: the legend measures itself by writing
  * to nowhere first ---- */
@@ -167,8 +190,9 @@ typedef struct {
     size_t *edge;      /* into d's edges, both ends drawn */
     uint32_t *ea, *eb; /* drawn indices of the ends */
     size_t fails, cfails, strained;
-    int max_ring;  /* label candidates: 0 beside the node only, 1 and 2 further out */
-    spatial_t *sp; /* owned; the index for label placement (NULL: none yet) */
+    int max_ring;        /* label candidates: 0 beside the node only, 1 and 2 further out */
+    spatial_t *sp;       /* owned; the index for label placement (NULL: none yet) */
+    size_t neg_left_out; /* negative pairs between drawn items that are not drawn */
 } pic_t;
 
 typedef struct {

@@ -436,8 +436,10 @@ pm_err_t pm_i_svg_write_legend(ctx_t *c, const pic_t *p, sbuf *b, double wmin, d
         rbig = fmax(rbig, fmax(c->rk * sqrt(v[i]), c->rmin));
     }
     snprintf(size_head, sizeof size_head, "Circle area: share of %s", c->unit);
-    snprintf(line_head, sizeof line_head, "Line width: %s", c->measure);
-    snprintf(neg_text, sizeof neg_text, "dashed: chosen instead of each other");
+    /* with negative pairs drawn the width shows the strength either way: |phi| */
+    snprintf(line_head, sizeof line_head, any_negative ? "Line width: |%s|" : "Line width: %s",
+             c->measure);
+    snprintf(neg_text, sizeof neg_text, "dashed: chosen together less than expected");
     snprintf(foot, sizeof foot, "Layout: Fruchterman-Reingold, seed %llu \xc2\xb7 pairmap %s",
              (unsigned long long)c->o->seed, pm_version());
     double size_lines = (double)para_lines(c, x, fs, 1, size_head, 2);

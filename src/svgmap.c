@@ -11,26 +11,6 @@
 #include "svg_internal.h"
 
 /* ==== preparation: clean text, sizes, colours, priority ==================================== */
-typedef struct {
-    double v;
-    size_t i;
-} num_key;
-
-static int cmp_num_up(const void *pa, const void *pb) {
-    const num_key *a = pa, *b = pb;
-    if (a->v != b->v) {
-        return a->v < b->v ? -1 : 1;
-    }
-    return a->i < b->i ? -1 : (a->i > b->i);
-}
-
-static int cmp_num_down(const void *pa, const void *pb) {
-    const num_key *a = pa, *b = pb;
-    if (a->v != b->v) {
-        return a->v > b->v ? -1 : 1;
-    }
-    return a->i < b->i ? -1 : (a->i > b->i);
-}
 
 /* ==== writing =============================================================================== */
 static const char *fill_of(const ctx_t *c, size_t item) {
@@ -337,6 +317,7 @@ static void picture_stats(const ctx_t *c, const pic_t *p, pm_svg_stats_t *st) {
     st->drawn = p->nd;
     st->left_out = c->n - p->nd;
     st->edges_drawn = p->ne;
+    st->negative_left_out = p->neg_left_out;
     for (size_t j = 0; j < c->n_top && j < c->n; j++) {
         st->top_drawn += c->rank[c->order[j]] < p->nd; /* the order's first nd are drawn */
     }

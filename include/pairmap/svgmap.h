@@ -66,6 +66,8 @@ typedef struct {
     size_t alone_drawn;              /* items on their own drawn */
     size_t labels_shortened;         /* shortened with an ellipsis (never below 12 characters) */
     size_t labels_left_out;          /* no room even shortened: the tooltip names the item */
+    size_t negative_left_out;        /* negative pairs between drawn items not drawn: at most 2
+                                      * dashed lines an item, the strongest first */
 } pm_svg_stats_t;
 
 /* Defaults: seed 1, everything else 0. */

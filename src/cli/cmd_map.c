@@ -826,6 +826,11 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
         printf("; %zu clusters of 2 summarised in the legend, not drawn",
                v->small - v->small_drawn);
     }
+    if (v->negative_left_out) {
+        printf("\n              %zu negative pairs left out of the picture (at most 2 dashed "
+               "lines an item, the strongest first; the files keep all)",
+               v->negative_left_out);
+    }
     printf("\n              labels: %zu shortened (to 12 characters or more), %zu left out "
            "(named in the tooltip)",
            v->labels_shortened, v->labels_left_out);

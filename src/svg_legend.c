@@ -436,8 +436,13 @@ pm_err_t pm_i_svg_write_legend(ctx_t *c, const pic_t *p, sbuf *b, double wmin, d
         rbig = fmax(rbig, fmax(c->rk * sqrt(v[i]), c->rmin));
     }
     snprintf(size_head, sizeof size_head, "Circle area: share of %s", c->unit);
-    /* with negative pairs drawn the width shows the strength either way: |phi| */
-    snprintf(line_head, sizeof line_head, any_negative ? "Line width: |%s|" : "Line width: %s",
+    /* with negative weights drawn (phi) the width shows the strength either way: |phi|; a
+     * measure that stays positive for substitutes (lift) keeps its plain name */
+    int signed_w = 0;
+    for (size_t e = 0; e < p->ne; e++) {
+        signed_w |= d->weight[p->edge[e]] < 0;
+    }
+    snprintf(line_head, sizeof line_head, signed_w ? "Line width: |%s|" : "Line width: %s",
              c->measure);
     snprintf(neg_text, sizeof neg_text, "dashed: chosen together less than expected");
     snprintf(foot, sizeof foot, "Layout: Fruchterman-Reingold, seed %llu \xc2\xb7 pairmap %s",

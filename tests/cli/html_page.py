@@ -16,6 +16,7 @@ Run as `python3 html_page.py PAIRMAP REPO TMPDIR`.
 """
 import csv
 import io
+import json
 import os
 import re
 import shutil
@@ -224,6 +225,18 @@ def main():
     dom, rows = item_view(page, "Espresso")
     back_confidence(dom, "Espresso", rows, "Espresso")
     plain_dom = dom.raw
+    # the cluster list names the clusters as run.json does (the names of the SVG legend), and
+    # the footer gives run.json's version and input size
+    runj = json.load(open(os.path.join(out, "run.json"), encoding="utf-8"))
+    listed = [text(e) for e in dom.find(lambda e: e["tag"] == "button" and
+                                        e["attrs"].get("data-cluster", "alone") != "alone")]
+    want = ["%s%d" % (c["name"], c["size"]) for c in runj["clusters"] if c["size"] > 1]
+    check(listed == want, "cluster list %s, run.json %s" % (listed, want))
+    foot = text(dom.by_id("pm-footer") or {"text": []})
+    check(("pairmap %s" % runj["pairmap"]) in foot and
+          "{:,} bytes".format(runj["input_file"]["bytes"]) in foot and
+          "{:,} lines".format(runj["counts"]["lines"]) in foot,
+          "footer %r lacks run.json's version or input size" % foot)
 
     # 2. a name with a comma, 3. one with an accent and a phi filter (= partners --min-phi)
     item_view(page, "Apple strudel, warm")
@@ -379,6 +392,36 @@ def interaction(page):
         v0["box"], v4["box"]))
     check(abs(p0[0] - p1[0]) < 0.5 and abs(p0[1] - p1[1]) < 0.5,
           "the point under the pointer moved: %r -> %r" % (p0, p1))
+    # typing and Enter choose an item, and the address keeps it
+    b.load(url_of(page))
+    b.js("document.getElementById('pm-search').focus()")
+    for ch in "espr":
+        b.call("Input.insertText", session=True, text=ch)
+    shown = b.js("[].map.call(document.querySelectorAll('#pm-suggest li'),"
+                 " function (e) { return e.getAttribute('data-item'); })")
+    check(shown and shown[0] == "Espresso", "suggestions for 'espr': %r" % shown)
+    key(b, "Enter", "Enter", 13, "\r")
+    check(b.js("location.hash") == "#item=Espresso", "after Enter the address is %r" %
+          b.js("location.hash"))
+    # the phi slider by keyboard: one step, into the address
+    b.js("document.getElementById('pm-phi').focus()")
+    key(b, "ArrowRight", "ArrowRight", 39)
+    check(b.js("location.hash") == "#item=Espresso&phi=0.01",
+          "after a phi step the address is %r" % b.js("location.hash"))
+    # the pointer over a cluster's button lights that cluster (run.json's members); off it,
+    # the chosen item again
+    runj = json.load(open(os.path.join(os.path.dirname(page), "run.json"), encoding="utf-8"))
+    r = b.js("(function () { var e = document.querySelector('#pm-cluster-list button');"
+             " var r = e.getBoundingClientRect(); return [r.left + r.width / 2,"
+             " r.top + r.height / 2]; })()")
+    lit = "[].map.call(document.querySelectorAll('circle.node.pm-hl'), function (e) {" \
+          " return e.getAttribute('data-item'); }).sort()"
+    before = b.js(lit)
+    b.call("Input.dispatchMouseEvent", session=True, type="mouseMoved", x=r[0], y=r[1])
+    check(sorted(b.js(lit)) == sorted(runj["clusters"][0]["members"]),
+          "hover on cluster 1 lit %r" % b.js(lit))
+    b.call("Input.dispatchMouseEvent", session=True, type="mouseMoved", x=5, y=5)
+    check(b.js(lit) == before, "after the hover the lit items are %r" % b.js(lit))
 
 
 def weighted_both(out):

@@ -348,10 +348,12 @@
       thousands(R.respondents) + ' ' + UNIT + ', ' + pct(I.share[v])) +
       '; 95% Jeffreys interval ' + pct(I.share_low[v]) + ' to ' + pct(I.share_high[v]);
     p.appendChild(share);
-    var c = I.cluster[v], cp = el('p', null, 'Cluster ' + c + ': ');
+    var c = I.cluster[v], cp = el('p', null, C[c - 1].size > 1 ? 'Cluster ' + c + ': ' :
+      'On its own (no positive kept pair): ');
     var cb = el('button', { type: 'button', 'class': 'pm-link' });
-    cb.appendChild(bdi(C[c - 1].name || 'Cluster ' + c));
-    cb.addEventListener('click', function () { S.item = -1; S.cluster = c; render(); });
+    var target = C[c - 1].size > 1 ? c : 'alone';
+    cb.appendChild(bdi(C[c - 1].size > 1 ? C[c - 1].name || 'Cluster ' + c : 'the items on their own'));
+    cb.addEventListener('click', function () { S.item = -1; S.cluster = target; render(); });
     cp.appendChild(cb);
     p.appendChild(cp);
     if (!nodeEl[v]) {
@@ -374,7 +376,7 @@
     });
     var thead = el('thead');
     thead.appendChild(head);
-    t.appendChild(thead);
+    if (rows.length) { t.appendChild(thead); }
     var body = el('tbody');
     rows.forEach(function (r) {
       var kk = r.k, tr = el('tr', { 'data-item': I.name[r.j] });

@@ -187,6 +187,46 @@ static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
     fputc('}', fp);
 }
 
+/* "segments":[{"column":..,"levels":[..],"index":[[per vertex] per level]}] (none: nothing) */
+static void write_segments(FILE *fp, const pm_html_data_t *d) {
+    const pm_map_t *map = d->map;
+    if (!d->n_segments) {
+        return;
+    }
+    jkey(fp, "segments", 0);
+    fputc('[', fp);
+    for (size_t c = 0; c < d->n_segments; c++) {
+        const pm_html_segments_t *sg = &d->segments[c];
+        fputs(c ? ",{" : "{", fp);
+        jkey(fp, "column", 1);
+        jstr(fp, sg->column);
+        jkey(fp, "levels", 0);
+        fputc('[', fp);
+        for (size_t l = 0; l < sg->n_levels; l++) {
+            if (l) {
+                fputc(',', fp);
+            }
+            jstr(fp, sg->level[l]);
+        }
+        fputc(']', fp);
+        jkey(fp, "index", 0);
+        fputc('[', fp);
+        for (size_t l = 0; l < sg->n_levels; l++) {
+            fputs(l ? ",[" : "[", fp);
+            for (size_t v = 0; v < map->n; v++) {
+                if (v) {
+                    fputc(',', fp);
+                }
+                jnum(fp,
+                     map->item[v] < sg->n_items ? sg->index[l * sg->n_items + map->item[v]] : NAN);
+            }
+            fputc(']', fp);
+        }
+        fputs("]}", fp);
+    }
+    fputc(']', fp);
+}
+
 static void write_clusters(FILE *fp, const pm_html_data_t *d) {
     const pm_clusters_t *cl = d->map->clusters;
     jkey(fp, "clusters", 0);
@@ -281,9 +321,10 @@ static const char page_body[] =
     "aria-label=\"Hide pairs whose q-value is above this value (log scale)\"></div>\n"
     "<div class=\"pm-filter\" id=\"pm-neg-box\" hidden><label><input id=\"pm-neg\" "
     "type=\"checkbox\" checked> negative pairs</label></div>\n"
-    "<div class=\"pm-filter\" id=\"pm-seg-box\" hidden><label for=\"pm-seg\">segment</label>\n"
-    "<select id=\"pm-seg\" aria-label=\"Tint items by their index in a segment\">"
-    "</select></div>\n"
+    "<div class=\"pm-filter\" id=\"pm-seg-box\" hidden><label for=\"pm-seg\">tint by segment"
+    "</label>\n<select id=\"pm-seg\" aria-label=\"Tint items by their shrunk index in a "
+    "segment\"></select>\n<span id=\"pm-seg-key\" class=\"pm-note\" hidden>blue: chosen less "
+    "there than overall, orange: more (full colour at half or twice)</span></div>\n"
     "<button type=\"button\" id=\"pm-clear\">Clear</button>\n"
     "</div>\n</header>\n<main>\n"
     "<section id=\"pm-view\" tabindex=\"0\" aria-label=\"The map. Arrow keys pan, plus and "
@@ -341,6 +382,7 @@ pm_err_t pm_html_write(FILE *fp, const pm_html_data_t *d, pm_diag_t *diag) {
     }
     write_edges(fp, d, buf);
     write_clusters(fp, d);
+    write_segments(fp, d);
     /* the run on a line of its own: what names this run (input, options, size), as run.json */
     fputs("}</script>\n<script type=\"application/json\" id=\"pm-run\">{\"format\":1", fp);
     write_run(fp, d);

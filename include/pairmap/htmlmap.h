@@ -27,6 +27,17 @@ typedef struct {
     const char *unit; /* plural noun for respondents (--unit), NULL: "respondents" */
 } pm_html_run_t;
 
+/* One segment column for the page's segment selector: index[l * n_items + i] is the shrunk
+ * index (posterior share in level l / share over all respondents with a segment) of
+ * incidence item i, NaN where it has none (the `index` column of segments.csv). */
+typedef struct {
+    const char *column;
+    size_t n_levels;
+    const char *const *level;
+    size_t n_items; /* the incidence's items */
+    const double *index;
+} pm_html_segments_t;
+
 /* Everything the page shows. map: vertices, kept edges and clusters as the other files have
  * them (share_low/share_high required); cluster_name[c - 1] names cluster c as the SVG legend
  * does; svg, svg_len: map.svg's bytes as written (the XML declaration is dropped, the rest is
@@ -40,6 +51,8 @@ typedef struct {
     const pm_select_opts_t *sel;
     size_t drawn;
     const pm_html_run_t *run;
+    size_t n_segments; /* segment columns (0: no selector) */
+    const pm_html_segments_t *segments;
 } pm_html_data_t;
 
 /* Writes the page to fp. Every text of the data reaches the page through one of two escapers:

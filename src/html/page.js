@@ -109,7 +109,8 @@
   }
 
   /* ---- state and the URL fragment ------------------------------------------------------ */
-  var S = { item: -1, cluster: 0, phi: 0, q: null, neg: true, missing: null };
+  var S = { item: -1, cluster: 0, phi: 0, q: null, neg: true, missing: null, seg: null };
+  var SEG = D.segments || []; /* [{column, levels, index: [level][vertex]}] */
   function parseHash() {
     var out = {};
     location.hash.replace(/^#/, '').split('&').forEach(function (part) {
@@ -137,6 +138,12 @@
     var q = parseFloat(h.q);
     S.q = isFinite(q) && q >= 0 ? q : null;
     S.neg = h.neg !== '0';
+    S.seg = null;
+    SEG.forEach(function (col, c) {
+      if (col.column !== h.column) { return; }
+      var l = col.levels.indexOf(h.segment);
+      if (l >= 0) { S.seg = [c, l]; }
+    });
   }
   var writing = false;
   function writeHash() {
@@ -146,6 +153,10 @@
     if (S.phi > 0) { parts.push('phi=' + S.phi); }
     if (S.q !== null) { parts.push('q=' + S.q); }
     if (hasNeg && !S.neg) { parts.push('neg=0'); }
+    if (S.seg) {
+      parts.push('column=' + encodeURIComponent(SEG[S.seg[0]].column));
+      parts.push('segment=' + encodeURIComponent(SEG[S.seg[0]].levels[S.seg[1]]));
+    }
     var h = parts.length ? '#' + parts.join('&') : '';
     if (h === location.hash || (h === '' && location.hash === '')) { return; }
     try { history.replaceState(null, '', h || location.pathname + location.search); }
@@ -265,6 +276,7 @@
       }
     }
     applyMarks(focus, hl, hlEdges);
+    tint();
     renderPanel();
     renderClusterButtons();
     writeHash();
@@ -300,6 +312,53 @@
       if (shown(kk) && hl.has(E.a[kk]) && hl.has(E.b[kk])) { hlEdges.add(kk); }
     }
     applyMarks(true, hl, hlEdges);
+  }
+
+  /* ---- segments: items tinted by their shrunk index in the chosen segment ------------ */
+  var baseFill = nodeEl.map(function (e) { return e ? e.getAttribute('fill') : null; });
+  function mix(a, b, t) {
+    var out = '#';
+    for (var j = 1; j < 7; j += 2) {
+      var x = Math.round(parseInt(a.substr(j, 2), 16) * (1 - t) + parseInt(b.substr(j, 2), 16) * t);
+      out += (x < 16 ? '0' : '') + x.toString(16);
+    }
+    return out;
+  }
+  /* below 1 (chosen less there than overall) towards blue, above towards orange; a factor
+   * of 2 either way is the full colour */
+  function indexColor(x) {
+    if (x === null || !(x > 0)) { return '#ffffff'; }
+    var t = Math.max(-1, Math.min(1, Math.log(x) / Math.LN2));
+    return t < 0 ? mix('#e6e6e6', '#2f6db5', -t) : mix('#e6e6e6', '#c8571e', t);
+  }
+  function tint() {
+    for (var v = 0; v < n; v++) {
+      if (!nodeEl[v]) { continue; }
+      if (S.seg) {
+        var x = SEG[S.seg[0]].index[S.seg[1]][v];
+        nodeEl[v].setAttribute('fill', indexColor(x));
+        nodeEl[v].setAttribute('data-index', x === null ? '' : String(x));
+      } else {
+        nodeEl[v].setAttribute('fill', baseFill[v]);
+        nodeEl[v].removeAttribute('data-index');
+      }
+    }
+    $('pm-seg-key').hidden = !S.seg;
+  }
+  if (SEG.length) {
+    var segSel = $('pm-seg');
+    segSel.appendChild(el('option', { value: '' }, 'none (cluster colours)'));
+    SEG.forEach(function (col, c) {
+      col.levels.forEach(function (lv, l) {
+        segSel.appendChild(el('option', { value: c + ':' + l }, col.column + ' \u00b7 ' + lv));
+      });
+    });
+    segSel.addEventListener('change', function () {
+      var x = segSel.value.split(':');
+      S.seg = segSel.value ? [parseInt(x[0], 10), parseInt(x[1], 10)] : null;
+      render();
+    });
+    $('pm-seg-box').hidden = false;
   }
 
   /* ---- the side panel ------------------------------------------------------------------ */
@@ -356,6 +415,15 @@
     cb.addEventListener('click', function () { S.item = -1; S.cluster = target; render(); });
     cp.appendChild(cb);
     p.appendChild(cp);
+    if (S.seg) {
+      var x = SEG[S.seg[0]].index[S.seg[1]][v];
+      var sp = el('p', { id: 'pm-seg-index', 'data-v': x === null ? '' : String(x) });
+      sp.appendChild(document.createTextNode('Index in ' + SEG[S.seg[0]].column + ' \u00b7 '));
+      sp.appendChild(bdi(SEG[S.seg[0]].levels[S.seg[1]]));
+      sp.appendChild(document.createTextNode(': ' + (x === null ? 'n/a' : x.toFixed(2)) +
+        ' (shrunk share there / share overall)'));
+      p.appendChild(sp);
+    }
     if (!nodeEl[v]) {
       p.appendChild(el('p', { 'class': 'pm-note' }, 'Not drawn in the picture (' + drawnCount +
         ' of ' + n + ' items are); its numbers are all here.'));
@@ -546,6 +614,7 @@
     qIn.value = String(S.q === null ? qHi : Math.max(qLo, Math.log10(Math.max(S.q, 1e-300))));
     $('pm-q-out').textContent = S.q === null ? String(R.max_q) : qtext(S.q);
     $('pm-neg').checked = S.neg;
+    if (SEG.length) { $('pm-seg').value = S.seg ? S.seg[0] + ':' + S.seg[1] : ''; }
     if (S.item >= 0) { input.value = I.name[S.item]; }
   }
   phiIn.addEventListener('input', function () {
@@ -562,7 +631,7 @@
     $('pm-neg').addEventListener('change', function () { S.neg = $('pm-neg').checked; render(); });
   }
   $('pm-clear').addEventListener('click', function () {
-    S.item = -1; S.cluster = 0; S.missing = null; S.phi = 0; S.q = null; S.neg = true;
+    S.item = -1; S.cluster = 0; S.missing = null; S.phi = 0; S.q = null; S.neg = true; S.seg = null;
     input.value = '';
     syncControls(); render();
   });

@@ -94,6 +94,38 @@ pm_err_t pm_cli_map_picture(const pm_cli_map_picture_t *p, pm_svg_stats_t *stats
         .drawn = stats ? stats->drawn : 0,
         .run = &run,
     };
+    /* --segment-col: each column's shrunk index per level and item (pm_segstats_index, the
+     * index column of segments.csv) for the page's segment selector */
+    const pm_map_t *map = p->map;
+    pm_html_segments_t *segs = NULL;
+    double *ix = NULL;
+    size_t cells = 0;
+    for (size_t c = 0; c < map->n_seg; c++) {
+        cells += map->segcols[c].n_levels * map->inc->n_items;
+    }
+    if (map->n_seg) {
+        segs = calloc(map->n_seg, sizeof *segs);
+        ix = malloc((cells ? cells : 1) * sizeof *ix);
+        if (!segs || !ix) {
+            free(segs);
+            free(ix);
+            free(svg);
+            return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+        }
+        double *at = ix;
+        for (size_t c = 0; c < map->n_seg; c++) {
+            const pm_segcol_t *col = &map->segcols[c];
+            segs[c] = (pm_html_segments_t){col->column, col->n_levels,
+                                           (const char *const *)col->level, map->inc->n_items, at};
+            for (size_t l = 0; l < col->n_levels; l++) {
+                for (size_t i = 0; i < map->inc->n_items; i++) {
+                    *at++ = pm_segstats_index(&map->segstats[c], l, i);
+                }
+            }
+        }
+    }
+    hd.n_segments = map->n_seg;
+    hd.segments = segs;
     FILE *fp = NULL;
     rc = pm_outdir_create(p->od, "map.html", &fp, diag);
     if (!rc) {
@@ -108,6 +140,8 @@ pm_err_t pm_cli_map_picture(const pm_cli_map_picture_t *p, pm_svg_stats_t *stats
         free(opts[i]);
     }
     free(opts);
+    free(segs);
+    free(ix);
     free(svg);
     return rc;
 }

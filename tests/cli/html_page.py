@@ -11,7 +11,8 @@ References, outside the page's code:
   page#fragment, over the DevTools pipe of one headless browser: scripts/cdp_pipe.py),
   parsed by Python's html.parser;
 - a screenshot checked with PIL (not blank: many colours, much non-white);
-- with networking disabled (a new network namespace, unshare -n) the same DOM.
+- with networking disabled (a new network namespace, unshare -n) the same DOM;
+- segments.csv's index column: the shrunk index the segment selector tints by.
 Run as `python3 html_page.py PAIRMAP REPO TMPDIR`.
 """
 import csv
@@ -295,6 +296,7 @@ def main():
     check(nonwhite > 0.05 and colours > 200, "the screenshot looks blank")
 
     interaction(page)
+    segments_view(os.path.join(TMP, "segments"))
     weighted_both(os.path.join(TMP, "weighted"))
     hostile(os.path.join(TMP, "hostile"))
 
@@ -422,6 +424,43 @@ def interaction(page):
           "hover on cluster 1 lit %r" % b.js(lit))
     b.call("Input.dispatchMouseEvent", session=True, type="mouseMoved", x=5, y=5)
     check(b.js(lit) == before, "after the hover the lit items are %r" % b.js(lit))
+
+
+def segments_view(out):
+    """map --segment-col: the selector offers every segment of every column, and with one
+    chosen (column=COL&segment=LEVEL in the fragment) every drawn item carries and is tinted
+    by its shrunk index there, which is segments.csv's index column (the numbers to the last
+    digit); the item panel gives the chosen item's."""
+    run([PAIRMAP, "map", DEMO, "-o", out, "-q", "--segment-col", "location", "--segment-col",
+         "time_band"])
+    page = os.path.join(out, "map.html")
+    seg = list(csv.DictReader(open(os.path.join(out, "segments.csv"), encoding="utf-8")))
+    level = [r["segment"] for r in seg if r["attribute"] == "location"][-1]  # not the first
+    index = {r["item"]: r["index"] for r in seg
+             if r["attribute"] == "location" and r["segment"] == level}
+    what = "segments, location = %s" % level
+    dom = Dom(dump(page, "item=Espresso&column=location&segment=" +
+                   urllib.parse.quote(level, safe="")))
+    if not ready(dom, what):
+        return
+    options = [text(e) for e in dom.find(lambda e: e["tag"] == "option")]
+    want = sorted({(r["attribute"], r["segment"]) for r in seg})
+    check(len(options) == 1 + len(want) and
+          sorted(tuple(o.split(" \u00b7 ", 1)) for o in options[1:]) == want,
+          "%s: the selector offers %s, segments.csv has %s" % (what, options, want))
+    nodes = dom.find(lambda e: e["tag"] == "circle" and "node" in classes(e))
+    check(len(nodes) > 0, "%s: no node drawn" % what)
+    fills = set()
+    for e in nodes:
+        name, got = e["attrs"].get("data-item"), e["attrs"].get("data-index")
+        fills.add(e["attrs"].get("fill"))
+        if not check(got is not None and float(got) == float(index[name]),
+                     "%s: %s index %s, segments.csv %s" % (what, name, got, index.get(name))):
+            break
+    check(len(fills) > 3, "%s: the items are not tinted (%s)" % (what, fills))
+    p = dom.by_id("pm-seg-index")
+    check(p is not None and float(p["attrs"]["data-v"]) == float(index["Espresso"]),
+          "%s: the panel's index %s, segments.csv %s" % (what, p and p["attrs"], index["Espresso"]))
 
 
 def weighted_both(out):

@@ -324,19 +324,28 @@
     }
     return out;
   }
-  /* below 1 (chosen less there than overall) towards blue, above towards orange; a factor
-   * of 2 either way is the full colour */
-  function indexColor(x) {
+  /* below 1 (chosen less there than overall) towards blue, above towards orange; the
+   * segment's strongest index (shrinkage keeps most near 1), at least 1.1, is the full
+   * colour */
+  function indexColor(x, span) {
     if (x === null || !(x > 0)) { return '#ffffff'; }
-    var t = Math.max(-1, Math.min(1, Math.log(x) / Math.LN2));
+    var t = Math.max(-1, Math.min(1, Math.log(x) / span));
     return t < 0 ? mix('#e6e6e6', '#2f6db5', -t) : mix('#e6e6e6', '#c8571e', t);
   }
   function tint() {
+    var span = Math.log(1.1);
+    if (S.seg) {
+      SEG[S.seg[0]].index[S.seg[1]].forEach(function (x) {
+        if (x > 0) { span = Math.max(span, Math.abs(Math.log(x))); }
+      });
+      $('pm-seg-key').textContent = 'blue: chosen less there than overall, orange: more; ' +
+        'full colour at \u00d7' + Math.exp(span).toFixed(2) + ' either way';
+    }
     for (var v = 0; v < n; v++) {
       if (!nodeEl[v]) { continue; }
       if (S.seg) {
         var x = SEG[S.seg[0]].index[S.seg[1]][v];
-        nodeEl[v].setAttribute('fill', indexColor(x));
+        nodeEl[v].setAttribute('fill', indexColor(x, span));
         nodeEl[v].setAttribute('data-index', x === null ? '' : String(x));
       } else {
         nodeEl[v].setAttribute('fill', baseFill[v]);

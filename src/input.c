@@ -101,6 +101,9 @@ pm_err_t pm_input_read(const char *path, const pm_input_opts_t *o, pm_table_t **
     if (rc == PM_OK && par <= 0) {
         rc = pm_i_table_finish(t, o, diag);
     }
+    if (rc == PM_OK) {
+        rc = pm_i_table_late(t, o, diag);
+    }
     if (rc == PM_OK && o->format != PM_FORMAT_WIDE) {
         pm_i_reader_notes(t);
     }

@@ -53,6 +53,12 @@ struct pm_table {
     pm_i_strtab merge_from;
     int64_t *merge_to; /* merge_from id -> id in merge_to_names */
     pm_i_strtab merge_to_names;
+    unsigned char *drop_hit;  /* drop id -> some row matched it exactly (pm_i_table_late) */
+    unsigned char *merge_hit; /* merge_from id -> the same */
+    uint64_t *merge_line;     /* merge_from id -> its line in the merge file */
+    char **notes;             /* what pm_i_table_late did or could not do ("note: ..." or
+                               * "warning: ...", for the CLI to print) */
+    size_t n_notes;
     /* deferred respondent ids (long and lines readers): each run of rows with one id gets a
      * provisional index; runs with the same id are merged by pm_i_table_finish, which sorts
      * their hashes instead of probing a hash table once per run */
@@ -103,6 +109,14 @@ pm_err_t pm_i_table_weight(pm_table_t *t, uint32_t r, const char *w, size_t len,
 
 /* Finishes reading: applies --respondents, checks the table is usable. */
 pm_err_t pm_i_table_finish(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *diag);
+
+/* After reading (the table finished): every --drop-item name and --merge-file item that no row
+ * matched exactly is looked up with pm_item_find (pairmap/itemfind.h) among the items read.
+ * Found ignoring letter case, or as the plain label of wide-format items, it is applied now:
+ * those items' rows are dropped or renamed to the group, and a note says so. Ambiguous or not
+ * found: a warning naming the candidates or the closest items. Errors: PM_ENOMEM, PM_EDATA (a
+ * group that would take a second category). Table: src/table_late.c. */
+pm_err_t pm_i_table_late(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *diag);
 
 /* Resolves a column selector (name or 1-based number) against a header record; returns the
  * 0-based index or -1 when absent. With no header only numbers are accepted. */

@@ -202,7 +202,9 @@ static int resolve_raw(wide *w, int64_t rid, const question *q) {
     ri->key = w->raw.str[rid];
     ri->keylen = w->raw.len[rid];
     int err;
-    if (find_name(w, &w->drop, label, ll, q, &err) >= 0) {
+    int64_t d = find_name(w, &w->drop, label, ll, q, &err);
+    if (d >= 0) {
+        t->drop_hit[d] = 1;
         ri->act = ACT_DROP;
         return 0;
     }
@@ -211,8 +213,10 @@ static int resolve_raw(wide *w, int64_t rid, const question *q) {
         int64_t g = t->merge_to[m];
         const char *gl = t->merge_to_names.str[g];
         size_t gn = t->merge_to_names.len[g];
+        t->merge_hit[m] = 1;
         ri->act = ACT_MERGED;
-        if (find_name(w, &w->drop, gl, gn, q, &err) >= 0) {
+        if ((d = find_name(w, &w->drop, gl, gn, q, &err)) >= 0) {
+            t->drop_hit[d] = 1;
             ri->act |= ACT_DROP;
         }
         size_t kl;

@@ -231,6 +231,12 @@ static pm_err_t par_append(pm_table_t *t, pm_table_t *c, uint64_t base, par_rows
     t->stats.empty_items += c->stats.empty_items;
     t->stats.dropped_rows += c->stats.dropped_rows;
     t->stats.merged_rows += c->stats.merged_rows;
+    for (size_t i = 0; i < t->drop.count && i < c->drop.count; i++) {
+        t->drop_hit[i] |= c->drop_hit[i];
+    }
+    for (size_t i = 0; i < t->merge_from.count && i < c->merge_from.count; i++) {
+        t->merge_hit[i] |= c->merge_hit[i];
+    }
     rc = PM_OK;
 done:
     free(cat_map);

@@ -52,6 +52,13 @@ void pm_table_free(pm_table_t *t) {
     pm_i_strtab_destroy(&t->merge_from);
     pm_i_strtab_destroy(&t->merge_to_names);
     free(t->merge_to);
+    free(t->drop_hit);
+    free(t->merge_hit);
+    free(t->merge_line);
+    for (size_t i = 0; i < t->n_notes; i++) {
+        free(t->notes[i]);
+    }
+    free(t->notes);
     free(t->item_cat);
     free(t->item_line);
     free(t->row_resp);
@@ -136,7 +143,7 @@ static pm_err_t load_merge(pm_table_t *t, const char *path, pm_diag_t *diag) {
     co.sep = ',';
     co.display = path;
     pm_err_t rc = pm_i_csv_stream(fp, &co, merge_record, &m, diag);
-    free(m.line_of);
+    t->merge_line = m.line_of;
     fclose(fp);
     return rc;
 }
@@ -177,6 +184,12 @@ pm_err_t pm_i_table_new(const pm_input_opts_t *o, const char *display, pm_table_
             pm_table_free(t);
             return rc;
         }
+    }
+    t->drop_hit = pm_i_calloc(t->drop.count ? t->drop.count : 1, 1);
+    t->merge_hit = pm_i_calloc(t->merge_from.count ? t->merge_from.count : 1, 1);
+    if (!t->drop_hit || !t->merge_hit) {
+        pm_table_free(t);
+        return pm_diag_set(diag, PM_ENOMEM, display, 0, "out of memory");
     }
     t->weighted = o->weight_col != NULL;
     t->has_category = o->category_col != NULL;
@@ -293,7 +306,9 @@ pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len,
         t->stats.empty_items++;
         return PM_OK;
     }
-    if (t->drop.count && pm_i_strtab_find(&t->drop, item, len) >= 0) {
+    int64_t d;
+    if (t->drop.count && (d = pm_i_strtab_find(&t->drop, item, len)) >= 0) {
+        t->drop_hit[d] = 1;
         t->stats.dropped_rows++;
         return PM_OK;
     }
@@ -301,10 +316,12 @@ pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len,
         int64_t m = pm_i_strtab_find(&t->merge_from, item, len);
         if (m >= 0) {
             int64_t g = t->merge_to[m];
+            t->merge_hit[m] = 1;
             item = t->merge_to_names.str[g];
             len = t->merge_to_names.len[g];
             t->stats.merged_rows++;
-            if (t->drop.count && pm_i_strtab_find(&t->drop, item, len) >= 0) {
+            if (t->drop.count && (d = pm_i_strtab_find(&t->drop, item, len)) >= 0) {
+                t->drop_hit[d] = 1;
                 t->stats.dropped_rows++;
                 return PM_OK;
             }

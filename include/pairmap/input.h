@@ -126,6 +126,10 @@ pm_err_t pm_table_keep(pm_table_t *t, const unsigned char *keep, pm_diag_t *diag
 pm_err_t pm_table_wait_hash(pm_table_t *t, pm_diag_t *diag);
 /* The name shown in messages ("stdin" for "-"). */
 const char *pm_table_source(const pm_table_t *t);
+/* What reading noted about --drop-item and --merge-file names found only ignoring letter case
+ * or as a wide label, or not found (lines that begin "note: " or "warning: "): their number,
+ * *notes the array (owned by the table). */
+size_t pm_table_notes(const pm_table_t *t, const char *const **notes);
 bool pm_table_weighted(const pm_table_t *t);
 bool pm_table_has_categories(const pm_table_t *t);
 

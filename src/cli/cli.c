@@ -12,6 +12,7 @@
 #include <sys/stat.h>
 #include <time.h>
 #include <unistd.h>
+#include <unistd.h>
 
 #define ALL                                                                                        \
     (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_UNFOLD | PM_CMD_COUNT |   \
@@ -77,7 +78,7 @@ static const opt_def OPTS[] = {
     {"item", 0, 1, 1, PM_CMD_PARTNERS},
     {"top", 0, 1, 0, PM_CMD_PARTNERS},
     {"by", 0, 1, 0, PM_CMD_PARTNERS},
-    {"csv", 0, 0, 0, PM_CMD_PARTNERS},
+    {"csv", 0, 0, 0, PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS},
     {"sort", 0, 1, 0, PM_CMD_PAIRS | PM_CMD_ITEMS},
     /* segments */
     {"segment-col", 0, 1, 1, SEGMENTED},
@@ -238,6 +239,29 @@ const char *pm_cli_shown(const char *s) {
     static unsigned next;
     char *b = ring[next++ % 8];
     return pm_text_shown(s, strlen(s), b, sizeof ring[0], sizeof ring[0] - 1);
+}
+
+size_t pm_cli_text_width(const char *s) {
+    size_t w = 0;
+    for (const unsigned char *p = (const unsigned char *)s; *p; p++) {
+        w += (*p & 0xC0) != 0x80; /* code points */
+    }
+    return w;
+}
+
+void pm_cli_pad(size_t n) {
+    while (n-- > 0) {
+        fputc(' ', stdout);
+    }
+}
+
+const char *pm_cli_q(double q, char *buf, size_t size) {
+    snprintf(buf, size, "%.2g", q);
+    return buf;
+}
+
+int pm_cli_text_out(const pm_cli_t *c) {
+    return !pm_cli_flag(c, "csv") && isatty(STDOUT_FILENO);
 }
 
 int pm_cli_usage_error(const pm_cli_t *c, const char *fmt, ...) {
@@ -709,6 +733,11 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     } else if (s->empty_items) {
         pm_cli_note(c, "note: %llu rows named no item (their %s count in N)",
                     (unsigned long long)s->empty_items, pm_cli_unit(c));
+    }
+    const char *const *late;
+    size_t n_late = pm_table_notes(*table, &late);
+    for (size_t i = 0; i < n_late; i++) {
+        pm_cli_note(c, "%s", late[i]);
     }
     if (s->dropped_rows) {
         pm_cli_note(c, "note: %llu rows dropped by --drop-item",

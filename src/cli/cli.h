@@ -88,6 +88,16 @@ const char *pm_cli_shown(const char *s);
 /* --unit: the plural noun for one respondent in human-facing text ("respondents" by default);
  * pm_cli_check_unit returns 1 (after the usage message) when it is not a plain word. */
 const char *pm_cli_unit(const pm_cli_t *c);
+/* Text tables (partners, pairs, items on a terminal): the width of a name as shown (code
+ * points of pm_cli_shown's text), and n spaces on stdout. */
+size_t pm_cli_text_width(const char *shown);
+void pm_cli_pad(size_t n);
+/* A q-value as every human-facing text shows it: two significant digits ("%.2g": 0.0012,
+ * 8.9e-34), "1" at 1. */
+const char *pm_cli_q(double q, char *buf, size_t size);
+/* 1 when data goes out as a text table: standard output is a terminal and --csv is not
+ * given (pairs, items). */
+int pm_cli_text_out(const pm_cli_t *c);
 int pm_cli_check_unit(const pm_cli_t *c);
 /* A note on stderr unless --quiet (escaped as pm_cli_shown does). */
 void pm_cli_note(const pm_cli_t *c, const char *fmt, ...)

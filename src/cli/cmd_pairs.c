@@ -1,4 +1,5 @@
-/* pairmap pairs: every pair that passes the selection, all measures, CSV on stdout. */
+/* pairmap pairs: every pair that passes the selection, all measures: CSV on stdout, or an
+ * aligned text table when stdout is a terminal. */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -13,7 +14,10 @@ static const char help[] =
     "Writes the item pairs that pass the selection as CSV on standard output, columns\n"
     "  " PM_EDGES_HEADER "\n"
     "(item_a < item_b by bytes; rows in item_a, item_b order). `--min-count 0 --max-q 1\n"
-    "--sign both` lists every pair seen together.\n"
+    "--sign both` lists every pair seen together. When standard output is a terminal, an\n"
+    "aligned text table instead (item_a, item_b, together, expected, confidence both ways,\n"
+    "lift, phi, Jaccard, q_value; numbers rounded).\n"
+    "  --csv                 CSV even on a terminal (numbers in full precision)\n"
     "  --sort KEY            row order: name (item_a, item_b: the default), together, lift,\n"
     "                        phi, confidence (the larger of the two directions), each largest\n"
     "                        first, or q (smallest first); with --sign negative, lift and phi\n"
@@ -79,6 +83,52 @@ static int sort_edges(const pm_cli_t *c, const pm_pairs_t *pp, const pm_incidenc
     return 0;
 }
 
+/* ---- the text table ------------------------------------------------------------------- */
+static void print_text(const pm_cli_t *c, const pm_pairs_t *pp, const pm_incidence_t *inc,
+                       const pm_select_opts_t *sel, const pm_edges_t *e) {
+    const char *by = pm_cli_get(c, "sort");
+    char order[64] = "in name order";
+    if (by && strcmp(by, "name") != 0) {
+        snprintf(order, sizeof order, "sorted by %s", by);
+    }
+    printf("%zu pairs kept of %llu tested, %s; together >= %u, q <= %g, %s associations\n", e->n,
+           (unsigned long long)pp->hypotheses, order, sel->min_count, sel->max_q,
+           pm_sign_name(sel->sign));
+    if (e->n == 0) {
+        printf("no pair passes the selection\n");
+        return;
+    }
+    size_t wa = strlen("item_a"), wb = strlen("item_b");
+    for (size_t i = 0; i < e->n; i++) {
+        uint32_t a = pp->a[e->idx[i]], b = pp->b[e->idx[i]];
+        size_t da = pm_cli_text_width(pm_cli_shown(inc->name[a]));
+        size_t db = pm_cli_text_width(pm_cli_shown(inc->name[b]));
+        wa = da > wa ? da : wa;
+        wb = db > wb ? db : wb;
+    }
+    fputs("item_a", stdout);
+    pm_cli_pad(wa - strlen("item_a") + 2);
+    fputs("item_b", stdout);
+    pm_cli_pad(wb - strlen("item_b"));
+    printf("  %9s  %9s  %7s  %7s  %7s  %7s  %7s  %9s\n", "together", "expected", "conf_ab",
+           "conf_ba", "lift", "phi", "jaccard", "q_value");
+    for (size_t i = 0; i < e->n; i++) {
+        pm_measures_t m;
+        pm_pairs_measures(pp, inc, e->idx[i], &m);
+        const char *na = pm_cli_shown(inc->name[pp->a[e->idx[i]]]);
+        const char *nb = pm_cli_shown(inc->name[pp->b[e->idx[i]]]);
+        fputs(na, stdout);
+        pm_cli_pad(wa - pm_cli_text_width(na) + 2);
+        fputs(nb, stdout);
+        pm_cli_pad(wb - pm_cli_text_width(nb));
+        char q[32];
+        printf(inc->weight ? "  %9.1f" : "  %9.0f", m.together);
+        printf("  %9.1f  %6.1f%%  %6.1f%%  %7.2f  %7.3f  %7.3f  %9s\n", m.expected,
+               100 * m.confidence_ab, 100 * m.confidence_ba, m.lift, m.phi, m.jaccard,
+               pm_cli_q(m.q, q, sizeof q));
+    }
+}
+
 int pm_cmd_pairs(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
@@ -124,8 +174,13 @@ int pm_cmd_pairs(int argc, char **argv) {
     if ((rc = pm_cli_strat(&c, inc, seg, nseg, pp, e, &sel, &st)) != 0) {
         goto done;
     }
-    pm_err_t wr = nseg ? pm_write_edges_csv_strat(stdout, pp, inc, e, st, pm_cli_csv_flags(&c), &d)
-                       : pm_write_edges_csv(stdout, pp, inc, e, pm_cli_csv_flags(&c), &d);
+    pm_err_t wr = PM_OK;
+    if (pm_cli_text_out(&c) && nseg == 0) { /* the segment columns: CSV only */
+        print_text(&c, pp, inc, &sel, e);
+    } else {
+        wr = nseg ? pm_write_edges_csv_strat(stdout, pp, inc, e, st, pm_cli_csv_flags(&c), &d)
+                  : pm_write_edges_csv(stdout, pp, inc, e, pm_cli_csv_flags(&c), &d);
+    }
     free(st);
     if (wr) {
         /* a failed write is reported as one on standard output (full disk, issue 6) */

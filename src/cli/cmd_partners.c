@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "cli.h"
+#include "pairmap/itemfind.h"
 #include "pairmap/write.h"
 
 static const char help[] =
@@ -18,8 +19,10 @@ static const char help[] =
     "              Jeffreys interval (confidence_low, confidence_high)\n"
     "  lift, phi, q_value   as in `pairmap pairs`\n"
     "\n"
-    "  --item NAME           the item (exact name). Given several times: the partners of the\n"
-    "                        set, i.e. of the respondents who chose all of them. A set's\n"
+    "  --item NAME           the item: its exact name, or the one name equal to it ignoring\n"
+    "                        letter case (a note says which). Given several times: the\n"
+    "                        partners of the set, i.e. of the respondents who chose all of\n"
+    "                        them. A set's\n"
     "                        q-values come from Benjamini-Hochberg over its own tests (one per\n"
     "                        eligible item outside the set, never-seen partners included);\n"
     "                        one item's q-values are those of `pairmap pairs`, whose rows it\n"
@@ -36,7 +39,10 @@ static const char help[] =
     "The selection options below apply as in `pairmap pairs` (--min-count, --max-q, --sign,\n"
     "--min-phi, --min-lift, --min-share). A negative association is a hint, not proof:\n"
     "items sold in different seasons or mutually exclusive answer options show it too.\n"
-    "An unknown NAME is an error (exit 2) that lists the closest item names.\n"
+    "An unknown NAME is an error (exit 2) that lists the closest item names (those that\n"
+    "begin with NAME first, then those that contain it, then by edit distance); a wide\n"
+    "survey's label under several questions (`Lemonade` for `Lemonade (drinks)` and\n"
+    "`Lemonade (sweets)`) is an error that lists them: give the one you mean.\n"
     "\n";
 
 #define CSV_HEADER                                                                                 \
@@ -52,58 +58,66 @@ typedef struct {
     int has_st;
 } row;
 
-/* ---- closest names ----------------------------------------------------------------------- */
-/* Levenshtein distance on bytes, two rows of the table (Wagner & Fischer 1974). */
-static size_t edit_distance(const char *a, const char *b, size_t *buf) {
-    size_t la = strlen(a), lb = strlen(b);
-    size_t *prev = buf, *cur = buf + lb + 1;
-    for (size_t j = 0; j <= lb; j++) {
-        prev[j] = j;
+/* ---- finding the item --------------------------------------------------------------------- */
+/* Prints up to `n` names from idx as "'a', 'b', 'c'". */
+static void list_names(const pm_incidence_t *inc, const size_t *idx, size_t n) {
+    for (size_t k = 0; k < n; k++) {
+        fprintf(stderr, "%s'%s'", k ? ", " : "", pm_cli_shown(inc->name[idx[k]]));
     }
-    for (size_t i = 1; i <= la; i++) {
-        cur[0] = i;
-        for (size_t j = 1; j <= lb; j++) {
-            size_t sub = prev[j - 1] + (a[i - 1] != b[j - 1]);
-            size_t del = prev[j] + 1, ins = cur[j - 1] + 1;
-            cur[j] = sub < del ? (sub < ins ? sub : ins) : (del < ins ? del : ins);
-        }
-        size_t *t = prev;
-        prev = cur;
-        cur = t;
-    }
-    return prev[lb];
 }
 
-static int unknown_item(const pm_incidence_t *inc, const char *src, const char *name) {
-    size_t best[3] = {SIZE_MAX, SIZE_MAX, SIZE_MAX}, who[3] = {0, 0, 0};
-    size_t lb = strlen(name);
-    size_t *buf = malloc(2 * (lb + 1) * sizeof *buf);
-    if (!buf) {
+/* Finds --item NAME by the rules of pairmap/itemfind.h. A name found ignoring letter case is
+ * taken (a note says as what). A plain label of several wide-format items, several names
+ * equal ignoring case, or no match is an error (exit 2) that lists the candidates or the
+ * closest names: for --item we ask rather than guess, as the partners of "either" item are
+ * not the partners of one item, nor of the set. Returns 0 and sets *it, or the exit status. */
+static int find_item(const pm_cli_t *c, const pm_incidence_t *inc, const char *src,
+                     const char *name, long *it) {
+    pm_item_found_t f = {0};
+    pm_item_index_t *ix = NULL;
+    if (pm_item_index_new(inc->name, inc->n_items, &ix) || pm_item_find(ix, name, 1, &f)) {
+        pm_item_found_destroy(&f);
+        pm_item_index_free(ix);
         fputs("pairmap: out of memory\n", stderr);
         return 4;
     }
-    for (size_t i = 0; i < inc->n_items; i++) {
-        size_t dist = edit_distance(inc->name[i], name, buf);
-        /* insertion into the top 3; names are in byte order, so ties keep byte order */
-        for (int k = 0; k < 3; k++) {
-            if (dist < best[k]) {
-                for (int t = 2; t > k; t--) {
-                    best[t] = best[t - 1];
-                    who[t] = who[t - 1];
-                }
-                best[k] = dist;
-                who[k] = i;
-                break;
-            }
+    int rc = 2;
+    switch (f.how) {
+    case PM_ITEM_EXACT:
+    case PM_ITEM_CASE:
+        *it = (long)f.match[0];
+        if (f.how == PM_ITEM_CASE) {
+            pm_cli_note(c, "note: --item '%s' taken as '%s' (letter case differs)", name,
+                        inc->name[f.match[0]]);
         }
+        rc = 0;
+        break;
+    case PM_ITEM_AMBIGUOUS:
+        fprintf(stderr, "pairmap: %s: no item '%s'; ignoring letter case it could be ",
+                pm_cli_shown(src), pm_cli_shown(name));
+        list_names(inc, f.match, f.n);
+        fputs(": give one of them exactly\n", stderr);
+        break;
+    case PM_ITEM_LABEL:
+        fprintf(stderr, "pairmap: %s: '%s' is the label of %zu items, one per question: ",
+                pm_cli_shown(src), pm_cli_shown(name), f.n);
+        list_names(inc, f.match, f.n);
+        fputs("; give one of them as --item (several --item: the respondents who chose all "
+              "of them)\n",
+              stderr);
+        break;
+    case PM_ITEM_NONE:
+        fprintf(stderr, "pairmap: %s: no item '%s'", pm_cli_shown(src), pm_cli_shown(name));
+        if (f.n_near) {
+            fputs("; closest: ", stderr);
+            list_names(inc, f.near, f.n_near);
+        }
+        fputc('\n', stderr);
+        break;
     }
-    free(buf);
-    fprintf(stderr, "pairmap: %s: no item '%s'", pm_cli_shown(src), pm_cli_shown(name));
-    for (int k = 0; k < 3 && best[k] != SIZE_MAX; k++) {
-        fprintf(stderr, "%s'%s'", k ? ", " : "; closest: ", pm_cli_shown(inc->name[who[k]]));
-    }
-    fputc('\n', stderr);
-    return 2;
+    pm_item_found_destroy(&f);
+    pm_item_index_free(ix);
+    return rc;
 }
 
 /* ---- ranking -------------------------------------------------------------------------------- */
@@ -385,9 +399,8 @@ int pm_cmd_partners(int argc, char **argv) {
     size_t k = 0;
     uint32_t first = 0;
     for (size_t i = 0; i < nnames; i++) {
-        long it = pm_incidence_find(inc, names[i]);
-        if (it < 0) {
-            rc = unknown_item(inc, src, names[i]);
+        long it = -1;
+        if ((rc = find_item(&c, inc, src, names[i], &it)) != 0) {
             goto done;
         }
         if (!eligible(inc, (size_t)it, sel.min_share)) {

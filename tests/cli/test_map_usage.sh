@@ -16,7 +16,7 @@ expect_fail 1 "" "--item NAME" -- partners "$D"
 expect_fail 1 "" "--by" -- partners "$D" --item Espresso --by size
 expect_fail 1 "" "--top-edges" -- partners "$D" --item Espresso --top-edges 3
 expect_fail 2 "$D: " "closest: 'Espresso'" -- partners "$D" --item Expresso
-expect_fail 2 "$D: " "no item 'espresso'" -- partners "$D" --item espresso --item Tea
+expect_fail 2 "$D: " "no item 'Tea'" -- partners "$D" --item espresso --item Tea
 expect_fail 2 "$DATA/everyone_chose_everything.csv: " "every respondent" -- \
     partners "$DATA/everyone_chose_everything.csv" --item Espresso
 

@@ -875,6 +875,7 @@ static void child_main(const stage *st, share *sh, int fd, int spawn_no, pid_t p
             size_t len = ran ? nv * sizeof *st->memb : 2 * nv * sizeof *st->pos;
             bad = write_all(fd, &h, sizeof h) || write_all(fd, done, runs) ||
                   write_all(fd, first, len / 2);
+            free(done);
             _exit(bad);
         }
         bad = write_all(fd, &h, sizeof h) || write_all(fd, done, runs);
@@ -893,6 +894,7 @@ static void child_main(const stage *st, share *sh, int fd, int spawn_no, pid_t p
         h.bytes = strlen(sh->diag.msg);
         bad = write_all(fd, &h, sizeof h) || write_all(fd, sh->diag.msg, (size_t)h.bytes);
     }
+    free(done);
     _exit(bad);
 }
 

@@ -75,11 +75,16 @@ static const char help[] =
  * file-size limit fails as an I/O error with the usual clean-up. */
 static sigset_t g_stop_set;
 static atomic_int g_stop_sig; /* the signal received, published before pm_outdir_stop */
+static pthread_t g_sig_thread;
+static int g_sig_running; /* the sigwait thread started (main thread only) */
 
 static void *signal_main(void *arg) {
     (void)arg;
     int sig = 0;
     while (sigwait(&g_stop_set, &sig) != 0) {
+    }
+    if (sig == SIGUSR2) {
+        return NULL; /* release_signals: the run is over */
     }
     atomic_store(&g_stop_sig, sig);
     int replaced = pm_outdir_stop();
@@ -97,14 +102,28 @@ static void catch_signals(void) {
     sigaddset(&g_stop_set, SIGTERM);
     sigaddset(&g_stop_set, SIGHUP);
     sigaddset(&g_stop_set, SIGQUIT);
+    sigaddset(&g_stop_set, SIGUSR2); /* sent by release_signals only */
     pthread_sigmask(SIG_BLOCK, &g_stop_set, NULL);
     signal(SIGXFSZ, SIG_IGN);
     signal(SIGPIPE, SIG_IGN); /* a closed stdout: EPIPE, exit 3, the lock removed on the way */
-    pthread_t th;
-    if (pthread_create(&th, NULL, signal_main, NULL) == 0) {
-        pthread_detach(th);
+    if (pthread_create(&g_sig_thread, NULL, signal_main, NULL) == 0) {
+        g_sig_running = 1;
     } else {
         pthread_sigmask(SIG_UNBLOCK, &g_stop_set, NULL); /* default action: better than none */
+    }
+}
+
+/* Ends the sigwait thread (joined: nothing of it outlives the run, which valgrind checks) and
+ * unblocks the stop signals, so one that came after the run's last step takes its default
+ * action. */
+static void release_signals(void) {
+    if (g_sig_running) {
+        pthread_kill(g_sig_thread, SIGUSR2);
+        pthread_join(g_sig_thread, NULL);
+        g_sig_running = 0;
+        sigset_t stop = g_stop_set;
+        sigdelset(&stop, SIGUSR2);
+        pthread_sigmask(SIG_UNBLOCK, &stop, NULL);
     }
 }
 
@@ -907,12 +926,14 @@ int pm_cmd_map(int argc, char **argv) {
     catch_signals();
     /* the directory first: a run that cannot write should fail before the work */
     if (pm_outdir_open(no.dir, &s.od, &d)) {
-        return pm_cli_fail(&d);
+        rc = pm_cli_fail(&d);
+        goto out;
     }
     char lock_note[640];
     if (pm_outdir_lock(s.od, lock_note, sizeof lock_note, &d)) { /* one run per DIR */
         pm_outdir_free(s.od);
-        return pm_cli_fail(&d);
+        rc = pm_cli_fail(&d);
+        goto out;
     }
     if (lock_note[0]) {
         pm_cli_note(&c, "warning: %s: %s", pm_cli_shown(no.dir), lock_note);
@@ -941,12 +962,14 @@ int pm_cmd_map(int argc, char **argv) {
     s.t_count = s.pp->t_count;
     s.t_measures = s.pp->t_measures + (pm_cli_now() - t0);
     t0 = pm_cli_now();
-    early_start(&s, th);
     rc = build_network(&c, &no, &sel, &s);
     if (rc) {
         goto done;
     }
     s.t_graph = pm_cli_now() - t0;
+    /* edges.csv's thread starts after the network: the Louvain runs fork, and no thread but the
+     * sigwait one may run when they do (issue 12 point 2) */
+    early_start(&s, th);
     if ((rc = pm_cli_mapseg_run(&s.seg, s.inc, th)) != 0) {
         goto done;
     }
@@ -961,5 +984,7 @@ int pm_cmd_map(int argc, char **argv) {
     rc = pm_cli_close_stdout();
 done:
     state_free(&s);
+out:
+    release_signals();
     return rc;
 }

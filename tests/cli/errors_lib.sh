@@ -140,6 +140,21 @@ bound_memory() {
     PAIRMAP="$TMP/bounded"
 }
 
+# stalled_input PATH: makes PATH a FIFO whose writer sends a header and a few rows, then holds
+# the pipe open (for 60 s) without closing it, so a run reading PATH is certainly still reading
+# when a signal is sent (no timing guess); the writer is ended by stop_stalled_input.
+stalled_input() {
+    rm -f "$1"
+    mkfifo "$1"
+    (printf 'order,item\no1,a\no1,b\no2,a\n'; sleep 60) >"$1" &
+    STALLED_WRITER=$!
+}
+stop_stalled_input() {
+    kill "$STALLED_WRITER" 2>/dev/null
+    wait "$STALLED_WRITER" 2>/dev/null
+    return 0
+}
+
 # True when `pairmap CMD` is implemented (its --help succeeds).
 have_command() {
     "$PAIRMAP" "$1" --help >/dev/null 2>&1

@@ -29,8 +29,6 @@ expect_fail 3 "$out: " "in use by another run (process $first on $(hostname)" --
 wait "$first" || fail "the first run failed: $(cat "$TMP/first.err")"
 grep -o '"seed": [0-9]*' "$out/run.json" | grep -q '"seed": 2' || fail "run.json is not the first run's (seed 2)"
 nolock "the first run"
-awk 'BEGIN { srand(5); for (r = 1; r <= 400000; r++) printf "c%07d,item%04d\n", r / 4, int(rand() * 900) }' \
-    >"$TMP/big.csv"
 
 # ---- every way out removes the lock -----------------------------------------------------------
 expect_fail 2 "$DATA/short_row_line3.csv:3: " "" -- map "$DATA/short_row_line3.csv" -o "$out"
@@ -41,14 +39,15 @@ PM_TEST_COMMIT_FAIL=2 "$PAIRMAP" map "$D" -q -o "$out" >/dev/null 2>&1
 nolock "a failed commit"
 for sig in INT TERM HUP QUIT; do
     CASES=$((CASES + 1))
-    "$PAIRMAP" map "$TMP/big.csv" -q -o "$out" --restarts 50 --iterations 100000 >/dev/null 2>"$TMP/err" &
+    stalled_input "$TMP/stalled.csv" # the run is still reading when the signal comes
+    "$PAIRMAP" map "$TMP/stalled.csv" -q -o "$out" >/dev/null 2>"$TMP/err" &
     pid=$!
-    for _ in $(seq 1 200); do [ -e "$lock" ] && break; sleep 0.01; done
+    for _ in $(seq 1 500); do [ -e "$lock" ] && break; sleep 0.01; done
     [ -e "$lock" ] || fail "SIG$sig: the run took no lock"
-    sleep 0.3
     kill -s "$sig" "$pid"
     wait "$pid"
     rc=$?
+    stop_stalled_input
     [ "$rc" -eq 130 ] || [ "$rc" -eq 143 ] || fail "SIG$sig: exit $rc: $(cat "$TMP/err")"
     nolock "SIG$sig"
 done

@@ -78,16 +78,17 @@ CASES=$((CASES + 1))
 PM_TEST_COMMIT_FAIL=3 "$PAIRMAP" map "$D" -q -o "$TMP/fresh2/a/b/c" >/dev/null 2>"$TMP/err"
 [ $? -eq 3 ] || fail "a failed commit into new directories: $(cat "$TMP/err")"
 [ -e "$TMP/fresh2" ] && fail "a failed commit left the directories it created: $(find "$TMP/fresh2")"
-# a signal takes them away too (the read of a larger file is stopped)
-awk 'BEGIN { srand(3); for (r = 1; r <= 300000; r++) printf "c%07d,item%04d\n", r / 4, int(rand() * 900) }' \
-    >"$TMP/big.csv"
+# a signal takes them away too (the run is stopped while it reads a stalled input)
 CASES=$((CASES + 1))
-"$PAIRMAP" map "$TMP/big.csv" -q -o "$TMP/fresh3/$deep" --restarts 50 --iterations 100000 >/dev/null 2>"$TMP/err" &
+stalled_input "$TMP/stalled.csv"
+"$PAIRMAP" map "$TMP/stalled.csv" -q -o "$TMP/fresh3/$deep" >/dev/null 2>"$TMP/err" &
 pid=$!
-sleep 0.4
+for _ in $(seq 1 500); do [ -e "$TMP/fresh3/$deep/.pairmap.lock" ] && break; sleep 0.01; done
+[ -e "$TMP/fresh3/$deep/.pairmap.lock" ] || fail "the run into new directories took no lock"
 kill -TERM "$pid"
 wait "$pid"
 rc=$?
+stop_stalled_input
 [ "$rc" -eq 143 ] || fail "SIGTERM with new directories: exit $rc: $(cat "$TMP/err")"
 [ -e "$TMP/fresh3" ] && fail "SIGTERM left the directories created for -o: $(find "$TMP/fresh3" | wc -l) entries"
 finish

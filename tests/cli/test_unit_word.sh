@@ -47,30 +47,6 @@ if bad:
     print("; ".join(bad))
 sys.exit(1 if bad else 0)
 PY
-# the picture (issue 16 point 8: "SVG key and subtitle"): subtitle, size key and every node's
-# tooltip say "orders"; no text of the SVG says "respondent"
-CASES=$((CASES + 1))
-/usr/bin/python3 - "$TMP/m/map.svg" <<'PY' || fail "map.svg does not use --unit orders"
-import sys, xml.etree.ElementTree as ET
-S = "{http://www.w3.org/2000/svg}"
-root = ET.parse(sys.argv[1]).getroot()
-texts = {el.get("class"): "".join(el.itertext()) for el in root.iter(S + "text")}
-bad = []
-if not texts.get("subtitle", "").startswith("4,000 orders"):
-    bad.append("subtitle: %r" % texts.get("subtitle"))
-keys = [ "".join(el.itertext()) for el in root.iter(S + "text") if "".join(el.itertext()).startswith("Circle area")]
-if keys != ["Circle area: share of orders"]:
-    bad.append("size key: %r" % keys)
-tips = [c.find(S + "title").text for c in root.iter(S + "circle") if c.get("class") == "node"]
-if not tips or not all(" of orders, " in t for t in tips):
-    bad.append("tooltips: %r" % tips[:2])
-every = " ".join("".join(el.itertext()) for el in root.iter())
-if "respondent" in every.lower():
-    bad.append("'respondent' in the SVG text")
-if bad:
-    print("; ".join(bad))
-sys.exit(1 if bad else 0)
-PY
 # CSV columns keep their names
 CASES=$((CASES + 1))
 head -1 "$TMP/m/nodes.csv" | grep -q '^item,category,respondents,' || fail "nodes.csv header changed"

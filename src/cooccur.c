@@ -505,321 +505,378 @@ done:
     return PM_OK;
 }
 
-pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o, pm_counts_t **out,
-                         pm_diag_t *diag) {
-    *out = NULL;
-    if (o->given) {
-        return counts_given(inc, o, out, diag);
+/* ---- pm_counts_build, step by step ------------------------------------------------------- */
+
+static void kstate_free(kstate *k) {
+    if (k->outs) {
+        for (size_t c = 0; c < k->nchunks; c++) {
+            free(k->outs[c].a);
+            free(k->outs[c].b);
+            free(k->outs[c].n);
+            free(k->outs[c].w);
+        }
+        free(k->outs);
     }
-    pm_err_t rc = PM_ENOMEM;
-    kstate k;
-    memset(&k, 0, sizeof k);
-    k.o = o;
-    k.threads = o->threads ? o->threads : pm_cpu_count();
-    if (k.threads > 256) {
-        k.threads = 256;
+    for (unsigned t = 0; t < k->nacc; t++) {
+        free(k->acc[t]);
+        free(k->touched[t]);
+        if (k->wacc) {
+            free(k->wacc[t]);
+        }
     }
-    atomic_init(&k.done, 0);
-    atomic_init(&k.progress_lock, 0);
-    pm_counts_t *res = pm_i_calloc(1, sizeof *res);
-    int32_t *eidx = pm_i_malloc(inc->n_items, sizeof *eidx);
-    uint64_t *cost = NULL;
-    if (!res || !eidx) {
-        goto cleanup;
+    for (unsigned t = 0; t < k->ntri; t++) {
+        free(k->tri[t]);
     }
-    /* eligible renumbering */
-    k.gidx = pm_i_malloc(inc->n_items, sizeof *k.gidx);
-    if (!k.gidx) {
-        goto cleanup;
+    free(k->acc);
+    free(k->touched);
+    free(k->wacc);
+    free(k->wtx);
+    free(k->tri);
+    free(k->cbeg);
+    free(k->tp);
+    free(k->trow);
+    if (!k->tscratch) {
+        free(k->tbeg);
+        free(k->tend);
+    }
+    if (!k->borrowed) {
+        free(k->rp);
+        free(k->ci);
+        free(k->wt);
+    }
+    free(k->gidx);
+}
+
+/* The eligible items renumbered 0..E-1 (eidx[item], -1 for the others; k->gidx back). */
+static pm_err_t renumber_eligible(kstate *k, const pm_incidence_t *inc, int32_t *eidx) {
+    k->gidx = pm_i_malloc(inc->n_items, sizeof *k->gidx);
+    if (!k->gidx) {
+        return PM_ENOMEM;
     }
     for (size_t i = 0; i < inc->n_items; i++) {
-        if (!o->eligible || o->eligible[i]) {
-            eidx[i] = (int32_t)k.E;
-            k.gidx[k.E++] = (uint32_t)i;
+        if (!k->o->eligible || k->o->eligible[i]) {
+            eidx[i] = (int32_t)k->E;
+            k->gidx[k->E++] = (uint32_t)i;
         } else {
             eidx[i] = -1;
         }
     }
-    /* filtered rows; when every item is eligible the incidence's own rows are used as they
-     * are (rows with fewer than two items simply yield no pair) */
-    uint64_t nnz = 0;
-    size_t R = 0;
-    if (k.E == inc->n_items) {
-        k.borrowed = 1;
-        k.R = R = inc->n_resp;
-        k.rp = (uint64_t *)inc->row_ptr; /* read only */
-        k.ci = (uint32_t *)inc->col;
-        k.wt = (double *)inc->weight;
-        nnz = inc->row_ptr[inc->n_resp];
-        for (size_t r = 0; r < R; r++) {
-            uint64_t m = k.rp[r + 1] - k.rp[r];
-            k.total += m * (m - 1) / 2;
-        }
-        goto rows_ready;
+    return PM_OK;
+}
+
+/* Sum over the rows of m(m-1)/2, m the row's length: the pair incidences to visit. */
+static void rows_total(kstate *k) {
+    for (size_t r = 0; r < k->R; r++) {
+        uint64_t m = k->rp[r + 1] - k->rp[r];
+        k->total += m * (m - 1) / 2;
     }
+}
+
+/* The rows of eligible items, only those with two or more; when every item is eligible the
+ * incidence's own rows are used as they are (rows with fewer than two items simply yield no
+ * pair). *nnz gets their entries. */
+static pm_err_t filter_rows(kstate *k, const pm_incidence_t *inc, const int32_t *eidx,
+                            uint64_t *nnz) {
+    *nnz = 0;
+    if (k->E == inc->n_items) {
+        k->borrowed = 1;
+        k->R = inc->n_resp;
+        k->rp = (uint64_t *)inc->row_ptr; /* read only */
+        k->ci = (uint32_t *)inc->col;
+        k->wt = (double *)inc->weight;
+        *nnz = inc->row_ptr[inc->n_resp];
+        rows_total(k);
+        return PM_OK;
+    }
+    size_t R = 0;
     for (size_t r = 0; r < inc->n_resp; r++) {
         size_t m = 0;
         for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
             m += eidx[inc->col[q]] >= 0;
         }
         if (m >= 2) {
-            nnz += m;
+            *nnz += m;
             R++;
         }
     }
-    k.R = R;
-    k.rp = pm_i_malloc(R + 1, sizeof *k.rp);
+    k->R = R;
+    k->rp = pm_i_malloc(R + 1, sizeof *k->rp);
     /* + 1: the fill loop below writes a row's single eligible item before dropping the row
      * (found by tests/fuzz/fuzz_input, issue 6) */
-    k.ci = pm_i_malloc(nnz + 1, sizeof *k.ci);
+    k->ci = pm_i_malloc(*nnz + 1, sizeof *k->ci);
     if (inc->weight) {
-        k.wt = pm_i_malloc(R ? R : 1, sizeof *k.wt);
+        k->wt = pm_i_malloc(R ? R : 1, sizeof *k->wt);
     }
-    if (!k.rp || !k.ci || (inc->weight && !k.wt)) {
-        goto cleanup;
+    if (!k->rp || !k->ci || (inc->weight && !k->wt)) {
+        return PM_ENOMEM;
     }
-    {
-        uint64_t w = 0;
-        size_t rr = 0;
-        for (size_t r = 0; r < inc->n_resp; r++) {
-            uint64_t start = w;
-            for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
-                int32_t e = eidx[inc->col[q]];
-                if (e >= 0) {
-                    k.ci[w++] = (uint32_t)e;
-                }
-            }
-            if (w - start >= 2) {
-                k.rp[rr] = start;
-                if (k.wt) {
-                    k.wt[rr] = inc->weight[r];
-                }
-                rr++;
-            } else {
-                w = start;
+    uint64_t w = 0;
+    size_t rr = 0;
+    for (size_t r = 0; r < inc->n_resp; r++) {
+        uint64_t start = w;
+        for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
+            int32_t e = eidx[inc->col[q]];
+            if (e >= 0) {
+                k->ci[w++] = (uint32_t)e;
             }
         }
-        k.rp[R] = w;
-        for (size_t r = 0; r < R; r++) {
-            uint64_t m = k.rp[r + 1] - k.rp[r];
-            k.total += m * (m - 1) / 2;
+        if (w - start >= 2) {
+            k->rp[rr] = start;
+            if (k->wt) {
+                k->wt[rr] = inc->weight[r];
+            }
+            rr++;
+        } else {
+            w = start;
         }
     }
-rows_ready:
-    res->work = k.total;
+    k->rp[R] = w;
+    rows_total(k);
+    return PM_OK;
+}
+
+static int pick_kernel(const pm_counts_opts_t *o, const pm_incidence_t *inc, size_t E) {
     int kernel = o->kernel;
     size_t dmax = o->dense_max_items ? o->dense_max_items : 2048;
     if (kernel == PM_COUNTS_AUTO) {
-        kernel = (!inc->weight && k.E <= dmax) ? PM_COUNTS_DENSE : PM_COUNTS_SPARSE;
+        kernel = (!inc->weight && E <= dmax) ? PM_COUNTS_DENSE : PM_COUNTS_SPARSE;
     }
     if (kernel == PM_COUNTS_DENSE && inc->weight) {
         kernel = PM_COUNTS_SPARSE;
     }
-    res->kernel = kernel;
-    size_t want = (size_t)k.threads * 64; /* small chunks: the last one alone is short */
-    if (kernel == PM_COUNTS_SPARSE) {
-        /* transpose with positions, and work per item */
-        k.tp = pm_i_calloc(k.E + 1, sizeof *k.tp);
-        if (nnz >= UINT32_MAX) {
-            rc = PM_EDATA;
-            goto cleanup;
-        }
-        if (o->scratch[0] && o->scratch[1] && o->scratch_n >= nnz) {
-            k.tbeg = o->scratch[0]; /* the caller's: memory already in use, no page faults */
-            k.tend = o->scratch[1];
-            k.tscratch = 1;
-        } else {
-            k.tbeg = pm_i_malloc(nnz ? nnz : 1, sizeof *k.tbeg);
-            k.tend = pm_i_malloc(nnz ? nnz : 1, sizeof *k.tend);
-        }
-        if (k.wt) {
-            k.trow = pm_i_malloc(nnz ? nnz : 1, sizeof *k.trow);
-        }
-        cost = pm_i_calloc(k.E ? k.E : 1, sizeof *cost);
-        if (!k.tp || !k.tbeg || !k.tend || (k.wt && !k.trow) || !cost) {
-            goto cleanup;
-        }
-        /* parallel transpose: thread t takes rows [T t, T (t+1)), counts its entries per item,
-         * then fills from offsets that follow the threads before it, so each item's list is in
-         * row order whatever the number of threads */
-        {
-            tjob tj;
-            memset(&tj, 0, sizeof tj);
-            tj.k = &k;
-            tj.parts = k.threads;
-            tj.cnt = pm_i_calloc((size_t)tj.parts * (k.E ? k.E : 1), sizeof *tj.cnt);
-            tj.pcost = pm_i_calloc((size_t)tj.parts * (k.E ? k.E : 1), sizeof *tj.pcost);
-            if (!tj.cnt || !tj.pcost) {
-                free(tj.cnt);
-                free(tj.pcost);
-                goto cleanup;
-            }
-            tj.phase = 0;
-            int prc = pm_i_parallel(k.threads, tj.parts, transpose_part, &tj);
-            if (!prc) {
-                uint64_t at = 0;
-                for (size_t e = 0; e < k.E; e++) {
-                    k.tp[e] = at;
-                    for (unsigned t = 0; t < tj.parts; t++) {
-                        uint64_t c = tj.cnt[(size_t)t * k.E + e];
-                        tj.cnt[(size_t)t * k.E + e] = at; /* becomes the fill offset */
-                        at += c;
-                        cost[e] += tj.pcost[(size_t)t * k.E + e];
-                    }
-                }
-                k.tp[k.E] = at;
-                tj.phase = 1;
-                prc = pm_i_parallel(k.threads, tj.parts, transpose_part, &tj);
-            }
-            free(tj.cnt);
-            free(tj.pcost);
-            if (prc) {
-                rc = PM_EINTERNAL;
-                goto cleanup;
+    return kernel;
+}
+
+/* Parallel transpose: thread t takes rows [T t, T (t+1)), counts its entries per item, then
+ * fills from offsets that follow the threads before it, so each item's list is in row order
+ * whatever the number of threads. cost[e] gets item e's work. */
+static pm_err_t transpose(kstate *k, uint64_t *cost) {
+    tjob tj;
+    memset(&tj, 0, sizeof tj);
+    tj.k = k;
+    tj.parts = k->threads;
+    tj.cnt = pm_i_calloc((size_t)tj.parts * (k->E ? k->E : 1), sizeof *tj.cnt);
+    tj.pcost = pm_i_calloc((size_t)tj.parts * (k->E ? k->E : 1), sizeof *tj.pcost);
+    if (!tj.cnt || !tj.pcost) {
+        free(tj.cnt);
+        free(tj.pcost);
+        return PM_ENOMEM;
+    }
+    tj.phase = 0;
+    int prc = pm_i_parallel(k->threads, tj.parts, transpose_part, &tj);
+    if (!prc) {
+        uint64_t at = 0;
+        for (size_t e = 0; e < k->E; e++) {
+            k->tp[e] = at;
+            for (unsigned t = 0; t < tj.parts; t++) {
+                uint64_t c = tj.cnt[(size_t)t * k->E + e];
+                tj.cnt[(size_t)t * k->E + e] = at; /* becomes the fill offset */
+                at += c;
+                cost[e] += tj.pcost[(size_t)t * k->E + e];
             }
         }
-        k.cbeg = pm_i_malloc(want + 2, sizeof *k.cbeg);
-        if (!k.cbeg) {
-            goto cleanup;
-        }
-        k.nchunks = make_chunks(cost, k.E, want, k.cbeg);
-        k.acc = pm_i_calloc(k.threads, sizeof *k.acc);
-        k.touched = pm_i_calloc(k.threads, sizeof *k.touched);
-        if (!k.acc || !k.touched) {
-            goto cleanup;
-        }
-        k.nacc = k.threads;
-        if (k.wt) {
-            k.wacc = pm_i_calloc(k.threads, sizeof *k.wacc);
-            if (!k.wacc) {
-                goto cleanup;
-            }
-            /* exact weighted sums where the weights' range allows (src/exactsum.h) */
-            pm_i_xs_range xr = {0};
-            for (size_t r = 0; r < k.R; r++) {
-                pm_i_xs_see(&xr, k.wt[r]);
-            }
-            if (pm_i_xs_fit(&xr, k.R, &k.xe) == 0) {
-                k.wtx = pm_i_malloc(k.R ? k.R : 1, sizeof *k.wtx);
-                if (!k.wtx) {
-                    goto cleanup;
-                }
-                for (size_t r = 0; r < k.R; r++) {
-                    k.wtx[r] = pm_i_xs_units(k.wt[r], k.xe);
-                }
-            }
-        }
-        for (unsigned t = 0; t < k.threads; t++) {
-            k.acc[t] = pm_i_calloc(k.E ? k.E : 1, sizeof(uint32_t));
-            k.touched[t] = pm_i_malloc(k.E ? k.E : 1, sizeof(uint32_t));
-            if (!k.acc[t] || !k.touched[t]) {
-                goto cleanup;
-            }
-            if (k.wt) {
-                k.wacc[t] = pm_i_calloc(k.E ? k.E : 1, k.wtx ? sizeof(pm_i_u128) : sizeof(double));
-                if (!k.wacc[t]) {
-                    goto cleanup;
-                }
-            }
-        }
-        k.outs = pm_i_calloc(k.nchunks ? k.nchunks : 1, sizeof *k.outs);
-        if (!k.outs) {
-            goto cleanup;
-        }
-        int prc = pm_i_parallel(k.threads, k.nchunks, sparse_chunk, &k);
-        if (prc) {
-            rc = prc < 0 ? PM_EINTERNAL : PM_ENOMEM;
-            goto cleanup;
-        }
+        k->tp[k->E] = at;
+        tj.phase = 1;
+        prc = pm_i_parallel(k->threads, tj.parts, transpose_part, &tj);
+    }
+    free(tj.cnt);
+    free(tj.pcost);
+    return prc ? PM_EINTERNAL : PM_OK;
+}
+
+/* The transposed index's memory: the caller's scratch when it is large enough. */
+static pm_err_t transpose_alloc(kstate *k, uint64_t nnz) {
+    const pm_counts_opts_t *o = k->o;
+    k->tp = pm_i_calloc(k->E + 1, sizeof *k->tp);
+    if (nnz >= UINT32_MAX) {
+        return PM_EDATA;
+    }
+    if (o->scratch[0] && o->scratch[1] && o->scratch_n >= nnz) {
+        k->tbeg = o->scratch[0]; /* the caller's: memory already in use, no page faults */
+        k->tend = o->scratch[1];
+        k->tscratch = 1;
     } else {
-        size_t T = k.E * (k.E > 0 ? k.E - 1 : 0) / 2;
-        unsigned nt = k.threads;
-        if ((uint64_t)nt * 64 > R + 64) {
-            nt = (unsigned)(R / 64 + 1); /* few rows: fewer triangles */
-        }
-        if (nt > k.threads) {
-            nt = k.threads;
-        }
-        k.threads = nt;
-        k.tri = pm_i_calloc(nt, sizeof *k.tri);
-        if (!k.tri) {
-            goto cleanup;
-        }
-        k.ntri = nt;
-        for (unsigned t = 0; t < nt; t++) {
-            k.tri[t] = pm_i_calloc(T ? T : 1, sizeof(uint32_t));
-            if (!k.tri[t]) {
-                goto cleanup;
-            }
-        }
-        /* rows cut into chunks of similar work */
-        cost = pm_i_malloc(R ? R : 1, sizeof *cost);
-        k.cbeg = pm_i_malloc(want + 2, sizeof *k.cbeg);
-        if (!cost || !k.cbeg) {
-            goto cleanup;
-        }
-        for (size_t r = 0; r < R; r++) {
-            uint64_t m = k.rp[r + 1] - k.rp[r];
-            cost[r] = m * (m - 1) / 2;
-        }
-        k.nchunks = make_chunks(cost, R, want, k.cbeg);
-        /* Each thread must own its triangle: chunks are claimed dynamically, so a chunk may
-         * run on any thread; that is fine because the sum over triangles is exact. */
-        int prc = pm_i_parallel(nt, k.nchunks, dense_chunk, &k);
-        if (prc) {
-            rc = prc < 0 ? PM_EINTERNAL : PM_ENOMEM;
-            goto cleanup;
-        }
-        if (nt > 1) {
-            size_t nsum = want;
-            size_t save = k.nchunks;
-            k.nchunks = nsum;
-            pm_i_parallel(k.threads, nsum, dense_sum_chunk, &k);
-            k.nchunks = save;
-        }
-        /* emission by item ranges */
-        free(cost);
-        cost = pm_i_malloc(k.E ? k.E : 1, sizeof *cost);
-        if (!cost) {
-            goto cleanup;
-        }
-        for (size_t a = 0; a < k.E; a++) {
-            cost[a] = k.E - a;
-        }
-        k.nchunks = make_chunks(cost, k.E, want, k.cbeg);
-        k.outs = pm_i_calloc(k.nchunks ? k.nchunks : 1, sizeof *k.outs);
-        if (!k.outs) {
-            goto cleanup;
-        }
-        k.threads = o->threads ? o->threads : pm_cpu_count();
-        if (k.threads > 256) {
-            k.threads = 256;
-        }
-        int erc = pm_i_parallel(k.threads, k.nchunks, dense_emit_chunk, &k);
-        if (erc) {
-            rc = erc < 0 ? PM_EINTERNAL : PM_ENOMEM;
-            goto cleanup;
+        k->tbeg = pm_i_malloc(nnz ? nnz : 1, sizeof *k->tbeg);
+        k->tend = pm_i_malloc(nnz ? nnz : 1, sizeof *k->tend);
+    }
+    if (k->wt) {
+        k->trow = pm_i_malloc(nnz ? nnz : 1, sizeof *k->trow);
+    }
+    return !k->tp || !k->tbeg || !k->tend || (k->wt && !k->trow) ? PM_ENOMEM : PM_OK;
+}
+
+/* Exact weighted sums where the weights' range allows (src/exactsum.h): k->wtx. */
+static pm_err_t exact_weights(kstate *k) {
+    pm_i_xs_range xr = {0};
+    for (size_t r = 0; r < k->R; r++) {
+        pm_i_xs_see(&xr, k->wt[r]);
+    }
+    if (pm_i_xs_fit(&xr, k->R, &k->xe) != 0) {
+        return PM_OK;
+    }
+    k->wtx = pm_i_malloc(k->R ? k->R : 1, sizeof *k->wtx);
+    if (!k->wtx) {
+        return PM_ENOMEM;
+    }
+    for (size_t r = 0; r < k->R; r++) {
+        k->wtx[r] = pm_i_xs_units(k->wt[r], k->xe);
+    }
+    return PM_OK;
+}
+
+/* Per-thread accumulators of the sparse kernel: E counters, the touched list, weights. */
+static pm_err_t sparse_scratch(kstate *k) {
+    k->acc = pm_i_calloc(k->threads, sizeof *k->acc);
+    k->touched = pm_i_calloc(k->threads, sizeof *k->touched);
+    if (!k->acc || !k->touched) {
+        return PM_ENOMEM;
+    }
+    k->nacc = k->threads;
+    if (k->wt) {
+        k->wacc = pm_i_calloc(k->threads, sizeof *k->wacc);
+        if (!k->wacc || exact_weights(k)) {
+            return PM_ENOMEM;
         }
     }
-    /* concatenate chunk outputs in order */
+    for (unsigned t = 0; t < k->threads; t++) {
+        k->acc[t] = pm_i_calloc(k->E ? k->E : 1, sizeof(uint32_t));
+        k->touched[t] = pm_i_malloc(k->E ? k->E : 1, sizeof(uint32_t));
+        if (!k->acc[t] || !k->touched[t]) {
+            return PM_ENOMEM;
+        }
+        if (k->wt) {
+            k->wacc[t] = pm_i_calloc(k->E ? k->E : 1, k->wtx ? sizeof(pm_i_u128) : sizeof(double));
+            if (!k->wacc[t]) {
+                return PM_ENOMEM;
+            }
+        }
+    }
+    return PM_OK;
+}
+
+/* A pm_i_parallel result as an error: a thread that could not start, or a chunk's failure. */
+static pm_err_t parallel_rc(int prc) {
+    return prc == 0 ? PM_OK : prc < 0 ? PM_EINTERNAL : PM_ENOMEM;
+}
+
+/* The sparse kernel: transpose with positions and work per item, chunks of similar work. */
+static pm_err_t count_sparse(kstate *k, uint64_t nnz, size_t want) {
+    pm_err_t rc = transpose_alloc(k, nnz);
+    uint64_t *cost = NULL;
+    if (rc == PM_OK) {
+        cost = pm_i_calloc(k->E ? k->E : 1, sizeof *cost);
+        rc = cost ? transpose(k, cost) : PM_ENOMEM;
+    }
+    if (rc == PM_OK) {
+        k->cbeg = pm_i_malloc(want + 2, sizeof *k->cbeg);
+        rc = k->cbeg ? PM_OK : PM_ENOMEM;
+    }
+    if (rc == PM_OK) {
+        k->nchunks = make_chunks(cost, k->E, want, k->cbeg);
+        rc = sparse_scratch(k);
+    }
+    free(cost);
+    if (rc == PM_OK) {
+        k->outs = pm_i_calloc(k->nchunks ? k->nchunks : 1, sizeof *k->outs);
+        rc = k->outs ? parallel_rc(pm_i_parallel(k->threads, k->nchunks, sparse_chunk, k))
+                     : PM_ENOMEM;
+    }
+    return rc;
+}
+
+/* Dense kernel, first half: each thread's triangle, rows cut into chunks of similar work;
+ * then the triangles summed into the first. */
+static pm_err_t dense_triangles(kstate *k, size_t want) {
+    size_t R = k->R, T = k->E * (k->E > 0 ? k->E - 1 : 0) / 2;
+    unsigned nt = k->threads;
+    if ((uint64_t)nt * 64 > R + 64) {
+        nt = (unsigned)(R / 64 + 1); /* few rows: fewer triangles */
+    }
+    if (nt > k->threads) {
+        nt = k->threads;
+    }
+    k->threads = nt;
+    k->tri = pm_i_calloc(nt, sizeof *k->tri);
+    if (!k->tri) {
+        return PM_ENOMEM;
+    }
+    k->ntri = nt;
+    for (unsigned t = 0; t < nt; t++) {
+        k->tri[t] = pm_i_calloc(T ? T : 1, sizeof(uint32_t));
+        if (!k->tri[t]) {
+            return PM_ENOMEM;
+        }
+    }
+    uint64_t *cost = pm_i_malloc(R ? R : 1, sizeof *cost);
+    k->cbeg = pm_i_malloc(want + 2, sizeof *k->cbeg);
+    if (!cost || !k->cbeg) {
+        free(cost);
+        return PM_ENOMEM;
+    }
+    for (size_t r = 0; r < R; r++) {
+        uint64_t m = k->rp[r + 1] - k->rp[r];
+        cost[r] = m * (m - 1) / 2;
+    }
+    k->nchunks = make_chunks(cost, R, want, k->cbeg);
+    free(cost);
+    /* Each thread must own its triangle: chunks are claimed dynamically, so a chunk may
+     * run on any thread; that is fine because the sum over triangles is exact. */
+    pm_err_t rc = parallel_rc(pm_i_parallel(nt, k->nchunks, dense_chunk, k));
+    if (rc == PM_OK && nt > 1) {
+        size_t save = k->nchunks;
+        k->nchunks = want;
+        pm_i_parallel(k->threads, want, dense_sum_chunk, k);
+        k->nchunks = save;
+    }
+    return rc;
+}
+
+/* The dense kernel: triangles, then the pairs emitted by item ranges on all threads. */
+static pm_err_t count_dense(kstate *k, size_t want) {
+    pm_err_t rc = dense_triangles(k, want);
+    if (rc) {
+        return rc;
+    }
+    uint64_t *cost = pm_i_malloc(k->E ? k->E : 1, sizeof *cost);
+    if (!cost) {
+        return PM_ENOMEM;
+    }
+    for (size_t a = 0; a < k->E; a++) {
+        cost[a] = k->E - a;
+    }
+    k->nchunks = make_chunks(cost, k->E, want, k->cbeg);
+    free(cost);
+    k->outs = pm_i_calloc(k->nchunks ? k->nchunks : 1, sizeof *k->outs);
+    if (!k->outs) {
+        return PM_ENOMEM;
+    }
+    k->threads = k->o->threads ? k->o->threads : pm_cpu_count();
+    if (k->threads > 256) {
+        k->threads = 256;
+    }
+    return parallel_rc(pm_i_parallel(k->threads, k->nchunks, dense_emit_chunk, k));
+}
+
+/* The chunks' outputs concatenated in order into res. */
+static pm_err_t concat_outputs(kstate *k, pm_counts_t *res, int weighted) {
     size_t total = 0;
-    for (size_t c = 0; c < k.nchunks; c++) {
-        total += k.outs[c].len;
-        res->seen += k.outs[c].seen;
-        res->pruned += k.outs[c].pruned;
+    for (size_t c = 0; c < k->nchunks; c++) {
+        total += k->outs[c].len;
+        res->seen += k->outs[c].seen;
+        res->pruned += k->outs[c].pruned;
     }
     res->a = pm_i_malloc(total ? total : 1, sizeof *res->a);
     res->b = pm_i_malloc(total ? total : 1, sizeof *res->b);
     res->n = pm_i_malloc(total ? total : 1, sizeof *res->n);
-    if (inc->weight) {
+    if (weighted) {
         res->w = pm_i_malloc(total ? total : 1, sizeof *res->w);
     }
-    if (!res->a || !res->b || !res->n || (inc->weight && !res->w)) {
-        goto cleanup;
+    if (!res->a || !res->b || !res->n || (weighted && !res->w)) {
+        return PM_ENOMEM;
     }
     size_t at = 0;
-    for (size_t c = 0; c < k.nchunks; c++) {
-        outbuf *ob = &k.outs[c];
+    for (size_t c = 0; c < k->nchunks; c++) {
+        outbuf *ob = &k->outs[c];
         if (ob->len) {
             memcpy(res->a + at, ob->a, ob->len * sizeof *res->a);
             memcpy(res->b + at, ob->b, ob->len * sizeof *res->b);
@@ -837,58 +894,57 @@ rows_ready:
         ob->w = NULL;
     }
     res->n_pairs = total;
-    rc = PM_OK;
-cleanup:
-    if (k.outs) {
-        for (size_t c = 0; c < k.nchunks; c++) {
-            free(k.outs[c].a);
-            free(k.outs[c].b);
-            free(k.outs[c].n);
-            free(k.outs[c].w);
-        }
-        free(k.outs);
+    return PM_OK;
+}
+
+static pm_err_t counts_error(pm_err_t rc, pm_diag_t *diag) {
+    if (rc == PM_ENOMEM) {
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory while counting pairs");
     }
-    for (unsigned t = 0; t < k.nacc; t++) {
-        free(k.acc[t]);
-        free(k.touched[t]);
-        if (k.wacc) {
-            free(k.wacc[t]);
-        }
+    if (rc == PM_EDATA) {
+        return pm_diag_set(diag, PM_EDATA, NULL, 0,
+                           "more than 4294967294 respondent-item rows of eligible items; "
+                           "split the input or raise --min-share");
     }
-    for (unsigned t = 0; t < k.ntri; t++) {
-        free(k.tri[t]);
+    return pm_diag_set(diag, rc, NULL, 0, "cannot start the counting threads");
+}
+
+pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o, pm_counts_t **out,
+                         pm_diag_t *diag) {
+    *out = NULL;
+    if (o->given) {
+        return counts_given(inc, o, out, diag);
     }
-    free(k.acc);
-    free(k.touched);
-    free(k.wacc);
-    free(k.wtx);
-    free(k.tri);
-    free(k.cbeg);
-    free(cost);
-    free(k.tp);
-    free(k.trow);
-    if (!k.tscratch) {
-        free(k.tbeg);
-        free(k.tend);
+    kstate k;
+    memset(&k, 0, sizeof k);
+    k.o = o;
+    k.threads = o->threads ? o->threads : pm_cpu_count();
+    if (k.threads > 256) {
+        k.threads = 256;
     }
-    if (!k.borrowed) {
-        free(k.rp);
-        free(k.ci);
-        free(k.wt);
+    atomic_init(&k.done, 0);
+    atomic_init(&k.progress_lock, 0);
+    pm_counts_t *res = pm_i_calloc(1, sizeof *res);
+    int32_t *eidx = pm_i_malloc(inc->n_items, sizeof *eidx);
+    uint64_t nnz = 0;
+    pm_err_t rc = res && eidx ? renumber_eligible(&k, inc, eidx) : PM_ENOMEM;
+    if (rc == PM_OK) {
+        rc = filter_rows(&k, inc, eidx, &nnz);
     }
-    free(k.gidx);
     free(eidx);
+    if (rc == PM_OK) {
+        res->work = k.total;
+        res->kernel = pick_kernel(o, inc, k.E);
+        size_t want = (size_t)k.threads * 64; /* small chunks: the last one alone is short */
+        rc = res->kernel == PM_COUNTS_SPARSE ? count_sparse(&k, nnz, want) : count_dense(&k, want);
+    }
+    if (rc == PM_OK) {
+        rc = concat_outputs(&k, res, inc->weight != NULL);
+    }
+    kstate_free(&k);
     if (rc != PM_OK) {
         pm_counts_free(res);
-        if (rc == PM_ENOMEM) {
-            return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory while counting pairs");
-        }
-        if (rc == PM_EDATA) {
-            return pm_diag_set(diag, PM_EDATA, NULL, 0,
-                               "more than 4294967294 respondent-item rows of eligible items; "
-                               "split the input or raise --min-share");
-        }
-        return pm_diag_set(diag, rc, NULL, 0, "cannot start the counting threads");
+        return counts_error(rc, diag);
     }
     *out = res;
     return PM_OK;

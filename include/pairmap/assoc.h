@@ -127,9 +127,24 @@ typedef struct {
 pm_err_t pm_assoc_cost(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_counts_cost_t *out,
                        pm_diag_t *diag);
 
-/* Counts, tests and corrects every pair of eligible items of inc. *out owns the result
- * (pm_pairs_free). Cost O(sum k^2 + seen pairs log seen pairs + D^2) where D is the number of
- * distinct item totals (classes of never-seen pairs share one p-value). */
+/* Scoring runs in three steps, the counting in the middle called by the pipeline:
+ *   pm_assoc_begin   eligible items, the log-factorial table, the stores for pruned pairs;
+ *                    fills *co with the options the counting must run with
+ *   pm_counts_build  (cooccur.h) the counting, with *co
+ *   pm_assoc_finish  tests of the listed, pruned and never-seen pairs, Benjamini-Hochberg
+ * pm_assoc_run (src/score.c) is the three in a row. *out owns the result (pm_pairs_free).
+ * Cost O(sum k^2 + seen pairs log seen pairs + D^2) where D is the number of distinct item
+ * totals (classes of never-seen pairs share one p-value). Errors: PM_ENOMEM (every allocation
+ * is checked), PM_EINTERNAL (no worker thread could start for the listed pairs' tests),
+ * PM_EUSAGE (too many classes of never-seen pairs under sign negative or both), and the
+ * counting's errors (cooccur.h). */
+typedef struct pm_assoc_stage pm_assoc_stage_t;
+pm_err_t pm_assoc_begin(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_assoc_stage_t **st,
+                        pm_counts_opts_t *co, pm_diag_t *diag);
+/* Takes cnt (freed here) and st (freed here, whatever the outcome). */
+pm_err_t pm_assoc_finish(pm_assoc_stage_t *st, pm_counts_t *cnt, pm_pairs_t **out, pm_diag_t *diag);
+/* Frees a stage that pm_assoc_finish will not see (the counting failed); NULL is fine. */
+void pm_assoc_stage_free(pm_assoc_stage_t *st);
 pm_err_t pm_assoc_run(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_pairs_t **out,
                       pm_diag_t *diag);
 void pm_pairs_free(pm_pairs_t *p);

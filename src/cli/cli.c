@@ -810,7 +810,20 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
     /* the table's rows (no longer needed: the incidence is built) as the counting's scratch,
      * memory in use already instead of some 80 MB of fresh pages on the benchmark file */
     ao.scratch_n = pm_table_take_rows(t, &ao.scratch[0], &ao.scratch[1]);
-    pm_err_t rc = pm_assoc_run(inc, &ao, pairs, &d);
+    /* the stages in a row: the scoring's set-up, the counting, the tests */
+    pm_assoc_stage_t *st = NULL;
+    pm_counts_opts_t co;
+    pm_counts_t *cnt = NULL;
+    *pairs = NULL;
+    pm_err_t rc = pm_assoc_begin(inc, &ao, &st, &co, &d);
+    if (rc == PM_OK) {
+        rc = pm_counts_build(inc, &co, &cnt, &d);
+    }
+    if (rc == PM_OK) {
+        rc = pm_assoc_finish(st, cnt, pairs, &d);
+    } else {
+        pm_assoc_stage_free(st);
+    }
     free(ao.scratch[0]);
     free(ao.scratch[1]);
     pm_cli_progress_end(c);

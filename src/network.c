@@ -1,680 +1,37 @@
-/* The network stage (igraph): Louvain clusters with restarts and stability, Fruchterman-Reingold
- * layout, modularity and the adjusted Rand index, all on plain arrays (see network.h); the
- * restarts and the layout can run in forked worker processes (igraph is not thread-safe here).
- * The only file of the library that includes igraph; igraph errors become PM_EINTERNAL with
- * igraph's own text (or PM_ENOMEM), never an abort. */
+/* The network stage (see network.h): Louvain clusters with restarts and stability, and the
+ * Fruchterman-Reingold layout, the work shared among forked worker processes (igraph is not
+ * thread-safe here). The stage's other files: network_graph.c (igraph set-up and errors, the
+ * usable edges, modularity, adjusted Rand index), network_layout.c, network_louvain.c. The only
+ * files of the library that include igraph; igraph errors become PM_EINTERNAL with igraph's own
+ * text (or PM_ENOMEM), never an abort. */
 #include "pairmap/network.h"
 
 #include <errno.h>
-#include <gsl/gsl_errno.h>
-#include <igraph.h>
 #include <math.h>
 #include <pthread.h>
 #include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <stdatomic.h>
 #include <sys/mman.h>
 #ifndef MAP_ANONYMOUS
 #define MAP_ANONYMOUS 0x20 /* Linux's value (sys/mman.h names it only beyond POSIX) */
 #endif
 #include <sys/types.h>
 #include <sys/wait.h>
+#include <time.h>
 #include <unistd.h>
 #ifdef __linux__
 #include <sys/prctl.h>
 #endif
 
+#define PM_NETWORK_STAGE
 #include "network_internal.h"
 #include "util.h"
 
-/* ---- igraph set-up and errors --------------------------------------------------------------- */
-
-/* The last non-empty reason igraph gave. IGRAPH_CHECK calls the handler again with an empty
- * reason on the way up, so only non-empty reasons overwrite it. Process-global like igraph's
- * own handler state (see network.h: not thread-safe). */
-static char g_reason[512];
-
-static void on_igraph_error(const char *reason, const char *file, int line, igraph_error_t err) {
-    (void)file;
-    (void)line;
-    (void)err;
-    if (reason && reason[0]) {
-        snprintf(g_reason, sizeof g_reason, "%s", reason);
-    }
-    IGRAPH_FINALLY_FREE(); /* frees the temporaries registered with IGRAPH_FINALLY */
-}
-
-static void on_igraph_warning(const char *reason, const char *file, int line) {
-    (void)reason;
-    (void)file;
-    (void)line;
-}
-
-void pm_init(void) {
-    igraph_set_attribute_table(&igraph_cattribute_table);
-    igraph_set_error_handler(on_igraph_error);
-    igraph_set_warning_handler(on_igraph_warning);
-    gsl_set_error_handler_off();
-}
-
-static pm_err_t from_igraph(igraph_error_t rc, const char *what, pm_diag_t *diag) {
-    if (rc == IGRAPH_ENOMEM) {
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory (%s)", what);
-    }
-    return pm_diag_set(diag, PM_EINTERNAL, NULL, 0, "igraph failed in %s: %s%s%s", what,
-                       igraph_strerror(rc), g_reason[0] ? ": " : "", g_reason);
-}
-
-/* ---- usable edges -----------------------------------------------------------------------------
- */
-
-/* The edges that take part (see network.h), renumbered to the vertices that have one. */
-typedef struct {
-    size_t nv;              /* vertices with a usable edge */
-    size_t me;              /* usable edges */
-    uint32_t *newid;        /* [n] new id, or UINT32_MAX for isolated vertices */
-    uint32_t *oldid;        /* [nv] */
-    igraph_integer_t *ends; /* [2 me] new ids */
-    double *w;              /* [me] */
-} usable;
-
-static void usable_free(usable *u) {
-    free(u->newid);
-    free(u->oldid);
-    free(u->ends);
-    free(u->w);
-    memset(u, 0, sizeof *u);
-}
-
-static int edge_ok(const uint32_t *ea, const uint32_t *eb, const double *w, size_t k) {
-    double x = w ? w[k] : 1.0;
-    return ea[k] != eb[k] && isfinite(x) && x > 0;
-}
-
-/* renumber: 1 to drop the vertices without usable edges, 0 to keep all n (newid = id). */
-static pm_err_t usable_init(usable *u, size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
-                            const double *w, int renumber, pm_diag_t *diag) {
-    memset(u, 0, sizeof *u);
-    if (n >= (size_t)UINT32_MAX || n > (size_t)IGRAPH_VCOUNT_MAX || m > (size_t)IGRAPH_ECOUNT_MAX) {
-        return pm_diag_set(diag, PM_EINTERNAL, NULL, 0,
-                           "graph too large for igraph (%zu vertices, %zu edges)", n, m);
-    }
-    for (size_t k = 0; k < m; k++) {
-        if (ea[k] >= n || eb[k] >= n) {
-            return pm_diag_set(diag, PM_EINTERNAL, NULL, 0,
-                               "edge %zu names vertex %u of a graph with %zu vertices", k,
-                               ea[k] >= n ? ea[k] : eb[k], n);
-        }
-    }
-    u->newid = pm_i_malloc(n ? n : 1, sizeof *u->newid);
-    u->oldid = pm_i_malloc(n ? n : 1, sizeof *u->oldid);
-    if (!u->newid || !u->oldid) {
-        usable_free(u);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-    }
-    for (size_t i = 0; i < n; i++) {
-        u->newid[i] = UINT32_MAX;
-    }
-    size_t me = 0;
-    for (size_t k = 0; k < m; k++) {
-        if (edge_ok(ea, eb, w, k)) {
-            me++;
-            u->newid[ea[k]] = 0;
-            u->newid[eb[k]] = 0;
-        }
-    }
-    for (size_t i = 0; i < n; i++) {
-        if (!renumber || u->newid[i] == 0) {
-            u->oldid[u->nv] = (uint32_t)i;
-            u->newid[i] = (uint32_t)u->nv++;
-        }
-    }
-    u->ends = pm_i_malloc(me ? 2 * me : 1, sizeof *u->ends);
-    u->w = pm_i_malloc(me ? me : 1, sizeof *u->w);
-    if (!u->ends || !u->w) {
-        usable_free(u);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-    }
-    for (size_t k = 0; k < m; k++) {
-        if (edge_ok(ea, eb, w, k)) {
-            u->ends[2 * u->me] = u->newid[ea[k]];
-            u->ends[2 * u->me + 1] = u->newid[eb[k]];
-            u->w[u->me] = w ? w[k] : 1.0;
-            u->me++;
-        }
-    }
-    return PM_OK;
-}
-
-/* Builds the igraph graph and weight vector of u (both to be destroyed by the caller). */
-static igraph_error_t make_graph(const usable *u, igraph_t *g, igraph_vector_t *wv, double scale) {
-    igraph_vector_int_t ev;
-    IGRAPH_CHECK(igraph_vector_int_init(&ev, (igraph_integer_t)(2 * u->me)));
-    IGRAPH_FINALLY(igraph_vector_int_destroy, &ev);
-    for (size_t i = 0; i < 2 * u->me; i++) {
-        VECTOR(ev)[(igraph_integer_t)i] = u->ends[i];
-    }
-    IGRAPH_CHECK(igraph_create(g, &ev, (igraph_integer_t)u->nv, IGRAPH_UNDIRECTED));
-    IGRAPH_FINALLY(igraph_destroy, g);
-    IGRAPH_CHECK(igraph_vector_init(wv, (igraph_integer_t)u->me));
-    for (size_t k = 0; k < u->me; k++) {
-        VECTOR(*wv)[(igraph_integer_t)k] = u->w[k] * scale;
-    }
-    IGRAPH_FINALLY_CLEAN(1); /* g: the caller owns it now */
-    igraph_vector_int_destroy(&ev);
-    IGRAPH_FINALLY_CLEAN(1);
-    return IGRAPH_SUCCESS;
-}
-
-/* ---- layout -----------------------------------------------------------------------------------
- */
-
-/* The faults a test asks for (network_internal.h); all off outside tests. */
-static pm_i_network_faults_t g_faults = {0, 0, 0, 0, 0, 0, -1, 0, 0};
-static pm_i_network_stats_t g_stats;
-
-void pm_i_network_set_faults(const pm_i_network_faults_t *f) {
-    if (f) {
-        g_faults = *f;
-    } else {
-        memset(&g_faults, 0, sizeof g_faults);
-        g_faults.bad_restart = -1;
-    }
-}
-
-void pm_i_network_get_stats(pm_i_network_stats_t *s) {
-    *s = g_stats;
-}
-
-/* igraph's Fruchterman-Reingold on the usable edges; out gets 2 u->nv raw coordinates. */
-static igraph_error_t fr_run(const usable *u, uint64_t seed, int iterations, double *out) {
-    igraph_t g;
-    igraph_vector_t wv;
-    double sum = 0;
-    for (size_t k = 0; k < u->me; k++) {
-        sum += u->w[k];
-    }
-    double scale = sum > 0 ? (double)u->me / sum : 1.0; /* mean weight 1 */
-    IGRAPH_CHECK(make_graph(u, &g, &wv, scale));
-    IGRAPH_FINALLY(igraph_destroy, &g);
-    IGRAPH_FINALLY(igraph_vector_destroy, &wv);
-    igraph_matrix_t xy;
-    IGRAPH_CHECK(igraph_matrix_init(&xy, 0, 0));
-    IGRAPH_FINALLY(igraph_matrix_destroy, &xy);
-    IGRAPH_CHECK(igraph_rng_seed(igraph_rng_default(), (igraph_uint_t)seed));
-    igraph_integer_t niter = g_faults.bad_layout ? -1 : (igraph_integer_t)iterations; /* test */
-    IGRAPH_CHECK(igraph_layout_fruchterman_reingold(
-        &g, &xy, false, niter, sqrt((double)u->nv),
-        /* the exact variant costs O(n^2) per
-         * iteration (1.4 s at n = 1000, API-NOTES);
-         * igraph's own switch is at 1000 */
-        u->nv > 300 ? IGRAPH_LAYOUT_GRID : IGRAPH_LAYOUT_NOGRID, &wv, NULL, NULL, NULL, NULL));
-    for (size_t i = 0; i < u->nv; i++) {
-        out[2 * i] = MATRIX(xy, (igraph_integer_t)i, 0);
-        out[2 * i + 1] = MATRIX(xy, (igraph_integer_t)i, 1);
-    }
-    igraph_matrix_destroy(&xy);
-    igraph_vector_destroy(&wv);
-    igraph_destroy(&g);
-    IGRAPH_FINALLY_CLEAN(3);
-    return IGRAPH_SUCCESS;
-}
-
-/* The raw layout pos (2 u->nv, from fr_run; NULL when u->nv is 0) scaled into the unit box,
- * the isolated vertices on the ring (see network.h): fills xy[2n]. */
-static pm_err_t layout_finish(const usable *u, size_t n, const double *pos, double *xy,
-                              pm_diag_t *diag) {
-    if (u->nv > 0) {
-        /* unit box, one factor for both axes, the shorter axis centred */
-        double x0 = INFINITY, x1 = -INFINITY, y0 = INFINITY, y1 = -INFINITY;
-        for (size_t i = 0; i < u->nv; i++) {
-            x0 = fmin(x0, pos[2 * i]);
-            x1 = fmax(x1, pos[2 * i]);
-            y0 = fmin(y0, pos[2 * i + 1]);
-            y1 = fmax(y1, pos[2 * i + 1]);
-        }
-        double rx = x1 - x0, ry = y1 - y0, r = fmax(rx, ry);
-        if (!isfinite(r)) {
-            return pm_diag_set(diag, PM_EINTERNAL, NULL, 0,
-                               "the layout produced a coordinate that is not finite");
-        }
-        for (size_t i = 0; i < u->nv; i++) {
-            double x = r > 0 ? (pos[2 * i] - x0) / r + (1 - rx / r) / 2 : 0.5;
-            double y = r > 0 ? (pos[2 * i + 1] - y0) / r + (1 - ry / r) / 2 : 0.5;
-            xy[2 * (size_t)u->oldid[i]] = fmin(1.0, fmax(0.0, x));
-            xy[2 * (size_t)u->oldid[i] + 1] = fmin(1.0, fmax(0.0, y));
-        }
-    }
-    size_t n_iso = n - u->nv, k = 0;
-    const double pi = 3.14159265358979323846;
-    for (size_t i = 0; i < n; i++) {
-        if (u->newid[i] != UINT32_MAX) {
-            continue;
-        }
-        double a = -pi / 2 + 2 * pi * (double)k / (double)n_iso;
-        xy[2 * i] = 0.5 + PM_LAYOUT_RING_RADIUS * cos(a);
-        xy[2 * i + 1] = 0.5 + PM_LAYOUT_RING_RADIUS * sin(a);
-        k++;
-    }
-    return PM_OK;
-}
-
-int pm_layout_default_iterations(size_t laid_out) {
-    if (laid_out <= PM_LAYOUT_FULL_ITEMS) {
-        return PM_LAYOUT_ITERATIONS;
-    }
-    size_t it = (size_t)PM_LAYOUT_ITERATIONS * PM_LAYOUT_FULL_ITEMS / laid_out;
-    return it > PM_LAYOUT_MIN_ITERATIONS ? (int)it : PM_LAYOUT_MIN_ITERATIONS;
-}
-
-int pm_layout_default_iterations_for(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
-                                     const double *w) {
-    unsigned char *has = pm_i_calloc(n ? n : 1, 1);
-    if (!has) {
-        return -1;
-    }
-    size_t laid = 0;
-    for (size_t k = 0; k < m; k++) {
-        if (edge_ok(ea, eb, w, k) && ea[k] < n && eb[k] < n) {
-            laid += (size_t)(!has[ea[k]] + !has[eb[k]]);
-            has[ea[k]] = has[eb[k]] = 1;
-        }
-    }
-    free(has);
-    return pm_layout_default_iterations(laid);
-}
-
-pm_err_t pm_layout_fr(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb, const double *w,
-                      uint64_t seed, int iterations, double *xy, pm_diag_t *diag) {
-    usable u;
-    pm_err_t rc = usable_init(&u, n, m, ea, eb, w, 1, diag);
-    if (rc) {
-        return rc;
-    }
-    if (iterations <= 0) {
-        iterations = pm_layout_default_iterations(u.nv);
-    }
-    double *pos = NULL;
-    if (u.nv > 0) {
-        pos = pm_i_malloc(2 * u.nv, sizeof *pos);
-        if (!pos) {
-            usable_free(&u);
-            return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-        }
-        g_reason[0] = '\0';
-        igraph_error_t ig = fr_run(&u, seed, iterations, pos);
-        if (ig != IGRAPH_SUCCESS) {
-            free(pos);
-            usable_free(&u);
-            return from_igraph(ig, "the Fruchterman-Reingold layout", diag);
-        }
-    }
-    rc = layout_finish(&u, n, pos, xy, diag);
-    free(pos);
-    usable_free(&u);
-    return rc;
-}
-
-/* ---- adjusted Rand index -----------------------------------------------------------------------
- */
-
-typedef struct {
-    uint32_t x, y;
-} label_pair;
-
-static int cmp_pair(const void *p, const void *q) {
-    const label_pair *a = p, *b = q;
-    if (a->x != b->x) {
-        return a->x < b->x ? -1 : 1;
-    }
-    return a->y < b->y ? -1 : a->y > b->y;
-}
-
-static double choose2(double k) {
-    return k * (k - 1) / 2;
-}
-
-/* Sum over the runs of equal k >> shift in sorted k[0..n) of C(run length, 2). */
-static double sum_choose2_runs(const uint64_t *k, size_t n, int shift) {
-    double t = 0;
-    for (size_t i = 0; i < n;) {
-        size_t j = i;
-        while (j < n && k[j] >> shift == k[i] >> shift) {
-            j++;
-        }
-        t += choose2((double)(j - i));
-        i = j;
-    }
-    return t;
-}
-
-/* ARI = (sum_ij C(n_ij,2) - A B / C(n,2)) / ((A + B) / 2 - A B / C(n,2)) with
- * A = sum_i C(a_i,2), B = sum_j C(b_j,2) (Hubert & Arabie 1985). Counts are exact in double
- * up to n of about 10^7. */
-pm_err_t pm_adjusted_rand(size_t n, const uint32_t *x, const uint32_t *y, double *ari,
-                          pm_diag_t *diag) {
-    if (n < 2) {
-        *ari = 1.0;
-        return PM_OK;
-    }
-    /* (x, y) and then y as 64-bit keys, radix sorted: the runs give n_ij, a_i and b_j */
-    uint64_t *k = pm_i_malloc(n, sizeof *k);
-    if (!k) {
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-    }
-    for (size_t i = 0; i < n; i++) {
-        k[i] = (uint64_t)x[i] << 32 | y[i];
-    }
-    if (pm_i_radix_sort(k, n, sizeof *k)) {
-        free(k);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-    }
-    double nij = sum_choose2_runs(k, n, 0), A = sum_choose2_runs(k, n, 32), B;
-    for (size_t i = 0; i < n; i++) {
-        k[i] = y[i];
-    }
-    if (pm_i_radix_sort(k, n, sizeof *k)) {
-        free(k);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-    }
-    B = sum_choose2_runs(k, n, 0);
-    free(k);
-    double expected = A * B / choose2((double)n), top = (A + B) / 2;
-    if (top == expected) {
-        *ari = 1.0; /* both partitions trivial in the same way (see network.h) */
-    } else {
-        *ari = (nij - expected) / (top - expected);
-    }
-    return PM_OK;
-}
-
-/* ---- modularity ---------------------------------------------------------------------------------
- */
-
-static igraph_error_t modularity_run(const usable *u, const uint32_t *membership, double resolution,
-                                     double *q) {
-    igraph_t g;
-    igraph_vector_t wv;
-    IGRAPH_CHECK(make_graph(u, &g, &wv, 1.0));
-    IGRAPH_FINALLY(igraph_destroy, &g);
-    IGRAPH_FINALLY(igraph_vector_destroy, &wv);
-    igraph_vector_int_t mv;
-    IGRAPH_CHECK(igraph_vector_int_init(&mv, (igraph_integer_t)u->nv));
-    IGRAPH_FINALLY(igraph_vector_int_destroy, &mv);
-    for (size_t i = 0; i < u->nv; i++) {
-        VECTOR(mv)[(igraph_integer_t)i] = membership[u->oldid[i]];
-    }
-    igraph_real_t Q;
-    IGRAPH_CHECK(igraph_modularity(&g, &mv, &wv, resolution, IGRAPH_UNDIRECTED, &Q));
-    *q = Q;
-    igraph_vector_int_destroy(&mv);
-    igraph_vector_destroy(&wv);
-    igraph_destroy(&g);
-    IGRAPH_FINALLY_CLEAN(3);
-    return IGRAPH_SUCCESS;
-}
-
-pm_err_t pm_modularity(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb, const double *w,
-                       const uint32_t *membership, double resolution, double *q, pm_diag_t *diag) {
-    usable u;
-    pm_err_t rc = usable_init(&u, n, m, ea, eb, w, 0, diag);
-    if (rc) {
-        return rc;
-    }
-    if (u.me == 0) {
-        *q = NAN;
-        usable_free(&u);
-        return PM_OK;
-    }
-    g_reason[0] = '\0';
-    igraph_error_t ig = modularity_run(&u, membership, resolution, q);
-    usable_free(&u);
-    return ig == IGRAPH_SUCCESS ? PM_OK : from_igraph(ig, "the modularity", diag);
-}
-
-/* ---- Louvain ------------------------------------------------------------------------------------
- */
-
-void pm_cluster_opts_init(pm_cluster_opts_t *o) {
-    memset(o, 0, sizeof *o);
-    o->resolution = 1.0;
-    o->seed = 1;
-    o->restarts = 10;
-    o->workers = 1;
-}
-
-void pm_clusters_free(pm_clusters_t *c) {
-    if (!c) {
-        return;
-    }
-    free(c->cluster);
-    free(c->size);
-    free(c->members);
-    free(c->first);
-    free(c->strength);
-    free(c->inner);
-    free(c->restart_q);
-    free(c);
-}
-
-/* Flags of the restarts in memory shared with the children (see network()): claimed[r] is
- * set by the layout's child before it runs restart r, helped[r] by the parent once it has
- * run r itself; either skips what the other has. */
-typedef struct {
-    atomic_uchar *claimed, *helped; /* [R] */
-    atomic_uchar *over;             /* set once the parent has stopped helping (tests wait) */
-} help_flags;
-
-/* One restart r on the graph g: memb[r * nv + i] gets its community of vertex i (0-based
- * ids), q[r] the modularity igraph_modularity gives it (equal to the last level's value). */
-static igraph_error_t louvain_one(const usable *u, igraph_t *g, igraph_vector_t *wv,
-                                  igraph_vector_int_t *mv, double resolution, uint64_t seed,
-                                  unsigned r, uint32_t *memb, double *q) {
-    uint64_t s = seed + (uint64_t)r * PM_CLUSTER_SEED_STEP;
-    double res = (long)r == g_faults.bad_restart ? -1.0 : resolution; /* test hook */
-    IGRAPH_CHECK(igraph_rng_seed(igraph_rng_default(), (igraph_uint_t)s));
-    IGRAPH_CHECK(igraph_community_multilevel(g, wv, res, mv, NULL, NULL));
-    if (igraph_vector_int_size(mv) != (igraph_integer_t)u->nv) {
-        IGRAPH_ERROR("membership of unexpected length", IGRAPH_EINTERNAL);
-    }
-    for (size_t i = 0; i < u->nv; i++) {
-        igraph_integer_t c = VECTOR(*mv)[(igraph_integer_t)i];
-        if (c < 0 || c >= (igraph_integer_t)u->nv) {
-            IGRAPH_ERROR("community id out of range", IGRAPH_EINTERNAL);
-        }
-        memb[(size_t)r * u->nv + i] = (uint32_t)c;
-    }
-    igraph_real_t Q;
-    IGRAPH_CHECK(igraph_modularity(g, mv, wv, resolution, IGRAPH_UNDIRECTED, &Q));
-    q[r] = Q;
-    return IGRAPH_SUCCESS;
-}
-
-/* Runs Louvain restarts r0 .. r1-1 (see louvain_one). Run r depends only on the graph and its
- * own seed, so any split of 0 .. R-1 over processes gives the same numbers as one call over
- * all of them. With hf (the layout's child): each run is claimed first and skipped when the
- * parent has it already; done[r - r0] tells which ran here (may be NULL without hf). With
- * down set (the parent helping): from r1-1 downwards, each marked helped once it ran well,
- * stopping at the first one the child has claimed, or at an error (which the caller then
- * ignores: the child meets the same error on that run and reports it, as one process would). */
-static igraph_error_t louvain_runs(const usable *u, double resolution, uint64_t seed, unsigned r0,
-                                   unsigned r1, uint32_t *memb, double *q, const help_flags *hf,
-                                   int down, unsigned char *done) {
-    igraph_t g;
-    igraph_vector_t wv;
-    IGRAPH_CHECK(make_graph(u, &g, &wv, 1.0));
-    IGRAPH_FINALLY(igraph_destroy, &g);
-    IGRAPH_FINALLY(igraph_vector_destroy, &wv);
-    igraph_vector_int_t mv;
-    IGRAPH_CHECK(igraph_vector_int_init(&mv, 0));
-    IGRAPH_FINALLY(igraph_vector_int_destroy, &mv);
-    if (down) {
-        for (unsigned r = r1; r-- > r0;) {
-            if (atomic_load(&hf->claimed[r])) {
-                break;
-            }
-            /* an error ends the help (the handler has freed the graph: return at once); the
-             * child meets the same error on this run and reports it */
-            IGRAPH_CHECK(louvain_one(u, &g, &wv, &mv, resolution, seed, r, memb, q));
-            atomic_store(&hf->helped[r], 1);
-            g_stats.helped++;
-        }
-    } else {
-        for (unsigned r = r0; r < r1; r++) {
-            if (hf) {
-                atomic_store(&hf->claimed[r], 1);
-                if (atomic_load(&hf->helped[r])) {
-                    done[r - r0] = 0;
-                    continue;
-                }
-            }
-            IGRAPH_CHECK(louvain_one(u, &g, &wv, &mv, resolution, seed, r, memb, q));
-            if (done) {
-                done[r - r0] = 1;
-            }
-        }
-    }
-    igraph_vector_int_destroy(&mv);
-    igraph_vector_destroy(&wv);
-    igraph_destroy(&g);
-    IGRAPH_FINALLY_CLEAN(3);
-    return IGRAPH_SUCCESS;
-}
-
-typedef struct {
-    const pm_clusters_t *c;
-    const pm_cluster_opts_t *o;
-} order_ctx;
-
-/* Member order within a cluster: inner strength descending, then share descending, then name
- * (bytes) or index. qsort has no context argument, so it comes through a file-local pointer
- * set right before each sort (single-threaded, see network.h). */
-static const order_ctx *g_order;
-
-static int name_cmp(uint32_t a, uint32_t b) {
-    const char *const *names = g_order->o->names;
-    if (names) {
-        int r = pm_i_bytecmp(names[a], names[b]);
-        if (r) {
-            return r;
-        }
-    }
-    return a < b ? -1 : a > b;
-}
-
-static int cmp_member(const void *p, const void *q) {
-    uint32_t a = *(const uint32_t *)p, b = *(const uint32_t *)q;
-    const pm_clusters_t *c = g_order->c;
-    if (c->inner[a] != c->inner[b]) {
-        return c->inner[a] > c->inner[b] ? -1 : 1;
-    }
-    const double *share = g_order->o->share;
-    if (share && share[a] != share[b]) {
-        return share[a] > share[b] ? -1 : 1;
-    }
-    return name_cmp(a, b);
-}
-
-typedef struct {
-    uint32_t label; /* raw label */
-    size_t size;
-    uint32_t lead; /* leading member */
-    size_t start;  /* position of its members in the grouped array */
-} raw_cluster;
-
-static int cmp_raw_cluster(const void *p, const void *q) {
-    const raw_cluster *a = p, *b = q;
-    if (a->size != b->size) {
-        return a->size > b->size ? -1 : 1;
-    }
-    return name_cmp(a->lead, b->lead);
-}
-
-/* Groups the vertices by raw label (raw[i] for vertex i), orders members and clusters and
- * fills c->cluster, size, members, first. */
-static pm_err_t finish_clusters(pm_clusters_t *c, const pm_cluster_opts_t *o, const uint32_t *raw,
-                                pm_diag_t *diag) {
-    size_t n = c->n;
-    label_pair *lv = pm_i_malloc(n ? n : 1, sizeof *lv); /* x: label, y: vertex */
-    raw_cluster *rc = pm_i_malloc(n ? n : 1, sizeof *rc);
-    uint32_t *grouped = pm_i_malloc(n ? n : 1, sizeof *grouped);
-    if (!lv || !rc || !grouped) {
-        free(lv);
-        free(rc);
-        free(grouped);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-    }
-    for (size_t i = 0; i < n; i++) {
-        lv[i].x = raw[i];
-        lv[i].y = (uint32_t)i;
-    }
-    qsort(lv, n, sizeof *lv, cmp_pair);
-    order_ctx ctx = {c, o};
-    g_order = &ctx;
-    size_t k = 0;
-    for (size_t i = 0; i < n;) {
-        size_t j = i;
-        while (j < n && lv[j].x == lv[i].x) {
-            grouped[j] = lv[j].y;
-            j++;
-        }
-        qsort(grouped + i, j - i, sizeof *grouped, cmp_member);
-        rc[k].label = lv[i].x;
-        rc[k].size = j - i;
-        rc[k].lead = grouped[i];
-        rc[k].start = i;
-        k++;
-        i = j;
-    }
-    qsort(rc, k, sizeof *rc, cmp_raw_cluster);
-    g_order = NULL;
-    c->n_clusters = k;
-    c->size = pm_i_malloc(k ? k : 1, sizeof *c->size);
-    c->first = pm_i_malloc(k + 1, sizeof *c->first);
-    if (!c->size || !c->first) {
-        free(lv);
-        free(rc);
-        free(grouped);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-    }
-    size_t pos = 0;
-    for (size_t h = 0; h < k; h++) {
-        c->size[h] = rc[h].size;
-        c->first[h] = pos;
-        if (rc[h].size == 1) {
-            c->n_singletons++;
-        }
-        for (size_t t = 0; t < rc[h].size; t++) {
-            uint32_t v = grouped[rc[h].start + t];
-            c->members[pos++] = v;
-            c->cluster[v] = (uint32_t)(h + 1);
-        }
-    }
-    c->first[k] = pos;
-    free(lv);
-    free(rc);
-    free(grouped);
-    return PM_OK;
-}
-
-/* ---- the stage's work, in worker processes ------------------------------------------------
- *
- * igraph 0.10 as built here is not thread-safe (global generator, error handler and finally
- * stack), so the stage is shared among processes instead of threads. The units of work are
- * the R Louvain restarts and the layout, each a function of the graph and its own seed only.
- * They are cut into shares: the parent runs the first one and a forked child each of the
- * others; a child writes its result (raw bytes through a pipe: same machine, same layout) or
- * its error (code and message) and leaves with _exit. The parent reads every child in order,
- * reaps it, and assembles exactly what one process would have computed. A share whose child
- * could not be started, died, wrote a short answer or ran out of memory is computed by the
- * parent itself, so the results never depend on the number of processes. The children share
- * the parent's memory copy-on-write and only write their own small result arrays. */
-
 /* All the work of one call: restarts 0 .. R-1 into memb and q, the layout into pos. */
 typedef struct {
-    const usable *u;
+    const pm_i_usable *u;
     double resolution;
     uint64_t seed;
     unsigned R;     /* 0: no Louvain run (no usable edge) */
@@ -683,8 +40,10 @@ typedef struct {
     int layout;     /* 1: lay out (u->nv > 0) */
     uint64_t layout_seed;
     int iterations;
-    double *pos;          /* [2 nv] raw coordinates */
-    const help_flags *hf; /* shared flags when the parent may help the layout's child, or NULL */
+    double *pos; /* [2 nv] raw coordinates */
+    const pm_i_help_flags
+        *hf;                 /* shared flags when the parent may help the layout's child, or NULL */
+    pm_i_network_hooks_t *h; /* the call's faults (tests) and counts */
 } stage;
 
 enum { SHARE_PENDING, SHARE_DONE };
@@ -715,24 +74,25 @@ static void run_share(const stage *st, share *sh, int in_child, unsigned char *d
     pm_diag_t ldiag;
     pm_diag_clear(&ldiag);
     if (helped && st->pos) { /* the layout first: the parent takes restarts from the end */
-        g_reason[0] = '\0';
-        igraph_error_t ig = fr_run(st->u, st->layout_seed, st->iterations, st->pos);
+        pm_i_net_reason_clear();
+        igraph_error_t ig = pm_i_fr_run(st->h, st->u, st->layout_seed, st->iterations, st->pos);
         if (ig != IGRAPH_SUCCESS) {
-            lrc = from_igraph(ig, "the Fruchterman-Reingold layout", &ldiag);
+            lrc = pm_i_net_from_igraph(ig, "the Fruchterman-Reingold layout", &ldiag);
         }
         /* test hook: the child waits until the parent has stopped helping (at most a
          * minute), so that the parent has run every restart it could */
-        for (int i = 0; g_faults.child_slow && i < 60000 && !atomic_load(st->hf->over); i++) {
+        for (int i = 0; st->h->faults.child_slow && i < 60000 && !atomic_load(st->hf->over); i++) {
             struct timespec t = {0, 1000000};
             nanosleep(&t, NULL);
         }
     }
     if (sh->r1 > sh->r0) {
-        g_reason[0] = '\0';
-        igraph_error_t ig = louvain_runs(st->u, st->resolution, st->seed, sh->r0, sh->r1, st->memb,
-                                         st->q, helped ? st->hf : NULL, 0, done);
+        pm_i_net_reason_clear();
+        igraph_error_t ig =
+            pm_i_louvain_runs(st->h, st->u, st->resolution, st->seed, sh->r0, sh->r1, st->memb,
+                              st->q, helped ? st->hf : NULL, 0, done);
         if (ig != IGRAPH_SUCCESS) {
-            sh->rc = from_igraph(ig, "Louvain clustering", &sh->diag);
+            sh->rc = pm_i_net_from_igraph(ig, "Louvain clustering", &sh->diag);
             return;
         }
     }
@@ -745,10 +105,10 @@ static void run_share(const stage *st, share *sh, int in_child, unsigned char *d
         return;
     }
     if (sh->layout && st->pos) {
-        g_reason[0] = '\0';
-        igraph_error_t ig = fr_run(st->u, st->layout_seed, st->iterations, st->pos);
+        pm_i_net_reason_clear();
+        igraph_error_t ig = pm_i_fr_run(st->h, st->u, st->layout_seed, st->iterations, st->pos);
         if (ig != IGRAPH_SUCCESS) {
-            sh->rc = from_igraph(ig, "the Fruchterman-Reingold layout", &sh->diag);
+            sh->rc = pm_i_net_from_igraph(ig, "the Fruchterman-Reingold layout", &sh->diag);
             sh->in_layout = 1;
         }
     }
@@ -839,15 +199,15 @@ static void child_main(const stage *st, share *sh, int fd, int spawn_no, pid_t p
             close(all[i].fd); /* earlier children's read ends */
         }
     }
-    if (g_faults.child_dies == spawn_no) {
+    if (st->h->faults.child_dies == spawn_no) {
         _exit(1);
     }
-    if (g_faults.child_killed == spawn_no) {
+    if (st->h->faults.child_killed == spawn_no) {
         raise(SIGKILL);
     }
     size_t runs = sh->r1 - sh->r0, nv = st->u->nv;
     unsigned char *done = calloc(runs ? runs : 1, 1);
-    if (g_faults.child_nomem == spawn_no || !done) {
+    if (st->h->faults.child_nomem == spawn_no || !done) {
         sh->rc = pm_diag_set(&sh->diag, PM_ENOMEM, NULL, 0, "out of memory");
         sh->in_layout = 0;
     } else {
@@ -868,7 +228,7 @@ static void child_main(const stage *st, share *sh, int fd, int spawn_no, pid_t p
             ran += done[i];
         }
         h.bytes = result_bytes(st, sh, ran);
-        if (g_faults.child_short == spawn_no) {
+        if (st->h->faults.child_short == spawn_no) {
             /* the head, the flags and half of the next array, then a clean exit */
             const void *first =
                 ran ? (const void *)(st->memb + (size_t)sh->r0 * nv) : (const void *)st->pos;
@@ -902,7 +262,7 @@ static void child_main(const stage *st, share *sh, int fd, int spawn_no, pid_t p
  * failed (nothing is left open then). */
 static int spawn(const stage *st, share *sh, int spawn_no, const share *all, size_t nall) {
     int fds[2];
-    if (g_faults.pipe_fail_from > 0 && spawn_no >= g_faults.pipe_fail_from) {
+    if (st->h->faults.pipe_fail_from > 0 && spawn_no >= st->h->faults.pipe_fail_from) {
         return -1;
     }
     if (pipe(fds) != 0) {
@@ -916,7 +276,7 @@ static int spawn(const stage *st, share *sh, int spawn_no, const share *all, siz
     pthread_sigmask(SIG_BLOCK, &block, &old);
     pid_t parent = getpid();
     pid_t pid = -1;
-    if (!(g_faults.fork_fail_from > 0 && spawn_no >= g_faults.fork_fail_from)) {
+    if (!(st->h->faults.fork_fail_from > 0 && spawn_no >= st->h->faults.fork_fail_from)) {
         pid = fork();
     }
     if (pid == 0) {
@@ -1018,7 +378,7 @@ static int failed_before(const share *sh, size_t i) {
  * 0.024 * iterations * (vertices + edges) / edges runs. Small graphs (exact repulsion, and
  * only milliseconds either way) keep the layout alone. The split never changes results. */
 static unsigned layout_extra(const stage *st, unsigned workers, unsigned k) {
-    const usable *u = st->u;
+    const pm_i_usable *u = st->u;
     if (u->nv <= 1000 || u->me == 0 || st->R <= k) {
         return 0;
     }
@@ -1075,7 +435,6 @@ typedef struct {
 
 /* Plans the shares, forks the children and runs share 0 in this process while they work. */
 static void crew_start(crew *cw, const stage *st, unsigned workers) {
-    memset(&g_stats, 0, sizeof g_stats);
     unsigned units = st->R + (st->layout ? 1u : 0u);
     if (workers > units) {
         workers = units;
@@ -1089,16 +448,16 @@ static void crew_start(crew *cw, const stage *st, unsigned workers) {
         }
     }
     cw->ns = plan(st, workers, cw->sh);
-    g_stats.shares = (unsigned)cw->ns;
+    st->h->stats.shares = (unsigned)cw->ns;
     if (cw->ns > 1 && st->layout) {
-        g_stats.layout_restarts = cw->sh[cw->ns - 1].r1 - cw->sh[cw->ns - 1].r0;
+        st->h->stats.layout_restarts = cw->sh[cw->ns - 1].r1 - cw->sh[cw->ns - 1].r0;
     }
     cw->spawned = 1;
     /* after the first failure the rest are the parent's: the next fork would fail too */
     while (cw->spawned < cw->ns &&
            spawn(st, &cw->sh[cw->spawned], (int)cw->spawned, cw->sh, cw->ns) == 0) {
         cw->spawned++;
-        g_stats.forked++;
+        st->h->stats.forked++;
     }
     if (units > 0) {
         run_share(st, &cw->sh[0], 0, NULL);
@@ -1113,7 +472,7 @@ static void crew_finish(crew *cw, const stage *st, size_t from, size_t upto) {
     for (size_t i = from > cw->spawned ? from : cw->spawned; i < upto; i++) {
         if (!failed_before(sh, i)) {
             run_share(st, &sh[i], 0, NULL);
-            g_stats.redone++;
+            st->h->stats.redone++;
         }
     }
     for (size_t i = from; i < upto && i < cw->spawned; i++) {
@@ -1126,10 +485,10 @@ static void crew_finish(crew *cw, const stage *st, size_t from, size_t upto) {
             continue;
         }
         if (collect(st, &sh[i]) && sh[i].rc != PM_ENOMEM) {
-            g_stats.from_child++;
+            st->h->stats.from_child++;
         } else {
             run_share(st, &sh[i], 0, NULL); /* lost, cut short, or short of memory in the child */
-            g_stats.redone++;
+            st->h->stats.redone++;
         }
     }
 }
@@ -1165,14 +524,231 @@ static void crew_end(crew *cw) {
 }
 
 /* ---- clustering and layout ------------------------------------------------------------------ */
+/* ---- clustering and layout ------------------------------------------------------------------ */
 
-/* pm_cluster_louvain (layout 0) and pm_network_run (layout 1, xy[2n]). Errors come in the
- * order the two separate calls would give them: clustering first, then the layout. */
-static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb, const double *w,
-                        const pm_cluster_opts_t *o, int layout, uint64_t layout_seed,
-                        int iterations, pm_clusters_t **out, double *xy, pm_diag_t *diag) {
+/* One call's arrays, its work and its crew. */
+typedef struct {
+    pm_i_usable u;
+    pm_clusters_t *c;
+    uint32_t *memb; /* [R nv] every restart's membership */
+    uint32_t *raw;  /* [n] raw labels */
+    double *pos;    /* [2 nv] raw layout, or NULL */
+    pm_i_help_flags hf;
+    void *shared; /* the mapping behind hf, or MAP_FAILED */
+    size_t shared_len;
+    stage st;
+    crew cw;
+    size_t n_restart_shares; /* shares 0 .. n_restart_shares-1 hold the restarts to wait for */
+    pm_err_t layout_rc;      /* the layout's error, reported after the clustering's */
+    pm_diag_t layout_diag;
+} netrun;
+
+/* The result and the work's arrays, and each vertex's strength. */
+static pm_err_t net_alloc(netrun *nr, size_t n, unsigned R, int layout, pm_diag_t *diag) {
+    const pm_i_usable *u = &nr->u;
+    pm_clusters_t *c = nr->c = pm_i_calloc(1, sizeof *c);
+    if (!c) {
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
+    c->n = n;
+    c->restarts = R;
+    c->n_used_edges = u->me;
+    c->cluster = pm_i_malloc(n ? n : 1, sizeof *c->cluster);
+    c->members = pm_i_malloc(n ? n : 1, sizeof *c->members);
+    c->strength = pm_i_calloc(n ? n : 1, sizeof *c->strength);
+    c->inner = pm_i_calloc(n ? n : 1, sizeof *c->inner);
+    c->restart_q = pm_i_malloc(R, sizeof *c->restart_q);
+    nr->memb = pm_i_malloc((size_t)R * (u->nv ? u->nv : 1), sizeof *nr->memb);
+    nr->raw = pm_i_malloc(n ? n : 1, sizeof *nr->raw);
+    if (layout && u->nv > 0) {
+        nr->pos = pm_i_malloc(2 * u->nv, sizeof *nr->pos);
+    }
+    if (!c->cluster || !c->members || !c->strength || !c->inner || !c->restart_q || !nr->memb ||
+        !nr->raw || (layout && u->nv > 0 && !nr->pos)) {
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    }
+    for (size_t k = 0; k < u->me; k++) {
+        c->strength[u->oldid[u->ends[2 * k]]] += u->w[k];
+        c->strength[u->oldid[u->ends[2 * k + 1]]] += u->w[k];
+    }
+    c->modularity = NAN;
+    c->stability = NAN;
+    return PM_OK;
+}
+
+/* Flags shared with the children: the parent may run restarts of the layout's share (from its
+ * end) while the child lays out; without the mapping it simply does not. */
+static void share_flags(netrun *nr, const pm_cluster_opts_t *o, int layout) {
+    stage *st = &nr->st;
+    if (!(layout && o->workers != 1 && st->R > 0)) {
+        return;
+    }
+    nr->shared_len = (2 * (size_t)st->R + 1) * sizeof(atomic_uchar);
+    nr->shared =
+        mmap(NULL, nr->shared_len, PROT_READ | PROT_WRITE, MAP_SHARED | MAP_ANONYMOUS, -1, 0);
+    if (nr->shared == MAP_FAILED) {
+        return;
+    }
+    pm_i_help_flags *hf = &nr->hf;
+    hf->claimed = nr->shared;
+    hf->helped = hf->claimed + st->R;
+    hf->over = hf->helped + st->R;
+    atomic_init(hf->over, 0);
+    for (unsigned r = 0; r < st->R; r++) {
+        atomic_init(&hf->claimed[r], 0);
+        atomic_init(&hf->helped[r], 0);
+    }
+    st->hf = hf;
+}
+
+/* The layout's child runs its restarts after the layout: this process runs them from the end
+ * meanwhile, as far as the child has not come (pm_i_louvain_runs); a layout share that still
+ * holds restarts of the child's is waited for with the restarts. Returns how many shares hold
+ * restarts to wait for. */
+static size_t help_layout_child(netrun *nr) {
+    crew *cw = &nr->cw;
+    stage *st = &nr->st;
+    int layout_runs = 0;
+    if (cw->ns > 1 && st->layout) {
+        share *ls = &cw->sh[cw->ns - 1];
+        if (ls->r1 > ls->r0 && st->hf && ls->pid > 0 && cw->sh[0].rc == PM_OK) {
+            pm_i_net_reason_clear();
+            (void)pm_i_louvain_runs(st->h, st->u, st->resolution, st->seed, ls->r0, ls->r1,
+                                    st->memb, st->q, st->hf, 1, NULL);
+        }
+        if (st->hf) {
+            atomic_store(st->hf->over, 1);
+        }
+        for (unsigned r = ls->r0; r < ls->r1; r++) {
+            layout_runs |= !(st->hf && ls->pid > 0 && atomic_load(&st->hf->helped[r]));
+        }
+    }
+    return cw->ns > 1 && st->layout && !layout_runs ? cw->ns - 1 : cw->ns;
+}
+
+/* Waits for the restarts; the first error among them is the call's (one from the layout, in
+ * one process, is kept for after the clustering's errors, as the two separate calls give). */
+static pm_err_t restarts_done(netrun *nr, pm_diag_t *diag) {
+    nr->n_restart_shares = help_layout_child(nr);
+    crew_finish(&nr->cw, &nr->st, 1, nr->n_restart_shares);
+    int in_layout;
+    pm_diag_t sd;
+    pm_diag_clear(&sd);
+    pm_err_t src = crew_error(&nr->cw, nr->n_restart_shares, &in_layout, &sd);
+    if (src && !in_layout) {
+        if (diag) {
+            *diag = sd;
+        }
+        return src;
+    }
+    if (src) {
+        nr->layout_rc = src;
+        nr->layout_diag = sd;
+    }
+    return PM_OK;
+}
+
+/* The best restart's modularity and the stability: mean ARI over all pairs of runs, over the
+ * vertices with edges (isolated vertices are singletons in every run and would only inflate
+ * it). */
+static pm_err_t summarise_restarts(netrun *nr, pm_diag_t *diag) {
+    pm_clusters_t *c = nr->c;
+    unsigned R = c->restarts;
+    size_t nv = nr->u.nv;
+    if (nr->u.me == 0) {
+        for (unsigned r = 0; r < R; r++) {
+            c->restart_q[r] = NAN;
+        }
+        return PM_OK;
+    }
+    unsigned best = 0;
+    for (unsigned r = 1; r < R; r++) {
+        if (c->restart_q[r] > c->restart_q[best]) {
+            best = r;
+        }
+    }
+    c->best_restart = best;
+    c->modularity = c->restart_q[best];
+    if (R < 2) {
+        return PM_OK;
+    }
+    double sum = 0;
+    size_t pairs = 0;
+    for (unsigned r = 0; r < R; r++) {
+        for (unsigned t = r + 1; t < R; t++) {
+            double a = 0;
+            pm_err_t rc = pm_adjusted_rand(nv, nr->memb + (size_t)r * nv, nr->memb + (size_t)t * nv,
+                                           &a, diag);
+            if (rc) {
+                return rc;
+            }
+            sum += a;
+            pairs++;
+        }
+    }
+    c->stability = sum / (double)pairs;
+    return PM_OK;
+}
+
+/* Raw labels: the best run's communities for vertices with edges; n + i for isolated vertex i
+ * would overflow uint32 for huge n, so isolated vertices get nv + their rank. Then each
+ * vertex's strength inside its cluster. */
+static void raw_labels(netrun *nr) {
+    const pm_i_usable *u = &nr->u;
+    pm_clusters_t *c = nr->c;
+    size_t iso = 0;
+    for (size_t i = 0; i < c->n; i++) {
+        if (u->newid[i] != UINT32_MAX) {
+            nr->raw[i] = nr->memb[(size_t)c->best_restart * u->nv + u->newid[i]];
+        } else {
+            nr->raw[i] = (uint32_t)(u->nv + iso++);
+        }
+    }
+    for (size_t k = 0; k < u->me; k++) {
+        uint32_t a = u->oldid[u->ends[2 * k]], b = u->oldid[u->ends[2 * k + 1]];
+        if (nr->raw[a] == nr->raw[b]) {
+            c->inner[a] += u->w[k];
+            c->inner[b] += u->w[k];
+        }
+    }
+}
+
+/* The layout's share (when it was left for after the clustering) and the layout itself. */
+static pm_err_t layout_done(netrun *nr, int layout, double *xy, pm_diag_t *diag) {
+    if (nr->cw.ns > nr->n_restart_shares) {
+        int in_layout;
+        crew_finish(&nr->cw, &nr->st, nr->n_restart_shares, nr->cw.ns);
+        nr->layout_rc = crew_error(&nr->cw, nr->cw.ns, &in_layout, &nr->layout_diag);
+    }
+    if (!layout) {
+        return PM_OK;
+    }
+    if (nr->layout_rc) {
+        if (diag) {
+            *diag = nr->layout_diag;
+        }
+        return nr->layout_rc;
+    }
+    return pm_i_layout_finish(&nr->u, nr->c->n, nr->pos, xy, diag);
+}
+
+static void net_free(netrun *nr) {
+    crew_end(&nr->cw);
+    if (nr->shared != MAP_FAILED) {
+        munmap(nr->shared, nr->shared_len);
+    }
+    free(nr->memb);
+    free(nr->raw);
+    free(nr->pos);
+    pm_i_usable_free(&nr->u);
+}
+
+pm_err_t pm_i_network_call(pm_i_network_hooks_t *h, size_t n, size_t m, const uint32_t *ea,
+                           const uint32_t *eb, const double *w, const pm_cluster_opts_t *o,
+                           int layout, uint64_t layout_seed, int iterations, pm_clusters_t **out,
+                           double *xy, pm_diag_t *diag) {
     *out = NULL;
-    memset(&g_stats, 0, sizeof g_stats);
+    memset(&h->stats, 0, sizeof h->stats);
     if (!(o->resolution >= 0) || !isfinite(o->resolution)) {
         return pm_diag_set(diag, PM_EUSAGE, NULL, 0,
                            "the resolution must be a finite number >= 0, got %g", o->resolution);
@@ -1180,209 +756,68 @@ static pm_err_t network(size_t n, size_t m, const uint32_t *ea, const uint32_t *
     if (o->restarts < 1) {
         return pm_diag_set(diag, PM_EUSAGE, NULL, 0, "at least one Louvain run is needed");
     }
-    usable u;
-    pm_err_t rc = usable_init(&u, n, m, ea, eb, w, 1, diag);
+    netrun nr;
+    memset(&nr, 0, sizeof nr);
+    nr.shared = MAP_FAILED;
+    pm_diag_clear(&nr.layout_diag);
+    pm_err_t rc = pm_i_usable_init(&nr.u, n, m, ea, eb, w, 1, diag);
     if (rc) {
         return rc;
     }
-    unsigned R = o->restarts;
-    pm_clusters_t *c = pm_i_calloc(1, sizeof *c);
-    uint32_t *memb = NULL, *raw = NULL;
-    double *pos = NULL;
-    pm_err_t layout_rc = PM_OK;
-    pm_diag_t layout_diag;
-    pm_diag_clear(&layout_diag);
-    crew cw;
-    memset(&cw, 0, sizeof cw);
-    help_flags hf = {NULL, NULL, NULL};
-    void *shared = MAP_FAILED;
-    if (!c) {
-        usable_free(&u);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    rc = net_alloc(&nr, n, o->restarts, layout, diag);
+    if (rc == PM_OK) {
+        const pm_i_usable *u = &nr.u;
+        stage st = {.u = u,
+                    .resolution = o->resolution,
+                    .seed = o->seed,
+                    .R = u->me > 0 ? o->restarts : 0,
+                    .memb = nr.memb,
+                    .q = nr.c->restart_q,
+                    .layout = nr.pos != NULL,
+                    .layout_seed = layout_seed,
+                    .iterations = iterations > 0 ? iterations : pm_layout_default_iterations(u->nv),
+                    .pos = nr.pos,
+                    .hf = NULL,
+                    .h = h};
+        nr.st = st;
+        share_flags(&nr, o, layout);
+        /* the restarts' shares first; the layout's child (the last share) keeps working while
+         * this process summarises the restarts */
+        crew_start(&nr.cw, &nr.st, o->workers);
+        rc = restarts_done(&nr, diag);
     }
-    c->n = n;
-    c->restarts = R;
-    c->n_used_edges = u.me;
-    c->cluster = pm_i_malloc(n ? n : 1, sizeof *c->cluster);
-    c->members = pm_i_malloc(n ? n : 1, sizeof *c->members);
-    c->strength = pm_i_calloc(n ? n : 1, sizeof *c->strength);
-    c->inner = pm_i_calloc(n ? n : 1, sizeof *c->inner);
-    c->restart_q = pm_i_malloc(R, sizeof *c->restart_q);
-    memb = pm_i_malloc((size_t)R * (u.nv ? u.nv : 1), sizeof *memb);
-    raw = pm_i_malloc(n ? n : 1, sizeof *raw);
-    if (layout && u.nv > 0) {
-        pos = pm_i_malloc(2 * u.nv, sizeof *pos);
+    if (rc == PM_OK) {
+        rc = summarise_restarts(&nr, diag);
     }
-    if (!c->cluster || !c->members || !c->strength || !c->inner || !c->restart_q || !memb || !raw ||
-        (layout && u.nv > 0 && !pos)) {
-        rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-        goto cleanup;
+    if (rc == PM_OK) {
+        raw_labels(&nr);
+        rc = pm_i_finish_clusters(nr.c, o, nr.raw, diag);
     }
-    for (size_t k = 0; k < u.me; k++) {
-        c->strength[u.oldid[u.ends[2 * k]]] += u.w[k];
-        c->strength[u.oldid[u.ends[2 * k + 1]]] += u.w[k];
+    if (rc == PM_OK) {
+        rc = layout_done(&nr, layout, xy, diag);
     }
-    c->modularity = NAN;
-    c->stability = NAN;
-    stage st = {.u = &u,
-                .resolution = o->resolution,
-                .seed = o->seed,
-                .R = u.me > 0 ? R : 0,
-                .memb = memb,
-                .q = c->restart_q,
-                .layout = pos != NULL,
-                .layout_seed = layout_seed,
-                .iterations = iterations > 0 ? iterations : pm_layout_default_iterations(u.nv),
-                .pos = pos,
-                .hf = NULL};
-    /* flags shared with the children: the parent may run restarts of the layout's share
-     * (from its end) while the child lays out; without the mapping it simply does not */
-    if (layout && o->workers != 1 && st.R > 0) {
-        shared = mmap(NULL, (2 * (size_t)st.R + 1) * sizeof(atomic_uchar), PROT_READ | PROT_WRITE,
-                      MAP_SHARED | MAP_ANONYMOUS, -1, 0);
-        if (shared != MAP_FAILED) {
-            hf.claimed = shared;
-            hf.helped = hf.claimed + st.R;
-            hf.over = hf.helped + st.R;
-            atomic_init(hf.over, 0);
-            for (unsigned r = 0; r < st.R; r++) {
-                atomic_init(&hf.claimed[r], 0);
-                atomic_init(&hf.helped[r], 0);
-            }
-            st.hf = &hf;
-        }
-    }
-    /* the restarts' shares first; the layout's child (the last share) keeps working while
-     * this process summarises the restarts */
-    crew_start(&cw, &st, o->workers);
-    /* the layout's child runs its restarts after the layout: this process runs them from the
-     * end meanwhile, as far as the child has not come (louvain_runs); a layout share that
-     * still holds restarts of the child's is waited for with the restarts */
-    int layout_runs = 0;
-    if (cw.ns > 1 && st.layout) {
-        share *ls = &cw.sh[cw.ns - 1];
-        if (ls->r1 > ls->r0 && st.hf && ls->pid > 0 && cw.sh[0].rc == PM_OK) {
-            g_reason[0] = '\0';
-            (void)louvain_runs(st.u, st.resolution, st.seed, ls->r0, ls->r1, st.memb, st.q, st.hf,
-                               1, NULL);
-        }
-        if (st.hf) {
-            atomic_store(st.hf->over, 1);
-        }
-        for (unsigned r = ls->r0; r < ls->r1; r++) {
-            layout_runs |= !(st.hf && ls->pid > 0 && atomic_load(&st.hf->helped[r]));
-        }
-    }
-    size_t n_restart_shares = cw.ns > 1 && st.layout && !layout_runs ? cw.ns - 1 : cw.ns;
-    crew_finish(&cw, &st, 1, n_restart_shares);
-    int in_layout;
-    pm_diag_t sd;
-    pm_diag_clear(&sd);
-    pm_err_t src = crew_error(&cw, n_restart_shares, &in_layout, &sd);
-    if (src && !in_layout) {
-        rc = src;
-        if (diag) {
-            *diag = sd;
-        }
-        goto cleanup;
-    }
-    if (src) { /* one process, and its layout failed: reported after the errors of the
-                * summary below, as the two separate calls would */
-        layout_rc = src;
-        layout_diag = sd;
-    }
-    if (u.me > 0) {
-        unsigned best = 0;
-        for (unsigned r = 1; r < R; r++) {
-            if (c->restart_q[r] > c->restart_q[best]) {
-                best = r;
-            }
-        }
-        c->best_restart = best;
-        c->modularity = c->restart_q[best];
-        if (R > 1) {
-            /* stability: mean ARI over all pairs of runs, over the vertices with edges
-             * (isolated vertices are singletons in every run and would only inflate it) */
-            double sum = 0;
-            size_t pairs = 0;
-            for (unsigned r = 0; r < R; r++) {
-                for (unsigned t = r + 1; t < R; t++) {
-                    double a = 0;
-                    rc = pm_adjusted_rand(u.nv, memb + (size_t)r * u.nv, memb + (size_t)t * u.nv,
-                                          &a, diag);
-                    if (rc) {
-                        goto cleanup;
-                    }
-                    sum += a;
-                    pairs++;
-                }
-            }
-            c->stability = sum / (double)pairs;
-        }
-    } else {
-        for (unsigned r = 0; r < R; r++) {
-            c->restart_q[r] = NAN;
-        }
-    }
-    /* raw labels: the best run's communities for vertices with edges; n + i for isolated
-     * vertex i would overflow uint32 for huge n, so isolated vertices get nv + their rank */
-    {
-        size_t iso = 0;
-        for (size_t i = 0; i < n; i++) {
-            if (u.newid[i] != UINT32_MAX) {
-                raw[i] = memb[(size_t)c->best_restart * u.nv + u.newid[i]];
-            } else {
-                raw[i] = (uint32_t)(u.nv + iso++);
-            }
-        }
-    }
-    for (size_t k = 0; k < u.me; k++) {
-        uint32_t a = u.oldid[u.ends[2 * k]], b = u.oldid[u.ends[2 * k + 1]];
-        if (raw[a] == raw[b]) {
-            c->inner[a] += u.w[k];
-            c->inner[b] += u.w[k];
-        }
-    }
-    rc = finish_clusters(c, o, raw, diag);
-    if (rc == PM_OK && cw.ns > n_restart_shares) {
-        crew_finish(&cw, &st, n_restart_shares, cw.ns);
-        layout_rc = crew_error(&cw, cw.ns, &in_layout, &layout_diag);
-    }
-    if (rc == PM_OK && layout) {
-        if (layout_rc) {
-            rc = layout_rc;
-            if (diag) {
-                *diag = layout_diag;
-            }
-        } else {
-            rc = layout_finish(&u, n, pos, xy, diag);
-        }
-    }
-cleanup:
-    crew_end(&cw);
-    if (shared != MAP_FAILED) {
-        munmap(shared, (2 * (size_t)st.R + 1) * sizeof(atomic_uchar));
-    }
-    free(memb);
-    free(raw);
-    free(pos);
-    usable_free(&u);
+    net_free(&nr);
     if (rc) {
-        pm_clusters_free(c);
+        pm_clusters_free(nr.c);
         return rc;
     }
-    *out = c;
+    *out = nr.c;
     return PM_OK;
 }
 
 pm_err_t pm_cluster_louvain(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
                             const double *w, const pm_cluster_opts_t *o, pm_clusters_t **out,
                             pm_diag_t *diag) {
-    return network(n, m, ea, eb, w, o, 0, 0, 0, out, NULL, diag);
+    pm_i_network_hooks_t h;
+    pm_i_network_hooks_init(&h);
+    return pm_i_network_call(&h, n, m, ea, eb, w, o, 0, 0, 0, out, NULL, diag);
 }
 
 pm_err_t pm_network_run(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb, const double *w,
                         const pm_cluster_opts_t *o, uint64_t layout_seed, int iterations,
                         pm_clusters_t **clusters, double *xy, pm_diag_t *diag) {
-    return network(n, m, ea, eb, w, o, 1, layout_seed, iterations, clusters, xy, diag);
+    pm_i_network_hooks_t h;
+    pm_i_network_hooks_init(&h);
+    return pm_i_network_call(&h, n, m, ea, eb, w, o, 1, layout_seed, iterations, clusters, xy,
+                             diag);
 }

@@ -794,3 +794,61 @@ double pm_i_now(void) {
     clock_gettime(CLOCK_MONOTONIC, &ts);
     return (double)ts.tv_sec + (double)ts.tv_nsec * 1e-9;
 }
+
+/* ---- sorting with a context ---------------------------------------------------------------- */
+static void insertion_ctx(unsigned char *b, size_t n, size_t size,
+                          int (*cmp)(const void *, const void *, const void *), const void *ctx,
+                          unsigned char *tmp) {
+    for (size_t i = 1; i < n; i++) {
+        size_t j = i;
+        while (j > 0 && cmp(b + (j - 1) * size, b + i * size, ctx) > 0) {
+            j--;
+        }
+        if (j < i) {
+            memcpy(tmp, b + i * size, size);
+            memmove(b + (j + 1) * size, b + j * size, (i - j) * size);
+            memcpy(b + j * size, tmp, size);
+        }
+    }
+}
+
+static void merge_ctx(unsigned char *b, size_t n, size_t size,
+                      int (*cmp)(const void *, const void *, const void *), const void *ctx,
+                      unsigned char *tmp) {
+    if (n < 16) {
+        insertion_ctx(b, n, size, cmp, ctx, tmp);
+        return;
+    }
+    size_t h = n / 2;
+    merge_ctx(b, h, size, cmp, ctx, tmp);
+    merge_ctx(b + h * size, n - h, size, cmp, ctx, tmp);
+    if (cmp(b + (h - 1) * size, b + h * size, ctx) <= 0) {
+        return; /* already in order */
+    }
+    memcpy(tmp, b, h * size); /* the left half, merged back with the right one in place */
+    size_t i = 0, j = h, o = 0;
+    while (i < h && j < n) {
+        if (cmp(b + j * size, tmp + i * size, ctx) < 0) {
+            memcpy(b + o++ * size, b + j++ * size, size);
+        } else {
+            memcpy(b + o++ * size, tmp + i++ * size, size);
+        }
+    }
+    if (i < h) {
+        memcpy(b + o * size, tmp + i * size, (h - i) * size);
+    }
+}
+
+int pm_i_sort_ctx(void *base, size_t n, size_t size,
+                  int (*cmp)(const void *, const void *, const void *), const void *ctx) {
+    if (n < 2) {
+        return 0;
+    }
+    unsigned char *tmp = pm_i_malloc(n / 2 + 1, size);
+    if (!tmp) {
+        return -1;
+    }
+    merge_ctx(base, n, size, cmp, ctx, tmp);
+    free(tmp);
+    return 0;
+}

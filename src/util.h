@@ -59,6 +59,12 @@ int pm_i_radix_sort(void *base, size_t n, size_t size);
 /* The same by key bits lo..63 only (records equal there keep their order): fewer passes. */
 int pm_i_radix_sort_from(void *base, size_t n, size_t size, int lo);
 
+/* Sorts n records of size bytes by cmp(a, b, ctx), stably (merge sort; insertion below 16
+ * records): qsort with a context argument, for comparators that need one. Returns 0, or -1
+ * when memory for the merge runs out (base then holds the same records in some order). */
+int pm_i_sort_ctx(void *base, size_t n, size_t size,
+                  int (*cmp)(const void *, const void *, const void *), const void *ctx);
+
 /* ---- counts ------------------------------------------------------------------------------- */
 /* The sign of N nab - na nb, phi's numerator: a pair seen more (1), as often (0) or less (-1)
  * often than expected. Exact: the products are below 2^64, which long double holds exactly. */

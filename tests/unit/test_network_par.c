@@ -19,6 +19,35 @@
 #include "network_internal.h"
 #include "pairmap/network.h"
 
+/* The calls under test with the hooks of network_internal.h: the faults a case asks for, and
+ * what the last call did (each call carries them down in its own context). */
+static pm_i_network_hooks_t hooks;
+
+static void set_faults(const pm_i_network_faults_t *f) {
+    pm_i_network_hooks_init(&hooks);
+    if (f) {
+        hooks.faults = *f;
+    }
+}
+
+static pm_err_t louvain_hooked(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
+                               const double *w, const pm_cluster_opts_t *o, pm_clusters_t **out,
+                               pm_diag_t *diag) {
+    return pm_i_network_call(&hooks, n, m, ea, eb, w, o, 0, 0, 0, out, NULL, diag);
+}
+
+static pm_err_t network_hooked(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
+                               const double *w, const pm_cluster_opts_t *o, uint64_t layout_seed,
+                               int iterations, pm_clusters_t **out, double *xy, pm_diag_t *diag) {
+    return pm_i_network_call(&hooks, n, m, ea, eb, w, o, 1, layout_seed, iterations, out, xy, diag);
+}
+
+static pm_err_t layout_hooked(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
+                              const double *w, uint64_t seed, int iterations, double *xy,
+                              pm_diag_t *diag) {
+    return pm_i_layout_call(&hooks, n, m, ea, eb, w, seed, iterations, xy, diag);
+}
+
 typedef struct {
     size_t n, m;
     uint32_t *ea, *eb;
@@ -181,12 +210,12 @@ static pm_i_network_stats_t run_and_compare(const graph *g, uint64_t seed, unsig
     pm_diag_t d;
     pm_diag_clear(&d);
     pm_err_t rc =
-        pm_network_run(g->n, g->m, g->ea, g->eb, g->w, &o, seed, g->iterations, &r.c, r.xy, &d);
+        network_hooked(g->n, g->m, g->ea, g->eb, g->w, &o, seed, g->iterations, &r.c, r.xy, &d);
     if (rc) {
         fail_msg("pm_network_run with %u workers: %s", workers, d.msg);
     }
     pm_i_network_stats_t st;
-    pm_i_network_get_stats(&st);
+    st = hooks.stats;
     assert_no_children();
     assert_same_clusters(ref->c, r.c);
     assert_memory_equal(ref->xy, r.xy, 2 * g->n * sizeof *r.xy);
@@ -228,8 +257,8 @@ static void check_workers(const graph *g, uint64_t seed, unsigned restarts, cons
         opts(&o, g, seed, restarts, wk);
         pm_clusters_t *c = NULL;
         pm_diag_t d;
-        assert_int_equal(pm_cluster_louvain(g->n, g->m, g->ea, g->eb, g->w, &o, &c, &d), PM_OK);
-        pm_i_network_get_stats(&st);
+        assert_int_equal(louvain_hooked(g->n, g->m, g->ea, g->eb, g->w, &o, &c, &d), PM_OK);
+        st = hooks.stats;
         assert_no_children();
         unsigned runs = ref.c->n_used_edges > 0 ? restarts : 0;
         expect = wk < 1 || runs == 0 ? 1 : wk > runs ? runs : wk;
@@ -313,9 +342,9 @@ static void test_network_par_fallbacks(void **state) {
     };
     for (size_t k = 0; k < sizeof cases / sizeof *cases; k++) {
         print_message("fault: %s\n", cases[k].what);
-        pm_i_network_set_faults(&cases[k].f);
+        set_faults(&cases[k].f);
         pm_i_network_stats_t st = run_and_compare(&g, 9, 10, 4, &ref);
-        pm_i_network_set_faults(NULL);
+        set_faults(NULL);
         assert_int_equal(st.shares, 4);
         assert_int_equal(st.forked, cases[k].forked);
         assert_int_equal(st.from_child, cases[k].from_child);
@@ -325,9 +354,9 @@ static void test_network_par_fallbacks(void **state) {
     static const pm_i_network_faults_t two[] = {{0, 1, 0, 0, 0, 0, -1, 0, 0},
                                                 {0, 0, 1, 0, 0, 0, -1, 0, 0}};
     for (size_t k = 0; k < 2; k++) {
-        pm_i_network_set_faults(&two[k]);
+        set_faults(&two[k]);
         pm_i_network_stats_t st = run_and_compare(&g, 9, 10, 2, &ref);
-        pm_i_network_set_faults(NULL);
+        set_faults(NULL);
         assert_int_equal(st.redone, 1);
         assert_int_equal(st.from_child, 0);
     }
@@ -348,9 +377,9 @@ static void expect_error(const graph *g, unsigned workers, const pm_i_network_fa
     assert_non_null(xy);
     pm_diag_t d;
     pm_diag_clear(&d);
-    pm_i_network_set_faults(f);
-    pm_err_t rc = pm_network_run(g->n, g->m, g->ea, g->eb, g->w, &o, 4, g->iterations, &c, xy, &d);
-    pm_i_network_set_faults(NULL);
+    set_faults(f);
+    pm_err_t rc = network_hooked(g->n, g->m, g->ea, g->eb, g->w, &o, 4, g->iterations, &c, xy, &d);
+    set_faults(NULL);
     assert_no_children();
     assert_int_equal(rc, PM_EINTERNAL);
     assert_null(c);
@@ -370,9 +399,9 @@ static void test_network_par_igraph_errors(void **state) {
     for (size_t k = 0; k < sizeof bad / sizeof *bad; k++) {
         /* the serial message, from the clustering call alone */
         pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, bad[k], 0, 0};
-        pm_i_network_set_faults(&f);
-        assert_int_equal(pm_cluster_louvain(g.n, g.m, g.ea, g.eb, g.w, &o, &c, &d), PM_EINTERNAL);
-        pm_i_network_set_faults(NULL);
+        set_faults(&f);
+        assert_int_equal(louvain_hooked(g.n, g.m, g.ea, g.eb, g.w, &o, &c, &d), PM_EINTERNAL);
+        set_faults(NULL);
         assert_null(c);
         assert_non_null(strstr(d.msg, "Louvain clustering"));
         assert_non_null(strstr(d.msg, "resolution")); /* igraph's own words */
@@ -393,9 +422,9 @@ static void test_network_par_igraph_errors(void **state) {
     opts(&o, &g, 4, 10, 1);
     {
         pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, 9, 0, 0};
-        pm_i_network_set_faults(&f);
-        assert_int_equal(pm_cluster_louvain(g.n, g.m, g.ea, g.eb, g.w, &o, &c, &d), PM_EINTERNAL);
-        pm_i_network_set_faults(NULL);
+        set_faults(&f);
+        assert_int_equal(louvain_hooked(g.n, g.m, g.ea, g.eb, g.w, &o, &c, &d), PM_EINTERNAL);
+        set_faults(NULL);
         char msg[sizeof d.msg];
         snprintf(msg, sizeof msg, "%s", d.msg);
         expect_error(&g, 2, &f, msg);
@@ -408,10 +437,10 @@ static void test_network_par_igraph_errors(void **state) {
     pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, -1, 1, 0};
     double *xy = malloc(2 * g.n * sizeof *xy);
     assert_non_null(xy);
-    pm_i_network_set_faults(&f);
-    assert_int_equal(pm_layout_fr(g.n, g.m, g.ea, g.eb, g.w, 4, g.iterations, xy, &d),
+    set_faults(&f);
+    assert_int_equal(layout_hooked(g.n, g.m, g.ea, g.eb, g.w, 4, g.iterations, xy, &d),
                      PM_EINTERNAL);
-    pm_i_network_set_faults(NULL);
+    set_faults(NULL);
     assert_non_null(strstr(d.msg, "Fruchterman-Reingold"));
     char msg[sizeof d.msg];
     snprintf(msg, sizeof msg, "%s", d.msg);
@@ -435,9 +464,9 @@ static void test_network_par_helping(void **state) {
     result ref;
     serial(&g, 3, 10, &ref);
     pm_i_network_faults_t f = {0, 0, 0, 0, 0, 0, -1, 0, 1};
-    pm_i_network_set_faults(&f);
+    set_faults(&f);
     pm_i_network_stats_t st = run_and_compare(&g, 3, 10, 2, &ref);
-    pm_i_network_set_faults(NULL);
+    set_faults(NULL);
     assert_true(st.layout_restarts > 0);
     assert_int_equal(st.helped, st.layout_restarts);
     assert_int_equal(st.from_child, 1);
@@ -449,9 +478,9 @@ static void test_network_par_helping(void **state) {
     static const pm_i_network_faults_t lost[] = {{0, 0, 1, 0, 0, 0, -1, 0, 1},
                                                  {0, 0, 0, 0, 1, 0, -1, 0, 1}};
     for (size_t k = 0; k < 2; k++) {
-        pm_i_network_set_faults(&lost[k]);
+        set_faults(&lost[k]);
         st = run_and_compare(&g, 3, 10, 2, &ref);
-        pm_i_network_set_faults(NULL);
+        set_faults(NULL);
         assert_int_equal(st.redone, 1);
     }
     result_free(&ref);
@@ -464,9 +493,9 @@ static void test_network_par_helping(void **state) {
         pm_i_network_faults_t e = {0, 0, 0, 0, 0, 0, bad[k], 0, 0};
         pm_diag_t d;
         pm_clusters_t *c = NULL;
-        pm_i_network_set_faults(&e);
-        assert_int_equal(pm_cluster_louvain(g.n, g.m, g.ea, g.eb, g.w, &o, &c, &d), PM_EINTERNAL);
-        pm_i_network_set_faults(NULL);
+        set_faults(&e);
+        assert_int_equal(louvain_hooked(g.n, g.m, g.ea, g.eb, g.w, &o, &c, &d), PM_EINTERNAL);
+        set_faults(NULL);
         char msg[sizeof d.msg];
         snprintf(msg, sizeof msg, "%s", d.msg);
         e.child_slow = 1;
@@ -479,6 +508,7 @@ static void test_network_par_helping(void **state) {
 
 int main(int argc, char **argv) {
     pm_init();
+    set_faults(NULL);
     if (argc > 1) {
         cmocka_set_test_filter(argv[1]);
     }

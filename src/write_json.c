@@ -176,3 +176,163 @@ pm_err_t pm_json_finish(pm_json_t *j, pm_diag_t *diag) {
     }
     return PM_OK;
 }
+
+/* ---- run.json ------------------------------------------------------------------------------ */
+static void run_settings(pm_json_t *j, const pm_run_report_t *r) {
+    const pm_select_opts_t *sel = r->sel;
+    pm_json_begin_object(j, "settings");
+    pm_json_string(j, "format", r->format);
+    pm_json_bool(j, "weighted", r->map->inc->wcount != NULL);
+    pm_json_uint(j, "min_count", sel->min_count);
+    pm_json_number(j, "min_share", sel->min_share);
+    pm_json_number(j, "max_q", sel->max_q);
+    pm_json_number(j, "min_phi", sel->min_phi);
+    pm_json_number(j, "min_lift", sel->min_lift);
+    if (sel->top_edges) {
+        pm_json_uint(j, "top_edges", sel->top_edges);
+    } else {
+        pm_json_null(j, "top_edges");
+    }
+    pm_json_string(j, "sign", pm_sign_name(sel->sign));
+    pm_json_string(j, "measure", pm_measure_name(sel->measure));
+    pm_json_uint(j, "seed", r->seed);
+    pm_json_uint(j, "restarts", r->restarts);
+    pm_json_string(j, "restart_seeds", "seed + r * 0x9E3779B97F4A7C15 (mod 2^64), r = 0..R-1");
+    pm_json_number(j, "resolution", r->resolution);
+    pm_json_uint(j, "iterations", (uint64_t)r->iterations);
+    pm_json_end_object(j);
+}
+
+static void run_input(pm_json_t *j, const pm_run_report_t *r) {
+    const pm_input_stats_t *st = r->stats;
+    pm_json_begin_object(j, "input_file");
+    pm_json_string(j, "name", r->source);
+    pm_json_uint(j, "bytes", st->bytes);
+    char hex[65];
+    for (int i = 0; i < 32; i++) {
+        snprintf(hex + 2 * i, 3, "%02x", st->sha256[i]);
+    }
+    pm_json_string(j, "sha256", hex);
+    pm_json_end_object(j);
+    if (r->after_input) {
+        r->after_input(j, r->ud);
+    }
+}
+
+static void run_counts(pm_json_t *j, const pm_run_report_t *r) {
+    const pm_input_stats_t *st = r->stats;
+    const pm_incidence_t *inc = r->map->inc;
+    const pm_pairs_t *pp = r->map->pairs;
+    pm_json_begin_object(j, "counts");
+    pm_json_uint(j, "lines", st->lines);
+    pm_json_uint(j, "records", st->records);
+    pm_json_uint(j, "rows_read", st->rows);
+    pm_json_uint(j, "rows_without_item", st->empty_items);
+    pm_json_uint(j, "rows_merged", st->merged_rows);
+    pm_json_uint(j, "merge_entries", st->merge_entries);
+    pm_json_uint(j, "rows_dropped", st->dropped_rows);
+    pm_json_uint(j, "duplicate_rows", inc->duplicates);
+    pm_json_uint(j, "respondents_seen", st->respondents);
+    pm_json_uint(j, "respondents_left_out", st->blank_excluded);
+    pm_json_uint(j, "respondents", inc->N);
+    pm_json_uint(j, "respondents_one_item", inc->single_item);
+    pm_json_uint(j, "respondents_no_item", inc->no_item);
+    pm_json_uint(j, "items", inc->n_items);
+    pm_json_uint(j, "items_eligible", pp->n_eligible);
+    pm_json_uint(j, "items_chosen_by_none", pp->excluded_none);
+    pm_json_uint(j, "items_chosen_by_all", pp->excluded_all);
+    pm_json_uint(j, "items_below_min_share", pp->excluded_share);
+    pm_json_end_object(j);
+}
+
+static void run_pairs(pm_json_t *j, const pm_run_report_t *r) {
+    const pm_edges_t *e = r->map->edges;
+    pm_json_begin_object(j, "pairs");
+    pm_json_uint(j, "tested", e->tested);
+    pm_json_uint(j, "seen_together", r->map->pairs->seen);
+    pm_json_uint(j, "never_seen", e->never_seen);
+    pm_json_uint(j, "kept", e->n);
+    pm_json_begin_object(j, "removed");
+    pm_json_uint(j, "min_count", e->removed_count);
+    pm_json_uint(j, "sign", e->removed_sign);
+    pm_json_uint(j, "max_q", e->removed_q);
+    pm_json_uint(j, "min_phi", e->removed_phi);
+    pm_json_uint(j, "min_lift", e->removed_lift);
+    pm_json_uint(j, "top_edges", e->removed_top);
+    pm_json_end_object(j);
+    pm_json_uint(j, "negative_not_clustered", r->n_negative);
+    pm_json_end_object(j);
+}
+
+static void run_network(pm_json_t *j, const pm_run_report_t *r) {
+    const pm_clusters_t *cl = r->map->clusters;
+    pm_json_begin_object(j, "network");
+    pm_json_uint(j, "vertices", r->map->n);
+    pm_json_uint(j, "edges", r->map->edges->n);
+    pm_json_uint(j, "edges_clustered", cl->n_used_edges);
+    pm_json_uint(j, "clusters", cl->n_clusters);
+    pm_json_uint(j, "singletons", cl->n_singletons);
+    pm_json_number(j, "modularity", cl->modularity);
+    pm_json_number(j, "stability", cl->stability);
+    pm_json_uint(j, "best_restart", cl->best_restart);
+    pm_json_begin_array(j, "restart_modularity");
+    for (unsigned k = 0; k < cl->restarts; k++) {
+        pm_json_number(j, NULL, cl->restart_q[k]);
+    }
+    pm_json_end_array(j);
+    pm_json_end_object(j);
+    pm_json_begin_array(j, "clusters");
+    for (size_t k = 0; k < cl->n_clusters; k++) {
+        pm_json_begin_object(j, NULL);
+        pm_json_uint(j, "cluster", k + 1);
+        pm_json_uint(j, "size", cl->size[k]);
+        pm_json_string(j, "name", r->cluster_name[k]);
+        pm_json_begin_array(j, "members");
+        for (size_t t = cl->first[k]; t < cl->first[k + 1]; t++) {
+            pm_json_string(j, NULL, r->names[cl->members[t]]);
+        }
+        pm_json_end_array(j);
+        pm_json_end_object(j);
+    }
+    pm_json_end_array(j);
+}
+
+pm_err_t pm_write_run_json(FILE *fp, const pm_run_report_t *r, pm_diag_t *diag) {
+    pm_json_t j;
+    pm_json_init(&j, fp);
+    pm_json_begin_object(&j, NULL);
+    pm_json_string(&j, "pairmap", pm_version());
+    pm_json_string(&j, "command", r->command);
+    pm_json_string(&j, "input", r->input);
+    if (r->options) {
+        r->options(&j, r->ud);
+    }
+    run_settings(&j, r);
+    run_input(&j, r);
+    run_counts(&j, r);
+    run_pairs(&j, r);
+    run_network(&j, r);
+    if (r->after_clusters) {
+        r->after_clusters(&j, r->ud);
+    }
+    pm_json_begin_object(&j, "svg");
+    pm_json_uint(&j, "items_drawn", r->svg_drawn);
+    pm_json_uint(&j, "items_left_out", r->svg_left_out);
+    pm_json_uint(&j, "edges_drawn", r->svg_edges_drawn);
+    pm_json_end_object(&j);
+    pm_json_begin_array(&j, "files");
+    for (size_t k = 0; k < r->n_files; k++) {
+        pm_json_string(&j, NULL, r->files[k]);
+    }
+    pm_json_end_array(&j);
+    /* last, and the one part that varies between identical runs */
+    pm_json_begin_object(&j, "timings");
+    pm_json_number(&j, "read", r->t_read);
+    pm_json_number(&j, "count", r->t_count);
+    pm_json_number(&j, "measures", r->t_measures);
+    pm_json_number(&j, "graph", r->t_graph);
+    pm_json_number(&j, "write", r->t_write);
+    pm_json_end_object(&j);
+    pm_json_end_object(&j);
+    return pm_json_finish(&j, diag);
+}

@@ -11,6 +11,7 @@
 
 #include "pairmap/assoc.h"
 #include "pairmap/incidence.h"
+#include "pairmap/input.h"
 #include "pairmap/network.h"
 #include "pairmap/segments.h"
 #include "pairmap/select.h"
@@ -107,6 +108,40 @@ void pm_json_write_string(FILE *fp, const char *s);
 /* The same for JSON inside an HTML <script> element: also < > & as \u003c \u003e \u0026
  * (no "</script>" or "<!--" can appear) and U+2028, U+2029 as escapes. */
 void pm_json_write_script_string(FILE *fp, const char *s);
+
+/* ---- run.json ------------------------------------------------------------------------------ */
+/* What run.json records of one map run besides the map itself (pm_write_run_json). All
+ * borrowed. */
+typedef struct {
+    const char *command; /* "map" */
+    const char *input;   /* the INPUT argument */
+    /* writes the "options" object (the options as given); after_input (may be NULL) writes
+     * objects that follow "input_file" (the CLI's "counts_from") */
+    void (*options)(pm_json_t *j, const void *ud);
+    void (*after_input)(pm_json_t *j, const void *ud);
+    /* may be NULL: objects between "clusters" and "svg" (the CLI's "segments") */
+    void (*after_clusters)(pm_json_t *j, const void *ud);
+    const void *ud;
+    const char *format; /* long, lines or wide */
+    const pm_select_opts_t *sel;
+    uint64_t seed, restarts;
+    double resolution;
+    int iterations;     /* the layout's, resolved */
+    const char *source; /* input_file.name */
+    const pm_input_stats_t *stats;
+    const pm_map_t *map;             /* inc, pairs, edges, clusters and n are read */
+    size_t n_negative;               /* kept edges with phi < 0 (not clustered) */
+    const char *const *names;        /* [map->n] vertex names */
+    const char *const *cluster_name; /* [clusters] */
+    size_t svg_drawn, svg_left_out, svg_edges_drawn;
+    const char *const *files;
+    size_t n_files;
+    double t_read, t_count, t_measures, t_graph, t_write; /* seconds: "timings", last */
+} pm_run_report_t;
+
+/* run.json (DESIGN.md): version, options, settings, input file and its SHA-256, counts, pairs
+ * removed by each threshold, network, clusters, picture, files, timings. */
+pm_err_t pm_write_run_json(FILE *fp, const pm_run_report_t *r, pm_diag_t *diag);
 
 #ifdef __cplusplus
 }

@@ -199,4 +199,17 @@ const pm_counts_t *pm_cli_given_counts(void);
 /* Writes run.json's "counts_from" object (nothing when the run read rows). */
 void pm_cli_counts_json(void *json);
 
+/* ---- signals (src/cli/signals.c) ---- */
+/* map: SIGINT, SIGTERM, SIGHUP and SIGQUIT blocked in every thread (call before starting any)
+ * and received by one sigwait thread, which stops the run through pm_outdir_stop (a commit in
+ * progress completes first) and exits 130 (SIGINT) or 143; SIGXFSZ ignored. */
+void pm_cli_signals_catch(void);
+/* map, after its commit: when a signal came meanwhile, waits for that thread to exit. */
+void pm_cli_signals_settle(void);
+/* map, at the end of every run: ends the sigwait thread (joined) and unblocks the stop
+ * signals. */
+void pm_cli_signals_release(void);
+/* count and merge: the same signals remove the temporary files and exit 130 or 143. */
+void pm_cli_signals_shard(void);
+
 #endif

@@ -27,26 +27,6 @@ static const char help[] =
     "                        M runs with K = 0 .. M-1 on one file partition its respondents\n"
     "\n";
 
-static void on_signal(int sig) {
-    pm_outdir_remove_temporaries();
-    static const char msg[] = "\npairmap: interrupted; no output file was replaced\n";
-    ssize_t w = write(STDERR_FILENO, msg, sizeof msg - 1);
-    (void)w;
-    _exit(sig == SIGINT ? 130 : 143);
-}
-
-void pm_cli_count_signals(void);
-void pm_cli_count_signals(void) {
-    struct sigaction sa;
-    memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_signal;
-    sigemptyset(&sa.sa_mask);
-    sigaction(SIGINT, &sa, NULL);
-    sigaction(SIGTERM, &sa, NULL);
-    sigaction(SIGHUP, &sa, NULL);
-    sigaction(SIGQUIT, &sa, NULL);
-}
-
 /* Writes buf[0..len) to path atomically (a temporary file in its directory, renamed). */
 int pm_cli_write_shard(const char *path, const unsigned char *buf, size_t len);
 int pm_cli_write_shard(const char *path, const unsigned char *buf, size_t len) {
@@ -132,7 +112,7 @@ int pm_cmd_count(int argc, char **argv) {
     if (pm_shard_fingerprint(&io, &fp, &d)) {
         return pm_cli_fail(&d);
     }
-    pm_cli_count_signals();
+    pm_cli_signals_shard();
     pm_table_t *t = NULL;
     pm_incidence_t *inc = NULL;
     pm_shard_t *s = NULL;

@@ -4,8 +4,6 @@
 #include <math.h>
 #include <stdbool.h>
 #include <pthread.h>
-#include <signal.h>
-#include <stdatomic.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
@@ -13,7 +11,6 @@
 #include "cli.h"
 #include "pairmap/mapwrite.h"
 #include "pairmap/network.h"
-#include "map_segments.h"
 #include "pairmap/outfile.h"
 #include "pairmap/svgmap.h"
 #include "pairmap/write.h"
@@ -68,119 +65,10 @@ static const char help[] =
     "and the layout share --threads processes).\n"
     "\n";
 
-/* ---- interruption ------------------------------------------------------------------------ */
-/* SIGINT, SIGTERM, SIGHUP and SIGQUIT are blocked here, before any thread starts, so every
- * thread inherits the mask; one thread receives them with sigwait and stops the run through
- * pm_outdir_stop, which waits for a commit in progress. SIGXFSZ is ignored: a write over the
- * file-size limit fails as an I/O error with the usual clean-up. */
-static sigset_t g_stop_set;
-static atomic_int g_stop_sig; /* the signal received, published before pm_outdir_stop */
-static pthread_t g_sig_thread;
-static int g_sig_running; /* the sigwait thread started (main thread only) */
-
-static void *signal_main(void *arg) {
-    (void)arg;
-    int sig = 0;
-    while (sigwait(&g_stop_set, &sig) != 0) {
-    }
-    if (sig == SIGUSR2) {
-        return NULL; /* release_signals: the run is over */
-    }
-    atomic_store(&g_stop_sig, sig);
-    int replaced = pm_outdir_stop();
-    const char *msg = replaced ? "\npairmap: interrupted after the outputs were replaced; the new "
-                                 "files are kept\n"
-                               : "\npairmap: interrupted; no output file was replaced\n";
-    ssize_t w = write(STDERR_FILENO, msg, strlen(msg));
-    (void)w;
-    _exit(sig == SIGINT ? 130 : 143); /* README: 130 SIGINT, 143 SIGTERM, SIGHUP, SIGQUIT */
-}
-
-static void catch_signals(void) {
-    sigemptyset(&g_stop_set);
-    sigaddset(&g_stop_set, SIGINT);
-    sigaddset(&g_stop_set, SIGTERM);
-    sigaddset(&g_stop_set, SIGHUP);
-    sigaddset(&g_stop_set, SIGQUIT);
-    sigaddset(&g_stop_set, SIGUSR2); /* sent by release_signals only */
-    pthread_sigmask(SIG_BLOCK, &g_stop_set, NULL);
-    signal(SIGXFSZ, SIG_IGN);
-    signal(SIGPIPE, SIG_IGN); /* a closed stdout: EPIPE, exit 3, the lock removed on the way */
-    if (pthread_create(&g_sig_thread, NULL, signal_main, NULL) == 0) {
-        g_sig_running = 1;
-    } else {
-        pthread_sigmask(SIG_UNBLOCK, &g_stop_set, NULL); /* default action: better than none */
-    }
-}
-
-/* Ends the sigwait thread (joined: nothing of it outlives the run, which valgrind checks) and
- * unblocks the stop signals, so one that came after the run's last step takes its default
- * action. */
-static void release_signals(void) {
-    if (g_sig_running) {
-        pthread_kill(g_sig_thread, SIGUSR2);
-        pthread_join(g_sig_thread, NULL);
-        g_sig_running = 0;
-        sigset_t stop = g_stop_set;
-        sigdelset(&stop, SIGUSR2);
-        pthread_sigmask(SIG_UNBLOCK, &stop, NULL);
-    }
-}
-
-/* ---- the run ------------------------------------------------------------------------------ */
-typedef struct {
-    uint64_t seed, restarts, iterations, draw, width, height;
-    double resolution;
-    const char *dir, *title;
-    int color_by;
-    bool html; /* map.html too (not --no-html) */
-} net_opts;
-
-typedef struct {
-    pm_table_t *t;
-    pm_incidence_t *inc;
-    pm_pairs_t *pp;
-    pm_edges_t *e;
-    pm_clusters_t *cl;
-    pm_outdir_t *od;
-    size_t n;
-    uint32_t *item, *vof, *ea, *eb, *degree;
-    double *wuse, *share, *xy;
-    unsigned char *negative; /* [edges] phi < 0 */
-    const char **names;
-    char **cluster_name;
-    int *cluster_int;
-    size_t n_negative;
-    double t_read, t_count, t_measures, t_graph, t_write;
-    pm_svg_stats_t svg;
-    pm_cli_mapseg_t seg; /* --segment-col: segments.csv, segments.svg */
-    int iterations;      /* the layout's, resolved */
-    unsigned csv_flags;  /* --csv-raw */
-    int with_strat;      /* --segment-col: edges.csv gains the within-segment columns */
-    pm_strat_t *strat;   /* [e->n] (NULL: empty cells, weighted input) */
-    /* edges.csv and the share intervals of nodes.csv need no clusters: with more than one
-     * thread they are done on a thread of their own while the graph stage runs */
-    struct {
-        FILE *fp;
-        pthread_t th;
-        int running;
-        pm_err_t rc;
-        pm_diag_t d;
-        uint32_t *items;
-        size_t n;
-        double *lo, *hi;
-    } early;
-} run_state;
-
-static void early_join(run_state *s) {
-    if (s->early.running) {
-        pthread_join(s->early.th, NULL);
-        s->early.running = 0;
-    }
-}
+#include "cmd_map.h"
 
 static void state_free(run_state *s) {
-    early_join(s);
+    pm_cli_map_early_join(s);
     pm_cli_mapseg_free(&s->seg);
     free(s->strat);
     free(s->early.items);
@@ -211,7 +99,7 @@ static void state_free(run_state *s) {
     pm_table_free(s->t);
 }
 
-static int oom(void) {
+int pm_cli_map_oom(void) {
     fputs("pairmap: out of memory\n", stderr);
     return 4;
 }
@@ -234,7 +122,7 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
     s->negative = calloc(m ? m : 1, 1);
     if (!s->item || !s->vof || !s->names || !s->share || !s->degree || !s->xy || !s->ea || !s->eb ||
         !s->wuse || !s->negative) {
-        return oom();
+        return pm_cli_map_oom();
     }
     size_t v = 0;
     for (size_t i = 0; i < ni; i++) {
@@ -282,7 +170,7 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
     s->iterations = (int)no->iterations;
     if (s->iterations <= 0 &&
         (s->iterations = pm_layout_default_iterations_for(s->n, m, s->ea, s->eb, s->wuse)) < 0) {
-        return oom();
+        return pm_cli_map_oom();
     }
     if (pm_network_run(s->n, m, s->ea, s->eb, s->wuse, &co, no->seed, s->iterations, &s->cl, s->xy,
                        &d)) {
@@ -291,465 +179,17 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
     s->cluster_name = calloc(s->cl->n_clusters ? s->cl->n_clusters : 1, sizeof *s->cluster_name);
     s->cluster_int = malloc((s->n ? s->n : 1) * sizeof *s->cluster_int);
     if (!s->cluster_name || !s->cluster_int) {
-        return oom();
+        return pm_cli_map_oom();
     }
     for (size_t k = 0; k < s->cl->n_clusters; k++) {
         if (!(s->cluster_name[k] = pm_cluster_name(s->cl, k, s->names))) {
-            return oom();
+            return pm_cli_map_oom();
         }
     }
     for (size_t k = 0; k < s->n; k++) {
         s->cluster_int[k] = (int)s->cl->cluster[k];
     }
     return 0;
-}
-
-/* ---- run.json ------------------------------------------------------------------------------ */
-static void json_options(pm_json_t *j, const pm_cli_t *c) {
-    pm_json_begin_object(j, "options");
-    for (size_t i = 0; i < c->nopts; i++) {
-        const char *name = c->opt[i].name;
-        if (c->opt[i].n > 1 || strcmp(name, "item") == 0 || strcmp(name, "drop-item") == 0 ||
-            strcmp(name, "columns") == 0 || strcmp(name, "drop-value") == 0 ||
-            strcmp(name, "skip-col") == 0) {
-            pm_json_begin_array(j, name);
-            for (size_t k = 0; k < c->opt[i].n; k++) {
-                pm_json_string(j, NULL, c->opt[i].vals[k]);
-            }
-            pm_json_end_array(j);
-        } else if (strcmp(name, "quiet") == 0 || strcmp(name, "no-header") == 0) {
-            pm_json_bool(j, name, true);
-        } else {
-            pm_json_string(j, name, c->opt[i].vals[0]);
-        }
-    }
-    pm_json_end_object(j);
-}
-
-static pm_err_t write_run_json(FILE *fp, const pm_cli_t *c, const net_opts *no,
-                               const pm_select_opts_t *sel, const run_state *s,
-                               const char *const *files, size_t nfiles, pm_diag_t *d) {
-    const pm_input_stats_t *st = pm_table_stats(s->t);
-    const pm_incidence_t *inc = s->inc;
-    const pm_pairs_t *pp = s->pp;
-    const pm_edges_t *e = s->e;
-    const pm_clusters_t *cl = s->cl;
-    pm_json_t j;
-    pm_json_init(&j, fp);
-    pm_json_begin_object(&j, NULL);
-    pm_json_string(&j, "pairmap", pm_version());
-    pm_json_string(&j, "command", "map");
-    pm_json_string(&j, "input", c->input);
-    json_options(&j, c);
-    pm_json_begin_object(&j, "settings");
-    static const char *const formats[] = {"long", "lines", "wide"};
-    pm_input_opts_t io;
-    pm_cli_input_opts(c, &io);
-    pm_json_string(&j, "format", formats[io.format]);
-    pm_json_bool(&j, "weighted", inc->wcount != NULL);
-    pm_json_uint(&j, "min_count", sel->min_count);
-    pm_json_number(&j, "min_share", sel->min_share);
-    pm_json_number(&j, "max_q", sel->max_q);
-    pm_json_number(&j, "min_phi", sel->min_phi);
-    pm_json_number(&j, "min_lift", sel->min_lift);
-    if (sel->top_edges) {
-        pm_json_uint(&j, "top_edges", sel->top_edges);
-    } else {
-        pm_json_null(&j, "top_edges");
-    }
-    pm_json_string(&j, "sign", pm_sign_name(sel->sign));
-    pm_json_string(&j, "measure", pm_measure_name(sel->measure));
-    pm_json_uint(&j, "seed", no->seed);
-    pm_json_uint(&j, "restarts", no->restarts);
-    pm_json_string(&j, "restart_seeds", "seed + r * 0x9E3779B97F4A7C15 (mod 2^64), r = 0..R-1");
-    pm_json_number(&j, "resolution", no->resolution);
-    pm_json_uint(&j, "iterations", (uint64_t)s->iterations);
-    pm_json_end_object(&j);
-
-    pm_json_begin_object(&j, "input_file");
-    pm_json_string(&j, "name", pm_table_source(s->t));
-    pm_json_uint(&j, "bytes", st->bytes);
-    char hex[65];
-    for (int i = 0; i < 32; i++) {
-        snprintf(hex + 2 * i, 3, "%02x", st->sha256[i]);
-    }
-    pm_json_string(&j, "sha256", hex);
-    pm_json_end_object(&j);
-    pm_cli_counts_json(&j); /* --from-counts: the shard and the parts it holds */
-
-    pm_json_begin_object(&j, "counts");
-    pm_json_uint(&j, "lines", st->lines);
-    pm_json_uint(&j, "records", st->records);
-    pm_json_uint(&j, "rows_read", st->rows);
-    pm_json_uint(&j, "rows_without_item", st->empty_items);
-    pm_json_uint(&j, "rows_merged", st->merged_rows);
-    pm_json_uint(&j, "merge_entries", st->merge_entries);
-    pm_json_uint(&j, "rows_dropped", st->dropped_rows);
-    pm_json_uint(&j, "duplicate_rows", inc->duplicates);
-    pm_json_uint(&j, "respondents_seen", st->respondents);
-    pm_json_uint(&j, "respondents_left_out", st->blank_excluded);
-    pm_json_uint(&j, "respondents", inc->N);
-    pm_json_uint(&j, "respondents_one_item", inc->single_item);
-    pm_json_uint(&j, "respondents_no_item", inc->no_item);
-    pm_json_uint(&j, "items", inc->n_items);
-    pm_json_uint(&j, "items_eligible", pp->n_eligible);
-    pm_json_uint(&j, "items_chosen_by_none", pp->excluded_none);
-    pm_json_uint(&j, "items_chosen_by_all", pp->excluded_all);
-    pm_json_uint(&j, "items_below_min_share", pp->excluded_share);
-    pm_json_end_object(&j);
-
-    pm_json_begin_object(&j, "pairs");
-    pm_json_uint(&j, "tested", e->tested);
-    pm_json_uint(&j, "seen_together", pp->seen);
-    pm_json_uint(&j, "never_seen", e->never_seen);
-    pm_json_uint(&j, "kept", e->n);
-    pm_json_begin_object(&j, "removed");
-    pm_json_uint(&j, "min_count", e->removed_count);
-    pm_json_uint(&j, "sign", e->removed_sign);
-    pm_json_uint(&j, "max_q", e->removed_q);
-    pm_json_uint(&j, "min_phi", e->removed_phi);
-    pm_json_uint(&j, "min_lift", e->removed_lift);
-    pm_json_uint(&j, "top_edges", e->removed_top);
-    pm_json_end_object(&j);
-    pm_json_uint(&j, "negative_not_clustered", s->n_negative);
-    pm_json_end_object(&j);
-
-    pm_json_begin_object(&j, "network");
-    pm_json_uint(&j, "vertices", s->n);
-    pm_json_uint(&j, "edges", e->n);
-    pm_json_uint(&j, "edges_clustered", cl->n_used_edges);
-    pm_json_uint(&j, "clusters", cl->n_clusters);
-    pm_json_uint(&j, "singletons", cl->n_singletons);
-    pm_json_number(&j, "modularity", cl->modularity);
-    pm_json_number(&j, "stability", cl->stability);
-    pm_json_uint(&j, "best_restart", cl->best_restart);
-    pm_json_begin_array(&j, "restart_modularity");
-    for (unsigned r = 0; r < cl->restarts; r++) {
-        pm_json_number(&j, NULL, cl->restart_q[r]);
-    }
-    pm_json_end_array(&j);
-    pm_json_end_object(&j);
-
-    pm_json_begin_array(&j, "clusters");
-    for (size_t k = 0; k < cl->n_clusters; k++) {
-        pm_json_begin_object(&j, NULL);
-        pm_json_uint(&j, "cluster", k + 1);
-        pm_json_uint(&j, "size", cl->size[k]);
-        pm_json_string(&j, "name", s->cluster_name[k]);
-        pm_json_begin_array(&j, "members");
-        for (size_t t = cl->first[k]; t < cl->first[k + 1]; t++) {
-            pm_json_string(&j, NULL, s->names[cl->members[t]]);
-        }
-        pm_json_end_array(&j);
-        pm_json_end_object(&j);
-    }
-    pm_json_end_array(&j);
-
-    pm_cli_mapseg_json(&s->seg, &j);
-    pm_json_begin_object(&j, "svg");
-    pm_json_uint(&j, "items_drawn", s->svg.drawn);
-    pm_json_uint(&j, "items_left_out", s->svg.left_out);
-    pm_json_uint(&j, "edges_drawn", s->svg.edges_drawn);
-    pm_json_end_object(&j);
-
-    pm_json_begin_array(&j, "files");
-    for (size_t k = 0; k < nfiles; k++) {
-        pm_json_string(&j, NULL, files[k]);
-    }
-    pm_json_end_array(&j);
-
-    /* last, and the one part that varies between identical runs */
-    pm_json_begin_object(&j, "timings");
-    pm_json_number(&j, "read", s->t_read);
-    pm_json_number(&j, "count", s->t_count);
-    pm_json_number(&j, "measures", s->t_measures);
-    pm_json_number(&j, "graph", s->t_graph);
-    pm_json_number(&j, "write", s->t_write);
-    pm_json_end_object(&j);
-    pm_json_end_object(&j);
-    return pm_json_finish(&j, d);
-}
-
-/* ---- files ----------------------------------------------------------------------------------- */
-static void thresholds_text(char *buf, size_t size, const pm_select_opts_t *sel) {
-    int n = snprintf(buf, size, "together >= %u, q <= %g, %s associations", sel->min_count,
-                     sel->max_q, pm_sign_name(sel->sign));
-    if (sel->min_phi > 0 && n > 0 && (size_t)n < size) {
-        n += snprintf(buf + n, size - (size_t)n, ", |phi| >= %g", sel->min_phi);
-    }
-    if (sel->min_lift > 0 && n > 0 && (size_t)n < size) {
-        n += snprintf(buf + n, size - (size_t)n, ", lift >= %g", sel->min_lift);
-    }
-    if (sel->top_edges && n > 0 && (size_t)n < size) {
-        snprintf(buf + n, size - (size_t)n, ", top %zu edges", sel->top_edges);
-    }
-}
-
-typedef struct {
-    const pm_map_t *map;
-    FILE *graphml, *nodes;
-    pm_err_t *rc_graphml, *rc_nodes;
-    pm_diag_t *d_graphml, *d_nodes;
-} side_job;
-
-/* Pushes what a finished file has written so far to the disk from the thread that wrote it,
- * while the other thread still writes; pm_outdir_finish flushes the stdio buffer, checks and
- * syncs again (cheap then), so every error still shows there, with its own errno. */
-static void early_sync(FILE *fp) {
-    (void)fsync(fileno(fp));
-}
-
-static pm_err_t write_edges(const run_state *s, FILE *fp, pm_diag_t *d) {
-    return s->with_strat
-               ? pm_write_edges_csv_strat(fp, s->pp, s->inc, s->e, s->strat, s->csv_flags, d)
-               : pm_write_edges_csv(fp, s->pp, s->inc, s->e, s->csv_flags, d);
-}
-
-static void *early_main(void *arg) {
-    run_state *s = arg;
-    /* one thread: the graph stage's processes use the other cores meanwhile */
-    (void)pm_assoc_share_intervals(s->inc, s->early.items, s->early.n, 1, s->early.lo, s->early.hi,
-                                   NULL);
-    s->early.rc = write_edges(s, s->early.fp, &s->early.d);
-    early_sync(s->early.fp);
-    return NULL;
-}
-
-/* Starts the early thread (see run_state); without it, write_files does the same work. */
-static void early_start(run_state *s, unsigned threads) {
-    if (threads == 1) {
-        return;
-    }
-    size_t n = s->pp->n_eligible, v = 0;
-    s->early.items = malloc((n ? n : 1) * sizeof *s->early.items);
-    s->early.lo = malloc((n ? n : 1) * sizeof *s->early.lo);
-    s->early.hi = malloc((n ? n : 1) * sizeof *s->early.hi);
-    if (!s->early.items || !s->early.lo || !s->early.hi) {
-        return; /* write_files does it */
-    }
-    for (size_t i = 0; i < s->inc->n_items; i++) {
-        if (s->pp->eligible[i]) { /* the vertices, in order (build_network) */
-            s->early.items[v++] = (uint32_t)i;
-        }
-    }
-    s->early.n = v;
-    pm_diag_clear(&s->early.d);
-    if (pm_outdir_create(s->od, "edges.csv", &s->early.fp, &s->early.d) != PM_OK) {
-        s->early.fp = NULL; /* write_files tries again and reports */
-        return;
-    }
-    s->early.running = pthread_create(&s->early.th, NULL, early_main, s) == 0;
-    if (!s->early.running) {
-        early_main(s); /* here, then */
-    }
-}
-
-static void *side_writer(void *arg) {
-    side_job *j = arg;
-    *j->rc_graphml = pm_write_graphml(j->graphml, j->map, j->d_graphml);
-    early_sync(j->graphml);
-    *j->rc_nodes = pm_write_nodes_csv(j->nodes, j->map, j->d_nodes);
-    early_sync(j->nodes);
-    return NULL;
-}
-
-static int write_files(const pm_cli_t *c, const net_opts *no, const pm_select_opts_t *sel,
-                       run_state *s) {
-    static const char *const files[] = {"map.graphml", "map.svg", "edges.csv", "nodes.csv",
-                                        "run.json"};
-    pm_diag_t d;
-    pm_diag_clear(&d);
-    double t0 = pm_cli_now();
-    pm_map_t map = {
-        .inc = s->inc,
-        .pairs = s->pp,
-        .edges = s->e,
-        .measure = sel->measure,
-        .n = s->n,
-        .item = s->item,
-        .clusters = s->cl,
-        .degree = s->degree,
-        .xy = s->xy,
-        .ea = s->ea,
-        .eb = s->eb,
-        .title = no->title,
-        .csv_flags = s->csv_flags,
-        .cluster_name = (const char *const *)s->cluster_name,
-        .n_seg = s->seg.n,
-        .segcols = s->seg.cols,
-        .segstats = s->seg.stats,
-    };
-    const char **cats = malloc((s->n ? s->n : 1) * sizeof *cats);
-    double *slo = malloc((s->n ? s->n : 1) * sizeof *slo);
-    double *shi = malloc((s->n ? s->n : 1) * sizeof *shi);
-    if (!cats || !slo || !shi) {
-        free(cats);
-        free(slo);
-        free(shi);
-        return oom();
-    }
-    unsigned nthreads = 0;
-    (void)pm_cli_threads(c, &nthreads); /* validated earlier */
-    early_join(s);
-    int early = s->early.fp != NULL; /* its items are the vertices, in order */
-    if (early) {
-        memcpy(slo, s->early.lo, s->n * sizeof *slo);
-        memcpy(shi, s->early.hi, s->n * sizeof *shi);
-    } else { /* the share intervals of nodes.csv (a root search each) on all threads */
-        (void)pm_assoc_share_intervals(s->inc, s->item, s->n, nthreads, slo, shi, NULL);
-    }
-    map.share_low = slo;
-    map.share_high = shi;
-    for (size_t v = 0; v < s->n; v++) {
-        cats[v] = s->inc->category[s->item[v]];
-    }
-    char thr[256];
-    thresholds_text(thr, sizeof thr, sel);
-    pm_svg_data_t sd = {
-        .n_nodes = s->n,
-        .name = s->names,
-        .category = cats,
-        .share = s->share,
-        .cluster = s->cluster_int,
-        .strength = s->cl->inner, /* hubs: weighted degree inside the cluster */
-        .n_edges = s->e->n,
-        .ea = s->ea,
-        .eb = s->eb,
-        .weight = s->e->weight,
-        .n_clusters = s->cl->n_clusters,
-        .cluster_name = (const char *const *)s->cluster_name,
-        .respondents = s->inc->N,
-        .thresholds = thr,
-        .measure = pm_measure_name(sel->measure),
-        .negative = s->negative,
-    };
-    pm_svg_opts_t so;
-    pm_svg_opts_init(&so);
-    so.title = no->title;
-    so.width = (int)no->width;
-    so.height = (int)no->height;
-    so.draw = (size_t)no->draw;
-    so.color_by_category = no->color_by == 1;
-    so.seed = no->seed;
-    so.iterations = (int)no->iterations;
-    so.unit = pm_cli_get(c, "unit"); /* NULL: "respondents" */
-    /* The four files are created here, then written on two threads: GraphML and nodes.csv on
-     * a second thread (plain text, no igraph), the SVG (whose layout calls igraph, which is
-     * not thread-safe) and edges.csv on this one. They are finished in order afterwards. */
-    pm_err_t rc = PM_OK;
-    FILE *fps[4] = {NULL, NULL, NULL, NULL};
-    for (size_t k = 0; k < 4 && !rc; k++) {
-        if (k == 2 && early) {
-            fps[k] = s->early.fp; /* written already */
-            continue;
-        }
-        rc = pm_outdir_create(s->od, files[k], &fps[k], &d);
-    }
-    pm_err_t wrc[4] = {PM_OK, PM_OK, PM_OK, PM_OK};
-    pm_diag_t wd[4];
-    for (size_t k = 0; k < 4; k++) {
-        pm_diag_clear(&wd[k]);
-    }
-    if (early) {
-        wrc[2] = s->early.rc;
-        wd[2] = s->early.d;
-    }
-    if (!rc) {
-        side_job job = {&map, fps[0], fps[3], &wrc[0], &wrc[3], &wd[0], &wd[3]};
-        pthread_t th;
-        int threaded = nthreads != 1 && pthread_create(&th, NULL, side_writer, &job) == 0;
-        if (!threaded) {
-            side_writer(&job);
-        }
-        pm_cli_map_picture_t pic = {c, s->od, no->dir, fps[1], &sd, &so, &map, sel, s->t};
-        wrc[1] = pm_cli_map_picture(&pic, &s->svg, &wd[1]); /* map.svg, map.html */
-        early_sync(fps[1]);
-        if (!early) {
-            wrc[2] = write_edges(s, fps[2], &wd[2]);
-            early_sync(fps[2]);
-        }
-        if (threaded) {
-            pthread_join(th, NULL);
-        }
-    }
-    /* the input's SHA-256 for run.json, before any output is replaced: a file that changed
-     * while it was read is an error */
-    pm_diag_t hd;
-    pm_diag_clear(&hd);
-    if (!rc && pm_table_wait_hash(s->t, &hd) != PM_OK) {
-        rc = hd.code;
-        d = hd;
-    }
-    for (size_t k = 0; k < 4; k++) {
-        if (!fps[k]) {
-            continue;
-        }
-        if (!rc && wrc[k]) {
-            rc = wrc[k];
-            d = wd[k];
-            if (d.code == PM_EIO && !d.file[0]) { /* one shape: DIR/NAME: cannot write ... */
-                snprintf(d.file, sizeof d.file, "%s/%s", no->dir, files[k]);
-                size_t ml = strlen(d.msg);
-                snprintf(d.msg + ml, sizeof d.msg - ml,
-                         "; check the free space and permissions there (no earlier output "
-                         "was replaced)");
-            }
-        }
-        pm_err_t rc2 = pm_outdir_finish(s->od, fps[k], rc ? NULL : &d);
-        if (!rc) {
-            rc = rc2;
-        }
-    }
-    free(cats);
-    free(slo);
-    free(shi);
-    if (rc) {
-        if (d.code == PM_EIO && !d.file[0]) {
-            snprintf(d.file, sizeof d.file, "%s", no->dir);
-        }
-        return pm_cli_fail(&d);
-    }
-    pm_segsvg_data_t pic = {.n = s->n,
-                            .item = s->item,
-                            .cluster = s->cluster_int,
-                            .share = s->share,
-                            .name = (const char *const *)s->inc->name,
-                            .n_clusters = s->cl->n_clusters,
-                            .cluster_name = (const char *const *)s->cluster_name,
-                            .max_q = sel->max_q,
-                            .draw = (size_t)no->draw,
-                            .title = no->title,
-                            .respondents = s->inc->N};
-    if ((rc = pm_cli_mapseg_write(&s->seg, s->od, s->inc, pic, s->csv_flags, &d)) != PM_OK) {
-        return pm_cli_fail(&d);
-    }
-    s->t_write = pm_cli_now() - t0;
-    FILE *fp;
-    rc = pm_outdir_create(s->od, files[4], &fp, &d);
-    if (!rc) {
-        const char *names[8];
-        size_t nf = 0;
-        static const char *const base[] = {"map.graphml", "map.svg",   "map.html",
-                                           "edges.csv",   "nodes.csv", "run.json"};
-        for (size_t k = 0; k < 6; k++) {
-            if (k != 2 || no->html) {
-                names[nf++] = base[k];
-            }
-        }
-        if (s->seg.n) {
-            names[nf++] = "segments.csv";
-            names[nf++] = "segments.svg";
-        }
-        rc = write_run_json(fp, c, no, sel, s, names, nf, &d);
-        pm_err_t rc2 = pm_outdir_finish(s->od, fp, rc ? NULL : &d);
-        if (!rc) {
-            rc = rc2;
-        }
-    }
-    if (!rc) {
-        rc = pm_outdir_commit(s->od, &d);
-    }
-    return rc ? pm_cli_fail(&d) : 0;
 }
 
 /* ---- summary --------------------------------------------------------------------------------- */
@@ -923,7 +363,7 @@ int pm_cmd_map(int argc, char **argv) {
     s.csv_flags = pm_cli_csv_flags(&c);
     pm_diag_t d;
     pm_diag_clear(&d);
-    catch_signals();
+    pm_cli_signals_catch();
     /* the directory first: a run that cannot write should fail before the work */
     if (pm_outdir_open(no.dir, &s.od, &d)) {
         rc = pm_cli_fail(&d);
@@ -969,14 +409,12 @@ int pm_cmd_map(int argc, char **argv) {
     s.t_graph = pm_cli_now() - t0;
     /* edges.csv's thread starts after the network: the Louvain runs fork, and no thread but the
      * sigwait one may run when they do (issue 12 point 2) */
-    early_start(&s, th);
+    pm_cli_map_early_start(&s, th);
     if ((rc = pm_cli_mapseg_run(&s.seg, s.inc, th)) != 0) {
         goto done;
     }
-    rc = write_files(&c, &no, &sel, &s);
-    while (atomic_load(&g_stop_sig)) {
-        pause(); /* a signal came during the commit: its thread reports it and exits */
-    }
+    rc = pm_cli_map_write_files(&c, &no, &sel, &s);
+    pm_cli_signals_settle();
     if (rc) {
         goto done;
     }
@@ -985,6 +423,6 @@ int pm_cmd_map(int argc, char **argv) {
 done:
     state_free(&s);
 out:
-    release_signals();
+    pm_cli_signals_release();
     return rc;
 }

@@ -6,7 +6,6 @@
 #include "cli.h"
 #include "pairmap/shard.h"
 
-void pm_cli_count_signals(void);
 int pm_cli_write_shard(const char *path, const unsigned char *buf, size_t len);
 
 static const char help[] =
@@ -79,7 +78,7 @@ int pm_cmd_merge(int argc, char **argv) {
         free(in);
         return rc;
     }
-    pm_cli_count_signals();
+    pm_cli_signals_shard();
     pm_shard_t **s = calloc(n, sizeof *s);
     const char **names = calloc(n, sizeof *names);
     pm_shard_t *m = NULL;

@@ -31,11 +31,11 @@ void pm_incidence_free(pm_incidence_t *inc) {
     free(inc);
 }
 
-static const pm_table_t *sort_table; /* qsort has no context argument; build is not reentrant
-                                        across threads, which the CLI never needs */
-static int cmp_item(const void *a, const void *b) {
+/* item order by name (bytes); ctx: the table */
+static int cmp_item(const void *a, const void *b, const void *ctx) {
+    const pm_table_t *t = ctx;
     uint32_t x = *(const uint32_t *)a, y = *(const uint32_t *)b;
-    return strcmp(sort_table->items.str[x], sort_table->items.str[y]);
+    return strcmp(t->items.str[x], t->items.str[y]);
 }
 
 static int cmp_u32(const void *a, const void *b) {
@@ -426,38 +426,17 @@ pm_err_t pm_incidence_build(const pm_table_t *t, pm_incidence_t **out, pm_diag_t
     return pm_incidence_build_threads(t, 1, out, diag);
 }
 
-pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_incidence_t **out,
-                                    pm_diag_t *diag) {
-    *out = NULL;
-    if (threads == 0) {
-        long np = sysconf(_SC_NPROCESSORS_ONLN);
-        threads = np > 0 ? (unsigned)np : 1;
-    }
-    pm_err_t rc = PM_OK;
-    size_t ni = t->items.count, nr = (size_t)t->stats.respondents;
-    uint32_t *order = NULL, *rank = NULL;
-    pm_incidence_t *inc = pm_i_calloc(1, sizeof *inc);
-    if (!inc) {
-        return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
-    }
-    order = pm_i_malloc(ni, sizeof *order);
-    rank = pm_i_malloc(ni, sizeof *rank);
-    inc->name = pm_i_malloc(ni, sizeof *inc->name);
-    inc->category = pm_i_calloc(ni, sizeof *inc->category);
-    inc->count = pm_i_calloc(ni, sizeof *inc->count);
-    inc->row_ptr = pm_i_calloc(nr + 1, sizeof *inc->row_ptr);
-    inc->col = pm_i_malloc(t->n_rows, sizeof *inc->col);
-    if (!order || !rank || !inc->name || !inc->category || !inc->count || !inc->row_ptr ||
-        !inc->col) {
-        rc = PM_ENOMEM;
-        goto cleanup;
-    }
-    /* canonical order: names sorted by bytes */
+/* Canonical order (names sorted by bytes): rank[table item] is its index; the names and
+ * categories copied into inc's storage in that order. */
+static pm_err_t canonical_names(const pm_table_t *t, pm_incidence_t *inc, uint32_t *order,
+                                uint32_t *rank) {
+    size_t ni = t->items.count;
     for (size_t i = 0; i < ni; i++) {
         order[i] = (uint32_t)i;
     }
-    sort_table = t;
-    qsort(order, ni, sizeof *order, cmp_item);
+    if (pm_i_sort_ctx(order, ni, sizeof *order, cmp_item, t)) {
+        return PM_ENOMEM;
+    }
     size_t bytes = 0;
     for (size_t i = 0; i < ni; i++) {
         rank[order[i]] = (uint32_t)i;
@@ -471,8 +450,7 @@ pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_in
     }
     inc->storage = pm_i_malloc(bytes ? bytes : 1, 1);
     if (!inc->storage) {
-        rc = PM_ENOMEM;
-        goto cleanup;
+        return PM_ENOMEM;
     }
     char *p = inc->storage;
     for (size_t i = 0; i < ni; i++) {
@@ -487,15 +465,19 @@ pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_in
             p += t->cats.len[c] + 1;
         }
     }
-    /* counting sort of rows by respondent; when every respondent's rows are together and in
-     * order (one run each: the usual file), the sort is the identity, and the row pointers
-     * are where the respondent changes: both on all threads */
+    return PM_OK;
+}
+
+/* Counting sort of rows by respondent; when every respondent's rows are together and in order
+ * (one run each: the usual file), the sort is the identity, and the row pointers are where the
+ * respondent changes: both on all threads. */
+static pm_err_t rows_by_respondent(const pm_table_t *t, pm_incidence_t *inc, const uint32_t *rank,
+                                   size_t nr, unsigned threads) {
     scatter_job sj = {t, rank, inc, nr, 0, NULL, 1};
     sj.nchunks = t->n_rows < 65536 || threads < 2 ? 1 : 16 * (size_t)threads;
     sj.ungrouped = pm_i_calloc(sj.nchunks, 1);
     if (!sj.ungrouped) {
-        rc = PM_ENOMEM;
-        goto cleanup;
+        return PM_ENOMEM;
     }
     int grouped = 0;
     if (pm_i_parallel(sj.nchunks > 1 ? threads : 1, sj.nchunks, scatter_chunk, &sj) == 0) {
@@ -509,57 +491,97 @@ pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_in
         sj.phase = 1;
         grouped = pm_i_parallel(sj.nchunks > 1 ? threads : 1, sj.nchunks, scatter_chunk, &sj) == 0;
     }
-    if (!grouped) {
-        memset(inc->row_ptr, 0, (nr + 1) * sizeof *inc->row_ptr);
-        for (size_t k = 0; k < t->n_rows; k++) {
-            inc->row_ptr[t->row_resp[k] + 1]++;
-        }
-        for (size_t r = 0; r < nr; r++) {
-            inc->row_ptr[r + 1] += inc->row_ptr[r];
-        }
-        uint64_t *fill = pm_i_malloc(nr ? nr : 1, sizeof *fill);
-        if (!fill) {
-            rc = PM_ENOMEM;
-            goto cleanup;
-        }
-        memcpy(fill, inc->row_ptr, nr * sizeof *fill);
-        for (size_t k = 0; k < t->n_rows; k++) {
-            inc->col[fill[t->row_resp[k]]++] = rank[t->row_item[k]];
-        }
-        free(fill);
+    if (grouped) {
+        return PM_OK;
     }
-    /* sort and deduplicate each row, compacting in place */
-    if ((rc = sort_rows(inc, nr, ni, threads)) != PM_OK) {
-        goto cleanup;
+    memset(inc->row_ptr, 0, (nr + 1) * sizeof *inc->row_ptr);
+    for (size_t k = 0; k < t->n_rows; k++) {
+        inc->row_ptr[t->row_resp[k] + 1]++;
     }
-    inc->n_items = ni;
-    inc->n_resp = nr;
-    if (t->max_basket && leave_out_large(inc, nr, t->max_basket) != 0) {
+    for (size_t r = 0; r < nr; r++) {
+        inc->row_ptr[r + 1] += inc->row_ptr[r];
+    }
+    uint64_t *fill = pm_i_malloc(nr ? nr : 1, sizeof *fill);
+    if (!fill) {
+        return PM_ENOMEM;
+    }
+    memcpy(fill, inc->row_ptr, nr * sizeof *fill);
+    for (size_t k = 0; k < t->n_rows; k++) {
+        inc->col[fill[t->row_resp[k]]++] = rank[t->row_item[k]];
+    }
+    free(fill);
+    return PM_OK;
+}
+
+/* Respondents' weights in the file's scale and the items' weighted totals. */
+static pm_err_t weights_setup(const pm_table_t *t, pm_incidence_t *inc, pm_diag_t *diag) {
+    size_t ni = inc->n_items, nr = inc->n_resp;
+    inc->weight = pm_i_malloc(nr ? nr : 1, sizeof *inc->weight);
+    inc->wcount = pm_i_calloc(ni, sizeof *inc->wcount);
+    if (!inc->weight || !inc->wcount) {
+        return PM_ENOMEM;
+    }
+    pm_err_t rc = scale_weights(t, inc, diag);
+    if (rc != PM_OK) {
+        return rc;
+    }
+    inc->w2count = pm_i_calloc(ni, sizeof *inc->w2count);
+    if (!inc->w2count || item_weight_sums(inc) != 0) {
+        return PM_ENOMEM;
+    }
+    return PM_OK;
+}
+
+pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_incidence_t **out,
+                                    pm_diag_t *diag) {
+    *out = NULL;
+    if (threads == 0) {
+        long np = sysconf(_SC_NPROCESSORS_ONLN);
+        threads = np > 0 ? (unsigned)np : 1;
+    }
+    pm_err_t rc = PM_OK;
+    size_t ni = t->items.count, nr = (size_t)t->stats.respondents;
+    pm_incidence_t *inc = pm_i_calloc(1, sizeof *inc);
+    if (!inc) {
+        return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
+    }
+    uint32_t *order = pm_i_malloc(ni, sizeof *order);
+    uint32_t *rank = pm_i_malloc(ni, sizeof *rank);
+    inc->name = pm_i_malloc(ni, sizeof *inc->name);
+    inc->category = pm_i_calloc(ni, sizeof *inc->category);
+    inc->count = pm_i_calloc(ni, sizeof *inc->count);
+    inc->row_ptr = pm_i_calloc(nr + 1, sizeof *inc->row_ptr);
+    inc->col = pm_i_malloc(t->n_rows, sizeof *inc->col);
+    if (!order || !rank || !inc->name || !inc->category || !inc->count || !inc->row_ptr ||
+        !inc->col) {
         rc = PM_ENOMEM;
-        goto cleanup;
     }
-    uint64_t base = t->respondents_override ? t->respondents_override : nr;
-    inc->no_item += base - nr;
-    inc->N = base - inc->n_left_out;
-    inc->W = (double)inc->N;
-    inc->W2 = (double)inc->N;
-    if (t->weighted) {
-        inc->weight = pm_i_malloc(nr ? nr : 1, sizeof *inc->weight);
-        inc->wcount = pm_i_calloc(ni, sizeof *inc->wcount);
-        if (!inc->weight || !inc->wcount) {
+    if (rc == PM_OK) {
+        rc = canonical_names(t, inc, order, rank);
+    }
+    if (rc == PM_OK) {
+        rc = rows_by_respondent(t, inc, rank, nr, threads);
+    }
+    if (rc == PM_OK) { /* sort and deduplicate each row, compacting in place */
+        rc = sort_rows(inc, nr, ni, threads);
+    }
+    if (rc == PM_OK) {
+        inc->n_items = ni;
+        inc->n_resp = nr;
+        if (t->max_basket && leave_out_large(inc, nr, t->max_basket) != 0) {
             rc = PM_ENOMEM;
-            goto cleanup;
-        }
-        if ((rc = scale_weights(t, inc, diag)) != PM_OK) {
-            goto cleanup;
-        }
-        inc->w2count = pm_i_calloc(ni, sizeof *inc->w2count);
-        if (!inc->w2count || item_weight_sums(inc) != 0) {
-            rc = PM_ENOMEM;
-            goto cleanup;
         }
     }
-cleanup:
+    if (rc == PM_OK) {
+        uint64_t base = t->respondents_override ? t->respondents_override : nr;
+        inc->no_item += base - nr;
+        inc->N = base - inc->n_left_out;
+        inc->W = (double)inc->N;
+        inc->W2 = (double)inc->N;
+        if (t->weighted) {
+            rc = weights_setup(t, inc, diag);
+        }
+    }
     free(order);
     free(rank);
     if (rc) {

@@ -38,6 +38,115 @@ static const char help[] =
     "in a note) or every respondent row (--base all).\n"
     "\n";
 
+/* Rows grouped by respondent (a counting sort keeps input order within a respondent):
+ * respondent r's rows are order[start[r] .. start[r + 1]). */
+static void group_rows(const pm_table_t *t, size_t nr, size_t nrows, size_t *start, size_t *order) {
+    for (size_t i = 0; i < nrows; i++) {
+        size_t r, it;
+        pm_table_row_index(t, i, &r, &it);
+        start[r + 1]++;
+    }
+    for (size_t r = 0; r < nr; r++) {
+        start[r + 1] += start[r];
+    }
+    for (size_t i = 0; i < nrows; i++) {
+        size_t r, it;
+        pm_table_row_index(t, i, &r, &it);
+        order[start[r]++] = i;
+    }
+    for (size_t r = nr; r > 0; r--) { /* start[r] now ends respondent r: shift back */
+        start[r] = start[r - 1];
+    }
+    start[0] = 0;
+}
+
+/* What the long file got: rows written, respondents with no item, repeated pairs. */
+typedef struct {
+    unsigned long long written, empty, dups;
+} unfold_counts;
+
+static void write_weight(const pm_table_t *t, size_t r) {
+    fputc(',', stdout);
+    pm_write_number(stdout, pm_table_respondent_weight(t, r));
+}
+
+/* The long file on stdout: one row per (respondent, item), each pair once. */
+static unfold_counts write_long(const pm_table_t *t, size_t nr, const size_t *start,
+                                const size_t *order, size_t *seen) {
+    unfold_counts n = {0, 0, 0};
+    bool weighted = pm_table_weighted(t);
+    fputs(weighted ? "respondent,item,category,weight\n" : "respondent,item,category\n", stdout);
+    for (size_t r = 0; r < nr; r++) {
+        const char *id = pm_table_respondent(t, r);
+        size_t kept = 0;
+        for (size_t k = start[r]; k < start[r + 1]; k++) {
+            size_t rr, it;
+            pm_table_row_index(t, order[k], &rr, &it);
+            if (seen[it] == r + 1) {
+                n.dups++;
+                continue;
+            }
+            seen[it] = r + 1;
+            const char *rid, *item, *cat;
+            pm_table_row(t, order[k], &rid, &item, &cat);
+            pm_write_csv_field(stdout, id, PM_CSV_RAW);
+            fputc(',', stdout);
+            pm_write_csv_field(stdout, item, PM_CSV_RAW);
+            fputc(',', stdout);
+            pm_write_csv_field(stdout, cat ? cat : "", PM_CSV_RAW);
+            if (weighted) {
+                write_weight(t, r);
+            }
+            fputc('\n', stdout);
+            kept++;
+        }
+        if (kept == 0) { /* in N with no item: one row with an empty item */
+            pm_write_csv_field(stdout, id, PM_CSV_RAW);
+            fputs(",,", stdout);
+            if (weighted) {
+                write_weight(t, r);
+            }
+            fputc('\n', stdout);
+            n.empty++;
+        }
+        n.written += kept;
+        if ((r & 4095) == 0 && ferror(stdout)) {
+            break;
+        }
+    }
+    return n;
+}
+
+static void unfold_notes(const pm_cli_t *c, const pm_table_t *t, const pm_input_opts_t *io,
+                         size_t nr, const unfold_counts *n) {
+    const pm_input_stats_t *s = pm_table_stats(t);
+    if (s->blank_excluded) {
+        pm_cli_note(c,
+                    "note: %llu respondents chose nothing in the selected questions and are "
+                    "left out (--base answered; --base all keeps them)",
+                    (unsigned long long)s->blank_excluded);
+    }
+    if (s->dropped_rows) {
+        pm_cli_note(c, "note: %llu choices dropped by --drop-item",
+                    (unsigned long long)s->dropped_rows);
+    }
+    if (s->merged_rows) {
+        pm_cli_note(c, "note: %llu choices renamed by --merge-file (%llu entries)",
+                    (unsigned long long)s->merged_rows, (unsigned long long)s->merge_entries);
+    }
+    if (n->dups) {
+        pm_cli_note(c, "note: %llu repeated respondent-item pairs written once", n->dups);
+    }
+    if (io->respondents) {
+        pm_cli_note(c,
+                    "note: --respondents %llu is not part of the long file; give it again "
+                    "when you read it",
+                    (unsigned long long)io->respondents);
+    }
+    pm_cli_note(c, "%zu respondents, %llu respondent-item rows, %llu respondents with no item", nr,
+                n->written, n->empty);
+}
+
 int pm_cmd_unfold(int argc, char **argv) {
     pm_cli_t c;
     static char full[8192];
@@ -70,7 +179,6 @@ int pm_cmd_unfold(int argc, char **argv) {
         rc = 1;
         goto done;
     }
-    /* rows grouped by respondent (counting sort keeps input order within a respondent) */
     start = calloc(nr + 1, sizeof *start);
     order = malloc((nrows ? nrows : 1) * sizeof *order);
     seen = calloc(ni ? ni : 1, sizeof *seen);
@@ -79,97 +187,12 @@ int pm_cmd_unfold(int argc, char **argv) {
         rc = 4;
         goto done;
     }
-    for (size_t i = 0; i < nrows; i++) {
-        size_t r, it;
-        pm_table_row_index(t, i, &r, &it);
-        start[r + 1]++;
-    }
-    for (size_t r = 0; r < nr; r++) {
-        start[r + 1] += start[r];
-    }
-    for (size_t i = 0; i < nrows; i++) {
-        size_t r, it;
-        pm_table_row_index(t, i, &r, &it);
-        order[start[r]++] = i;
-    }
-    for (size_t r = nr; r > 0; r--) { /* start[r] now ends respondent r: shift back */
-        start[r] = start[r - 1];
-    }
-    start[0] = 0;
-
-    bool weighted = pm_table_weighted(t);
-    fputs(weighted ? "respondent,item,category,weight\n" : "respondent,item,category\n", stdout);
-    unsigned long long written = 0, empty = 0, dups = 0;
-    for (size_t r = 0; r < nr; r++) {
-        const char *id = pm_table_respondent(t, r);
-        size_t kept = 0;
-        for (size_t k = start[r]; k < start[r + 1]; k++) {
-            size_t rr, it;
-            pm_table_row_index(t, order[k], &rr, &it);
-            if (seen[it] == r + 1) {
-                dups++;
-                continue;
-            }
-            seen[it] = r + 1;
-            const char *rid, *item, *cat;
-            pm_table_row(t, order[k], &rid, &item, &cat);
-            pm_write_csv_field(stdout, id, PM_CSV_RAW);
-            fputc(',', stdout);
-            pm_write_csv_field(stdout, item, PM_CSV_RAW);
-            fputc(',', stdout);
-            pm_write_csv_field(stdout, cat ? cat : "", PM_CSV_RAW);
-            if (weighted) {
-                fputc(',', stdout);
-                pm_write_number(stdout, pm_table_respondent_weight(t, r));
-            }
-            fputc('\n', stdout);
-            kept++;
-        }
-        if (kept == 0) { /* in N with no item: one row with an empty item */
-            pm_write_csv_field(stdout, id, PM_CSV_RAW);
-            fputs(",,", stdout);
-            if (weighted) {
-                fputc(',', stdout);
-                pm_write_number(stdout, pm_table_respondent_weight(t, r));
-            }
-            fputc('\n', stdout);
-            empty++;
-        }
-        written += kept;
-        if ((r & 4095) == 0 && ferror(stdout)) {
-            break;
-        }
-    }
+    group_rows(t, nr, nrows, start, order);
+    unfold_counts n = write_long(t, nr, start, order, seen);
     rc = pm_cli_close_stdout();
-    if (rc) {
-        goto done;
+    if (rc == 0) {
+        unfold_notes(&c, t, &io, nr, &n);
     }
-    const pm_input_stats_t *s = pm_table_stats(t);
-    if (s->blank_excluded) {
-        pm_cli_note(&c,
-                    "note: %llu respondents chose nothing in the selected questions and are "
-                    "left out (--base answered; --base all keeps them)",
-                    (unsigned long long)s->blank_excluded);
-    }
-    if (s->dropped_rows) {
-        pm_cli_note(&c, "note: %llu choices dropped by --drop-item",
-                    (unsigned long long)s->dropped_rows);
-    }
-    if (s->merged_rows) {
-        pm_cli_note(&c, "note: %llu choices renamed by --merge-file (%llu entries)",
-                    (unsigned long long)s->merged_rows, (unsigned long long)s->merge_entries);
-    }
-    if (dups) {
-        pm_cli_note(&c, "note: %llu repeated respondent-item pairs written once", dups);
-    }
-    if (io.respondents) {
-        pm_cli_note(&c,
-                    "note: --respondents %llu is not part of the long file; give it again "
-                    "when you read it",
-                    (unsigned long long)io.respondents);
-    }
-    pm_cli_note(&c, "%zu respondents, %llu respondent-item rows, %llu respondents with no item", nr,
-                written, empty);
 done:
     free(start);
     free(order);

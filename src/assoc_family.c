@@ -332,11 +332,7 @@ static pm_err_t logfact_table(pm_assoc_stage_t *st) {
         return PM_ENOMEM;
     }
     lf_job lj = {st->lft, n, 64};
-    if (pm_i_parallel(st->threads, lj.chunks, lf_chunk, &lj) != 0) {
-        for (size_t i = 0; i < lj.n; i++) { /* no thread could start: here */
-            st->lft[i] = gsl_sf_lnfact((unsigned)i);
-        }
-    }
+    (void)pm_i_parallel(st->threads, lj.chunks, lf_chunk, &lj); /* runs every chunk */
     st->lfs.t = st->lft;
     st->lfs.n = n;
     st->lf = &st->lfs;
@@ -507,10 +503,10 @@ static pm_err_t listed_pairs(pm_assoc_stage_t *st, pm_counts_t *cnt) {
 }
 
 /* Step 5: the p-values of the listed pairs, in parallel over ranges. */
-static pm_err_t listed_pvalues(pm_assoc_stage_t *st) {
+static void listed_pvalues(pm_assoc_stage_t *st) {
     pjob j = {st->pp, st->inc, st->lf, st->neff, 4096, st->pc.skip_mean, st->pc.lim};
     size_t nch = (st->pp->n + j.per - 1) / j.per;
-    return pm_i_parallel(st->threads, nch, p_chunk, &j) != 0 ? PM_EINTERNAL : PM_OK;
+    (void)pm_i_parallel(st->threads, nch, p_chunk, &j); /* runs every chunk */
 }
 
 /* Step 6: the pruned pairs' p-values, gathered from the threads' stores (those kept by
@@ -747,7 +743,7 @@ pm_err_t pm_assoc_finish(pm_assoc_stage_t *st, pm_counts_t *cnt, pm_pairs_t **ou
     pm_err_t rc = listed_pairs(st, cnt);
     pm_counts_free(cnt);
     if (rc == PM_OK) {
-        rc = listed_pvalues(st);
+        listed_pvalues(st);
     }
     if (rc == PM_OK) {
         rc = pruned_pvalues(st, &f);
@@ -769,9 +765,6 @@ pm_err_t pm_assoc_finish(pm_assoc_stage_t *st, pm_counts_t *cnt, pm_pairs_t **ou
         pm_assoc_stage_free(st);
         if (rc == PM_ENOMEM) {
             return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory while testing pairs");
-        }
-        if (rc == PM_EINTERNAL && diag && !diag->msg[0]) {
-            pm_diag_set(diag, PM_EINTERNAL, NULL, 0, "cannot start worker threads");
         }
         return rc;
     }

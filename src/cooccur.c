@@ -449,15 +449,7 @@ static pm_err_t counts_given(const pm_incidence_t *inc, const pm_counts_opts_t *
     if (!res || !j.kept || !j.seen || !j.pruned || !j.work) {
         goto done;
     }
-    if (pm_i_parallel(threads, j.nchunks, given_pass1, &j) != 0) {
-        memset(j.kept, 0, nc * sizeof *j.kept); /* no thread could start: here, once */
-        memset(j.seen, 0, nc * sizeof *j.seen);
-        memset(j.pruned, 0, nc * sizeof *j.pruned);
-        memset(j.work, 0, nc * sizeof *j.work);
-        for (size_t c = 0; c < j.nchunks; c++) {
-            given_pass1(&j, c, 0);
-        }
-    }
+    (void)pm_i_parallel(threads, j.nchunks, given_pass1, &j); /* runs every chunk */
     size_t total = 0;
     for (size_t c = 0; c < j.nchunks; c++) {
         size_t kc = j.kept[c];
@@ -475,11 +467,7 @@ static pm_err_t counts_given(const pm_incidence_t *inc, const pm_counts_opts_t *
         goto done;
     }
     j.res = res;
-    if (pm_i_parallel(threads, j.nchunks, given_pass2, &j) != 0) {
-        for (size_t c = 0; c < j.nchunks; c++) {
-            given_pass2(&j, c, 0);
-        }
-    }
+    (void)pm_i_parallel(threads, j.nchunks, given_pass2, &j);
     res->n_pairs = total;
     size_t E = 0;
     for (size_t i = 0; i < inc->n_items; i++) {
@@ -663,8 +651,8 @@ static pm_err_t transpose(kstate *k, uint64_t *cost) {
         return PM_ENOMEM;
     }
     tj.phase = 0;
-    int prc = pm_i_parallel(k->threads, tj.parts, transpose_part, &tj);
-    if (!prc) {
+    (void)pm_i_parallel(k->threads, tj.parts, transpose_part, &tj); /* runs every part */
+    {
         uint64_t at = 0;
         for (size_t e = 0; e < k->E; e++) {
             k->tp[e] = at;
@@ -677,11 +665,11 @@ static pm_err_t transpose(kstate *k, uint64_t *cost) {
         }
         k->tp[k->E] = at;
         tj.phase = 1;
-        prc = pm_i_parallel(k->threads, tj.parts, transpose_part, &tj);
+        (void)pm_i_parallel(k->threads, tj.parts, transpose_part, &tj);
     }
     free(tj.cnt);
     free(tj.pcost);
-    return prc ? PM_EINTERNAL : PM_OK;
+    return PM_OK;
 }
 
 /* The transposed index's memory: the caller's scratch when it is large enough. */
@@ -754,9 +742,10 @@ static pm_err_t sparse_scratch(kstate *k) {
     return PM_OK;
 }
 
-/* A pm_i_parallel result as an error: a thread that could not start, or a chunk's failure. */
+/* A pm_i_parallel result as an error: every chunk runs (parallel.h), and a chunk fails only
+ * when its output buffer cannot grow. */
 static pm_err_t parallel_rc(int prc) {
-    return prc == 0 ? PM_OK : prc < 0 ? PM_EINTERNAL : PM_ENOMEM;
+    return prc == 0 ? PM_OK : PM_ENOMEM;
 }
 
 /* The sparse kernel: transpose with positions and work per item, chunks of similar work. */
@@ -906,7 +895,7 @@ static pm_err_t counts_error(pm_err_t rc, pm_diag_t *diag) {
                            "more than 4294967294 respondent-item rows of eligible items; "
                            "split the input or raise --min-share");
     }
-    return pm_diag_set(diag, rc, NULL, 0, "cannot start the counting threads");
+    return pm_diag_set(diag, rc, NULL, 0, "counting pairs failed");
 }
 
 pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o, pm_counts_t **out,

@@ -24,7 +24,6 @@ pm_err_t pm_diag_set(pm_diag_t *d, pm_err_t code, const char *file, long line, c
     d->code = code;
     snprintf(d->file, sizeof d->file, "%s", file ? file : "");
     d->line = line;
-    d->col = 0;
     va_list ap;
     va_start(ap, fmt);
     vsnprintf(d->msg, sizeof d->msg, fmt, ap);

@@ -764,6 +764,16 @@ pm_err_t pm_i_network_call(pm_i_network_hooks_t *h, size_t n, size_t m, const ui
     if (rc) {
         return rc;
     }
+    unsigned rmax = pm_cluster_max_restarts(nr.u.nv);
+    if (o->restarts > rmax) {
+        pm_i_usable_free(&nr.u);
+        return pm_diag_set(diag, PM_EUSAGE, NULL, 0,
+                           "%u Louvain runs are too many for %zu clustered items: at most %u "
+                           "(every run's clusters are kept, R x items x 4 bytes up to 1 GiB, "
+                           "and the stability compares all R(R-1)/2 pairs of runs, up to "
+                           "2e9 item comparisons)",
+                           o->restarts, nr.u.nv, rmax);
+    }
     rc = net_alloc(&nr, n, o->restarts, layout, diag);
     if (rc == PM_OK) {
         const pm_i_usable *u = &nr.u;

@@ -19,6 +19,18 @@ void pm_cluster_opts_init(pm_cluster_opts_t *o) {
     o->workers = 1;
 }
 
+unsigned pm_cluster_max_restarts(size_t vertices) {
+    uint64_t v = vertices ? (uint64_t)vertices : 1;
+    unsigned r = PM_CLUSTER_MAX_RESTARTS;
+    if ((uint64_t)r * v * 4 > PM_CLUSTER_MEMB_BYTES) {
+        r = (unsigned)(PM_CLUSTER_MEMB_BYTES / (v * 4));
+    }
+    while (r > 1 && (uint64_t)r * (r - 1) / 2 * v > PM_CLUSTER_ARI_WORK) {
+        r--;
+    }
+    return r ? r : 1;
+}
+
 void pm_clusters_free(pm_clusters_t *c) {
     if (!c) {
         return;

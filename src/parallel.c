@@ -5,6 +5,8 @@
 #include <stdatomic.h>
 #include <stdlib.h>
 
+#include "util.h"
+
 typedef struct {
     int (*fn)(void *, size_t, unsigned);
     void *ud;
@@ -18,6 +20,17 @@ typedef struct {
     unsigned thread;
     int rc;
 } worker;
+
+static atomic_uint g_limit;                /* test hook (parallel.h); 0: no limit */
+static _Thread_local unsigned tl_last = 1; /* threads of this thread's last call */
+
+void pm_i_parallel_limit_threads(unsigned n) {
+    atomic_store(&g_limit, n);
+}
+
+unsigned pm_i_parallel_last_threads(void) {
+    return tl_last;
+}
 
 static void *run(void *arg) {
     worker *w = arg;
@@ -44,39 +57,44 @@ int pm_i_parallel(unsigned threads, size_t nchunks, int (*fn)(void *, size_t, un
     if (threads < 1) {
         threads = 1;
     }
+    if ((size_t)threads > nchunks) {
+        threads = nchunks > 0 ? (unsigned)nchunks : 1; /* no thread without a chunk */
+    }
     job j;
     j.fn = fn;
     j.ud = ud;
     j.nchunks = nchunks;
     atomic_init(&j.next, 0);
     atomic_init(&j.stop, 0);
-    worker *ws = calloc(threads, sizeof *ws);
-    pthread_t *ts = calloc(threads, sizeof *ts);
-    if (!ws || !ts) {
+    worker one = {&j, 0, 0};
+    worker *ws = threads > 1 ? pm_i_calloc(threads, sizeof *ws) : NULL;
+    pthread_t *ts = threads > 1 ? pm_i_calloc(threads, sizeof *ts) : NULL;
+    if (!ws || !ts) { /* one thread, or no room for the bookkeeping: all here */
         free(ws);
         free(ts);
-        return -1;
+        tl_last = 1;
+        run(&one);
+        return one.rc;
     }
-    unsigned started = 1;
-    int rc = 0;
+    unsigned limit = atomic_load(&g_limit), started = 1;
     for (unsigned t = 0; t < threads; t++) {
         ws[t].j = &j;
         ws[t].thread = t;
     }
     for (unsigned t = 1; t < threads; t++) {
-        if (pthread_create(&ts[t], NULL, run, &ws[t]) != 0) {
+        if ((limit && t >= limit) || pthread_create(&ts[t], NULL, run, &ws[t]) != 0) {
             break; /* go on with the threads there are */
         }
         started++;
     }
+    tl_last = started;
     run(&ws[0]);
     for (unsigned t = 1; t < started; t++) {
         pthread_join(ts[t], NULL);
     }
+    int rc = 0;
     for (unsigned t = 0; t < started && !rc; t++) {
-        if (ws[t].rc) {
-            rc = ws[t].rc;
-        }
+        rc = ws[t].rc;
     }
     free(ws);
     free(ts);

@@ -3,25 +3,25 @@
 
 #include <math.h>
 #include <pthread.h>
+#include <stdatomic.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
 
 /* ==== allocation ============================================================================ */
-static long fail_countdown; /* test hook; 0 = off */
+/* Test hook (util.h); 0 = off. Atomic: allocations happen on every thread. */
+static atomic_long fail_countdown;
 
 static bool should_fail(void) {
-    if (fail_countdown > 0) {
-        if (--fail_countdown == 0) {
-            return true;
-        }
+    if (atomic_load_explicit(&fail_countdown, memory_order_relaxed) <= 0) {
+        return false;
     }
-    return false;
+    return atomic_fetch_sub(&fail_countdown, 1) == 1;
 }
 
 void pm_i_alloc_fail_after(long n) {
-    fail_countdown = n;
+    atomic_store(&fail_countdown, n);
 }
 
 void *pm_i_malloc(size_t n, size_t size) {

@@ -59,8 +59,8 @@ void pm_assoc_confidence(const pm_incidence_t *inc, uint32_t a, uint64_t n_ab, d
 double pm_assoc_beta_quantile(double p, double a, double b);
 /* The 95% Jeffreys interval of the share of each of the k items item[0..k) (as `items` prints
  * it: Kish's effective size when weighted) into lo[j], hi[j], on `threads` threads (0: all
- * cores); the values do not depend on the number. Errors: PM_ENOMEM (no thread could start is
- * not an error: then on this one). */
+ * cores); the values do not depend on the number. Always PM_OK: nothing is allocated here, and
+ * threads that cannot start leave their work to the others. */
 pm_err_t pm_assoc_share_intervals(const pm_incidence_t *inc, const uint32_t *item, size_t k,
                                   unsigned threads, double *lo, double *hi, pm_diag_t *diag);
 
@@ -135,9 +135,9 @@ pm_err_t pm_assoc_cost(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_c
  * pm_assoc_run (src/score.c) is the three in a row. *out owns the result (pm_pairs_free).
  * Cost O(sum k^2 + seen pairs log seen pairs + D^2) where D is the number of distinct item
  * totals (classes of never-seen pairs share one p-value). Errors: PM_ENOMEM (every allocation
- * is checked), PM_EINTERNAL (no worker thread could start for the listed pairs' tests),
- * PM_EUSAGE (too many classes of never-seen pairs under sign negative or both), and the
- * counting's errors (cooccur.h). */
+ * is checked: tests/unit/test_assoc.c fails each in turn), PM_EUSAGE (too many classes of
+ * never-seen pairs under sign negative or both), and the counting's (cooccur.h). Threads that
+ * cannot start are no error (parallel.h). */
 typedef struct pm_assoc_stage pm_assoc_stage_t;
 pm_err_t pm_assoc_begin(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_assoc_stage_t **st,
                         pm_counts_opts_t *co, pm_diag_t *diag);

@@ -62,7 +62,8 @@ void pm_counts_opts_init(pm_counts_opts_t *o);
 /* Counts the pairs of inc. On success *out owns the result (pm_counts_free). Time
  * O(sum over respondents of k^2 + items * threads); memory O(kept pairs + rows + items *
  * threads), plus items^2/2 counters per thread for the dense kernel (only up to
- * dense_max_items). Errors: PM_ENOMEM, PM_EINTERNAL (threads). */
+ * dense_max_items). Errors: PM_ENOMEM, PM_EDATA (4294967295 or more rows of eligible items);
+ * threads that cannot start are no error (the others do their work). */
 pm_err_t pm_counts_build(const pm_incidence_t *inc, const pm_counts_opts_t *o, pm_counts_t **out,
                          pm_diag_t *diag);
 void pm_counts_free(pm_counts_t *c);

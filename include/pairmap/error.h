@@ -21,12 +21,12 @@ typedef enum {
     PM_EINTERRUPTED = 6 /* stopped by SIGINT/SIGTERM                        -> exit 130 */
 } pm_err_t;
 
-/* Where and why something failed. line/col are 1-based, 0 when unknown. */
+/* Where and why something failed. line is the physical line (1-based), 0 when unknown; no
+ * column is kept: the messages name the column by its header or number where it matters. */
 typedef struct {
     pm_err_t code;
     char file[512];
     long line;
-    long col;
     char msg[1024];
 } pm_diag_t;
 

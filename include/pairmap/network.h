@@ -85,6 +85,17 @@ typedef struct {
 
 void pm_cluster_opts_init(pm_cluster_opts_t *o);
 
+/* What the restarts may cost, bounded before anything is allocated: every run's membership
+ * is kept (R x v x 4 bytes for v clustered vertices, at most PM_CLUSTER_MEMB_BYTES) and the
+ * stability compares every pair of runs (an adjusted Rand index, a pass over the v vertices
+ * each: R(R-1)/2 x v at most PM_CLUSTER_ARI_WORK, some ten seconds), R at most
+ * PM_CLUSTER_MAX_RESTARTS in any case. pm_cluster_max_restarts(v) is the largest R within
+ * all three (at least 1); a call with more restarts fails with PM_EUSAGE. */
+#define PM_CLUSTER_MAX_RESTARTS 1000u
+#define PM_CLUSTER_MEMB_BYTES (UINT64_C(1) << 30)
+#define PM_CLUSTER_ARI_WORK UINT64_C(2000000000)
+unsigned pm_cluster_max_restarts(size_t vertices);
+
 /* Seed of restart r: seed + r * PM_CLUSTER_SEED_STEP (mod 2^64). The step is a large odd
  * constant (2^64 / golden ratio), so the restarts' seeds are far apart and distinct. */
 #define PM_CLUSTER_SEED_STEP UINT64_C(0x9E3779B97F4A7C15)

@@ -45,7 +45,12 @@ static const char help[] =
     "  --restarts R          Louvain runs (default 10); run r uses seed + r * 0x9E3779B97F4A7C15\n"
     "                        (mod 2^64). The run with the highest modularity is kept (ties: the\n"
     "                        first); stability is the mean adjusted Rand index between the\n"
-    "                        runs' partitions (1 = every run found the same clusters)\n"
+    "                        runs' partitions (1 = every run found the same clusters). At most\n"
+    "                        1000, and fewer on large maps: every run's clusters are kept\n"
+    "                        (R x items x 4 bytes, up to 1 GiB) and the stability compares\n"
+    "                        all R(R-1)/2 pairs of runs (R(R-1)/2 x items up to 2e9: 894 runs\n"
+    "                        for 5,000 clustered items, 283 for 50,000); beyond, a usage\n"
+    "                        error (exit 1)\n"
     "  --resolution F        Louvain resolution (default 1; higher gives more, smaller clusters)\n"
     "  --iterations N        Fruchterman-Reingold iterations (default 500 up to 1,000 items\n"
     "                        with edges; above, 500,000 / items, at least 150)\n"
@@ -325,7 +330,7 @@ static int net_options(const pm_cli_t *c, net_opts *no) {
     no->html = !pm_cli_flag(c, "no-html");
     static const char *const colors[] = {"cluster", "category", NULL};
     if (pm_cli_uint(c, "seed", 1, 0, UINT64_MAX, &no->seed) ||
-        pm_cli_uint(c, "restarts", 10, 1, 10000, &no->restarts) ||
+        pm_cli_uint(c, "restarts", 10, 1, PM_CLUSTER_MAX_RESTARTS, &no->restarts) ||
         pm_cli_double(c, "resolution", 1.0, 0, 1e6, &no->resolution) ||
         pm_cli_uint(c, "iterations", 0, 1, 1000000, &no->iterations) ||
         pm_cli_uint(c, "draw", 0, 1, 100000, &no->draw) ||

@@ -65,6 +65,7 @@ usage pairs "--respondents expects a whole number from 1 to" "$D" --respondents 
 usage map "--seed expects a whole number >= 0, got '-1'" "$D" -o "$TMP/m" --seed -1
 usage map "--resolution expects a number" "$D" -o "$TMP/m" --resolution -1
 usage map "--restarts expects a whole number from 1" "$D" -o "$TMP/m" --restarts 0
+usage map "--restarts expects a whole number from 1 to 1000" "$D" -o "$TMP/m" --restarts 1001
 usage map "--iterations expects a whole number" "$D" -o "$TMP/m" --iterations -5
 usage map "--draw expects a whole number" "$D" -o "$TMP/m" --draw -5
 usage map "--color-by expects one of cluster, category, got 'size'" "$D" -o "$TMP/m" --color-by size

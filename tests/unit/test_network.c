@@ -299,6 +299,41 @@ static int tool(const char *path, int seeds, unsigned restarts) {
     return 0;
 }
 
+/* --restarts bounded by what the runs cost (network.h): the largest R whose memberships fit
+ * 1 GiB and whose R(R-1)/2 ARI passes over v vertices fit 2e9, checked against the bounds'
+ * definitions at the edge (R fits, R + 1 does not); a call beyond fails before allocating. */
+static void test_network_restarts_bound(void **state) {
+    (void)state;
+    static const size_t vs[] = {1, 500, 2000, 5000, 50000, 300000};
+    for (size_t i = 0; i < sizeof vs / sizeof *vs; i++) {
+        uint64_t v = vs[i];
+        unsigned r = pm_cluster_max_restarts(vs[i]);
+        assert_true(r >= 1 && r <= PM_CLUSTER_MAX_RESTARTS);
+        assert_true((uint64_t)r * v * 4 <= PM_CLUSTER_MEMB_BYTES || r == 1);
+        assert_true((uint64_t)r * (r - 1) / 2 * v <= PM_CLUSTER_ARI_WORK || r == 1);
+        if (r < PM_CLUSTER_MAX_RESTARTS) {
+            uint64_t r1 = (uint64_t)r + 1;
+            assert_true(r1 * v * 4 > PM_CLUSTER_MEMB_BYTES ||
+                        r1 * (r1 - 1) / 2 * v > PM_CLUSTER_ARI_WORK);
+        }
+    }
+    /* 5,000 vertices (the medium benchmark's items): 894 runs, as README and --help say */
+    assert_int_equal(pm_cluster_max_restarts(5000), 894);
+    assert_int_equal(pm_cluster_max_restarts(50000), 283);
+    const uint32_t ea[] = {0, 1, 2}, eb[] = {1, 2, 0};
+    pm_cluster_opts_t o;
+    pm_cluster_opts_init(&o);
+    pm_clusters_t *c = NULL;
+    pm_diag_t d;
+    o.restarts = PM_CLUSTER_MAX_RESTARTS + 1;
+    assert_int_equal(pm_cluster_louvain(3, 3, ea, eb, NULL, &o, &c, &d), PM_EUSAGE);
+    assert_null(c);
+    assert_non_null(strstr(d.msg, "Louvain runs are too many"));
+    o.restarts = PM_CLUSTER_MAX_RESTARTS;
+    assert_int_equal(pm_cluster_louvain(3, 3, ea, eb, NULL, &o, &c, &d), PM_OK);
+    pm_clusters_free(c);
+}
+
 int main(int argc, char **argv) {
     pm_init();
     if (argc > 2 && strcmp(argv[1], "--edges") == 0) {
@@ -316,6 +351,7 @@ int main(int argc, char **argv) {
         cmocka_unit_test(test_network_adjusted_rand_values),
         cmocka_unit_test(test_network_layout_fr_box_and_ring),
         cmocka_unit_test(test_network_layout_fr_heavier_is_shorter),
+        cmocka_unit_test(test_network_restarts_bound),
     };
     return cmocka_run_group_tests_name("network", tests, NULL, NULL);
 }

@@ -15,11 +15,13 @@ drawn from comes from CSV files beside it (items with cluster and share; kept ed
     drawn" and the legend's cluster sizes agree with the data;
   - each region encloses its cluster's drawn members, no other cluster's node touches it, and
     it carries its cluster's name.
-Text boxes are measured as src/svgmap.c measures them (char_em, BOLD, ASCENT, DESCENT): each
-code point at least 0.6 font sizes wide (capitals 0.8, m and w 1.0, digits 0.65, the ellipsis
-1.0, East Asian wide characters 1.2; bold text 7/6 of that), from 0.95 font sizes above the
-baseline to 0.25 below. A conservative estimate of DejaVu Sans, whose lowercase letters
-average about 0.55 em (from memory); 0.6 em per character is common practice.
+Text boxes are measured independently of the code: with Pillow's ImageFont (FreeType) on the
+font the SVG names, DejaVu Sans from Debian's fonts-dejavu-core (DejaVuSans.ttf, and
+DejaVuSans-Bold.ttf for bold text): the advance width of the text at its font size, from the
+font's ascent above the baseline to its descent below. The rendered picture confirms them:
+each SVG is drawn to PNG by rsvg-convert (librsvg) twice, as written and with every text
+removed; the pixels that differ are the texts' ink (and their halos), and each text must put
+ink inside its box (grown by the halo's half width) and no text ink may fall outside all boxes.
 
 Usage: svg_geometry.py [SVG NODES_CSV EDGES_CSV]
 Without arguments it draws the pictures of the unit-test driver (build/test_svgmap --write
@@ -41,42 +43,33 @@ from pathlib import Path
 
 REPO = Path(__file__).resolve().parents[2]
 NS = "{http://www.w3.org/2000/svg}"
-BOLD, ASCENT, DESCENT = 7 / 6, 0.95, 0.25
 ELLIPSIS = "\u2026"
 EPS = 0.011  # coordinates are written with two decimals
+FONT_DIR = Path("/usr/share/fonts/truetype/dejavu")
+FONT_FILES = {False: FONT_DIR / "DejaVuSans.ttf", True: FONT_DIR / "DejaVuSans-Bold.ttf"}
+REF_SIZE = 1000  # the font is loaded once at this size and scaled: widths to 1/1000 px
+_fonts = {}
 
 
-def wide(cp):
-    return (0x1100 <= cp <= 0x115F or 0x2E80 <= cp <= 0xA4CF or 0xAC00 <= cp <= 0xD7A3
-            or 0xF900 <= cp <= 0xFAFF or 0xFE30 <= cp <= 0xFE4F or 0xFF00 <= cp <= 0xFF60
-            or 0xFFE0 <= cp <= 0xFFE6 or 0x1F300 <= cp <= 0x1FAFF or 0x20000 <= cp <= 0x3FFFD)
-
-
-def char_em(ch):
-    cp = ord(ch)
-    if wide(cp):
-        return 1.2
-    if ch in "mwMW%@\u2026":
-        return 1.0
-    if "A" <= ch <= "Z" or ch in "&#":
-        return 0.8
-    if "0" <= ch <= "9":
-        return 0.65
-    return 0.6
-
-
-def units(text):
-    return sum(char_em(ch) for ch in text)
+def font(bold):
+    if bold not in _fonts:
+        from PIL import ImageFont
+        _fonts[bold] = ImageFont.truetype(str(FONT_FILES[bold]), REF_SIZE)
+    return _fonts[bold]
 
 
 def text_box(el):
+    """The box of a <text> as FreeType lays it out: advance width, the font's ascent and
+    descent, placed by the text-anchor."""
     fs = float(el.get("font-size"))
     x, y = float(el.get("x")), float(el.get("y"))
     text = "".join(el.itertext())
-    w = units(text) * fs * (BOLD if el.get("font-weight") == "bold" else 1.0)
+    f = font(el.get("font-weight") == "bold")
+    ascent, descent = f.getmetrics()
+    w = f.getlength(text) * fs / REF_SIZE
     anchor = el.get("text-anchor", "start")
     x0 = {"start": x, "middle": x - w / 2, "end": x - w}[anchor]
-    return (x0, y - ASCENT * fs, x0 + w, y + DESCENT * fs), fs, text
+    return (x0, y - ascent * fs / REF_SIZE, x0 + w, y + descent * fs / REF_SIZE), fs, text
 
 
 def boxes_overlap(a, b):
@@ -293,6 +286,65 @@ def check_svg(svg_path, nodes_csv, edges_csv):
                 fail(f"node {item!r} lies outside the region of its cluster {c}")
             if cl != c and (inside(poly, cx, cy) or poly_dist(poly, cx, cy) < r - EPS):
                 fail(f"node {item!r} of cluster {cl} touches the region of cluster {c}")
+    # -- the rendered picture: the texts' ink where their boxes say
+    for f in check_ink(svg_path, texts):
+        fail(f)
+    return fails
+
+
+HALO = 3.5 / 2  # half the halos' stroke width (the SVG's <g id="halos">): ink may reach it
+INK = 40  # a pixel is text ink where the two renderings differ by more than this (of 255)
+
+
+def check_ink(svg_path, texts):
+    """Renders the SVG with and without its texts (rsvg-convert) and checks that each text
+    puts ink inside its box and that no text ink falls outside every box. Returns failures."""
+    import numpy as np
+    from PIL import Image
+    fails = []
+    with tempfile.TemporaryDirectory() as tmp:
+        tree = ET.parse(svg_path)
+        for parent in tree.getroot().iter():
+            for ch in list(parent):
+                if ch.tag == NS + "text":
+                    parent.remove(ch)
+        ET.register_namespace("", NS[1:-1])
+        bare_svg = os.path.join(tmp, "bare.svg")
+        tree.write(bare_svg, encoding="utf-8", xml_declaration=True)
+        pngs = []
+        for src in (svg_path, bare_svg):
+            dst = os.path.join(tmp, f"{len(pngs)}.png")
+            p = subprocess.run(["rsvg-convert", "-o", dst, src], stdout=subprocess.PIPE,
+                               stderr=subprocess.PIPE, text=True)
+            if p.returncode != 0:
+                return [f"rsvg-convert failed: {p.stderr.strip()}"]
+            pngs.append(np.asarray(Image.open(dst).convert("RGB"), dtype=np.int16))
+    a, b = pngs
+    if a.shape != b.shape:
+        return ["the two renderings differ in size"]
+    ink = np.abs(a - b).max(axis=2) > INK
+    h, w = ink.shape
+    covered = np.zeros_like(ink)
+    grow = HALO + 1  # and a pixel of antialiasing
+    for box, cls, text in texts:
+        x0, y0 = max(0, int(math.floor(box[0] - grow))), max(0, int(math.floor(box[1] - grow)))
+        x1, y1 = min(w, int(math.ceil(box[2] + grow))), min(h, int(math.ceil(box[3] + grow)))
+        if x1 <= x0 or y1 <= y0:
+            fails.append(f"{cls} {text!r}: its box {box} is outside the picture")
+            continue
+        covered[y0:y1, x0:x1] = True
+        visible = sum(1 for ch in text if not ch.isspace())
+        got = int(ink[y0:y1, x0:x1].sum())
+        if visible and got < max(3, visible):
+            fails.append(f"{cls} {text!r}: {got} pixels of ink in its box {box}")
+    stray = ink & ~covered
+    total = int(ink.sum())
+    if total == 0 and texts:
+        fails.append("the rendered picture shows no text at all")
+    elif int(stray.sum()) > 0.002 * total:
+        ys, xs = np.nonzero(stray)
+        fails.append(f"{int(stray.sum())} of {total} pixels of text ink lie outside every text "
+                     f"box (first near x={xs[0]}, y={ys[0]})")
     return fails
 
 

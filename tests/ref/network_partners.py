@@ -2,9 +2,12 @@
 """Reference check: `pairmap partners`, for one item and for a set of items.
 
 References:
-- one item: its partners are exactly the rows of `pairmap pairs` (same selection options) that
-  contain it, with the same together, expected, lift, phi and q_value (same text), and
-  confidence == confidence_ab or confidence_ba of that row
+- one item: its partners computed here from the CSV file, not from pairmap's output: every
+  pair of eligible items counted with numpy, measures in exact rational arithmetic
+  (common.exact_measures), p-values by the rule of DESIGN.md with scipy (common.ref_p) and
+  q-values by statsmodels multipletests fdr_bh over the whole family (common.Reference, pairs
+  never seen together included); the selection applied here in its documented order
+  (--min-count, --sign, --max-q, --min-phi, --min-lift); confidence = together / n(item)
 - confidence interval: 95% Jeffreys, scipy.stats.beta.ppf(0.025 / 0.975, x + 1/2, n - x + 1/2),
   0 at x = 0 and 1 at x = n (Brown, Cai & DasGupta 2001)
 - a set: respondents who chose all of its items, counted here from the CSV file (Python sets);
@@ -89,7 +92,7 @@ def check_order(chk, rows, by, sign, label):
 
 def main():
     C.require_binary()
-    chk = C.Checker("network_partners (pairmap pairs, scipy, statsmodels, exact counts)")
+    chk = C.Checker("network_partners (counted here: numpy, exact fractions, scipy, statsmodels)")
     baskets = load_demo()
     N = len(baskets)
     count = {}
@@ -98,7 +101,11 @@ def main():
             count[i] = count.get(i, 0) + 1
     eligible = sorted((i for i in count if 0 < count[i] < N), key=C.bkey)
 
-    # ---- one item == rows of `pairmap pairs`
+    # ---- one item: the family counted and tested here (common.Reference)
+    names = sorted(count, key=C.bkey)
+    orders = sorted(baskets)
+    M = [[name in baskets[o] for name in names] for o in orders]
+    refs = {}
     cases = [("positive", []), ("negative", ["--min-count", "0"]),
              ("both", ["--max-q", "0.2", "--min-count", "2"]),
              ("positive", ["--min-phi", "0.1"]), ("positive", ["--min-lift", "2"])]
@@ -107,29 +114,53 @@ def main():
             opts = ["--sign", sign] + extra
             label = f"{item} {' '.join(opts)}"
             got = partners(["--item", item] + opts)
-            pairs = C.read_csv(C.run(["pairs", DEMO, "-q"] + opts), C.PAIR_COLUMNS)
+            if sign not in refs:
+                refs[sign] = C.Reference(M, names, sign)
+            ref = refs[sign]
+
+            def opt(name, default):
+                return float(extra[extra.index(name) + 1]) if name in extra else default
+            min_count, max_q = opt("--min-count", 5), opt("--max-q", 0.05)
+            min_phi, min_lift = opt("--min-phi", 0), opt("--min-lift", 0)
             want = {}
-            for r in pairs.itertuples(index=False):
-                if item in (r.item_a, r.item_b):
-                    other = r.item_b if r.item_a == item else r.item_a
-                    conf = r.confidence_ab if r.item_a == item else r.confidence_ba
-                    want[other] = (r.together, r.expected, conf, r.lift, r.phi, r.q_value)
-            chk.equal("partners == rows of pairmap pairs with the item",
+            for (a, b), r in ref.pairs.items():
+                if item not in (a, b):
+                    continue
+                if r["raw_nab"] < min_count or r["raw_nab"] == 0:
+                    continue  # never-seen pairs are listed only under negative --min-count 0
+                if sign != "both" and r["direction"] != (1 if sign == "positive" else -1):
+                    continue
+                if not r["q"] <= max_q:
+                    continue
+                m = ref.measures((a, b))
+                if abs(m["phi"]) < min_phi or m["lift"] < min_lift:
+                    continue
+                want[b if a == item else a] = (m, r["q"])
+            if sign == "negative" and min_count == 0:  # never-seen partners are listed too
+                for (a, b), r in ref.pairs.items():
+                    if item in (a, b) and r["raw_nab"] == 0 and r["q"] <= max_q:
+                        want[b if a == item else a] = (ref.measures((a, b)), r["q"])
+            chk.equal("partners == pairs with the item passing the selection (counted here)",
                       sorted(r["partner"] for r in got), sorted(want), label)
             for r in got:
                 if r["partner"] not in want:
                     continue
-                chk.equal("together, expected, confidence, lift, phi, q_value == pairs row",
-                          (r["together"], r["expected"], r["confidence"], r["lift"], r["phi"],
-                           r["q_value"]), want[r["partner"]], f"{label}: {r['partner']}")
+                m, q = want[r["partner"]]
+                w = f"{label}: {r['partner']}"
+                chk.equal("together == count here", float(r["together"]), float(m["together"]), w)
+                chk.close("expected (exact)", r["expected"], m["expected"], rtol=1e-15, where=w)
+                chk.close("confidence == together / n(item) (exact)", r["confidence"],
+                          float(Fraction(int(m["together"]), count[item])), rtol=1e-15, where=w)
+                chk.close("lift (exact)", r["lift"], m["lift"], rtol=1e-15, where=w)
+                chk.close("phi (exact)", r["phi"], m["phi"], rtol=1e-12, where=w)
+                chk.close_p("q_value (statsmodels fdr_bh over the family)", r["q_value"], q,
+                            rtol=1e-9, where=w)
                 x = int(float(r["together"]))
                 lo, hi = jeffreys(x, count[item])
                 chk.close("confidence interval == scipy beta.ppf (Jeffreys)",
-                          float(r["confidence_low"]), lo, rtol=1e-9, atol=1e-15,
-                          where=f"{label}: {r['partner']}")
+                          float(r["confidence_low"]), lo, rtol=1e-9, atol=1e-15, where=w)
                 chk.close("confidence interval == scipy beta.ppf (Jeffreys)",
-                          float(r["confidence_high"]), hi, rtol=1e-9,
-                          where=f"{label}: {r['partner']}")
+                          float(r["confidence_high"]), hi, rtol=1e-9, where=w)
             check_order(chk, got, "phi", sign, label)
             for by in ("lift", "confidence", "together"):
                 check_order(chk, partners(["--item", item, "--by", by] + opts), by, sign, label)
@@ -185,7 +216,7 @@ def main():
         check_order(chk, got, "phi", sign, label)
         chk.note(f"{label}: {nS} respondents chose all; {len(got)} partners listed")
 
-    # ---- weighted input: rows of `pairmap pairs`; confidence = weight share, its Jeffreys
+    # ---- weighted input: the family counted here; confidence = weight share, its Jeffreys
     # interval on Kish's effective size of the item's respondents, (sum w)^2 / sum w^2
     # (Kish 1965), with scipy.stats.beta.ppf. Weights drawn per order with a seeded
     # random.Random (test data).
@@ -203,25 +234,28 @@ def main():
         got = list(csv.DictReader(io.StringIO(C.run(
             ["partners", wfile, "-q", "--csv", "--top", "0", "--weight-col", "weight",
              "--item", item]))))
-        pairs = C.read_csv(C.run(["pairs", wfile, "-q", "--weight-col", "weight"]),
-                           C.PAIR_COLUMNS)
+        # the family weighted, counted and tested here (common.Reference: weighted
+        # chi-square on Kish's effective size, statsmodels fdr_bh), default selection
+        wref = C.Reference(M, names, "positive", weights=[wt[o] for o in orders])
         want = {}
-        for r in pairs.itertuples(index=False):
-            if item in (r.item_a, r.item_b):
-                other = r.item_b if r.item_a == item else r.item_a
-                conf = r.confidence_ab if r.item_a == item else r.confidence_ba
-                want[other] = (r.together, r.expected, conf, r.lift, r.phi, r.q_value)
-        chk.equal("weighted: partners == rows of pairmap pairs", sorted(r["partner"] for r in got),
-                  sorted(want))
+        for (a, b), r in wref.pairs.items():
+            if item in (a, b) and r["raw_nab"] >= 5 and r["direction"] == 1 and r["q"] <= 0.05:
+                m = C.float_measures(wref.N, r["na"], r["nb"], r["nab"])
+                want[b if a == item else a] = (m, r["q"])
+        chk.equal("weighted: partners == pairs passing the selection (counted here)",
+                  sorted(r["partner"] for r in got), sorted(want))
         anchor = [o for o, s in baskets.items() if item in s]
         sw = sum(wt[o] for o in anchor)
         neff = sw * sw / sum(wt[o] ** 2 for o in anchor)
         for r in got:
             if r["partner"] not in want:
                 continue
-            chk.equal("weighted: measures == pairs row", (r["together"], r["expected"],
-                      r["confidence"], r["lift"], r["phi"], r["q_value"]), want[r["partner"]],
-                      r["partner"])
+            m, q = want[r["partner"]]
+            for key in ("together", "expected", "lift", "phi"):
+                chk.close(f"weighted: {key} (weighted sums here)", r[key], m[key], rtol=1e-9,
+                          where=r["partner"])
+            chk.close_p("weighted: q_value (statsmodels fdr_bh over the family)", r["q_value"], q,
+                        rtol=1e-9, where=r["partner"])
             c = sum(wt[o] for o in anchor if r["partner"] in baskets[o]) / sw
             chk.close("weighted: confidence == weight share (counted here)", r["confidence"], c,
                       rtol=1e-12, where=r["partner"])

@@ -516,8 +516,43 @@ static double family_p(const pm_incidence_t *inc, pm_sign_t sign, size_t a, size
     return m.p;
 }
 
-/* q-values of pm_assoc_run against pm_assoc_bh over the whole family computed here, and the
- * same q for the pairs kept by a run with --min-count 3 (thresholds never change the family). */
+/* Benjamini & Hochberg (1995), step-up, from the definition, written here apart from the
+ * project's code: q_(i) = min over j >= i of p_(j) m / j for p sorted ascending (ties share
+ * the q of the last of them). Checked against statsmodels on Southern Women above. */
+typedef struct {
+    double p;
+    size_t i;
+} ref_pi;
+
+static int ref_pi_cmp(const void *x, const void *y) {
+    const ref_pi *a = x, *b = y;
+    return a->p < b->p ? -1 : a->p > b->p ? 1 : (a->i > b->i) - (a->i < b->i);
+}
+
+static void ref_bh(const double *p, size_t m, double *q) {
+    ref_pi *v = malloc((m ? m : 1) * sizeof *v);
+    assert_non_null(v);
+    for (size_t i = 0; i < m; i++) {
+        v[i].p = p[i];
+        v[i].i = i;
+    }
+    qsort(v, m, sizeof *v, ref_pi_cmp);
+    double run = 1;
+    for (size_t j = m; j-- > 0;) {
+        double val = v[j].p * (double)m / (double)(j + 1);
+        run = val < run ? val : run;
+        q[v[j].i] = run;
+    }
+    for (size_t j = m; j-- > 1;) { /* ties: the q of the largest rank among them */
+        if (v[j - 1].p == v[j].p) {
+            q[v[j - 1].i] = q[v[j].i];
+        }
+    }
+    free(v);
+}
+
+/* q-values of pm_assoc_run against ref_bh over the whole family computed here, and the same q
+ * for the pairs kept by a run with --min-count 3 (thresholds never change the family). */
 static void test_assoc_run_qvalues_min_count(void **state) {
     (void)state;
     int failures = 0;
@@ -544,21 +579,21 @@ static void test_assoc_run_qvalues_min_count(void **state) {
                         family_p(inc, (pm_sign_t)sign, a, b, nn[a * E + b], ww ? ww[a * E + b] : 0);
                 }
             }
-            assert_int_equal(pm_assoc_bh(fp, m, fq), PM_OK);
+            ref_bh(fp, m, fq);
             pm_pairs_t *all = run(inc, (pm_sign_t)sign, 0, 0, 2, 0);
             assert_int_equal(all->hypotheses, m);
             double worst = 0;
             for (size_t k = 0; k < all->n; k++) {
                 size_t at = idx[all->a[k] * E + all->b[k]];
                 near_rel(all->p[k], fp[at], 1e-13, "p of a listed pair");
-                near_rel(all->q[k], fq[at], 1e-12, "q against pm_assoc_bh over the family");
+                near_rel(all->q[k], fq[at], 1e-12, "q against ref_bh over the family");
                 double e = fabs(all->q[k] - fq[at]) / fq[at];
                 worst = e > worst ? e : worst;
                 /* the lookup for any p of the family */
                 near_rel(pm_pairs_qvalue(all, all->p[k]), all->q[k], 1e-15, "qvalue lookup");
             }
             print_message("sign %d, weighted %d: %zu hypotheses, %zu listed, largest q "
-                          "deviation from pm_assoc_bh %.3g\n",
+                          "deviation from ref_bh %.3g\n",
                           sign, weighted, m, all->n, worst);
             for (unsigned th = 1; th <= 3; th += 2) {
                 pm_pairs_t *pruned = run(inc, (pm_sign_t)sign, 3, 0, th, 0);
@@ -628,22 +663,274 @@ static void test_assoc_run_threads_identical(void **state) {
     pm_incidence_free(inc);
 }
 
-/* pm_pairs_measures and pm_pairs_measure_any agree with pm_assoc_counts. */
+/* Southern Women (Davis, Gardner & Gardner 1941): 18 women, 14 events, as networkx ships it
+ * (networkx.davis_southern_women_graph(), events E1..E14 as items 0..13). The reference table
+ * was computed outside the project with /usr/bin/python3: joint counts with numpy; p-values by
+ * scipy.stats.fisher_exact on [[both, a only], [b only, neither]] (alternative "greater" for
+ * sign positive, where never-seen pairs take p = 1 as DESIGN.md fixes, and "two-sided" for
+ * both; with N = 18 every table has an expected cell below 5, so Cochran's rule picks Fisher's
+ * test everywhere); q-values by statsmodels multipletests(method="fdr_bh") over all 91 pairs;
+ * phi, lift and Jaccard by their definitions in numpy. */
+static const uint64_t SW_ROW_PTR[] = {0,  8,  15, 23, 30, 34, 38, 42, 45, 49,
+                                      53, 57, 63, 70, 78, 83, 85, 87, 89};
+static const uint32_t SW_COL[] = {0, 1, 2,  3,  4,  5,  7,  8,  0,  1,  2,  4, 5, 6,  7,  1,  2,  3,
+                                  4, 5, 6,  7,  8,  0,  2,  3,  4,  5,  6,  7, 2, 3,  4,  6,  2,  4,
+                                  5, 7, 4,  5,  6,  7,  5,  7,  8,  4,  6,  7, 8, 6,  7,  8,  11, 7,
+                                  8, 9, 11, 7,  8,  9,  11, 12, 13, 6,  7,  8, 9, 11, 12, 13, 5,  6,
+                                  8, 9, 10, 11, 12, 13, 6,  7,  9,  10, 11, 7, 8, 8,  10, 8,  10};
+static const struct {
+    uint32_t a, b, nab;
+    double p_pos, q_pos, p_both, q_both, phi, lift, jaccard;
+} SW_PAIRS[] = {
+    {0, 1, 2, 0.056372549019607844, 0.34694989106753815, 0.05637254901960786, 0.2699948400412797,
+     0.6, 4.0, 0.5},
+    {0, 2, 3, 0.024509803921568627, 0.20276292335115864, 0.024509803921568627, 0.1715686274509804,
+     0.6324555320336759, 3.0, 0.5},
+    {0, 3, 2, 0.10784313725490195, 0.4906862745098039, 0.10784313725490195, 0.3634713144517066,
+     0.4780914437337575, 3.0, 0.4},
+    {0, 4, 3, 0.06862745098039216, 0.34694989106753815, 0.06862745098039215, 0.27152600170502983,
+     0.5, 2.25, 0.375},
+    {0, 5, 3, 0.06862745098039216, 0.34694989106753815, 0.06862745098039215, 0.27152600170502983,
+     0.5, 2.25, 0.375},
+    {0, 6, 2, 0.5882352941176471, 1.0, 1.0, 1.0, 0.1, 1.2, 0.18181818181818182},
+    {0, 7, 3, 0.446078431372549, 1.0, 1.0, 1.0, 0.23904572186687875, 1.2857142857142858,
+     0.21428571428571427},
+    {0, 8, 1, 0.9754901960784313, 1.0, 0.24509803921568626, 0.6195533769063181,
+     -0.31622776601683794, 0.5, 0.07142857142857142},
+    {0, 9, 0, 1.0, 1.0, 0.5220588235294118, 0.9558823529411766, -0.2773500981126146, 0.0, 0.0},
+    {0, 10, 0, 1.0, 1.0, 1.0, 1.0, -0.23904572186687875, 0.0, 0.0},
+    {0, 11, 0, 1.0, 1.0, 0.5147058823529411, 0.9558823529411766, -0.31622776601683794, 0.0, 0.0},
+    {0, 12, 0, 1.0, 1.0, 1.0, 1.0, -0.2, 0.0, 0.0},
+    {0, 13, 0, 1.0, 1.0, 1.0, 1.0, -0.2, 0.0, 0.0},
+    {1, 2, 3, 0.024509803921568627, 0.20276292335115864, 0.024509803921568627, 0.1715686274509804,
+     0.6324555320336759, 3.0, 0.5},
+    {1, 3, 2, 0.10784313725490195, 0.4906862745098039, 0.10784313725490195, 0.3634713144517066,
+     0.4780914437337575, 3.0, 0.4},
+    {1, 4, 3, 0.06862745098039216, 0.34694989106753815, 0.06862745098039215, 0.27152600170502983,
+     0.5, 2.25, 0.375},
+    {1, 5, 3, 0.06862745098039216, 0.34694989106753815, 0.06862745098039215, 0.27152600170502983,
+     0.5, 2.25, 0.375},
+    {1, 6, 2, 0.5882352941176471, 1.0, 1.0, 1.0, 0.1, 1.2, 0.18181818181818182},
+    {1, 7, 3, 0.446078431372549, 1.0, 1.0, 1.0, 0.23904572186687875, 1.2857142857142858,
+     0.21428571428571427},
+    {1, 8, 2, 0.7549019607843137, 1.0, 1.0, 1.0, 0.0, 1.0, 0.15384615384615385},
+    {1, 9, 0, 1.0, 1.0, 0.5220588235294118, 0.9558823529411766, -0.2773500981126146, 0.0, 0.0},
+    {1, 10, 0, 1.0, 1.0, 1.0, 1.0, -0.23904572186687875, 0.0, 0.0},
+    {1, 11, 0, 1.0, 1.0, 0.5147058823529411, 0.9558823529411766, -0.31622776601683794, 0.0, 0.0},
+    {1, 12, 0, 1.0, 1.0, 1.0, 1.0, -0.2, 0.0, 0.0},
+    {1, 13, 0, 1.0, 1.0, 1.0, 1.0, -0.2, 0.0, 0.0},
+    {2, 3, 4, 0.004901960784313725, 0.11151960784313725, 0.0049019607843137246, 0.11151960784313722,
+     0.7559289460184544, 3.0, 0.6666666666666666},
+    {2, 4, 6, 0.0015082956259426846, 0.0457516339869281, 0.0015082956259426846, 0.0457516339869281,
+     0.7905694150420948, 2.25, 0.75},
+    {2, 5, 5, 0.03167420814479638, 0.22171945701357465, 0.042986425339366516, 0.24448529411764708,
+     0.5533985905294664, 1.875, 0.5555555555555556},
+    {2, 6, 4, 0.43665158371040724, 1.0, 0.6380090497737557, 0.9676470588235295, 0.15811388300841897,
+     1.2, 0.3333333333333333},
+    {2, 7, 5, 0.5931372549019609, 1.0, 1.0, 1.0, 0.0944911182523068, 1.0714285714285714,
+     0.3333333333333333},
+    {2, 8, 2, 0.9960676578323637, 1.0, 0.1070351217410041, 0.3634713144517066, -0.5, 0.5, 0.125},
+    {2, 9, 0, 1.0, 1.0, 0.11414565826330533, 0.3709733893557423, -0.43852900965351455, 0.0, 0.0},
+    {2, 10, 0, 1.0, 1.0, 0.24509803921568624, 0.6195533769063181, -0.3779644730092272, 0.0, 0.0},
+    {2, 11, 0, 1.0, 1.0, 0.05370609782374487, 0.2699948400412797, -0.5, 0.0, 0.0},
+    {2, 12, 0, 1.0, 1.0, 0.5147058823529411, 0.9558823529411766, -0.31622776601683794, 0.0, 0.0},
+    {2, 13, 0, 1.0, 1.0, 0.5147058823529411, 0.9558823529411766, -0.31622776601683794, 0.0, 0.0},
+    {3, 4, 4, 0.022875816993464058, 0.20276292335115864, 0.022875816993464054, 0.1715686274509804,
+     0.5976143046671968, 2.25, 0.5},
+    {3, 5, 3, 0.20588235294117652, 0.8516042780748665, 0.27450980392156865, 0.665204678362573,
+     0.3286878675669582, 1.6875, 0.3333333333333333},
+    {3, 6, 3, 0.38235294117647056, 1.0, 0.5882352941176472, 0.9558823529411766, 0.2091650066335189,
+     1.35, 0.2727272727272727},
+    {3, 7, 3, 0.8029411764705883, 1.0, 1.0, 1.0, -0.03571428571428571, 0.9642857142857143, 0.2},
+    {3, 8, 2, 0.9166666666666667, 1.0, 0.5686274509803921, 0.9558823529411766, -0.1889822365046136,
+     0.75, 0.14285714285714285},
+    {3, 9, 0, 1.0, 1.0, 0.27777777777777773, 0.665204678362573, -0.33149677206589795, 0.0, 0.0},
+    {3, 10, 0, 1.0, 1.0, 0.5241830065359477, 0.9558823529411766, -0.2857142857142857, 0.0, 0.0},
+    {3, 11, 0, 1.0, 1.0, 0.24509803921568626, 0.6195533769063181, -0.3779644730092272, 0.0, 0.0},
+    {3, 12, 0, 1.0, 1.0, 1.0, 1.0, -0.23904572186687875, 0.0, 0.0},
+    {3, 13, 0, 1.0, 1.0, 1.0, 1.0, -0.23904572186687875, 0.0, 0.0},
+    {4, 5, 6, 0.030645824763471823, 0.22171945701357465, 0.053613053613053616, 0.2699948400412797,
+     0.55, 1.6875, 0.6},
+    {4, 6, 6, 0.15734265734265732, 0.6818181818181817, 0.18798848210612917, 0.5518371571502502,
+     0.35, 1.35, 0.5},
+    {4, 7, 7, 0.38235294117647073, 1.0, 0.588235294117647, 0.9558823529411766, 0.2091650066335189,
+     1.125, 0.4666666666666667},
+    {4, 8, 3, 0.9984917043740573, 1.0, 0.04298642533936652, 0.24448529411764708,
+     -0.5533985905294664, 0.5625, 0.17647058823529413},
+    {4, 9, 0, 1.0, 1.0, 0.03594771241830065, 0.23366013071895422, -0.5547001962252291, 0.0, 0.0},
+    {4, 10, 0, 1.0, 1.0, 0.09150326797385623, 0.3469498910675382, -0.47809144373375745, 0.0, 0.0},
+    {4, 11, 0, 1.0, 1.0, 0.012820512820512822, 0.16666666666666669, -0.6324555320336759, 0.0, 0.0},
+    {4, 12, 0, 1.0, 1.0, 0.21568627450980393, 0.5947712418300654, -0.4, 0.0, 0.0},
+    {4, 13, 0, 1.0, 1.0, 0.21568627450980393, 0.5947712418300654, -0.4, 0.0, 0.0},
+    {5, 6, 5, 0.47984368572603864, 1.0, 0.6640614287673112, 0.9906490166856611, 0.125, 1.125,
+     0.38461538461538464},
+    {5, 7, 7, 0.38235294117647073, 1.0, 0.588235294117647, 0.9558823529411766, 0.2091650066335189,
+     1.125, 0.4666666666666667},
+    {5, 8, 4, 0.9683257918552036, 1.0, 0.32126696832579194, 0.7308823529411766,
+     -0.31622776601683794, 0.75, 0.25},
+    {5, 9, 1, 0.9705882352941176, 1.0, 0.3137254901960785, 0.7308823529411766, -0.305085107923876,
+     0.45, 0.08333333333333333},
+    {5, 10, 1, 0.9313725490196079, 1.0, 0.5882352941176472, 0.9558823529411766, -0.2091650066335189,
+     0.5625, 0.09090909090909091},
+    {5, 11, 1, 0.9886877828054299, 1.0, 0.15158371040723984, 0.4598039215686275,
+     -0.3952847075210474, 0.375, 0.07692307692307693},
+    {5, 12, 1, 0.8529411764705882, 1.0, 1.0, 1.0, -0.1, 0.75, 0.1},
+    {5, 13, 1, 0.8529411764705882, 1.0, 1.0, 1.0, -0.1, 0.75, 0.1},
+    {6, 7, 8, 0.6176470588235294, 1.0, 1.0, 1.0, 0.05976143046671968, 1.0285714285714285, 0.5},
+    {6, 8, 5, 0.9886877828054299, 1.0, 0.15158371040723984, 0.4598039215686275, -0.3952847075210474,
+     0.75, 0.29411764705882354},
+    {6, 9, 3, 0.6176470588235294, 1.0, 1.0, 1.0, 0.05547001962252291, 1.08, 0.25},
+    {6, 10, 2, 0.7941176470588235, 1.0, 1.0, 1.0, -0.05976143046671968, 0.9, 0.16666666666666666},
+    {6, 11, 4, 0.4366515837104073, 1.0, 0.6380090497737556, 0.9676470588235295, 0.15811388300841897,
+     1.2, 0.3333333333333333},
+    {6, 12, 2, 0.588235294117647, 1.0, 1.0, 1.0, 0.1, 1.2, 0.18181818181818182},
+    {6, 13, 2, 0.588235294117647, 1.0, 1.0, 1.0, 0.1, 1.2, 0.18181818181818182},
+    {7, 8, 9, 0.8382352941176471, 1.0, 1.0, 1.0, -0.0944911182523068, 0.9642857142857143,
+     0.5294117647058824},
+    {7, 9, 4, 0.7009803921568627, 1.0, 1.0, 1.0, 0.033149677206589796, 1.0285714285714285,
+     0.26666666666666666},
+    {7, 10, 1, 0.9996732026143791, 1.0, 0.018627450980392157, 0.1715686274509804,
+     -0.6785714285714286, 0.32142857142857145, 0.058823529411764705},
+    {7, 11, 5, 0.5931372549019608, 1.0, 1.0, 1.0, 0.0944911182523068, 1.0714285714285714,
+     0.3333333333333333},
+    {7, 12, 2, 0.892156862745098, 1.0, 1.0, 1.0, -0.11952286093343938, 0.8571428571428571,
+     0.13333333333333333},
+    {7, 13, 2, 0.892156862745098, 1.0, 1.0, 1.0, -0.11952286093343938, 0.8571428571428571,
+     0.13333333333333333},
+    {8, 9, 4, 0.4390756302521007, 1.0, 0.6148459383753502, 0.9646720757268425, 0.17541160386140583,
+     1.2, 0.3076923076923077},
+    {8, 10, 3, 0.5931372549019608, 1.0, 1.0, 1.0, 0.0944911182523068, 1.125, 0.23076923076923078},
+    {8, 11, 5, 0.3057530704589528, 1.0, 0.6000323206205558, 0.9579463364293084, 0.25, 1.25,
+     0.38461538461538464},
+    {8, 12, 3, 0.2696078431372549, 1.0, 0.5147058823529411, 0.9558823529411766, 0.31622776601683794,
+     1.5, 0.25},
+    {8, 13, 3, 0.2696078431372549, 1.0, 0.5147058823529411, 0.9558823529411766, 0.31622776601683794,
+     1.5, 0.25},
+    {9, 10, 2, 0.29901960784313725, 1.0, 0.5326797385620916, 0.9558823529411766,
+     0.26519741765271837, 1.8, 0.2857142857142857},
+    {9, 11, 5, 0.0007002801120448179, 0.0457516339869281, 0.0007002801120448179, 0.0457516339869281,
+     0.8770580193070291, 3.0, 0.8333333333333334},
+    {9, 12, 3, 0.012254901960784314, 0.18586601307189543, 0.012254901960784315, 0.16666666666666669,
+     0.7211102550927979, 3.6, 0.6},
+    {9, 13, 3, 0.012254901960784314, 0.18586601307189543, 0.012254901960784315, 0.16666666666666669,
+     0.7211102550927979, 3.6, 0.6},
+    {10, 11, 2, 0.4068627450980392, 1.0, 0.5686274509803921, 0.9558823529411766, 0.1889822365046136,
+     1.5, 0.25},
+    {10, 12, 1, 0.5539215686274509, 1.0, 1.0, 1.0, 0.11952286093343938, 1.5, 0.16666666666666666},
+    {10, 13, 1, 0.5539215686274509, 1.0, 1.0, 1.0, 0.11952286093343938, 1.5, 0.16666666666666666},
+    {11, 12, 3, 0.024509803921568627, 0.20276292335115864, 0.024509803921568627, 0.1715686274509804,
+     0.6324555320336759, 3.0, 0.5},
+    {11, 13, 3, 0.024509803921568627, 0.20276292335115864, 0.024509803921568627, 0.1715686274509804,
+     0.6324555320336759, 3.0, 0.5},
+    {12, 13, 3, 0.0012254901960784314, 0.0457516339869281, 0.0012254901960784316,
+     0.0457516339869281, 1.0, 6.0, 1.0},
+};
+
+static void test_assoc_run_southern_women(void **state) {
+    (void)state;
+    pm_incidence_t *inc = unit_inc_new(14, 18, SW_ROW_PTR, SW_COL, NULL, 0);
+    size_t npairs = sizeof SW_PAIRS / sizeof SW_PAIRS[0];
+    assert_int_equal(npairs, 91);
+    for (int both = 0; both <= 1; both++) {
+        pm_pairs_t *pp = run(inc, both ? PM_SIGN_BOTH : PM_SIGN_POSITIVE, 0, 0, 2, 0);
+        assert_int_equal(pp->hypotheses, npairs);
+        size_t listed = 0;
+        double worst_p = 0, worst_q = 0;
+        for (size_t i = 0; i < npairs; i++) {
+            double p = both ? SW_PAIRS[i].p_both : SW_PAIRS[i].p_pos;
+            double q = both ? SW_PAIRS[i].q_both : SW_PAIRS[i].q_pos;
+            long k = pm_pairs_find(pp, SW_PAIRS[i].a, SW_PAIRS[i].b);
+            if (SW_PAIRS[i].nab == 0) {
+                assert_true(k < 0); /* never seen together: in the family, not listed */
+                if (!both) {
+                    near_rel(pm_pairs_qvalue(pp, 1.0), q, 1e-12, "q of p = 1 (never seen)");
+                }
+                continue;
+            }
+            assert_true(k >= 0);
+            listed++;
+            pm_measures_t m;
+            pm_pairs_measures(pp, inc, (size_t)k, &m);
+            assert_int_equal(m.test, PM_TEST_FISHER);
+            near_rel(m.p, p, 1e-10, "p against scipy.stats.fisher_exact");
+            near_rel(m.q, q, 1e-10, "q against statsmodels multipletests fdr_bh");
+            near_rel(m.phi, SW_PAIRS[i].phi, 1e-13, "phi against numpy");
+            near_rel(m.lift, SW_PAIRS[i].lift, 1e-13, "lift against numpy");
+            near_rel(m.jaccard, SW_PAIRS[i].jaccard, 1e-13, "Jaccard against numpy");
+            assert_true(m.together == SW_PAIRS[i].nab);
+            double ep = fabs(m.p - p) / p, eq = fabs(m.q - q) / q;
+            worst_p = ep > worst_p ? ep : worst_p;
+            worst_q = eq > worst_q ? eq : worst_q;
+        }
+        assert_int_equal(listed, pp->n);
+        print_message("Southern Women, sign %s: %zu pairs listed; largest relative deviation "
+                      "from scipy p %.3g, from statsmodels q %.3g\n",
+                      both ? "both" : "positive", listed, worst_p, worst_q);
+        pm_pairs_free(pp);
+    }
+    pm_incidence_free(inc);
+}
+
+/* The measures of listed pairs (pm_pairs_measures, pm_pairs_measure_any) against the
+ * definitions evaluated here, independently of src/assoc.c: the 2x2 table's support,
+ * confidences, lift, Jaccard and phi in long double, the expected count n_a n_b / N; p-values
+ * two-sided (sign both): chi-square with 1 df as erfc(sqrt(N phi^2 / 2)) from the C library,
+ * Fisher's as the sum of the hypergeometric probabilities not above the observed one (relative
+ * tolerance 1e-7, as R and scipy do), each term from lgammal; the test by Cochran's rule
+ * (smallest expected cell below 5: Fisher; common practice). */
+static long double lchoosel(uint64_t n, uint64_t k) {
+    return lgammal((long double)n + 1) - lgammal((long double)k + 1) -
+           lgammal((long double)(n - k) + 1);
+}
+
+static double fisher_two_sided_sum(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab) {
+    uint64_t lo = nb > N - na ? nb - (N - na) : 0, hi = na < nb ? na : nb;
+    long double lden = lchoosel(N, nb);
+    long double pobs = expl(lchoosel(na, nab) + lchoosel(N - na, nb - nab) - lden);
+    long double sum = 0;
+    for (uint64_t x = lo; x <= hi; x++) {
+        long double px = expl(lchoosel(na, x) + lchoosel(N - na, nb - x) - lden);
+        if (px <= pobs * (1 + 1e-7L)) {
+            sum += px;
+        }
+    }
+    return (double)(sum > 1 ? 1 : sum);
+}
+
 static void test_assoc_pairs_measures(void **state) {
     (void)state;
     pm_incidence_t *inc = unit_inc_random(29, 800, 40, 0);
     pm_pairs_t *pp = run(inc, PM_SIGN_BOTH, 1, 0, 2, 0);
     assert_true(pp->n > 10);
+    size_t fisher = 0, chi2 = 0;
     for (size_t k = 0; k < pp->n; k++) {
-        pm_measures_t m, c, any;
+        uint64_t N = inc->N, na = inc->count[pp->a[k]], nb = inc->count[pp->b[k]];
+        uint64_t nab = pp->n_ab[k];
+        long double dN = N, da = na, db = nb, dab = nab;
+        pm_measures_t m, any;
         pm_pairs_measures(pp, inc, k, &m);
-        pm_assoc_counts(inc->N, inc->count[pp->a[k]], inc->count[pp->b[k]], pp->n_ab[k],
-                        PM_SIGN_BOTH, &c);
-        assert_true(m.phi == c.phi && m.lift == c.lift && m.p == c.p && m.test == c.test);
+        near_rel(m.together, (double)dab, 0, "together");
+        near_rel(m.expected, (double)(da * db / dN), 1e-15, "expected");
+        near_rel(m.support, (double)(dab / dN), 1e-15, "support");
+        near_rel(m.confidence_ab, (double)(dab / da), 1e-15, "confidence a -> b");
+        near_rel(m.confidence_ba, (double)(dab / db), 1e-15, "confidence b -> a");
+        near_rel(m.lift, (double)(dN * dab / (da * db)), 1e-15, "lift");
+        near_rel(m.jaccard, (double)(dab / (da + db - dab)), 1e-15, "Jaccard");
+        long double phi = (dN * dab - da * db) / sqrtl(da * db * (dN - da) * (dN - db));
+        near_rel(m.phi, (double)phi, 1e-14, "phi");
+        long double ra = na < N - na ? da : dN - da, rb = nb < N - nb ? db : dN - db;
+        int want_fisher = ra * rb / dN < 5;
+        assert_int_equal(m.test, want_fisher ? PM_TEST_FISHER : PM_TEST_CHI2);
+        double p = want_fisher ? fisher_two_sided_sum(N, na, nb, nab)
+                               : erfc(sqrt((double)(dN * phi * phi) / 2));
+        near_rel(m.p, p, 1e-9, want_fisher ? "Fisher two-sided by exact sum" : "chi-square erfc");
+        fisher += want_fisher != 0;
+        chi2 += want_fisher == 0;
         assert_true(m.q == pp->q[k]);
         pm_pairs_measure_any(pp, inc, pp->a[k], pp->b[k], pp->n_ab[k], 0, &any);
-        assert_true(any.p == c.p && any.q == pp->q[k]);
+        assert_true(any.p == m.p && any.q == pp->q[k] && any.phi == m.phi);
     }
+    assert_true(fisher > 0 && chi2 > 0); /* both tests were checked */
     pm_pairs_free(pp);
     pm_incidence_free(inc);
 }
@@ -894,6 +1181,7 @@ static const struct CMUnitTest tests[] = {
     cmocka_unit_test(test_assoc_run_qvalues_min_count),
     cmocka_unit_test(test_assoc_run_threads_identical),
     cmocka_unit_test(test_assoc_pairs_measures),
+    cmocka_unit_test(test_assoc_run_southern_women),
     cmocka_unit_test(test_assoc_run_alloc_failure),
     cmocka_unit_test(test_assoc_fisher_half_at_most_expected),
     cmocka_unit_test(test_assoc_run_q_limit),

@@ -123,7 +123,12 @@ typedef struct {
     int slot; /* registry slot of tmp */
 } outfile;
 
+/* Test hook (outfile.h): the write faults of PM_TEST_OUTPUT_FAULT, read once per output set. */
+enum { FAULT_NONE = 0, FAULT_READONLY = 1, FAULT_FULL = 2 };
+
 struct pm_outdir {
+    int fault;                /* FAULT_* */
+    uint64_t budget, written; /* FAULT_FULL: bytes the files may take, bytes they took */
     char *dir;
     int made;   /* created directories (g_made) to remove when nothing is committed */
     int locked; /* holds DIR's lock file (g_lock) */
@@ -161,7 +166,12 @@ static pm_err_t make_dirs(pm_outdir_t *od, pm_diag_t *diag) {
         char keep = p[i];
         p[i] = '\0';
         if (i == len || p[i - 1] != '/') {
-            if (mkdir(p, 0777) == 0) {
+            struct stat pst;
+            int refused = od->fault == FAULT_READONLY && stat(p, &pst) != 0;
+            if (refused) {
+                errno = EACCES; /* test hook: as a directory of mode 0555 refuses */
+            }
+            if (!refused && mkdir(p, 0777) == 0) {
                 if (!od->made && len < PATH_CAP && !g_made_used) {
                     memcpy(g_made, od->dir, len + 1); /* the deepest level, set once */
                     g_made_from = i;
@@ -212,7 +222,12 @@ static pm_err_t open_tmp(pm_outdir_t *od, const char *name, char **path, int *sl
             free(t);
             return pm_diag_set(diag, PM_EUSAGE, NULL, 0, "too many output files at once");
         }
-        int f = open(t, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
+        int f = od->fault == FAULT_READONLY
+                    ? -1
+                    : open(t, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
+        if (od->fault == FAULT_READONLY) {
+            errno = EACCES; /* test hook */
+        }
         pthread_mutex_unlock(&g_commit);
         if (f >= 0) {
             *path = t;
@@ -254,6 +269,13 @@ pm_err_t pm_outdir_open(const char *dir, pm_outdir_t **out, pm_diag_t *diag) {
     }
     memcpy(od->dir, dir, len);
     od->dir[len] = '\0';
+    const char *fault = getenv("PM_TEST_OUTPUT_FAULT");
+    if (fault && strcmp(fault, "readonly") == 0) {
+        od->fault = FAULT_READONLY;
+    } else if (fault && strncmp(fault, "full:", 5) == 0) {
+        od->fault = FAULT_FULL;
+        od->budget = strtoull(fault + 5, NULL, 10);
+    }
     pm_err_t rc = make_dirs(od, diag);
     if (!rc) {
         /* probe: can we create files here? */
@@ -339,6 +361,13 @@ pm_err_t pm_outdir_finish(pm_outdir_t *od, FILE *fp, pm_diag_t *diag) {
         e = EIO;
     } else if (fsync(fileno(fp)) != 0 && errno != EINVAL) {
         e = errno;
+    }
+    struct stat fst;
+    if (!e && od->fault == FAULT_FULL && fstat(fileno(fp), &fst) == 0) {
+        od->written += (uint64_t)fst.st_size; /* test hook: the file system is full beyond */
+        if (od->written > od->budget) {
+            e = ENOSPC;
+        }
     }
     if (fclose(fp) != 0 && !e) {
         e = errno ? errno : EIO;

@@ -34,7 +34,12 @@ typedef struct pm_outdir pm_outdir_t;
 /* Opens dir for output, creating it and its missing parents (mode 0777 & ~umask). Fails with
  * PM_EIO when dir exists but is not a directory, or cannot be created or written (checked by
  * creating and removing a probe file). *out owns the handle (pm_outdir_free). Directories it
- * created are removed again by pm_outdir_free when nothing was committed and they are empty. */
+ * created are removed again by pm_outdir_free when nothing was committed and they are empty.
+ * Test hook, as the allocators have theirs: the environment variable PM_TEST_OUTPUT_FAULT, read
+ * here, injects the write faults that otherwise need a mount or a user other than root:
+ * "readonly" refuses to create a missing directory or any file with EACCES (what a directory of
+ * mode 0555 does), "full:N" fails pm_outdir_finish with ENOSPC once the set's finished files
+ * hold more than N bytes (what a full file system does). Never set outside tests. */
 pm_err_t pm_outdir_open(const char *dir, pm_outdir_t **out, pm_diag_t *diag);
 
 /* Creates the temporary file for output name (a plain file name, no '/') and opens it for

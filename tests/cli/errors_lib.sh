@@ -21,6 +21,7 @@ TMP="$(mktemp -d "${TMPDIR:-/tmp}/pm-errors.XXXXXX")"
 trap 'rm -rf "$TMP"' EXIT
 FAILS=0
 CASES=0
+SKIPS=0
 
 fail() {
     printf 'FAIL: %s\n' "$*" >&2
@@ -160,11 +161,29 @@ have_command() {
     "$PAIRMAP" "$1" --help >/dev/null 2>&1
 }
 
+# skip_case core|optional WHAT: a case that cannot run here. Counted and printed, and written
+# to $PM_SKIP_LOG when set (scripts/test sums them). A core case has no other form that runs:
+# with PM_STRICT_SKIPS=1 (scripts/test, CI) skipping it fails the test; an optional one is a
+# second form of a case that also runs through a test hook.
+skip_case() {
+    local kind="$1"
+    shift
+    SKIPS=$((SKIPS + 1))
+    printf 'SKIP (%s): %s\n' "$kind" "$*"
+    if [ -n "${PM_SKIP_LOG:-}" ]; then
+        printf '%s %s: %s\n' "$kind" "$(basename "$0")" "$*" >>"$PM_SKIP_LOG"
+    fi
+    if [ "$kind" = core ] && [ "${PM_STRICT_SKIPS:-0}" = 1 ]; then
+        fail "core case skipped: $*"
+    fi
+}
+
 finish() {
     if [ "$FAILS" -ne 0 ]; then
-        printf '%s: %d of %d cases failed\n' "$(basename "$0")" "$FAILS" "$CASES" >&2
+        printf '%s: %d of %d cases failed, %d skipped\n' "$(basename "$0")" "$FAILS" "$CASES" \
+            "$SKIPS" >&2
         exit 1
     fi
-    printf '%s: %d cases passed\n' "$(basename "$0")" "$CASES"
+    printf '%s: %d cases passed, %d skipped\n' "$(basename "$0")" "$CASES" "$SKIPS"
     exit 0
 }

@@ -50,11 +50,19 @@ expect_fail 3 "$TMP/a-file: " "not a directory" -- map "$D" -o "$TMP/a-file"
 [ "$(cat "$TMP/a-file")" = "keep me" ] || fail "map -o FILE changed the file"
 # it cannot be written (a directory of /proc; for users other than root also mode 0555)
 expect_fail 3 "/proc/self: " "cannot create a file in the output directory" -- map "$D" -o /proc/self
+# a read-only directory: through the output layer's fault hook everywhere (root writes into a
+# 0555 directory), and for real where the user is not root
+mkdir "$TMP/read-only"
+PM_TEST_OUTPUT_FAULT=readonly expect_fail 3 "$TMP/read-only: " "cannot create a file" -- map "$D" -o "$TMP/read-only"
+PM_TEST_OUTPUT_FAULT=readonly expect_fail 3 "$TMP/read-only/sub: " "cannot create the output directory" -- map "$D" -o "$TMP/read-only/sub"
+[ -e "$TMP/read-only/sub" ] && fail "a refused output directory was created"
 if [ "$(id -u)" -ne 0 ]; then
-    mkdir "$TMP/read-only" && chmod 0555 "$TMP/read-only"
+    chmod 0555 "$TMP/read-only"
     expect_fail 3 "$TMP/read-only: " "cannot create a file" -- map "$D" -o "$TMP/read-only"
     expect_fail 3 "$TMP/read-only/sub: " "cannot create the output directory" -- map "$D" -o "$TMP/read-only/sub"
     chmod 0755 "$TMP/read-only"
+else
+    skip_case optional "a real 0555 directory (root writes into it; the hook's form ran above)"
 fi
 
 # ---- earlier results survive a failed run ------------------------------------------------------
@@ -78,8 +86,31 @@ check_untouched "map on data with nothing to pair"
 expect_fail 1 "" "--seed" -- map "$D" -o "$out" --seed x
 check_untouched "map with a bad option"
 
-# a full file system: a small tmpfs in a private mount namespace (needs the right to mount;
-# skipped with a note where the sandbox forbids it)
+# a full file system through the output layer's fault hook (runs everywhere): 1) nothing fits,
+# the directory map created goes again; 2) earlier results survive a run that fills it up
+CASES=$((CASES + 1))
+PM_TEST_OUTPUT_FAULT=full:0 "$PAIRMAP" map "$D" -q -o "$TMP/hook-full/out" >"$TMP/out" 2>"$TMP/err"
+rc=$?
+line="$(error_line)"
+if [ "$rc" -ne 3 ]; then
+    fail "map onto a full file system (hook): exit $rc, expected 3: $(cat "$TMP/err")"
+elif [[ "$line" != "pairmap: $TMP/hook-full/out/"*"No space left on device"* ]] ||
+    ! style_ok "${line#pairmap: *: }"; then
+    fail "map onto a full file system (hook): message: $line"
+fi
+[ -e "$TMP/hook-full" ] && fail "map onto a full file system (hook) left: $(find "$TMP/hook-full")"
+CASES=$((CASES + 1))
+expect_ok map "$D" -q -o "$TMP/hook-fills" || fail "map on the demo failed"
+snapshot "$TMP/hook-fills" >"$TMP/hook-before"
+PM_TEST_OUTPUT_FAULT=full:20000 "$PAIRMAP" map "$D" -q --seed 2 -o "$TMP/hook-fills" >/dev/null 2>"$TMP/err"
+rc=$?
+[ "$rc" -eq 3 ] || fail "map onto a file system that fills up (hook): exit $rc, expected 3: $(cat "$TMP/err")"
+snapshot "$TMP/hook-fills" >"$TMP/hook-after"
+cmp -s "$TMP/hook-before" "$TMP/hook-after" ||
+    fail "a full file system (hook) changed the earlier results: $(diff "$TMP/hook-before" "$TMP/hook-after" | head)"
+
+# the same on a real full file system: a small tmpfs in a private mount namespace (needs the
+# right to mount; where the sandbox forbids it, a second form of the cases above is skipped)
 if command -v unshare >/dev/null && unshare -m --propagation private true 2>/dev/null &&
     unshare -m --propagation private sh -c "mount -t tmpfs -o size=64k tmpfs '$TMP' 2>/dev/null" 2>/dev/null; then
     mkdir "$TMP/small"
@@ -119,7 +150,7 @@ if command -v unshare >/dev/null && unshare -m --propagation private true 2>/dev
     cmp -s "$TMP/sums-before" "$TMP/sums-after" && cmp -s "$TMP/ls-before" "$TMP/ls-after" ||
         fail "a full file system changed the earlier results: $(diff "$TMP/ls-before" "$TMP/ls-after")"
 else
-    echo "note: cannot mount a small tmpfs here; full file system cases under map -o skipped"
+    skip_case optional "a real full file system (cannot mount a small tmpfs here; the hook's form ran above)"
 fi
 
 # ---- interrupted -------------------------------------------------------------------------------

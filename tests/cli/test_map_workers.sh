@@ -127,7 +127,7 @@ if command -v pgrep >/dev/null && command -v setsid >/dev/null && command -v ps 
     stop_case group TERM
     stop_case group INT
 else
-    echo "note: pgrep, setsid or ps missing (procps, util-linux); the stop cases are skipped"
+    skip_case core "the stop cases (pgrep, setsid or ps missing: procps, util-linux)"
 fi
 
 finish

@@ -63,7 +63,10 @@ static size_t replay(const char *sub, int (*fn)(const uint8_t *, size_t)) {
         size_t len = fread(buf, 1, sizeof buf, fp);
         fclose(fp);
         fprintf(stderr, "replay %s/%s (%zu bytes)\n", sub, e->d_name, len);
-        assert_int_equal(fn(buf, len), 0);
+        /* the harness returns 0 whatever happens (libFuzzer's contract), so its result says
+         * nothing; what fails is a broken contract check inside it (abort) or, under the
+         * sanitizer build, a memory error: either ends this test with a crash */
+        (void)fn(buf, len);
         n++;
     }
     closedir(d);

@@ -8,6 +8,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "stratified_internal.h"
 #include "util.h"
 
 #define Z975 1.959963984540054 /* the 0.975 normal quantile */
@@ -59,10 +60,7 @@ void pm_stratified_pair(size_t k, const uint64_t *n, const uint64_t *na, const u
         mid += P * bc + Q * ad;
         qs += Q * bc;
         sa += A;
-        se += r1 * c1 / N;
-        if (n[s] > 1) {
-            sv += r1 * (N - r1) * c1 * (N - c1) / (N * N * (N - 1));
-        }
+        pm_i_cmh_add(N, r1, c1, &se, &sv);
         T[0] += nab[s];
         T[1] += na[s] - nab[s];
         T[2] += nb[s] - nab[s];
@@ -82,12 +80,7 @@ void pm_stratified_pair(size_t k, const uint64_t *n, const uint64_t *na, const u
         out->mh_high = exp(lo + h);
         out->het_p = breslow_day(k, n, na, nb, nab, out->mh_or);
     }
-    if (sv > 0) {
-        double z = (sa - se) / sqrt(sv);
-        out->cmh_p = sign == PM_SIGN_BOTH       ? gsl_cdf_chisq_Q(z * z, 1)
-                     : sign == PM_SIGN_POSITIVE ? gsl_cdf_ugaussian_Q(z)
-                                                : gsl_cdf_ugaussian_P(z);
-    }
+    out->cmh_p = pm_i_cmh_p(sa, se, sv, sign);
     if (!isnan(out->mh_or)) {
         out->reversed = 0;
         if (T[0] && T[1] && T[2] && T[3] && !isnan(out->mh_low)) {
@@ -99,16 +92,68 @@ void pm_stratified_pair(size_t k, const uint64_t *n, const uint64_t *na, const u
     }
 }
 
-/* ---- the edges --------------------------------------------------------------------------- */
-static int cmp_by_a(const void *x, const void *y, const pm_pairs_t *pp, const pm_edges_t *e) {
-    size_t i = *(const size_t *)x, j = *(const size_t *)y;
-    uint32_t a = pp->a[e->idx[i]], b = pp->a[e->idx[j]];
-    return a < b ? -1 : a > b ? 1 : (i < j ? -1 : i > j);
+/* ---- the lists ---------------------------------------------------------------------------- */
+void pm_i_strat_lists_free(pm_i_strat_lists *l) {
+    free(l->start);
+    free(l->resp);
+    free(l->tot);
+    memset(l, 0, sizeof *l);
 }
-static const pm_pairs_t *sort_pp; /* qsort has no context argument (the CLI is one thread here) */
-static const pm_edges_t *sort_e;
-static int cmp_edge(const void *x, const void *y) {
-    return cmp_by_a(x, y, sort_pp, sort_e);
+
+pm_err_t pm_i_strat_lists_build(const pm_incidence_t *inc, const pm_segcol_t *c, size_t nr,
+                                pm_i_strat_lists *l) {
+    size_t k = c->n_levels, ni = inc->n_items;
+    memset(l, 0, sizeof *l);
+    uint64_t nnz = 0;
+    for (size_t q = 0; q < nr; q++) {
+        nnz += c->of[q] >= 0 ? inc->row_ptr[q + 1] - inc->row_ptr[q] : 0;
+    }
+    l->start = pm_i_calloc(ni + 1, sizeof *l->start);
+    l->resp = pm_i_malloc(nnz ? (size_t)nnz : 1, sizeof *l->resp);
+    l->tot = pm_i_calloc(k * ni > 0 ? k * ni : 1, sizeof *l->tot);
+    uint64_t *cur = pm_i_malloc(ni ? ni : 1, sizeof *cur);
+    if (!l->start || !l->resp || !l->tot || !cur || (uint64_t)(size_t)nnz != nnz) {
+        free(cur);
+        pm_i_strat_lists_free(l);
+        return PM_ENOMEM;
+    }
+    for (size_t q = 0; q < nr; q++) { /* the counts per item and level */
+        if (c->of[q] < 0) {
+            continue;
+        }
+        for (uint64_t p = inc->row_ptr[q]; p < inc->row_ptr[q + 1]; p++) {
+            l->start[inc->col[p] + 1]++;
+            l->tot[(size_t)inc->col[p] * k + (size_t)c->of[q]]++;
+        }
+    }
+    for (size_t i = 0; i < ni; i++) {
+        l->start[i + 1] += l->start[i];
+    }
+    memcpy(cur, l->start, ni * sizeof *cur);
+    for (size_t q = 0; q < nr; q++) {
+        if (c->of[q] < 0) {
+            continue;
+        }
+        for (uint64_t p = inc->row_ptr[q]; p < inc->row_ptr[q + 1]; p++) {
+            l->resp[cur[inc->col[p]]++] = (uint32_t)q;
+        }
+    }
+    free(cur);
+    return PM_OK;
+}
+
+/* ---- the edges --------------------------------------------------------------------------- */
+typedef struct {
+    const pm_pairs_t *pp;
+    const pm_edges_t *e;
+} edge_order;
+
+/* edges by item a, then position (stable) */
+static int cmp_edge(const void *x, const void *y, const void *ud) {
+    const edge_order *o = ud;
+    size_t i = *(const size_t *)x, j = *(const size_t *)y;
+    uint32_t a = o->pp->a[o->e->idx[i]], b = o->pp->a[o->e->idx[j]];
+    return a < b ? -1 : a > b ? 1 : (i < j ? -1 : i > j);
 }
 
 pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, const pm_pairs_t *pp,
@@ -124,57 +169,26 @@ pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, co
     if (k && ni > SIZE_MAX / 4 / k) {
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "too many segments x items");
     }
-    uint64_t nnz = inc->row_ptr[nr];
-    uint64_t *chose = pm_i_calloc(k * ni > 0 ? k * ni : 1, sizeof *chose);
-    uint64_t *start = pm_i_calloc(ni + 1, sizeof *start);
-    uint32_t *resp = pm_i_malloc(nnz ? (size_t)nnz : 1, sizeof *resp);
+    pm_i_strat_lists L;
+    pm_err_t rc = pm_i_strat_lists_build(inc, c, nr, &L);
     uint32_t *mark = pm_i_calloc(nr ? nr : 1, sizeof *mark);
     size_t *order = pm_i_malloc(e->n ? e->n : 1, sizeof *order);
     uint64_t *cnt = pm_i_calloc(4 * (k ? k : 1), sizeof *cnt);
     pm_strat_t *r = pm_i_malloc(e->n ? e->n : 1, sizeof *r);
-    pm_err_t rc = PM_OK;
-    if (!chose || !start || !resp || !mark || !order || !cnt || !r) {
+    if (rc || !mark || !order || !cnt || !r) {
         rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0,
                          "out of memory for the pair tests within "
                          "segments");
         goto done;
     }
-    /* item -> its respondents with a segment (ascending), and the counts per level */
-    for (size_t q = 0; q < nr; q++) {
-        if (c->of[q] < 0) {
-            continue;
-        }
-        for (uint64_t p = inc->row_ptr[q]; p < inc->row_ptr[q + 1]; p++) {
-            start[inc->col[p] + 1]++;
-            chose[(size_t)c->of[q] * ni + inc->col[p]]++;
-        }
-    }
-    for (size_t i = 0; i < ni; i++) {
-        start[i + 1] += start[i];
-    }
-    {
-        uint64_t *cur = pm_i_malloc(ni ? ni : 1, sizeof *cur);
-        if (!cur) {
-            rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-            goto done;
-        }
-        memcpy(cur, start, ni * sizeof *cur);
-        for (size_t q = 0; q < nr; q++) {
-            if (c->of[q] < 0) {
-                continue;
-            }
-            for (uint64_t p = inc->row_ptr[q]; p < inc->row_ptr[q + 1]; p++) {
-                resp[cur[inc->col[p]]++] = (uint32_t)q;
-            }
-        }
-        free(cur);
-    }
     for (size_t i = 0; i < e->n; i++) {
         order[i] = i;
     }
-    sort_pp = pp;
-    sort_e = e;
-    qsort(order, e->n, sizeof *order, cmp_edge);
+    edge_order eo = {pp, e};
+    if (pm_i_sort_ctx(order, e->n, sizeof *order, cmp_edge, &eo)) {
+        rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+        goto done;
+    }
     uint64_t *n = cnt, *na = cnt + k, *nb = cnt + 2 * k, *nab = cnt + 3 * k;
     for (size_t s = 0; s < k; s++) {
         n[s] = c->base[s];
@@ -185,29 +199,27 @@ pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, co
         uint32_t a = pp->a[pk], b = pp->b[pk];
         if (a != cur_a) { /* mark item a's respondents: the stamp a + 1 */
             cur_a = a;
-            for (uint64_t p = start[a]; p < start[a + 1]; p++) {
-                mark[resp[p]] = a + 1;
+            for (uint64_t p = L.start[a]; p < L.start[a + 1]; p++) {
+                mark[L.resp[p]] = a + 1;
             }
         }
         memset(nab, 0, k * sizeof *nab);
-        for (uint64_t p = start[b]; p < start[b + 1]; p++) {
-            uint32_t q = resp[p];
+        for (uint64_t p = L.start[b]; p < L.start[b + 1]; p++) {
+            uint32_t q = L.resp[p];
             if (mark[q] == a + 1) {
                 nab[c->of[q]]++;
             }
         }
         for (size_t s = 0; s < k; s++) {
-            na[s] = chose[s * ni + a];
-            nb[s] = chose[s * ni + b];
+            na[s] = L.tot[(size_t)a * k + s];
+            nb[s] = L.tot[(size_t)b * k + s];
         }
         pm_stratified_pair(k, n, na, nb, nab, sign, &r[i]);
     }
     *out = r;
     r = NULL;
 done:
-    free(chose);
-    free(start);
-    free(resp);
+    pm_i_strat_lists_free(&L);
     free(mark);
     free(order);
     free(cnt);

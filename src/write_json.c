@@ -194,6 +194,10 @@ static void run_settings(pm_json_t *j, const pm_run_report_t *r) {
         pm_json_null(j, "top_edges");
     }
     pm_json_string(j, "sign", pm_sign_name(sel->sign));
+    pm_json_string(j, "pair_test", r->pair_test ? r->pair_test : "pooled");
+    if (r->pair_test_column) {
+        pm_json_string(j, "pair_test_column", r->pair_test_column);
+    }
     pm_json_string(j, "measure", pm_measure_name(sel->measure));
     pm_json_uint(j, "seed", r->seed);
     pm_json_uint(j, "restarts", r->restarts);

@@ -124,6 +124,8 @@ typedef struct {
     const void *ud;
     const char *format; /* long, lines or wide */
     const pm_select_opts_t *sel;
+    const char *pair_test;        /* settings.pair_test: "pooled" (NULL too) or "within" */
+    const char *pair_test_column; /* within: the segment column the test is taken within */
     uint64_t seed, restarts;
     double resolution;
     int iterations;     /* the layout's, resolved */

@@ -57,6 +57,47 @@ pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, co
                              const pm_edges_t *e, pm_sign_t sign, pm_strat_t **out,
                              pm_diag_t *diag);
 
+/* ---- --pair-test within: the Cochran-Mantel-Haenszel test of every pair of the family -------- */
+typedef struct {
+    pm_sign_t sign;   /* one-sided in its direction, two-sided for both (as pm_stratified_pair) */
+    double q_limit;   /* as pm_assoc_opts_t.q_limit: q-values above it are only known to be so
+                       * (+INFINITY); 1: exact everywhere */
+    unsigned threads; /* 0: all cores */
+} pm_strat_family_opts_t;
+
+void pm_stratified_family_opts_init(pm_strat_family_opts_t *o);
+
+typedef struct {
+    double *p;            /* [pp->n] the CMH p-value of each listed pair (NaN: not defined) */
+    double *q;            /* [pp->n] its Benjamini-Hochberg q over the family */
+    uint64_t hypotheses;  /* the family: pp->hypotheses pairs */
+    uint64_t seen_within; /* of them, chosen together by some respondent with a segment */
+    uint64_t undefined;   /* of them, without a defined CMH test (taken as p = 1) */
+    size_t classes;       /* classes of items by per-segment totals (0: none needed) */
+} pm_strat_family_t;
+
+/* The Cochran-Mantel-Haenszel test (pm_stratified_pair's cmh_p, the same bits) of every pair
+ * of pp's family (all pairs of its eligible items, pairs never seen together included) over
+ * the levels of column c, respondents without a segment left out, and Benjamini-Hochberg
+ * over the family's hypotheses; a pair whose test is not defined (no segment where both items
+ * vary) counts with p = 1. Pairs no respondent with a segment chose together are tested by
+ * classes of items with equal per-segment totals (they share a p-value), unless sign is
+ * positive and q_limit below 0.49 (their z is at most 0: p >= 1/2, only counted). *out is
+ * initialised here (pm_stratified_family_destroy). Cost O(sum over respondents with a segment
+ * of k^2 + seen pairs x levels + D^2 levels) for D classes; memory bounded by
+ * pm_stratified_family_cost. Errors: PM_EUSAGE (weighted input; too many classes),
+ * PM_ENOMEM. */
+pm_err_t pm_stratified_family_run(const pm_incidence_t *inc, const pm_segcol_t *c,
+                                  const pm_pairs_t *pp, const pm_strat_family_opts_t *o,
+                                  pm_strat_family_t *out, pm_diag_t *diag);
+/* An upper bound of the bytes pm_stratified_family_run holds at its peak: per thread items x
+ * (4 levels + 12), the lists (8 per item and level, 4 per choice), and per seen pair of pp
+ * up to 40 bytes (its p-value kept and sorted, its class combination). Always PM_OK. */
+pm_err_t pm_stratified_family_cost(const pm_incidence_t *inc, const pm_segcol_t *c,
+                                   const pm_pairs_t *pp, const pm_strat_family_opts_t *o,
+                                   uint64_t *bytes);
+void pm_stratified_family_destroy(pm_strat_family_t *f);
+
 #ifdef __cplusplus
 }
 #endif

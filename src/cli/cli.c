@@ -85,6 +85,7 @@ static const opt_def OPTS[] = {
     {"segment-file", 0, 1, 0, ALL},
     {"segment-levels", 0, 1, 1, SEGMENTED},
     {"only-segment", 0, 1, 1, ALL},
+    {"pair-test", 0, 1, 0, SCORE},
     {"csv-raw", 0, 0, 0,
      PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_SEGMENTS},
     {"help", 'h', 0, 0, ALL},
@@ -568,7 +569,8 @@ int pm_cli_select_opts(const pm_cli_t *c, pm_select_opts_t *o) {
     }
     o->sign = (pm_sign_t)s;
     o->measure = (pm_measure_t)m;
-    return 0;
+    int within;
+    return pm_cli_pair_test(c, &within); /* its usage errors before any work */
 }
 
 int pm_cli_fail(const pm_diag_t *d) {
@@ -786,8 +788,14 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
     ao.sign = sel->sign;
     ao.min_count = sel->min_count;
     ao.min_share = sel->min_share;
-    /* every command shows only pairs with q <= --max-q: larger q-values need not be exact */
-    ao.q_limit = sel->max_q;
+    /* every command shows only pairs with q <= --max-q: larger q-values need not be exact;
+     * under --pair-test within the CMH q selects, and the pooled p of every pair it keeps is
+     * shown: exact everywhere */
+    int within;
+    if (pm_cli_pair_test(c, &within)) {
+        return 1;
+    }
+    ao.q_limit = within ? 1.0 : sel->max_q;
     if (pm_cli_threads(c, &ao.threads)) {
         return 1;
     }
@@ -853,7 +861,12 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
         *pairs = NULL;
         return 2;
     }
-    return 0;
+    int wrc = pm_cli_within(c, inc, sel, *pairs); /* --pair-test within: CMH q-values */
+    if (wrc) {
+        pm_pairs_free(*pairs);
+        *pairs = NULL;
+    }
+    return wrc;
 }
 
 int pm_cli_close_stdout(void) {

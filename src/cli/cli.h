@@ -114,6 +114,10 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
  * ulimit -v and ulimit -d); else prints the one-line reason (the largest basket's size, never
  * its id, and the likely cause) and returns 4; 1 after a bad --max-memory. */
 int pm_cli_check_memory(const pm_cli_t *c, const pm_counts_cost_t *cost);
+/* The same bound for another stage that needs `bytes` (what: its name in the message, e.g.
+ * "the pair tests within segments"): 0, or 4 after the one-line reason; 1 after a bad
+ * --max-memory. */
+int pm_cli_check_bytes(const pm_cli_t *c, uint64_t bytes, const char *what);
 /* --max-memory in bytes (0 when absent); 1 after a usage error. */
 int pm_cli_max_memory(const pm_cli_t *c, uint64_t *bytes);
 /* Scores every pair with the command line's options. */
@@ -137,6 +141,15 @@ void pm_cli_segments_free(void);
 int pm_cli_strat(const pm_cli_t *c, const pm_incidence_t *inc, const pm_segcol_t *seg, size_t nseg,
                  const pm_pairs_t *pp, const pm_edges_t *e, const pm_select_opts_t *sel,
                  pm_strat_t **st);
+/* --pair-test pooled|within: *within 1 for within. Returns 0, or 1 after a usage error
+ * (reported): within needs --segment-col and unweighted input (no --weight-col). */
+int pm_cli_pair_test(const pm_cli_t *c, int *within);
+/* --pair-test within (else nothing): the CMH test of every pair of pp's family over the first
+ * segment column (pm_stratified_family_run, its memory bounded first by
+ * pm_cli_check_bytes), whose q-values replace pp->q of the listed pairs; a note says so.
+ * Returns 0 or the exit status. */
+int pm_cli_within(const pm_cli_t *c, const pm_incidence_t *inc, const pm_select_opts_t *sel,
+                  pm_pairs_t *pp);
 /* Help blocks: --segment-col and --segment-levels (map, pairs, partners); --segment-file and
  * --only-segment (every command that reads rows). */
 extern const char pm_cli_segment_help[];

@@ -103,21 +103,33 @@ int pm_cli_max_memory(const pm_cli_t *c, uint64_t *bytes) {
     return mem_parse_size(c, bytes);
 }
 
-int pm_cli_check_memory(const pm_cli_t *c, const pm_counts_cost_t *cost) {
+/* bytes (plus the memory in use) against the bound: 0 when they fit; 1 after a bad
+ * --max-memory; -1 when over, with the need and the bound in words in nb and lb and what the
+ * bound is in *what. */
+static int mem_over(const pm_cli_t *c, uint64_t bytes, char nb[32], char lb[32],
+                    const char **what) {
     uint64_t given;
     if (mem_parse_size(c, &given)) {
         return 1;
     }
-    const char *what;
     uint64_t in_use;
-    uint64_t lim = mem_bound(c, given, &what, &in_use);
-    uint64_t need = cost->bytes > UINT64_MAX - in_use ? UINT64_MAX : cost->bytes + in_use;
+    uint64_t lim = mem_bound(c, given, what, &in_use);
+    uint64_t need = bytes > UINT64_MAX - in_use ? UINT64_MAX : bytes + in_use;
     if (need <= lim) {
         return 0;
     }
+    mem_human(need, nb, 32);
+    mem_human(lim, lb, 32);
+    return -1;
+}
+
+int pm_cli_check_memory(const pm_cli_t *c, const pm_counts_cost_t *cost) {
     char nb[32], lb[32];
-    mem_human(need, nb, sizeof nb);
-    mem_human(lim, lb, sizeof lb);
+    const char *what;
+    int over = mem_over(c, cost->bytes, nb, lb, &what);
+    if (over >= 0) {
+        return over;
+    }
     uint64_t k = cost->largest, kp = k * (k - (k > 0)) / 2;
     const char *src = c->input[0] == '-' && !c->input[1] ? "stdin" : pm_cli_shown(c->input);
     if (kp >= cost->work / 2) { /* one basket makes most of the work */
@@ -136,5 +148,20 @@ int pm_cli_check_memory(const pm_cli_t *c, const pm_counts_cost_t *cost) {
                 src, nb, lb, what, (unsigned long long)cost->work,
                 (unsigned long long)cost->pairs_max, pm_cli_unit(c), (unsigned long long)k);
     }
+    return 4; /* README: 4 out of memory */
+}
+
+int pm_cli_check_bytes(const pm_cli_t *c, uint64_t bytes, const char *stage) {
+    char nb[32], lb[32];
+    const char *what;
+    int over = mem_over(c, bytes, nb, lb, &what);
+    if (over >= 0) {
+        return over;
+    }
+    fprintf(stderr,
+            "pairmap: %s: %s need about %s with what is in use, more than %s of %s; --min-share "
+            "F leaves rare items out, --max-memory SIZE sets the bound\n",
+            c->input[0] == '-' && !c->input[1] ? "stdin" : pm_cli_shown(c->input), stage, nb, lb,
+            what);
     return 4; /* README: 4 out of memory */
 }

@@ -23,7 +23,18 @@ const char pm_cli_segment_help[] =
     "Breslow-Greenland), the Cochran-Mantel-Haenszel test (no continuity correction; one-\n"
     "or two-sided as --sign), the Breslow-Day test of equal odds ratios (Tarone), and\n"
     "reversed = 1 when the pooled and the within-segment odds ratio lie on opposite sides\n"
-    "of 1 with both 95% intervals excluding 1. Unweighted only (weighted: empty cells).\n";
+    "of 1 with both 95% intervals excluding 1. Unweighted only (weighted: empty cells).\n"
+    "  --pair-test T         pooled (default): pairs are selected by the test over all\n"
+    "                        respondents; within: by the Cochran-Mantel-Haenszel test over\n"
+    "                        the segments of the first --segment-col (cmh_p), so that a pair\n"
+    "                        kept holds inside the segments and not only through their mix.\n"
+    "                        q_value and --max-q are then Benjamini-Hochberg over the CMH\n"
+    "                        p-values of the same family of pairs (every pair of eligible\n"
+    "                        items, never-seen ones included; a pair with no segment where\n"
+    "                        both items vary counts as p = 1); p_value and test stay the\n"
+    "                        pooled test's, and --sign still asks the pooled phi's direction.\n"
+    "                        Respondents without a segment are left out of the test.\n"
+    "                        Unweighted input only (--weight-col is a usage error)\n";
 
 const char pm_cli_only_help[] =
     "Respondents:\n"
@@ -298,5 +309,71 @@ int pm_cli_strat(const pm_cli_t *c, const pm_incidence_t *inc, const pm_segcol_t
                 "note: pairs within the %zu segments of '%s' (Mantel-Haenszel; %llu %s "
                 "without a segment left out of those columns)",
                 seg[0].n_levels, seg[0].column, (unsigned long long)seg[0].none, pm_cli_unit(c));
+    return 0;
+}
+
+int pm_cli_pair_test(const pm_cli_t *c, int *within) {
+    static const char *const tests[] = {"pooled", "within", NULL};
+    int t;
+    *within = 0;
+    if (pm_cli_choice(c, "pair-test", tests, 0, &t)) {
+        return 1;
+    }
+    if (t == 0) {
+        return 0;
+    }
+    size_t nseg;
+    pm_cli_all(c, "segment-col", &nseg);
+    if (nseg == 0) {
+        return pm_cli_usage_error(c, "--pair-test within needs --segment-col COL (the segments "
+                                     "the test is taken within)");
+    }
+    if (pm_cli_get(c, "weight-col")) {
+        return pm_cli_usage_error(c, "--pair-test within takes unweighted input (the "
+                                     "Cochran-Mantel-Haenszel test counts respondents): leave "
+                                     "out --weight-col or use --pair-test pooled");
+    }
+    *within = 1;
+    return 0;
+}
+
+int pm_cli_within(const pm_cli_t *c, const pm_incidence_t *inc, const pm_select_opts_t *sel,
+                  pm_pairs_t *pp) {
+    int within;
+    if (pm_cli_pair_test(c, &within) || !within) {
+        return within ? 1 : 0;
+    }
+    size_t nseg;
+    const pm_segcol_t *seg = pm_cli_segcols(&nseg);
+    pm_strat_family_opts_t o;
+    pm_stratified_family_opts_init(&o);
+    o.sign = sel->sign;
+    o.q_limit = sel->max_q; /* only pairs with q <= --max-q are shown */
+    if (pm_cli_threads(c, &o.threads)) {
+        return 1;
+    }
+    uint64_t bytes;
+    (void)pm_stratified_family_cost(inc, &seg[0], pp, &o, &bytes);
+    int mrc = pm_cli_check_bytes(c, bytes, "the pair tests within segments");
+    if (mrc) {
+        return mrc;
+    }
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    pm_strat_family_t f;
+    if (pm_stratified_family_run(inc, &seg[0], pp, &o, &f, &d) != PM_OK) {
+        return d.code == PM_EUSAGE && !d.file[0] ? pm_cli_usage_error(c, "%s", d.msg)
+                                                 : pm_cli_fail(&d);
+    }
+    memcpy(pp->q, f.q, pp->n * sizeof *pp->q);
+    pm_cli_note(c,
+                "note: --pair-test within: pairs selected by the Cochran-Mantel-Haenszel test "
+                "within the %zu segments of '%s'; q over the %llu pairs of the family (%llu "
+                "chosen together within a segment, %llu without a defined test, taken as p = "
+                "1); %llu %s without a segment left out of the test",
+                seg[0].n_levels, seg[0].column, (unsigned long long)f.hypotheses,
+                (unsigned long long)f.seen_within, (unsigned long long)f.undefined,
+                (unsigned long long)seg[0].none, pm_cli_unit(c));
+    pm_stratified_family_destroy(&f);
     return 0;
 }

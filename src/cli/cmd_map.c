@@ -198,6 +198,18 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
 }
 
 /* ---- summary --------------------------------------------------------------------------------- */
+/* Which test selected the pairs (with --segment-col only: the choice is there). */
+static void summary_pair_test(const run_state *s, const char *c_unit) {
+    if (s->within) {
+        printf("pair test     Cochran-Mantel-Haenszel within the segments of '%s' (--pair-test "
+               "within): q_value over its p-values\n",
+               pm_cli_shown(s->within));
+    } else if (s->with_strat) {
+        printf("pair test     pooled over all %s (--pair-test within: within the segments)\n",
+               c_unit);
+    }
+}
+
 static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_state *s,
                     const char *c_unit) {
     const pm_edges_t *e = s->e;
@@ -241,6 +253,7 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
         printf(", %llu beyond the top %zu", (unsigned long long)e->removed_top, sel->top_edges);
     }
     printf(")\n");
+    summary_pair_test(s, c_unit);
     if (s->n_negative) {
         printf("              %zu negative edges are in the files but take no part in "
                "clusters or layout\n",
@@ -400,6 +413,9 @@ int pm_cmd_map(int argc, char **argv) {
         size_t nseg;
         const pm_segcol_t *seg = pm_cli_segcols(&nseg);
         s.with_strat = nseg > 0;
+        int within;
+        (void)pm_cli_pair_test(&c, &within); /* checked with the options */
+        s.within = within ? seg[0].column : NULL;
         if ((rc = pm_cli_strat(&c, s.inc, seg, nseg, s.pp, s.e, &sel, &s.strat)) != 0) {
             goto done;
         }

@@ -43,6 +43,7 @@ typedef struct {
     unsigned csv_flags;  /* --csv-raw */
     int with_strat;      /* --segment-col: edges.csv gains the within-segment columns */
     pm_strat_t *strat;   /* [e->n] (NULL: empty cells, weighted input) */
+    const char *within;  /* --pair-test within: the column of the test, else NULL */
     /* edges.csv and the share intervals of nodes.csv need no clusters: with more than one
      * thread they are done on a thread of their own while the graph stage runs */
     struct {

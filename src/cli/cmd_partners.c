@@ -256,6 +256,19 @@ static int item_strat(const pm_cli_t *c, const pm_incidence_t *inc, const pm_pai
     return rc;
 }
 
+/* --pair-test: 0, or 1 after a usage error (within takes one --item). */
+static int pair_test_check(const pm_cli_t *c, size_t nnames) {
+    int within;
+    if (pm_cli_pair_test(c, &within)) {
+        return 1;
+    }
+    if (within && nnames > 1) {
+        return pm_cli_usage_error(c, "--pair-test within ranks the partners of one --item (a "
+                                     "set's own tests are pooled)");
+    }
+    return 0;
+}
+
 /* ---- the anchor set ------------------------------------------------------------------------- */
 /* Respondents who chose every item of the set (in_set marks them, k of them): their count,
  * weight and squared weight, and per other item the joint count and weight. */
@@ -366,6 +379,9 @@ int pm_cmd_partners(int argc, char **argv) {
     const char *const *names = pm_cli_all(&c, "item", &nnames);
     if (nnames == 0) {
         return pm_cli_usage_error(&c, "'pairmap partners' needs --item NAME");
+    }
+    if (pair_test_check(&c, nnames)) {
+        return 1;
     }
     pm_select_opts_t sel;
     uint64_t top;

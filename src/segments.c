@@ -414,30 +414,22 @@ cleanup:
     return rc;
 }
 
-pm_err_t pm_segcol_keep(pm_segcol_t *c, const unsigned char *keep) {
-    int32_t *to = pm_i_malloc(c->n_levels ? c->n_levels : 1, sizeof *to);
-    if (!to) {
-        return PM_ENOMEM;
-    }
-    size_t k = 0;
-    for (size_t r = 0; r < c->n_resp; r++) {
-        if (keep[r]) {
-            c->of[k++] = c->of[r];
-        }
-    }
-    c->n_resp = k;
+/* Bases and `none` recounted over the first n respondents (those with gone[r] set count in
+ * neither; gone may be NULL), the levels nobody holds removed (the others keep their order).
+ * to: n_levels entries of scratch. */
+static void recount(pm_segcol_t *c, size_t n, const unsigned char *gone, int32_t *to) {
     for (size_t s = 0; s < c->n_levels; s++) {
         c->base[s] = 0;
     }
     c->none = 0;
-    for (size_t r = 0; r < k; r++) {
+    for (size_t r = 0; r < n; r++) {
         if (c->of[r] >= 0) {
             c->base[c->of[r]]++;
-        } else {
+        } else if (!(gone && gone[r])) {
             c->none++;
         }
     }
-    /* the levels someone kept holds, in their order */
+    /* the levels someone holds, in their order */
     size_t nl = 0;
     for (size_t s = 0; s < c->n_levels; s++) {
         if (c->base[s] == 0) {
@@ -451,11 +443,45 @@ pm_err_t pm_segcol_keep(pm_segcol_t *c, const unsigned char *keep) {
         nl++;
     }
     c->n_levels = nl;
-    for (size_t r = 0; r < k; r++) {
+    for (size_t r = 0; r < n; r++) {
         if (c->of[r] >= 0) {
             c->of[r] = to[c->of[r]];
         }
     }
+}
+
+pm_err_t pm_segcol_keep(pm_segcol_t *c, const unsigned char *keep) {
+    int32_t *to = pm_i_malloc(c->n_levels ? c->n_levels : 1, sizeof *to);
+    if (!to) {
+        return PM_ENOMEM;
+    }
+    size_t k = 0;
+    for (size_t r = 0; r < c->n_resp; r++) {
+        if (keep[r]) {
+            c->of[k++] = c->of[r];
+        }
+    }
+    c->n_resp = k;
+    recount(c, k, NULL, to);
+    free(to);
+    return PM_OK;
+}
+
+pm_err_t pm_segcol_leave_out(pm_segcol_t *c, const unsigned char *gone, size_t n) {
+    int32_t *to = pm_i_malloc(c->n_levels ? c->n_levels : 1, sizeof *to);
+    if (!to) {
+        return PM_ENOMEM;
+    }
+    if (n > c->n_resp) {
+        n = c->n_resp;
+    }
+    for (size_t r = 0; r < n; r++) {
+        if (gone[r]) {
+            c->left_out += c->of[r] >= 0;
+            c->of[r] = -1;
+        }
+    }
+    recount(c, c->n_resp, gone, to);
     free(to);
     return PM_OK;
 }

@@ -32,6 +32,8 @@ typedef struct {
     uint64_t *base;       /* [n_levels] */
     uint64_t none;        /* respondents of the table without a segment */
     uint64_t unknown_ids; /* ids of the segment file that are not in the input */
+    uint64_t left_out;    /* respondents with a segment left out by --max-basket (now in
+                           * neither base nor none) */
 } pm_segcol_t;
 
 /* Where the column is. */
@@ -63,6 +65,12 @@ void pm_segcol_destroy(pm_segcol_t *c);
  * no kept respondent holds removed (the others keep their order). Errors: PM_ENOMEM (c is
  * then unchanged). */
 pm_err_t pm_segcol_keep(pm_segcol_t *c, const unsigned char *keep);
+
+/* --max-basket: the respondents r < n with gone[r] (pm_incidence_t.left_out) leave the
+ * column: no segment, in no base and not in `none`, counted in left_out; levels only they held
+ * removed (the others keep their order). Respondents keep their numbers. Errors: PM_ENOMEM (c
+ * then unchanged). */
+pm_err_t pm_segcol_leave_out(pm_segcol_t *c, const unsigned char *gone, size_t n);
 
 /* The first number in a label (NaN when it holds none): "16-24" 16, "€1,000-1,999" 1000,
  * "5 to 9 km" 5, "2.5 kg" 2.5. */

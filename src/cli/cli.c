@@ -48,7 +48,7 @@ static const opt_def OPTS[] = {
     {"quiet", 'q', 0, 0, ALL},
     {"threads", 0, 1, 0, ALL},
     {"unit", 0, 1, 0, FROM_COUNTS},
-    {"max-basket", 0, 1, 0, FROM_COUNTS | PM_CMD_COUNT},
+    {"max-basket", 0, 1, 0, FROM_COUNTS | PM_CMD_COUNT | PM_CMD_SEGMENTS},
     {"max-memory", 0, 1, 0, SCORE | PM_CMD_COUNT},
     /* selection */
     {"min-count", 0, 1, 0, SCORE},
@@ -665,12 +665,6 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     if (pm_cli_input_opts(c, &io)) {
         return 1;
     }
-    size_t nseg = 0;
-    pm_cli_all(c, "segment-col", &nseg);
-    if (io.max_basket && nseg) { /* the segment tables would still count those respondents */
-        return pm_cli_usage_error(c, "--max-basket does not combine with --segment-col: leave "
-                                     "the large baskets out of the file instead");
-    }
     if (strcmp(c->input, "-") != 0) {
         struct stat st;
         if (stat(c->input, &st) == 0 && S_ISDIR(st.st_mode)) {
@@ -771,6 +765,13 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
                     "held %llu items); N is %llu without them",
                     (unsigned long long)ic->n_left_out, pm_cli_unit(c), pm_cli_get(c, "max-basket"),
                     (unsigned long long)ic->largest_left_out, (unsigned long long)ic->N);
+    }
+    if (ic->n_left_out && pm_cli_segments_leave_out(c, ic)) { /* out of the segments too */
+        pm_incidence_free(*inc);
+        pm_table_free(*table);
+        *inc = NULL;
+        *table = NULL;
+        return 4;
     }
     if (ic->single_item) {
         pm_cli_note(c,

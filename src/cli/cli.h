@@ -131,6 +131,9 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
  * the input or --segment-file, and applies --only-segment to table t (pm_table_keep). Called
  * by pm_cli_load before the incidence is built. Returns 0 or the exit status (reported). */
 int pm_cli_segments_load(const pm_cli_t *c, pm_table_t *t);
+/* --max-basket: the respondents inc left out leave every segment column too
+ * (pm_segcol_leave_out), a note per column says how many. 0, or 4 out of memory (reported). */
+int pm_cli_segments_leave_out(const pm_cli_t *c, const pm_incidence_t *inc);
 /* The --segment-col columns of the run, in the order given, restricted to the kept
  * respondents (respondent r of the table and of the incidence); *n = 0 when none. */
 const pm_segcol_t *pm_cli_segcols(size_t *n);

@@ -377,3 +377,21 @@ int pm_cli_within(const pm_cli_t *c, const pm_incidence_t *inc, const pm_select_
     pm_stratified_family_destroy(&f);
     return 0;
 }
+
+int pm_cli_segments_leave_out(const pm_cli_t *c, const pm_incidence_t *inc) {
+    for (size_t k = 0; k < g_seg.n; k++) {
+        pm_segcol_t *col = &g_seg.col[k];
+        if (pm_segcol_leave_out(col, inc->left_out, inc->n_resp) != PM_OK) {
+            fputs("pairmap: out of memory\n", stderr);
+            return 4;
+        }
+        if (k < g_seg.n_seg) {
+            pm_cli_note(c,
+                        "note: --max-basket: %llu %s with a segment of '%s' left out of its "
+                        "segment figures too (%zu segments remain)",
+                        (unsigned long long)col->left_out, pm_cli_unit(c), col->column,
+                        col->n_levels);
+        }
+    }
+    return 0;
+}

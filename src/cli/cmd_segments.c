@@ -74,7 +74,8 @@ static void notes(const pm_cli_t *c, const pm_segcol_t *col, const pm_segstats_t
 int pm_cmd_segments(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s%s", help, pm_cli_input_help, pm_cli_only_help);
+    snprintf(full, sizeof full, "%s%s%s%s", help, pm_cli_input_help, pm_cli_only_help,
+             pm_cli_basket_help);
     int rc = pm_cli_parse(&c, "segments", PM_CMD_SEGMENTS, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;

@@ -131,6 +131,7 @@ void pm_cli_mapseg_json(const pm_cli_mapseg_t *ms, pm_json_t *j) {
         pm_json_uint(j, "cells_fitted", s->cells_fitted);
         pm_json_begin_object(j, "left_out");
         pm_json_uint(j, "respondents_without_segment", c->none);
+        pm_json_uint(j, "respondents_left_out_by_max_basket", c->left_out);
         pm_json_uint(j, "segment_file_ids_not_in_input", c->unknown_ids);
         pm_json_end_object(j);
         pm_json_end_object(j);

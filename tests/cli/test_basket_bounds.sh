@@ -80,8 +80,25 @@ cmp -s "$TMP/out" "$TMP/pairs.shard.csv" || fail "--max-basket: the shard's pair
 expect_fail 1 "" "--max-basket applies to rows" -- pairs --from-counts "$TMP/c.pmc" --max-basket 50
 printf 'order,dish\n1,tea\n1,cake\n2,tea\n2,soup\n' >"$TMP/two.csv"
 expect_fail 1 "$TMP/two.csv: " "--max-basket 1 leaves out every one of the respondents" -- items "$TMP/two.csv" --max-basket 1
-# segment tables would still count the left-out respondents: refused (not done yet)
-expect_fail 1 "" "--max-basket does not combine with --segment-col" -- pairs "$DEMO/cafe-orders.csv" --max-basket 5 --segment-col location
+# with --segment-col the left-out respondents leave the segment figures too: every result is
+# the one of the file without their rows (made here with awk: orders of more than 5 distinct
+# items dropped), and a note says how many left each column
+CAFE="$DEMO/cafe-orders.csv"
+awk -F, 'NR == FNR { if (FNR > 1 && $2 != "" && !seen[$1 FS $2]++) n[$1]++; next }
+    FNR == 1 || n[$1] <= 5' "$CAFE" "$CAFE" >"$TMP/cafe-small.csv"
+SEGS=(--segment-col location --segment-col time_band)
+for cmd in "segments" "pairs --pair-test within --csv" "pairs --csv"; do
+    # shellcheck disable=SC2086
+    expect_ok $cmd "$CAFE" "${SEGS[@]}" --max-basket 5
+    cp "$TMP/out" "$TMP/mb.out"
+    cp "$TMP/err" "$TMP/mb.err"
+    # shellcheck disable=SC2086
+    expect_ok $cmd "$TMP/cafe-small.csv" "${SEGS[@]}"
+    check "$cmd --max-basket 5 --segment-col: the file without the large orders" cmp -s "$TMP/out" "$TMP/mb.out"
+done
+left="$(awk -F, 'NR > 1 && $2 != "" && !seen[$1 FS $2]++ { n[$1]++ } END { for (r in n) k += n[r] > 5; print k }' "$CAFE")"
+check "the note on the segment figures ($left left out)" grep -q "note: --max-basket: $left respondents with a segment of 'location' left out of its segment figures too (3 segments remain)" "$TMP/mb.err"
+check "some orders are left out" test "$left" -gt 0
 for bad in 0 -1 x; do
     expect_fail 1 "" "--max-basket expects a whole number" -- pairs "$TMP/big.csv" --max-basket "$bad"
 done

@@ -391,12 +391,19 @@ static pm_err_t gather(fam_ctx *x, size_t nth, pm_i_family *f, uint64_t **keys, 
     }
     for (size_t t = 0; t < nth; t++) {
         fam_thread *h = &x->th[t];
-        memcpy(f->lv + f->nlv, h->lv, h->nlv * sizeof *h->lv);
-        f->nlv += h->nlv;
-        memcpy(f->pf + f->npf, h->pf, h->npf * sizeof *h->pf);
-        f->npf += h->npf;
-        memcpy(*keys + *nkeys, h->keys, h->nkeys * sizeof *h->keys);
-        *nkeys += h->nkeys;
+        /* a thread that met none leaves its arrays NULL: memcpy may not be given NULL */
+        if (h->nlv) {
+            memcpy(f->lv + f->nlv, h->lv, h->nlv * sizeof *h->lv);
+            f->nlv += h->nlv;
+        }
+        if (h->npf) {
+            memcpy(f->pf + f->npf, h->pf, h->npf * sizeof *h->pf);
+            f->npf += h->npf;
+        }
+        if (h->nkeys) {
+            memcpy(*keys + *nkeys, h->keys, h->nkeys * sizeof *h->keys);
+            *nkeys += h->nkeys;
+        }
     }
     return *nkeys > 1 && pm_i_radix_sort(*keys, *nkeys, sizeof **keys) ? PM_ENOMEM : PM_OK;
 }

@@ -365,7 +365,9 @@ int pm_cli_within(const pm_cli_t *c, const pm_incidence_t *inc, const pm_select_
         return d.code == PM_EUSAGE && !d.file[0] ? pm_cli_usage_error(c, "%s", d.msg)
                                                  : pm_cli_fail(&d);
     }
-    memcpy(pp->q, f.q, pp->n * sizeof *pp->q);
+    if (pp->n) {
+        memcpy(pp->q, f.q, pp->n * sizeof *pp->q);
+    }
     pm_cli_note(c,
                 "note: --pair-test within: pairs selected by the Cochran-Mantel-Haenszel test "
                 "within the %zu segments of '%s'; q over the %llu pairs of the family (%llu "

@@ -91,14 +91,14 @@ expect_fail 1 "" "--pair-test expects" -- pairs "$D" --segment-col location --pa
 expect_fail 1 "" "--pair-test within ranks the partners of one --item" -- \
     partners "$D" --segment-col location --pair-test within --item Espresso --item Buttermilk
 # the memory of the test within segments is bounded before it allocates: one segment per
-# respondent (20,000 segments) makes the per-thread items x segments counts large while the
+# respondent (60,000 segments) makes the per-thread items x segments counts large while the
 # pooled counting fits
-(cd "$TMP" && awk 'BEGIN { srand(3); print "id,item,seg"; for (r = 0; r < 20000; r++)
+(cd "$TMP" && awk 'BEGIN { srand(3); print "id,item,seg"; for (r = 0; r < 60000; r++)
     for (j = 0; j < 3; j++) printf "r%d,i%d,s%d\n", r, int(rand() * 300), r }' >manyseg.csv)
 cd "$TMP" || exit 1
-expect_ok pairs manyseg.csv --segment-col seg --max-memory 40M --threads 2
+expect_ok pairs manyseg.csv --segment-col seg --max-memory 100M --threads 2
 expect_fail 4 "manyseg.csv: " "the pair tests within segments need about" -- \
-    pairs manyseg.csv --segment-col seg --pair-test within --max-memory 40M --threads 2
+    pairs manyseg.csv --segment-col seg --pair-test within --max-memory 100M --threads 2
 cd - >/dev/null || exit 1
 for cmd in map pairs partners; do
     check "$cmd --help names --pair-test" bash -c "'$PAIRMAP' $cmd --help | grep -q -- '--pair-test T'"

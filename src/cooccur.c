@@ -1037,3 +1037,81 @@ pm_err_t pm_counts_cost(const pm_incidence_t *inc, const pm_counts_opts_t *o,
     out->bytes = sat_add(b, sat_mul(out->kept_max, PM_COUNTS_KEPT_BYTES(weighted)));
     return PM_OK;
 }
+
+/* ==== one item's joint counts ============================================================ */
+/* One pass over the rows (or the given pairs) with one counter per item: memory in the number
+ * of items, never in the number of pairs (issue 15 point 9). Weighted sums are exact where the
+ * weights' range allows (src/exactsum.h), so they equal those of pm_counts_build and of count
+ * shards bit for bit. */
+pm_err_t pm_counts_item(const pm_incidence_t *inc, uint32_t item, const pm_counts_t *given,
+                        uint32_t *nb, double *wb, pm_diag_t *diag) {
+    size_t n = inc->n_items;
+    memset(nb, 0, n * sizeof *nb);
+    if (wb) {
+        memset(wb, 0, n * sizeof *wb);
+    }
+    if (given) {
+        for (size_t k = 0; k < given->n_pairs; k++) {
+            uint32_t a = given->a[k], b = given->b[k];
+            if (a != item && b != item) {
+                continue;
+            }
+            uint32_t o = a == item ? b : a;
+            nb[o] = given->n[k];
+            if (wb) {
+                wb[o] = given->w ? given->w[k] : (double)given->n[k];
+            }
+        }
+        return PM_OK;
+    }
+    const double *wt = inc->weight;
+    pm_i_u128 *wx = NULL;
+    int xe = 0;
+    if (wt && wb) {
+        pm_i_xs_range xr = {0};
+        for (size_t r = 0; r < inc->n_resp; r++) {
+            pm_i_xs_see(&xr, wt[r]);
+        }
+        if (pm_i_xs_fit(&xr, inc->n_resp, &xe) == 0) {
+            wx = pm_i_calloc(n ? n : 1, sizeof *wx);
+            if (!wx) {
+                return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory while counting pairs");
+            }
+        }
+    }
+    for (size_t r = 0; r < inc->n_resp; r++) {
+        uint64_t beg = inc->row_ptr[r], end = inc->row_ptr[r + 1];
+        uint64_t lo = beg, hi = end; /* the row's items increase: binary search for item */
+        while (lo < hi) {
+            uint64_t mid = lo + (hi - lo) / 2;
+            if (inc->col[mid] < item) {
+                lo = mid + 1;
+            } else {
+                hi = mid;
+            }
+        }
+        if (lo == end || inc->col[lo] != item) {
+            continue;
+        }
+        pm_i_u128 u = wx ? pm_i_xs_units(wt[r], xe) : 0;
+        for (uint64_t q = beg; q < end; q++) {
+            uint32_t b = inc->col[q];
+            if (b == item) {
+                continue;
+            }
+            nb[b]++;
+            if (wx) {
+                wx[b] += u;
+            } else if (wt && wb) {
+                wb[b] += wt[r];
+            }
+        }
+    }
+    if (wb) {
+        for (size_t b = 0; b < n; b++) {
+            wb[b] = wx ? pm_i_xs_double(wx[b], xe) : wt ? wb[b] : (double)nb[b];
+        }
+    }
+    free(wx);
+    return PM_OK;
+}

@@ -151,6 +151,11 @@ static double solve(const nchg_goal *g, double th0) {
 }
 
 void pm_oddsratio_exact(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, pm_oddsratio_t *out) {
+    if (na > nb) { /* as in pm_oddsratio_counts */
+        uint64_t t = na;
+        na = nb;
+        nb = t;
+    }
     nchg d = {(double)N, (double)na, (double)nb, 0, 0, nab};
     d.lo = nb > N - na ? nb - (N - na) : 0;
     d.hi = na < nb ? na : nb;
@@ -197,6 +202,11 @@ static void woolf(double a, double b, double c, double d, double scale, pm_oddsr
 
 void pm_oddsratio_counts(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, pm_test_t test,
                          pm_oddsratio_t *out) {
+    if (na > nb) { /* the transposed table has the same odds ratio: one order, the same bits */
+        uint64_t t = na;
+        na = nb;
+        nb = t;
+    }
     uint64_t b = na - nab, c = nb - nab, d = N - na - nb + nab;
     if (test == PM_TEST_FISHER || nab == 0 || b == 0 || c == 0 || d == 0) {
         pm_oddsratio_exact(N, na, nb, nab, out);
@@ -207,6 +217,11 @@ void pm_oddsratio_counts(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, pm_
 
 void pm_oddsratio_weighted(double W, double wa, double wb, double wab, double neff,
                            pm_oddsratio_t *out) {
+    if (wa > wb) { /* as in pm_oddsratio_counts */
+        double t = wa;
+        wa = wb;
+        wb = t;
+    }
     double a = wab, b = wa - wab, c = wb - wab, d = W - wa - wb + wab;
     b = b > 0 ? b : 0; /* rounding of the sums must not make a cell negative */
     c = c > 0 ? c : 0;

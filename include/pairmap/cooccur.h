@@ -89,6 +89,14 @@ typedef struct {
 pm_err_t pm_counts_cost(const pm_incidence_t *inc, const pm_counts_opts_t *o,
                         pm_counts_cost_t *out);
 
+/* The joint counts of `item` with every item b of inc into nb[b] (0 for b = item), and with
+ * wb non-NULL the weighted joint counts into wb[b] (the counts as doubles when unweighted);
+ * nb and wb hold inc->n_items entries. From the rows, or from `given` (the pairs of a count
+ * shard) when non-NULL. Time O(rows) or O(given pairs); memory O(items), never O(pairs).
+ * Errors: PM_ENOMEM. */
+pm_err_t pm_counts_item(const pm_incidence_t *inc, uint32_t item, const pm_counts_t *given,
+                        uint32_t *nb, double *wb, pm_diag_t *diag);
+
 /* Index of pair (a, b), a < b, in c, or -1. O(log pairs). */
 long pm_counts_find(const pm_counts_t *c, uint32_t a, uint32_t b);
 

@@ -18,21 +18,31 @@ static const char help[] =
     "  confidence  share of NAME's respondents who also chose the partner, with its 95%\n"
     "              Jeffreys interval (confidence_low, confidence_high)\n"
     "  lift, phi, q_value   as in `pairmap pairs`\n"
+    "  partner_respondents  respondents who chose the partner (weighted with --weight-col)\n"
+    "  reverse_confidence   share of the partner's respondents who also chose NAME (often\n"
+    "              the telling direction: an add-on's buyers nearly all take the base item)\n"
+    "  odds_ratio, odds_ratio_low, odds_ratio_high   the odds ratio with its 95% interval,\n"
+    "              as in `pairmap pairs`\n"
     "\n"
     "  --item NAME           the item: its exact name, or the one name equal to it ignoring\n"
     "                        letter case (a note says which). Given several times: the\n"
     "                        partners of the set, i.e. of the respondents who chose all of\n"
-    "                        them. A set's\n"
-    "                        q-values come from Benjamini-Hochberg over its own tests (one per\n"
-    "                        eligible item outside the set, never-seen partners included);\n"
-    "                        one item's q-values are those of `pairmap pairs`, whose rows it\n"
-    "                        repeats\n"
+    "                        them. q-values come from Benjamini-Hochberg over the item's (or\n"
+    "                        the set's) own tests: one per eligible partner whose total, like\n"
+    "                        NAME's, reaches --min-count (never-seen partners included).\n"
+    "                        They are smaller than the q-values of `pairmap pairs`, which are\n"
+    "                        over all pairs. Only NAME's pairs are counted: memory grows with\n"
+    "                        the number of items, not of pairs\n"
     "  --top K               show the K best partners (default 10; 0 = all)\n"
-    "  --by KEY              rank by phi (default), lift, confidence or together. With --sign\n"
-    "                        positive the largest come first; with --sign negative the\n"
-    "                        smallest (the items least often found with NAME: likely\n"
-    "                        substitutes); with --sign both the strongest in either\n"
-    "                        direction (|phi|, |log lift|). Ties: partner name\n"
+    "  --by KEY              rank by phi (default), lift, confidence, together or lower (the\n"
+    "                        odds ratio's lower bound: the strongest pairing the data\n"
+    "                        support). With --sign positive the largest come first; with\n"
+    "                        --sign negative the smallest (the items least often found with\n"
+    "                        NAME: likely substitutes; `lower` then ranks by the upper bound,\n"
+    "                        smallest first); with --sign both the strongest in either\n"
+    "                        direction (|phi|, |log lift|, the bound further from 1). Ties:\n"
+    "                        q_value (smallest first), then together (largest first), then\n"
+    "                        the partner's name\n"
     "  --csv                 CSV on standard output, first column `partner`, numbers in full\n"
     "                        precision. Without it: an aligned text table (also when the output\n"
     "                        is not a terminal)\n"
@@ -46,13 +56,16 @@ static const char help[] =
     "\n";
 
 #define CSV_HEADER                                                                                 \
-    "partner,together,expected,confidence,confidence_low,confidence_high,lift,phi,q_value"
+    "partner,together,expected,confidence,confidence_low,confidence_high,lift,phi,q_value,"        \
+    "partner_respondents,reverse_confidence,odds_ratio,odds_ratio_low,odds_ratio_high"
 
-enum { BY_PHI = 0, BY_LIFT = 1, BY_CONFIDENCE = 2, BY_TOGETHER = 3 };
+enum { BY_PHI = 0, BY_LIFT = 1, BY_CONFIDENCE = 2, BY_TOGETHER = 3, BY_LOWER = 4 };
 
 typedef struct {
     uint32_t item;
     double together, expected, conf, lo, hi, lift, phi, q;
+    double total, rconf; /* the partner's own total, and together / total */
+    pm_oddsratio_t odds;
     double key;
     pm_strat_t st; /* within segments (--segment-col; one item only) */
     int has_st;
@@ -128,6 +141,12 @@ static int cmp_row(const void *p, const void *q) {
     if (a->key != b->key) {
         return a->key > b->key ? -1 : 1; /* larger key first; NaN never arises (finite) */
     }
+    if (a->q != b->q) { /* ties: the better supported first, then the more often seen */
+        return a->q < b->q ? -1 : 1;
+    }
+    if (a->together != b->together) {
+        return a->together > b->together ? -1 : 1;
+    }
     return strcmp(/* C compares as unsigned char: byte order */
                   g_rank_inc->name[a->item], g_rank_inc->name[b->item]);
 }
@@ -143,6 +162,14 @@ static double rank_key(const row *r, int by, pm_sign_t sign) {
         break;
     case BY_TOGETHER:
         v = r->together;
+        break;
+    case BY_LOWER: /* the bound nearer to 1: low for positive, high for negative */
+        v = sign == PM_SIGN_POSITIVE   ? r->odds.low
+            : sign == PM_SIGN_NEGATIVE ? r->odds.high
+                                       : fmax(log(r->odds.low), -log(r->odds.high));
+        if (isnan(v)) { /* no interval (weighted zero cell): last */
+            return -HUGE_VAL;
+        }
         break;
     default:
         v = sign == PM_SIGN_BOTH ? fabs(r->phi) : r->phi;
@@ -178,22 +205,22 @@ static void print_text(const pm_incidence_t *inc, const row *r, size_t n, bool w
     }
     fputs("partner", stdout);
     pad(w - strlen("partner"));
-    printf("  %9s  %9s  %-24s  %7s  %7s  %9s\n", "together", "expected",
-           "confidence (95% interval)", "lift", "phi", "q_value");
+    printf("  %9s  %9s  %9s  %-24s  %7s  %7s  %7s  %-26s  %9s\n", "chose it", "together",
+           "expected", "confidence (95% interval)", "reverse", "lift", "phi",
+           "odds ratio (95% interval)", "q_value");
     for (size_t i = 0; i < n; i++) {
         const char *name = pm_cli_shown(inc->name[r[i].item]);
         fputs(name, stdout);
         pad(w - display_width(name));
-        char conf[64];
+        char conf[64], odds[80];
         snprintf(conf, sizeof conf, "%5.1f%% [%4.1f, %4.1f]", 100 * r[i].conf, 100 * r[i].lo,
                  100 * r[i].hi);
-        if (weighted) {
-            printf("  %9.1f", r[i].together);
-        } else {
-            printf("  %9.0f", r[i].together);
-        }
-        printf("  %9.1f  %-24s  %7.2f  %7.3f  %9.2g\n", r[i].expected, conf, r[i].lift, r[i].phi,
-               r[i].q);
+        snprintf(odds, sizeof odds, "%.3g [%.3g, %.3g]", r[i].odds.estimate, r[i].odds.low,
+                 r[i].odds.high);
+        const char *f = weighted ? "  %9.1f  %9.1f" : "  %9.0f  %9.0f";
+        printf(f, r[i].total, r[i].together);
+        printf("  %9.1f  %-24s  %6.1f%%  %7.2f  %7.3f  %-26s  %9.2g\n", r[i].expected, conf,
+               100 * r[i].rconf, r[i].lift, r[i].phi, odds, r[i].q);
     }
 }
 
@@ -202,9 +229,11 @@ static void print_csv(const pm_incidence_t *inc, const row *r, size_t n, unsigne
     fputs(with_strat ? CSV_HEADER PM_STRAT_HEADER "\n" : CSV_HEADER "\n", stdout);
     for (size_t i = 0; i < n; i++) {
         pm_write_csv_field(stdout, inc->name[r[i].item], flags);
-        const double v[8] = {r[i].together, r[i].expected, r[i].conf, r[i].lo,
-                             r[i].hi,       r[i].lift,     r[i].phi,  r[i].q};
-        for (int k = 0; k < 8; k++) {
+        const double v[13] = {r[i].together, r[i].expected, r[i].conf,          r[i].lo,
+                              r[i].hi,       r[i].lift,     r[i].phi,           r[i].q,
+                              r[i].total,    r[i].rconf,    r[i].odds.estimate, r[i].odds.low,
+                              r[i].odds.high};
+        for (int k = 0; k < 13; k++) {
             fputc(',', stdout);
             pm_write_number(stdout, v[k]);
         }
@@ -227,32 +256,44 @@ static void print_csv(const pm_incidence_t *inc, const row *r, size_t n, unsigne
     }
 }
 
-/* The figures within segments (--segment-col) of the edges of e that hold item `first`, in
- * e's order: *st NULL without segments or with weights. Returns 0 or the exit status. */
-static int item_strat(const pm_cli_t *c, const pm_incidence_t *inc, const pm_pairs_t *pp,
-                      const pm_edges_t *e, uint32_t first, const pm_select_opts_t *sel,
-                      pm_strat_t **st) {
-    size_t nseg, ne = 0;
+/* The figures within segments (--segment-col) of the pairs (first, r[j].item), j < n, stored
+ * in the rows; nothing without segments or with weights (a note says so). Returns 0 or the
+ * exit status. */
+static int rows_strat(const pm_cli_t *c, const pm_incidence_t *inc, uint32_t first, row *r,
+                      size_t n, const pm_select_opts_t *sel) {
+    size_t nseg;
     const pm_segcol_t *seg = pm_cli_segcols(&nseg);
-    *st = NULL;
     if (nseg == 0) {
         return 0;
     }
-    size_t *mine = malloc((e->n ? e->n : 1) * sizeof *mine);
-    if (!mine) {
+    uint32_t *ab = malloc(2 * (n ? n : 1) * sizeof *ab);
+    size_t *idx = malloc((n ? n : 1) * sizeof *idx);
+    if (!ab || !idx) {
+        free(ab);
+        free(idx);
         fputs("pairmap: out of memory\n", stderr);
         return 4;
     }
-    for (size_t j = 0; j < e->n; j++) {
-        if (pp->a[e->idx[j]] == first || pp->b[e->idx[j]] == first) {
-            mine[ne++] = e->idx[j];
-        }
+    for (size_t j = 0; j < n; j++) {
+        ab[j] = first;
+        ab[n + j] = r[j].item;
+        idx[j] = j;
     }
+    pm_pairs_t pairs = {0}; /* only a and b are read (pm_stratified_edges) */
+    pairs.a = ab;
+    pairs.b = ab + n;
     pm_edges_t sub = {0};
-    sub.n = ne;
-    sub.idx = mine;
-    int rc = pm_cli_strat(c, inc, seg, nseg, pp, &sub, sel, st);
-    free(mine);
+    sub.n = n;
+    sub.idx = idx;
+    pm_strat_t *st = NULL;
+    int rc = pm_cli_strat(c, inc, seg, nseg, &pairs, &sub, sel, &st);
+    for (size_t j = 0; st && j < n; j++) {
+        r[j].st = st[j];
+        r[j].has_st = 1;
+    }
+    free(st);
+    free(ab);
+    free(idx);
     return rc;
 }
 
@@ -277,11 +318,13 @@ typedef struct {
     double w, w2;
     uint32_t *nb; /* [items] */
     double *wb;   /* [items] */
+    long one;     /* the item of a one-item anchor, -1 for a set */
 } anchor;
 
 static int anchor_scan(const pm_incidence_t *inc, const unsigned char *in_set, size_t k,
                        anchor *an) {
     memset(an, 0, sizeof *an);
+    an->one = -1;
     an->nb = calloc(inc->n_items ? inc->n_items : 1, sizeof *an->nb);
     an->wb = calloc(inc->n_items ? inc->n_items : 1, sizeof *an->wb);
     if (!an->nb || !an->wb) {
@@ -310,9 +353,9 @@ static int anchor_scan(const pm_incidence_t *inc, const unsigned char *in_set, s
     return 0;
 }
 
-/* The anchor of one item a: its totals from the incidence (exact weighted sums); the joint
- * counts are filled in from the listed pairs as they are used (the same with --from-counts,
- * whose incidence has no rows). */
+/* The anchor of one item a: its totals from the incidence (exact weighted sums), its joint
+ * counts with every item from one pass over the rows, or from the shard's pairs with
+ * --from-counts (pm_counts_item): memory in the number of items, never of pairs. */
 static int anchor_one(const pm_incidence_t *inc, uint32_t a, anchor *an) {
     memset(an, 0, sizeof *an);
     an->nb = calloc(inc->n_items ? inc->n_items : 1, sizeof *an->nb);
@@ -320,10 +363,13 @@ static int anchor_one(const pm_incidence_t *inc, uint32_t a, anchor *an) {
     if (!an->nb || !an->wb) {
         return 1;
     }
+    an->one = a;
     an->n = inc->count[a];
     an->w = inc->wcount ? inc->wcount[a] : (double)an->n;
     an->w2 = inc->w2count ? inc->w2count[a] : (double)an->n;
-    return 0;
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    return pm_counts_item(inc, a, pm_cli_given_counts(), an->nb, an->wb, &d) != PM_OK;
 }
 
 static void anchor_free(anchor *an) {
@@ -334,7 +380,9 @@ static void anchor_free(anchor *an) {
 /* Confidence n_ab / n_a with its Jeffreys interval (pm_assoc_confidence for one item; a set's
  * anchor sums otherwise). */
 static void confidence(const pm_incidence_t *inc, const anchor *an, uint32_t b, row *r) {
-    if (inc->weight) {
+    if (an->one >= 0) { /* the shared one of pairs and map.html */
+        pm_assoc_confidence(inc, (uint32_t)an->one, an->nb[b], an->wb[b], &r->conf, &r->lo, &r->hi);
+    } else if (inc->weight) {
         double neff = an->w2 > 0 ? an->w * an->w / an->w2 : 0;
         r->conf = an->wb[b] / an->w;
         pm_assoc_jeffreys(r->conf * neff, neff, 0.05, &r->lo, &r->hi);
@@ -365,6 +413,92 @@ static bool eligible(const pm_incidence_t *inc, size_t i, double min_share) {
     return inc->count[i] > 0 && inc->count[i] < inc->N && !(pm_incidence_share(inc, i) < min_share);
 }
 
+/* The row of partner b that passed, from its measures m. */
+static void fill_row(const pm_incidence_t *inc, const anchor *an, uint32_t b,
+                     const pm_measures_t *m, row *r) {
+    r->item = b;
+    r->together = pm_incidence_wunits(inc, m->together); /* the file's units */
+    r->expected = pm_incidence_wunits(inc, m->expected);
+    r->lift = m->lift;
+    r->phi = m->phi;
+    r->q = m->q;
+    confidence(inc, an, b, r);
+    if (inc->weight) {
+        r->total = pm_incidence_wunits(inc, inc->wcount[b]);
+        r->rconf = an->wb[b] / inc->wcount[b];
+        pm_oddsratio_weighted(inc->W, an->w, inc->wcount[b], an->wb[b], pm_incidence_neff(inc),
+                              &r->odds);
+    } else {
+        r->total = (double)inc->count[b];
+        r->rconf = (double)an->nb[b] / (double)inc->count[b];
+        pm_oddsratio_counts(inc->N, an->n, inc->count[b], an->nb[b], m->test, &r->odds);
+    }
+}
+
+/* The anchor's family (DESIGN.md): one test per eligible partner outside the set whose total,
+ * like the anchor's, reaches --min-count (pairs below it can never be reported: independent
+ * filtering on the totals); Benjamini-Hochberg over them; the partners that pass the
+ * selection become rows[0..*nrows). Returns 0 or 4 (out of memory). */
+static int score_partners(const pm_incidence_t *inc, const anchor *an, const unsigned char *in_set,
+                          const pm_select_opts_t *sel, row *rows, size_t *nrows, size_t *nfam) {
+    size_t n = inc->n_items ? inc->n_items : 1, nf = 0;
+    pm_measures_t *ms = malloc(n * sizeof *ms);
+    uint32_t *fam = malloc(n * sizeof *fam);
+    double *pv = malloc(n * sizeof *pv);
+    if (!ms || !fam || !pv) {
+        free(ms);
+        free(fam);
+        free(pv);
+        return 4;
+    }
+    double neff = pm_incidence_neff(inc);
+    bool anchor_in = an->n >= sel->min_count;
+    for (size_t b = 0; b < inc->n_items && anchor_in; b++) {
+        if (in_set[b] || !eligible(inc, b, sel->min_share) || inc->count[b] < sel->min_count) {
+            continue;
+        }
+        if (inc->weight) {
+            pm_assoc_weighted(inc->W, an->w, inc->wcount[b], an->wb[b], neff, sel->sign, &ms[nf]);
+        } else {
+            pm_assoc_counts(inc->N, an->n, inc->count[b], an->nb[b], sel->sign, &ms[nf]);
+        }
+        pv[nf] = ms[nf].p;
+        fam[nf++] = (uint32_t)b;
+    }
+    int rc = nf && pm_assoc_bh(pv, nf, pv) ? 4 : 0;
+    *nrows = 0;
+    for (size_t j = 0; j < nf && !rc; j++) {
+        ms[j].q = pv[j];
+        if (passes(sel, an->nb[fam[j]], &ms[j])) {
+            fill_row(inc, an, fam[j], &ms[j], &rows[(*nrows)++]);
+        }
+    }
+    *nfam = nf;
+    free(ms);
+    free(fam);
+    free(pv);
+    return rc;
+}
+
+/* The heading of the text table. */
+static void print_heading(const pm_cli_t *c, const pm_incidence_t *inc, const anchor *an,
+                          const unsigned char *in_set, const char *by, const pm_select_opts_t *sel,
+                          size_t nfam) {
+    double share = inc->weight ? an->w / inc->W : (double)an->n / (double)inc->N;
+    printf("Partners of ");
+    size_t shown_names = 0;
+    for (size_t i = 0; i < inc->n_items; i++) {
+        if (in_set[i]) {
+            printf("%s'%s'", shown_names++ ? " + " : "", pm_cli_shown(inc->name[i]));
+        }
+    }
+    printf(" (%llu of %llu %s, %.1f%%)", (unsigned long long)an->n, (unsigned long long)inc->N,
+           pm_cli_unit(c), 100 * share);
+    printf(", ranked by %s (ties: q, together, name); together >= %u, q <= %g over %zu tests, "
+           "%s associations\n",
+           by, sel->min_count, sel->max_q, nfam, pm_sign_name(sel->sign));
+}
+
 int pm_cmd_partners(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
@@ -386,7 +520,7 @@ int pm_cmd_partners(int argc, char **argv) {
     pm_select_opts_t sel;
     uint64_t top;
     int by;
-    static const char *const bys[] = {"phi", "lift", "confidence", "together", NULL};
+    static const char *const bys[] = {"phi", "lift", "confidence", "together", "lower", NULL};
     unsigned th;
     if (pm_cli_select_opts(&c, &sel) || pm_cli_uint(&c, "top", 10, 0, SIZE_MAX, &top) ||
         pm_cli_choice(&c, "by", bys, BY_PHI, &by) || pm_cli_threads(&c, &th)) {
@@ -395,11 +529,8 @@ int pm_cmd_partners(int argc, char **argv) {
     bool csv = pm_cli_flag(&c, "csv");
     pm_table_t *t = NULL;
     pm_incidence_t *inc = NULL;
-    pm_pairs_t *pp = NULL;
-    pm_edges_t *e = NULL;
     unsigned char *in_set = NULL;
     row *rows = NULL;
-    double *pv = NULL;
     anchor an = {0};
     size_t nrows = 0;
     rc = pm_cli_load(&c, &t, &inc, NULL);
@@ -447,100 +578,23 @@ int pm_cmd_partners(int argc, char **argv) {
         goto done;
     }
     rows = calloc(inc->n_items ? inc->n_items : 1, sizeof *rows);
-    pv = calloc(inc->n_items ? inc->n_items : 1, sizeof *pv);
-    if (!rows || !pv) {
+    if (!rows) {
         rc = 4;
         goto done;
     }
-    pm_diag_t d;
-    pm_diag_clear(&d);
-    if (k == 1) {
-        /* one item: the rows of `pairmap pairs` that contain it */
-        rc = pm_cli_score(&c, t, inc, &sel, &pp);
-        if (rc) {
-            goto done;
-        }
-        if (pm_select_run(pp, inc, &sel, &e, &d)) {
-            rc = pm_cli_fail(&d);
-            goto done;
-        }
-        pm_strat_t *st = NULL;
-        if ((rc = item_strat(&c, inc, pp, e, first, &sel, &st)) != 0) {
-            goto done;
-        }
-        for (size_t j = 0, me = 0; j < e->n; j++) {
-            size_t idx = e->idx[j];
-            if (pp->a[idx] != first && pp->b[idx] != first) {
-                continue;
-            }
-            if (st) {
-                rows[nrows].st = st[me];
-                rows[nrows].has_st = 1;
-            }
-            me++;
-            pm_measures_t m;
-            pm_pairs_measures(pp, inc, idx, &m);
-            row *r = &rows[nrows++];
-            r->item = pp->a[idx] == first ? pp->b[idx] : pp->a[idx];
-            r->together = m.together;
-            r->expected = m.expected;
-            r->lift = m.lift;
-            r->phi = m.phi;
-            r->q = m.q;
-            pm_assoc_confidence(inc, first, pp->n_ab[idx],
-                                pp->w_ab ? pp->w_ab[idx] : (double)pp->n_ab[idx], &r->conf, &r->lo,
-                                &r->hi);
-        }
-        free(st);
-    } else if (an.n == 0 || an.n >= inc->N) {
-        fprintf(stderr, "pairmap: %s: %s respondent chose all %zu items: no partner to rank\n", src,
-                an.n == 0 ? "no" : "every", k);
-    } else {
-        /* a set: one test per eligible item outside it, BH over these tests */
-        size_t nf = 0;
-        pm_measures_t *ms = malloc((inc->n_items ? inc->n_items : 1) * sizeof *ms);
-        uint32_t *fam = malloc((inc->n_items ? inc->n_items : 1) * sizeof *fam);
-        if (!ms || !fam) {
-            free(ms);
-            free(fam);
-            rc = 4;
-            goto done;
-        }
-        double neff = pm_incidence_neff(inc);
-        for (size_t b = 0; b < inc->n_items; b++) {
-            if (in_set[b] || !eligible(inc, b, sel.min_share)) {
-                continue;
-            }
-            if (inc->weight) {
-                pm_assoc_weighted(inc->W, an.w, inc->wcount[b], an.wb[b], neff, sel.sign, &ms[nf]);
-            } else {
-                pm_assoc_counts(inc->N, an.n, inc->count[b], an.nb[b], sel.sign, &ms[nf]);
-            }
-            pv[nf] = ms[nf].p;
-            fam[nf++] = (uint32_t)b;
-        }
-        if (nf && pm_assoc_bh(pv, nf, pv)) {
-            free(ms);
-            free(fam);
-            rc = 4;
-            goto done;
-        }
-        for (size_t j = 0; j < nf; j++) {
-            ms[j].q = pv[j];
-            if (!passes(&sel, an.nb[fam[j]], &ms[j])) {
-                continue;
-            }
-            row *r = &rows[nrows++];
-            r->item = fam[j];
-            r->together = pm_incidence_wunits(inc, ms[j].together); /* the file's units */
-            r->expected = pm_incidence_wunits(inc, ms[j].expected);
-            r->lift = ms[j].lift;
-            r->phi = ms[j].phi;
-            r->q = ms[j].q;
-            confidence(inc, &an, r->item, r);
-        }
-        free(ms);
-        free(fam);
+    size_t nfam = 0;
+    if (an.n == 0 || an.n >= inc->N) {
+        fprintf(stderr, "pairmap: %s: %s respondent chose all %zu items: no partner to rank\n",
+                pm_cli_shown(src), an.n == 0 ? "no" : "every", k);
+    } else if ((rc = score_partners(inc, &an, in_set, &sel, rows, &nrows, &nfam)) != 0) {
+        goto done;
+    }
+    if (an.n < sel.min_count) {
+        pm_cli_note(&c,
+                    "note: %s by fewer than --min-count (%u) %s: none of its pairs can be "
+                    "reported",
+                    k > 1 ? "the set was chosen" : "the item was chosen", sel.min_count,
+                    pm_cli_unit(&c));
     }
     for (size_t j = 0; j < nrows; j++) {
         rows[j].key = rank_key(&rows[j], by, sel.sign);
@@ -548,24 +602,15 @@ int pm_cmd_partners(int argc, char **argv) {
     g_rank_inc = inc;
     qsort(rows, nrows, sizeof *rows, cmp_row);
     size_t shown = top && top < nrows ? (size_t)top : nrows;
+    if (csv && k == 1 && (rc = rows_strat(&c, inc, first, rows, shown, &sel)) != 0) {
+        goto done; /* within segments: CSV only, one item only */
+    }
     if (csv) {
         size_t nseg;
         pm_cli_segcols(&nseg);
         print_csv(inc, rows, shown, pm_cli_csv_flags(&c), nseg > 0);
     } else {
-        double share = inc->weight ? an.w / inc->W : (double)an.n / (double)inc->N;
-        printf("Partners of ");
-        size_t shown_names = 0;
-        for (size_t i = 0; i < inc->n_items; i++) {
-            if (in_set[i]) {
-                printf("%s'%s'", shown_names++ ? " + " : "", pm_cli_shown(inc->name[i]));
-            }
-        }
-        printf(" (%llu of %llu %s, %.1f%%)", (unsigned long long)an.n, (unsigned long long)inc->N,
-               pm_cli_unit(&c), 100 * share);
-        printf(", ranked by %s; together >= %u, q <= %g, %s associations%s\n", bys[by],
-               sel.min_count, sel.max_q, pm_sign_name(sel.sign),
-               k > 1 ? " (q over this set's own tests)" : "");
+        print_heading(&c, inc, &an, in_set, bys[by], &sel, nfam);
         if (nrows == 0) {
             printf("no partner passes the selection\n");
         } else {
@@ -585,11 +630,8 @@ int pm_cmd_partners(int argc, char **argv) {
     rc = pm_cli_close_stdout();
 done:
     anchor_free(&an);
-    free(pv);
     free(rows);
     free(in_set);
-    pm_edges_free(e);
-    pm_pairs_free(pp);
     pm_incidence_free(inc);
     pm_table_free(t);
     return rc;

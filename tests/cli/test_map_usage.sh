@@ -38,7 +38,7 @@ CASES=$((CASES + 1))
     --item "Dark lager" --csv >"$TMP/out" 2>"$TMP/err"
 rc=$?
 [ "$rc" -eq 0 ] || fail "partners of a set nobody chose: exit $rc: $(cat "$TMP/err")"
-[ "$(cat "$TMP/out")" = "partner,together,expected,confidence,confidence_low,confidence_high,lift,phi,q_value" ] ||
+[ "$(cat "$TMP/out")" = "partner,together,expected,confidence,confidence_low,confidence_high,lift,phi,q_value,partner_respondents,reverse_confidence,odds_ratio,odds_ratio_low,odds_ratio_high" ] ||
     fail "partners of a set nobody chose: output $(head -3 "$TMP/out")"
 grep -q "no respondent chose all 4 items" "$TMP/err" || fail "partners of a set nobody chose: $(cat "$TMP/err")"
 

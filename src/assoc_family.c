@@ -32,6 +32,7 @@ void pm_pairs_free(pm_pairs_t *p) {
     free(p->q);
     free(p->test);
     free(p->eligible);
+    free(p->in_family);
     free(p->qp);
     free(p->qq);
     free(p);
@@ -310,7 +311,22 @@ static pm_err_t eligible_items(pm_assoc_stage_t *st) {
             pp->n_eligible++;
         }
     }
-    uint64_t E = pp->n_eligible;
+    /* the family (DESIGN.md): pairs of eligible items whose smaller total reaches min_count.
+     * A pair with a rarer item can never be seen together min_count times, so it can never
+     * be reported; the tests condition on the item totals, so leaving such pairs out keeps
+     * the false-discovery control (independent filtering: Bourgon, Gentleman & Huber 2010,
+     * PNAS 107:9546-9551) and gives the reportable pairs their power back. */
+    pp->in_family = pm_i_calloc(inc->n_items ? inc->n_items : 1, 1);
+    if (!pp->in_family) {
+        return PM_ENOMEM;
+    }
+    for (size_t i = 0; i < inc->n_items; i++) {
+        if (pp->eligible[i] && inc->count[i] >= st->o.min_count) {
+            pp->in_family[i] = 1;
+            pp->n_family++;
+        }
+    }
+    uint64_t E = pp->n_family;
     pp->hypotheses = E * (E - (E > 0)) / 2;
     return PM_OK;
 }
@@ -361,7 +377,7 @@ static void counts_options(pm_assoc_stage_t *st, pm_counts_opts_t *co) {
     pm_counts_opts_init(co);
     co->threads = st->threads;
     co->min_keep = o->min_count ? o->min_count : 1;
-    co->eligible = st->pp->eligible;
+    co->eligible = st->pp->in_family; /* a pair outside the family cannot reach min_count */
     co->prune = on_prune;
     co->prune_ud = &st->pc;
     co->kernel = o->kernel;
@@ -429,11 +445,11 @@ pm_err_t pm_assoc_begin(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_
 static void merge_unseen(pm_pairs_t *pp, const pm_incidence_t *inc, const pm_counts_t *cnt) {
     size_t k = 0, at = 0;
     for (uint32_t a = 0; a < inc->n_items; a++) {
-        if (!pp->eligible[a]) {
+        if (!pp->in_family[a]) {
             continue;
         }
         for (uint32_t b = a + 1; b < inc->n_items; b++) {
-            if (!pp->eligible[b]) {
+            if (!pp->in_family[b]) {
                 continue;
             }
             pp->a[at] = a;
@@ -572,7 +588,7 @@ static int cmp_item_total(const void *x, const void *y) {
 
 static pm_err_t classes_build(const pm_assoc_stage_t *st, item_classes *cl) {
     const pm_incidence_t *inc = st->inc;
-    size_t ne = (size_t)st->pp->n_eligible;
+    size_t ne = (size_t)st->pp->n_family;
     item_total *order = pm_i_malloc(ne ? ne : 1, sizeof *order);
     cl->cls = pm_i_malloc(inc->n_items ? inc->n_items : 1, sizeof *cl->cls);
     cl->csize = pm_i_calloc(ne ? ne : 1, sizeof *cl->csize);
@@ -583,7 +599,7 @@ static pm_err_t classes_build(const pm_assoc_stage_t *st, item_classes *cl) {
     }
     size_t w = 0;
     for (uint32_t i = 0; i < inc->n_items; i++) {
-        if (st->pp->eligible[i]) {
+        if (st->pp->in_family[i]) {
             order[w].w = inc->wcount ? inc->wcount[i] : 0;
             order[w].c = inc->count[i];
             order[w++].i = i;
@@ -831,7 +847,7 @@ void pm_pairs_measure_any(const pm_pairs_t *pp, const pm_incidence_t *inc, uint3
     } else {
         pm_assoc_counts(inc->N, inc->count[a], inc->count[b], nab, pp->sign, m);
     }
-    m->q = pm_pairs_qvalue(pp, m->p);
+    m->q = pp->in_family[a] && pp->in_family[b] ? pm_pairs_qvalue(pp, m->p) : NAN;
 }
 
 void pm_pairs_measures(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k,

@@ -253,6 +253,7 @@ static void run_pairs(pm_json_t *j, const pm_run_report_t *r) {
     const pm_edges_t *e = r->map->edges;
     pm_json_begin_object(j, "pairs");
     pm_json_uint(j, "tested", e->tested);
+    pm_json_uint(j, "family_items", r->map->pairs->n_family); /* items whose pairs form it */
     pm_json_uint(j, "seen_together", r->map->pairs->seen);
     pm_json_uint(j, "never_seen", e->never_seen);
     pm_json_uint(j, "kept", e->n);

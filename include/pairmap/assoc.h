@@ -2,8 +2,9 @@
  * (src/assoc.c). Definitions follow DESIGN.md: support, confidences, lift, phi, Jaccard,
  * expected count; Fisher's exact test where the smallest expected cell is below 5 (Cochran's
  * rule), else chi-square with 1 df without continuity correction; weighted input: chi-square
- * scaled by Kish's effective sample size; Benjamini-Hochberg q-values over every pair of
- * eligible items, pairs never seen together included. Distribution functions come from GSL. */
+ * scaled by Kish's effective sample size; Benjamini-Hochberg q-values over the family: every
+ * pair of eligible items whose smaller total reaches min_count (independent filtering on the
+ * totals), pairs never seen together included. Distribution functions come from GSL. */
 #ifndef PAIRMAP_ASSOC_H
 #define PAIRMAP_ASSOC_H
 
@@ -100,9 +101,11 @@ typedef struct {
     unsigned char *test; /* pm_test_t */
     pm_sign_t sign;
     /* the family */
-    unsigned char *eligible; /* per item */
+    unsigned char *eligible; /* per item: 0 < n < N and the share reaches min_share */
     size_t n_eligible;
-    uint64_t hypotheses;  /* n_eligible (n_eligible - 1) / 2 */
+    unsigned char *in_family; /* per item: eligible, and chosen by at least min_count */
+    size_t n_family;
+    uint64_t hypotheses;  /* the family: n_family (n_family - 1) / 2 pairs */
     uint64_t seen;        /* pairs seen together */
     uint64_t below_count; /* seen together fewer than min_count times: tested, not listed */
     uint64_t unseen;      /* pairs never seen together */
@@ -151,7 +154,8 @@ void pm_pairs_free(pm_pairs_t *p);
 
 /* All measures of listed pair k (q included). */
 void pm_pairs_measures(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k, pm_measures_t *m);
-/* Measures of any eligible pair (a, b) with joint counts nab/wab, q from the family. */
+/* Measures of any eligible pair (a, b) with joint counts nab/wab, q from the family (NaN for
+ * a pair outside it: not tested). */
 void pm_pairs_measure_any(const pm_pairs_t *pp, const pm_incidence_t *inc, uint32_t a, uint32_t b,
                           uint32_t nab, double wab, pm_measures_t *m);
 /* The q-value of a p-value of the family (the q of the largest family p-value <= p);

@@ -222,8 +222,14 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
                "--min-share)",
                s->inc->n_items, pp->excluded_none, pp->excluded_all, pp->excluded_share);
     }
-    printf("\npairs tested  %llu (%llu seen together)\n", (unsigned long long)e->tested,
+    printf("\npairs tested  %llu (%llu seen together)", (unsigned long long)e->tested,
            (unsigned long long)pp->seen);
+    if (pp->n_family != pp->n_eligible) { /* the family, DESIGN.md */
+        printf(": the family of pairs among the %zu items chosen by at least %u %s (the other "
+               "%zu cannot reach --min-count)",
+               pp->n_family, sel->min_count, c_unit, pp->n_eligible - pp->n_family);
+    }
+    printf("\n");
     /* never-seen pairs are listed (and go through the thresholds) only under --min-count 0
      * with --sign negative or both; otherwise they are a reason of their own */
     bool unseen_apart = e->never_seen && !(sel->min_count == 0 && sel->sign != PM_SIGN_POSITIVE);

@@ -191,12 +191,13 @@ int pm_cmd_pairs(int argc, char **argv) {
         goto done;
     }
     pm_cli_note(&c,
-                "%llu %s, %zu eligible items, %llu pairs tested, %llu seen together, "
+                "%llu %s, %zu eligible items, %llu pairs tested (the family: pairs of the %zu "
+                "items chosen by at least --min-count), %llu seen together, "
                 "%zu kept (removed: %llu below --min-count, %llu by --sign, %llu by --max-q, "
                 "%llu by --min-phi, %llu by --min-lift, %llu by --top-edges)",
                 (unsigned long long)inc->N, pm_cli_unit(&c), pp->n_eligible,
-                (unsigned long long)pp->hypotheses, (unsigned long long)pp->seen, e->n,
-                (unsigned long long)e->removed_count, (unsigned long long)e->removed_sign,
+                (unsigned long long)pp->hypotheses, pp->n_family, (unsigned long long)pp->seen,
+                e->n, (unsigned long long)e->removed_count, (unsigned long long)e->removed_sign,
                 (unsigned long long)e->removed_q, (unsigned long long)e->removed_phi,
                 (unsigned long long)e->removed_lift, (unsigned long long)e->removed_top);
     rc = pm_cli_close_stdout();

@@ -147,13 +147,16 @@ static void reverse_lookup(pm_pairs_t *pp, size_t nq) {
         t = pp->qq[i];
         pp->qq[i] = pp->qq[nq - 1 - i];
         pp->qq[nq - 1 - i] = t;
+        uint64_t r = pp->qr[i];
+        pp->qr[i] = pp->qr[nq - 1 - i];
+        pp->qr[nq - 1 - i] = r;
     }
     pp->nq = nq;
 }
 
 /* The walk: every p-value of the family from the largest down, the running minimum of
- * p m / rank; listed pairs get their q, and every value a listed pair or a group of never-seen
- * pairs holds is recorded for pm_pairs_qvalue. */
+ * p m / rank; listed pairs get their q, and every distinct value is recorded with its q for
+ * pm_pairs_qvalue and its rank for pm_pairs_prank. */
 static pm_err_t bh_walk(pm_pairs_t *pp, const pm_i_family *f) {
     size_t cap = 0;
     size_t il = f->nlv, ifl = f->npf, id = f->npd, ig = f->ngroups;
@@ -172,13 +175,11 @@ static pm_err_t bh_walk(pm_pairs_t *pp, const pm_i_family *f) {
         if (val < run) {
             run = val;
         }
-        int record = 0;
         uint64_t used = 0;
         while (il && f->lv[il - 1].p == v) {
             pp->q[f->lv[il - 1].i] = run;
             il--;
             used++;
-            record = 1;
         }
         while (ifl && f->pf[ifl - 1] == v) {
             ifl--;
@@ -191,16 +192,17 @@ static pm_err_t bh_walk(pm_pairs_t *pp, const pm_i_family *f) {
         while (ig && f->groups[ig - 1].p == v) {
             used += f->groups[ig - 1].mult;
             ig--;
-            record = 1;
         }
-        if (record) {
-            size_t c2 = cap;
+        { /* every distinct p: its q and its rank (pm_pairs_prank, explain) */
+            size_t c2 = cap, c3 = cap;
             if (nq >= cap && (pm_i_grow((void **)&pp->qp, &cap, nq + 1, sizeof *pp->qp) ||
-                              pm_i_grow((void **)&pp->qq, &c2, nq + 1, sizeof *pp->qq))) {
+                              pm_i_grow((void **)&pp->qq, &c2, nq + 1, sizeof *pp->qq) ||
+                              pm_i_grow((void **)&pp->qr, &c3, nq + 1, sizeof *pp->qr))) {
                 return PM_ENOMEM;
             }
             pp->qp[nq] = v;
             pp->qq[nq] = run;
+            pp->qr[nq] = rank; /* family p-values <= v */
             nq++;
         }
         rank = used <= rank ? rank - used : 0;

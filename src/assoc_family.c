@@ -35,6 +35,7 @@ void pm_pairs_free(pm_pairs_t *p) {
     free(p->in_family);
     free(p->qp);
     free(p->qq);
+    free(p->qr);
     free(p);
 }
 
@@ -819,6 +820,25 @@ double pm_pairs_qvalue(const pm_pairs_t *pp, double p) {
         return pp->qq[0];
     }
     return pp->qq[lo - 1];
+}
+
+uint64_t pm_pairs_prank(const pm_pairs_t *pp, double p) {
+    if (isnan(p) || pp->nq == 0) {
+        return 0;
+    }
+    if (p > pp->q_limit && pp->q_limit < 1) {
+        return pp->hypotheses; /* not ranked exactly: above the limit */
+    }
+    size_t lo = 0, hi = pp->nq; /* largest recorded p <= p */
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        if (pp->qp[mid] <= p) {
+            lo = mid + 1;
+        } else {
+            hi = mid;
+        }
+    }
+    return lo == 0 ? 0 : pp->qr[lo - 1];
 }
 
 long pm_pairs_find(const pm_pairs_t *pp, uint32_t a, uint32_t b) {

@@ -115,6 +115,7 @@ typedef struct {
     double t_count, t_measures; /* seconds */
     /* q-value lookup for any p of the family (sorted distinct p with their q) */
     double *qp, *qq;
+    uint64_t *qr; /* the number of family p-values <= qp[i] (its rank) */
     size_t nq;
     double q_limit; /* as in the options: q-values above it are only known to be so */
 } pm_pairs_t;
@@ -161,6 +162,9 @@ void pm_pairs_measure_any(const pm_pairs_t *pp, const pm_incidence_t *inc, uint3
 /* The q-value of a p-value of the family (the q of the largest family p-value <= p);
  * +INFINITY for p > q_limit. */
 double pm_pairs_qvalue(const pm_pairs_t *pp, double p);
+/* The rank of a p-value of the family: how many family p-values are at most p (0 for NaN;
+ * the family's size for p above q_limit, where ranks are not kept). */
+uint64_t pm_pairs_prank(const pm_pairs_t *pp, double p);
 /* Index of listed pair (a, b), a < b, or -1. */
 long pm_pairs_find(const pm_pairs_t *pp, uint32_t a, uint32_t b);
 

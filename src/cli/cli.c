@@ -16,10 +16,10 @@
 
 #define ALL                                                                                        \
     (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_UNFOLD | PM_CMD_COUNT |   \
-     PM_CMD_SEGMENTS)
-#define FROM_COUNTS (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS)
-#define SCORE (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS)
-#define SEGMENTED (SCORE | PM_CMD_SEGMENTS)
+     PM_CMD_SEGMENTS | PM_CMD_EXPLAIN)
+#define FROM_COUNTS (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_EXPLAIN)
+#define SCORE (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_EXPLAIN)
+#define SEGMENTED (PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_SEGMENTS)
 
 typedef struct {
     const char *name;
@@ -56,17 +56,17 @@ static const opt_def OPTS[] = {
     {"max-q", 0, 1, 0, SCORE},
     {"min-phi", 0, 1, 0, SCORE},
     {"min-lift", 0, 1, 0, SCORE},
-    {"top-edges", 0, 1, 0, PM_CMD_MAP | PM_CMD_PAIRS},
+    {"top-edges", 0, 1, 0, PM_CMD_MAP | PM_CMD_PAIRS | PM_CMD_EXPLAIN},
     {"sign", 0, 1, 0, SCORE},
-    {"measure", 0, 1, 0, PM_CMD_MAP | PM_CMD_PAIRS},
+    {"measure", 0, 1, 0, PM_CMD_MAP | PM_CMD_PAIRS | PM_CMD_EXPLAIN},
     /* map */
     {"output", 'o', 1, 0, PM_CMD_MAP | PM_CMD_COUNT},
     /* count shards */
     {"part", 0, 1, 0, PM_CMD_COUNT},
     {"from-counts", 0, 1, 0, FROM_COUNTS},
-    {"seed", 0, 1, 0, PM_CMD_MAP},
-    {"restarts", 0, 1, 0, PM_CMD_MAP},
-    {"resolution", 0, 1, 0, PM_CMD_MAP},
+    {"seed", 0, 1, 0, PM_CMD_MAP | PM_CMD_EXPLAIN},
+    {"restarts", 0, 1, 0, PM_CMD_MAP | PM_CMD_EXPLAIN},
+    {"resolution", 0, 1, 0, PM_CMD_MAP | PM_CMD_EXPLAIN},
     {"iterations", 0, 1, 0, PM_CMD_MAP},
     {"draw", 0, 1, 0, PM_CMD_MAP},
     {"title", 0, 1, 0, PM_CMD_MAP},
@@ -338,6 +338,13 @@ int pm_cli_parse(pm_cli_t *c, const char *command, unsigned cmd, int argc, char 
                 return pm_cli_usage_error(c, "unknown option '%s' for 'pairmap %s'", a, command);
             }
         } else {
+            if (c->input && cmd == PM_CMD_EXPLAIN && c->nargs < 3) {
+                /* explain INPUT A B: the words after INPUT (a third, with --from-counts,
+                 * shows up in the check below) */
+                c->args[c->nargs < 2 ? c->nargs : 1] = a;
+                c->nargs++;
+                continue;
+            }
             if (c->input) {
                 return pm_cli_usage_error(c, "more than one INPUT given ('%s' and '%s')", c->input,
                                           a);
@@ -368,6 +375,12 @@ int pm_cli_parse(pm_cli_t *c, const char *command, unsigned cmd, int argc, char 
         }
     }
     const char *fc = pm_cli_get(c, "from-counts");
+    if (fc && c->input && cmd == PM_CMD_EXPLAIN && c->nargs < 2) { /* the words are A B */
+        c->args[1] = c->nargs ? c->args[0] : NULL;
+        c->args[0] = c->input;
+        c->nargs++;
+        c->input = NULL;
+    }
     if (fc && c->input) {
         return pm_cli_usage_error(c, "give INPUT or --from-counts FILE.pmc, not both");
     }
@@ -788,6 +801,38 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
 
 int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
                  const pm_select_opts_t *sel, pm_pairs_t **pairs) {
+    /* every command shows only pairs with q <= --max-q: larger q-values need not be exact */
+    return pm_cli_score_q(c, t, inc, sel, sel->max_q, pairs);
+}
+
+/* The notes on items left out, and the error when fewer than 2 are eligible (returns 1). */
+static int report_eligible(const pm_cli_t *c, size_t none, size_t all, size_t share,
+                           size_t eligible) {
+    if (all) {
+        pm_cli_note(c,
+                    "note: %zu items chosen by all %s have no defined phi and are "
+                    "left out",
+                    all, pm_cli_unit(c));
+    }
+    if (none) {
+        pm_cli_note(c, "note: %zu items chosen by nobody are left out", none);
+    }
+    if (share) {
+        pm_cli_note(c, "note: %zu items below --min-share are left out", share);
+    }
+    if (eligible < 2) {
+        fprintf(stderr,
+                "pairmap: %s: only %zu eligible item%s (chosen by some but not all "
+                "%s); pairs need at least 2\n",
+                c->input[0] == '-' && !c->input[1] ? "stdin" : pm_cli_shown(c->input), eligible,
+                eligible == 1 ? "" : "s", pm_cli_unit(c));
+        return 1;
+    }
+    return 0;
+}
+
+int pm_cli_score_q(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
+                   const pm_select_opts_t *sel, double q_limit, pm_pairs_t **pairs) {
     pm_assoc_opts_t ao;
     pm_assoc_opts_init(&ao);
     ao.sign = sel->sign;
@@ -800,7 +845,7 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
     if (pm_cli_pair_test(c, &within)) {
         return 1;
     }
-    ao.q_limit = within ? 1.0 : sel->max_q;
+    ao.q_limit = within ? 1.0 : q_limit;
     if (pm_cli_threads(c, &ao.threads)) {
         return 1;
     }
@@ -844,24 +889,8 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
         return pm_cli_fail(&d);
     }
     const pm_pairs_t *pp = *pairs;
-    if (pp->excluded_all) {
-        pm_cli_note(c,
-                    "note: %zu items chosen by all %s have no defined phi and are "
-                    "left out",
-                    pp->excluded_all, pm_cli_unit(c));
-    }
-    if (pp->excluded_none) {
-        pm_cli_note(c, "note: %zu items chosen by nobody are left out", pp->excluded_none);
-    }
-    if (pp->excluded_share) {
-        pm_cli_note(c, "note: %zu items below --min-share are left out", pp->excluded_share);
-    }
-    if (pp->n_eligible < 2) {
-        fprintf(stderr,
-                "pairmap: %s: only %zu eligible item%s (chosen by some but not all "
-                "%s); pairs need at least 2\n",
-                c->input[0] == '-' && !c->input[1] ? "stdin" : pm_cli_shown(c->input),
-                pp->n_eligible, pp->n_eligible == 1 ? "" : "s", pm_cli_unit(c));
+    if (report_eligible(c, pp->excluded_none, pp->excluded_all, pp->excluded_share,
+                        pp->n_eligible)) {
         pm_pairs_free(*pairs);
         *pairs = NULL;
         return 2;
@@ -872,6 +901,22 @@ int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
         *pairs = NULL;
     }
     return wrc;
+}
+
+int pm_cli_check_eligible(const pm_cli_t *c, const pm_incidence_t *inc, double min_share) {
+    size_t none = 0, all = 0, share = 0, ok = 0;
+    for (size_t i = 0; i < inc->n_items; i++) {
+        if (inc->count[i] == 0) {
+            none++;
+        } else if (inc->count[i] >= inc->N) {
+            all++;
+        } else if (pm_incidence_share(inc, i) < min_share) {
+            share++;
+        } else {
+            ok++;
+        }
+    }
+    return report_eligible(c, none, all, share, ok) ? 2 : 0;
 }
 
 int pm_cli_close_stdout(void) {

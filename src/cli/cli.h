@@ -29,6 +29,7 @@ enum {
     PM_CMD_UNFOLD = 16,
     PM_CMD_COUNT = 32,
     PM_CMD_SEGMENTS = 64,
+    PM_CMD_EXPLAIN = 128,
 };
 
 #define PM_CLI_MAX_VALUES 256
@@ -44,6 +45,9 @@ typedef struct {
         const char *vals[PM_CLI_MAX_VALUES];
         size_t n;
     } opt[96];
+    /* `explain`: the positional words after INPUT (the two item names) */
+    const char *args[2];
+    size_t nargs;
 } pm_cli_t;
 
 /* Parses argv after the command name. Returns 0, or the exit status to leave with (1 for a
@@ -125,6 +129,14 @@ int pm_cli_max_memory(const pm_cli_t *c, uint64_t *bytes);
  * and serve as the counting's scratch memory: t has no rows afterwards. */
 int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
                  const pm_select_opts_t *sel, pm_pairs_t **pairs);
+/* The same with the q limit given (pm_assoc_opts_t.q_limit; pm_cli_score uses --max-q). */
+int pm_cli_score_q(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
+                   const pm_select_opts_t *sel, double q_limit, pm_pairs_t **pairs);
+
+/* The notes on items left out (chosen by nobody, by everyone, below min_share) and the error
+ * when fewer than 2 items are eligible, as pm_cli_score prints them, without scoring. Returns
+ * 0 or 2. */
+int pm_cli_check_eligible(const pm_cli_t *c, const pm_incidence_t *inc, double min_share);
 
 /* ---- segments (src/cli/cli_segments.c) ---- */
 /* Reads the run's segment columns (--segment-col, and the columns --only-segment names) from
@@ -189,6 +201,7 @@ int pm_cmd_unfold(int argc, char **argv);
 int pm_cmd_count(int argc, char **argv);
 int pm_cmd_segments(int argc, char **argv);
 int pm_cmd_merge(int argc, char **argv);
+int pm_cmd_explain(int argc, char **argv);
 
 /* The picture step of `map` (src/cli/map_html.c): the SVG of svg/svg_opts to svg_fp and,
  * unless --no-html, DIR/map.html (created in od and finished there) around the same SVG

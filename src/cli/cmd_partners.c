@@ -565,6 +565,9 @@ int pm_cmd_partners(int argc, char **argv) {
             }
         }
     }
+    if ((rc = pm_cli_check_eligible(&c, inc, sel.min_share)) != 0) {
+        goto done;
+    }
     if (pm_cli_given_counts() && k > 1) { /* --from-counts holds pairs, not rows */
         rc = pm_cli_usage_error(&c,
                                 "partners of a set of %zu items need the respondents' rows "

@@ -21,6 +21,8 @@ static const char usage[] =
     "  pairmap merge    A.pmc B.pmc ... -o F.pmc  the sum of count shards\n"
     "  pairmap segments INPUT --segment-col COL  item shares by segment: intervals,\n"
     "                                            shrinkage, tests, trends\n"
+    "  pairmap explain  INPUT A B [options]      one pair: its table, test, rank, q, and\n"
+    "                                            the threshold that kept or removed it\n"
     "  pairmap --version | --help | COMMAND --help\n"
     "\n"
     "INPUT is a CSV file or - for standard input. Data goes to standard output, notes to\n"
@@ -49,7 +51,7 @@ int main(int argc, char **argv) {
     } cmds[] = {
         {"map", pm_cmd_map},     {"partners", pm_cmd_partners}, {"pairs", pm_cmd_pairs},
         {"items", pm_cmd_items}, {"unfold", pm_cmd_unfold},     {"count", pm_cmd_count},
-        {"merge", pm_cmd_merge}, {"segments", pm_cmd_segments},
+        {"merge", pm_cmd_merge}, {"segments", pm_cmd_segments}, {"explain", pm_cmd_explain},
     };
     for (size_t i = 0; i < sizeof cmds / sizeof cmds[0]; i++) {
         if (strcmp(cmd, cmds[i].name) == 0) {
@@ -64,7 +66,7 @@ int main(int argc, char **argv) {
     }
     fprintf(stderr,
             "pairmap: unknown command '%s'; the commands are map, partners, pairs, "
-            "items, unfold, count, merge, segments (see pairmap --help)\n",
+            "items, unfold, count, merge, segments, explain (see pairmap --help)\n",
             pm_cli_shown(cmd));
     return 1;
 }

@@ -70,7 +70,7 @@ usage map "--iterations expects a whole number" "$D" -o "$TMP/m" --iterations -5
 usage map "--draw expects a whole number" "$D" -o "$TMP/m" --draw -5
 usage map "--color-by expects one of cluster, category, got 'size'" "$D" -o "$TMP/m" --color-by size
 usage partners "--top expects a whole number >= 0, got '-1'" "$D" --item Espresso --top -1
-usage partners "--by expects one of phi, lift, confidence, together, got 'size'" "$D" --item Espresso --by size
+usage partners "--by expects one of phi, lift, confidence, together, lower, got 'size'" "$D" --item Espresso --by size
 [ -e "$TMP/m" ] && fail "a usage error created the output directory"
 
 # ---- missing -------------------------------------------------------------------------------------

@@ -58,7 +58,7 @@ def outputs(path):
         o["map " + f] = open(os.path.join(d, f), encoding="utf-8").read() if os.path.exists(os.path.join(d, f)) else ""
     return o
 
-SCALED = {"together", "expected"}  # weighted sums: in the weights' units
+SCALED = {"together", "expected", "partner_respondents"}  # weighted sums: in the weights' units
 
 def compare(name, a, b, factor, exact):
     ra, rb = list(csv.reader(io.StringIO(a))), list(csv.reader(io.StringIO(b)))

@@ -79,6 +79,7 @@ static const opt_def OPTS[] = {
     {"top", 0, 1, 0, PM_CMD_PARTNERS},
     {"by", 0, 1, 0, PM_CMD_PARTNERS},
     {"csv", 0, 0, 0, PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS},
+    {"family", 0, 1, 0, PM_CMD_PARTNERS},
     {"sort", 0, 1, 0, PM_CMD_PAIRS | PM_CMD_ITEMS},
     /* segments */
     {"segment-col", 0, 1, 1, SEGMENTED},

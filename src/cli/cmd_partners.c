@@ -33,6 +33,10 @@ static const char help[] =
     "                        They are smaller than the q-values of `pairmap pairs`, which are\n"
     "                        over all pairs. Only NAME's pairs are counted: memory grows with\n"
     "                        the number of items, not of pairs\n"
+    "  --family F            item (default: q over NAME's own tests, as above) or all: q over\n"
+    "                        the family of `pairmap pairs` and the map, whose rows with NAME\n"
+    "                        it then repeats (the map's page shows these); memory and time\n"
+    "                        as for `pairs`. One --item only\n"
     "  --top K               show the K best partners (default 10; 0 = all)\n"
     "  --by KEY              rank by phi (default), lift, confidence, together or lower (the\n"
     "                        odds ratio's lower bound: the strongest pairing the data\n"
@@ -480,6 +484,41 @@ static int score_partners(const pm_incidence_t *inc, const anchor *an, const uns
     return rc;
 }
 
+/* --family all: the rows of `pairmap pairs` (the map's family and q-values) that contain
+ * item a, from scoring every pair (memory in pairs). Returns 0 or an exit status. */
+static int map_partners(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc, anchor *an,
+                        uint32_t a, const pm_select_opts_t *sel, row *rows, size_t *nrows,
+                        size_t *nfam) {
+    pm_pairs_t *pp = NULL;
+    pm_edges_t *e = NULL;
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    int rc = pm_cli_score(c, t, inc, sel, &pp);
+    if (!rc && pm_select_run(pp, inc, sel, &e, &d)) {
+        rc = pm_cli_fail(&d);
+    }
+    for (size_t j = 0; !rc && j < e->n; j++) {
+        size_t idx = e->idx[j];
+        if (pp->a[idx] != a && pp->b[idx] != a) {
+            continue;
+        }
+        pm_measures_t m;
+        pm_pairs_measures(pp, inc, idx, &m);
+        uint32_t b = pp->a[idx] == a ? pp->b[idx] : pp->a[idx];
+        an->nb[b] = pp->n_ab[idx]; /* the same counts as pm_counts_item gave */
+        row *r = &rows[(*nrows)++];
+        fill_row(inc, an, b, &m, r);
+        r->together = m.together; /* pm_pairs_measures gives the file's units already */
+        r->expected = m.expected;
+    }
+    if (!rc) {
+        *nfam = (size_t)(pp->hypotheses < SIZE_MAX ? pp->hypotheses : SIZE_MAX);
+    }
+    pm_edges_free(e);
+    pm_pairs_free(pp);
+    return rc;
+}
+
 /* The heading of the text table. */
 static void print_heading(const pm_cli_t *c, const pm_incidence_t *inc, const anchor *an,
                           const unsigned char *in_set, const char *by, const pm_select_opts_t *sel,
@@ -527,6 +566,12 @@ int pm_cmd_partners(int argc, char **argv) {
         return 1;
     }
     bool csv = pm_cli_flag(&c, "csv");
+    static const char *const fams[] = {"item", "all", NULL};
+    int famc;
+    if (pm_cli_choice(&c, "family", fams, 0, &famc)) {
+        return 1;
+    }
+    bool fam_all = famc == 1;
     pm_table_t *t = NULL;
     pm_incidence_t *inc = NULL;
     unsigned char *in_set = NULL;
@@ -568,6 +613,11 @@ int pm_cmd_partners(int argc, char **argv) {
     if ((rc = pm_cli_check_eligible(&c, inc, sel.min_share)) != 0) {
         goto done;
     }
+    if (fam_all && k > 1) {
+        rc = pm_cli_usage_error(&c, "--family all applies to one --item (a set's q-values are "
+                                    "over its own tests)");
+        goto done;
+    }
     if (pm_cli_given_counts() && k > 1) { /* --from-counts holds pairs, not rows */
         rc = pm_cli_usage_error(&c,
                                 "partners of a set of %zu items need the respondents' rows "
@@ -589,6 +639,10 @@ int pm_cmd_partners(int argc, char **argv) {
     if (an.n == 0 || an.n >= inc->N) {
         fprintf(stderr, "pairmap: %s: %s respondent chose all %zu items: no partner to rank\n",
                 pm_cli_shown(src), an.n == 0 ? "no" : "every", k);
+    } else if (fam_all) {
+        if ((rc = map_partners(&c, t, inc, &an, first, &sel, rows, &nrows, &nfam)) != 0) {
+            goto done;
+        }
     } else if ((rc = score_partners(inc, &an, in_set, &sel, rows, &nrows, &nfam)) != 0) {
         goto done;
     }

@@ -2,7 +2,8 @@
 CLI's own documented outputs, its escaping against hostile names, and its offline promise.
 
 References, outside the page's code:
-- `pairmap partners INPUT --item X --csv --top 0` (with --min-phi / --max-q for the filters):
+- `pairmap partners INPUT --family all --item X --csv --top 0` (the map's family of tests; with
+  --min-phi / --max-q for the filters):
   the documented ranked partner list the side panel must repeat, row for row, number for
   number (the page's data-v attributes parse to the same doubles as the CSV's numbers);
 - `pairmap pairs INPUT --min-phi F` and edges.csv: which edges a filter keeps;
@@ -177,7 +178,7 @@ def back_confidence(dom, item, rows, what):
     """The 'back' column: confidence of the partner towards the item, which is the
     confidence column of `partners --item PARTNER` on the item's row."""
     for r in rows[:3]:
-        ref = cli_csv(["partners", DEMO, "--item", r["name"], "--csv", "--top", "0", "-q"])
+        ref = cli_csv(["partners", DEMO, "--family", "all", "--item", r["name"], "--csv", "--top", "0", "-q"])
         want = [x for x in ref if x["partner"] == item]
         g = r["cells"].get("confidence_back", {}).get("data-v")
         check(want and g is not None and float(g) == float(want[0]["confidence"]),
@@ -193,7 +194,7 @@ def item_view(page, item, extra_frag="", cli_extra=(), what=None):
     dom.raw = raw
     if not ready(dom, what):
         return dom, []
-    ref = cli_csv(["partners", DEMO, "--item", item, "--csv", "--top", "0", "-q"] +
+    ref = cli_csv(["partners", DEMO, "--family", "all", "--item", item, "--csv", "--top", "0", "-q"] +
                   list(cli_extra))
     check(len(ref) > 0, "%s: the reference lists no partner (a test that cannot fail)" % what)
     h = dom.by_id("pm-item")
@@ -243,7 +244,7 @@ def main():
     item_view(page, "Apple strudel, warm")
     # the threshold is the phi of its second partner, to the last digit: a pair at the
     # threshold stays (|phi| >= F, as --min-phi)
-    thr = cli_csv(["partners", DEMO, "--item", "Crème caramel", "--csv", "--top", "0",
+    thr = cli_csv(["partners", DEMO, "--family", "all", "--item", "Crème caramel", "--csv", "--top", "0",
                    "-q"])[1]["phi"]
     d3, _ = item_view(page, "Crème caramel", "&phi=" + thr, ["--min-phi", thr])
     # the filter hides exactly the edges that `pairs --min-phi F` leaves out
@@ -477,7 +478,7 @@ def weighted_both(out):
     opts = ["--weight-col", "weight", "--sign", "both", "--min-count", "3"]
     run([PAIRMAP, "map", src, "-o", out, "-q"] + opts)
     page = os.path.join(out, "map.html")
-    ref = cli_csv(["partners", src, "--item", "Espresso", "--csv", "--top", "0", "-q"] + opts)
+    ref = cli_csv(["partners", src, "--family", "all", "--item", "Espresso", "--csv", "--top", "0", "-q"] + opts)
     check(any(float(r["phi"]) < 0 for r in ref) and any(float(r["phi"]) > 0 for r in ref),
           "weighted --sign both: the reference needs partners of both signs")
     for frag, want in (("", ref), ("&neg=0", [r for r in ref if float(r["phi"]) > 0])):
@@ -535,7 +536,7 @@ def hostile(out):
               "the title is not shown as text: %r" % (title and text(title[0])))
         # the panel's partners are those of `partners --csv` (names as text, in order), and
         # the item and each of them is lit in the picture
-        ref = cli_csv(["partners", src, "--item", name, "--csv", "--csv-raw", "--top", "0",
+        ref = cli_csv(["partners", src, "--family", "all", "--item", name, "--csv", "--csv-raw", "--top", "0",
                        "-q"])
         got = [r["name"] for r in panel_rows(dom, "pm-partners")]
         check(got == [r["partner"] for r in ref] and got,

@@ -216,6 +216,16 @@ def main():
                           (r["together"], r["expected"], r["confidence"], r["lift"], r["phi"],
                            r["odds_ratio"], r["odds_ratio_low"], r["odds_ratio_high"]),
                           want[r["partner"]], f"{label}: {r['partner']}")
+            # --family all: exactly the rows of `pairs` (same options) with the item, q included
+            fam_all = partners(["--item", item, "--family", "all"] + opts)
+            prow = C.read_csv(C.run(["pairs", DEMO, "-q"] + opts), C.PAIR_COLUMNS)
+            wantq = {}
+            for r in prow.itertuples(index=False):
+                if item in (r.item_a, r.item_b):
+                    wantq[r.item_b if r.item_a == item else r.item_a] = (r.together, r.q_value)
+            chk.equal("--family all: partners == rows of pairs with the item (together, q)",
+                      {r["partner"]: (r["together"], r["q_value"]) for r in fam_all}, wantq,
+                      label)
             top3 = C.run(["partners", DEMO, "-q", "--csv", "--top", "3", "--item", item] + opts)
             chk.equal("--top 3 is the first 3 rows", [r["partner"] for r in
                                                       csv.DictReader(io.StringIO(top3))],

@@ -713,6 +713,31 @@ static void raw_labels(netrun *nr) {
     }
 }
 
+/* Every run's labels over all n vertices (isolated ones: a label of their own, as raw), for
+ * the cluster-wise stability and the debug output of the runs (pm_clusters_t.runs). */
+static pm_err_t keep_runs(netrun *nr) {
+    const pm_i_usable *u = &nr->u;
+    pm_clusters_t *c = nr->c;
+    unsigned R = c->restarts;
+    size_t n = c->n;
+    if (u->me == 0 || R < 2) {
+        return PM_OK;
+    }
+    c->runs = pm_i_malloc((size_t)R * (n ? n : 1), sizeof *c->runs);
+    if (!c->runs) {
+        return PM_ENOMEM;
+    }
+    for (unsigned r = 0; r < R; r++) {
+        size_t iso = 0;
+        for (size_t i = 0; i < n; i++) {
+            c->runs[(size_t)r * n + i] = u->newid[i] != UINT32_MAX
+                                             ? nr->memb[(size_t)r * u->nv + u->newid[i]]
+                                             : (uint32_t)(u->nv + iso++);
+        }
+    }
+    return PM_OK;
+}
+
 /* The layout's share (when it was left for after the clustering) and the layout itself. */
 static pm_err_t layout_done(netrun *nr, int layout, double *xy, pm_diag_t *diag) {
     if (nr->cw.ns > nr->n_restart_shares) {
@@ -801,7 +826,13 @@ pm_err_t pm_i_network_call(pm_i_network_hooks_t *h, size_t n, size_t m, const ui
     }
     if (rc == PM_OK) {
         raw_labels(&nr);
+        rc = keep_runs(&nr);
+    }
+    if (rc == PM_OK) {
         rc = pm_i_finish_clusters(nr.c, o, nr.raw, diag);
+    }
+    if (rc == PM_OK) {
+        rc = pm_i_cluster_stability(nr.c, diag);
     }
     if (rc == PM_OK) {
         rc = layout_done(&nr, layout, xy, diag);

@@ -48,6 +48,10 @@ typedef struct {
 /* hooks with no fault */
 void pm_i_network_hooks_init(pm_i_network_hooks_t *h);
 
+/* Fills c->cluster_stability (see pm_clusters_t) from c->runs and the kept run
+ * (src/clusterstab.c). Errors: PM_ENOMEM. */
+pm_err_t pm_i_cluster_stability(pm_clusters_t *c, pm_diag_t *diag);
+
 /* pm_cluster_louvain (layout 0) and pm_network_run (layout 1, xy[2n]) with the hooks h. */
 pm_err_t pm_i_network_call(pm_i_network_hooks_t *h, size_t n, size_t m, const uint32_t *ea,
                            const uint32_t *eb, const double *w, const pm_cluster_opts_t *o,

@@ -42,6 +42,8 @@ void pm_clusters_free(pm_clusters_t *c) {
     free(c->strength);
     free(c->inner);
     free(c->restart_q);
+    free(c->runs);
+    free(c->cluster_stability);
     free(c);
 }
 

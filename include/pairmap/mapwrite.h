@@ -59,6 +59,17 @@ typedef struct {
  * of it). */
 pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag);
 
+/* The clusters.csv columns of DESIGN.md (contract). */
+#define PM_CLUSTERS_HEADER                                                                         \
+    "cluster,name,size,share_of_items,internal_weight,modularity_share,stability,members"
+
+/* clusters.csv: one row per cluster (1 = the largest), singletons included: its name
+ * (pm_cluster_name), size, share of the map's items, internal weight (the sum of the weights
+ * of its kept positive pairs), modularity_share (its term e_c - resolution a_c^2 of the
+ * modularity over the modularity: the shares add up to 1; NaN without edges), stability
+ * (pm_clusters_t.cluster_stability) and its members joined by "; ", leading ones first. */
+pm_err_t pm_write_clusters_csv(FILE *fp, const pm_map_t *map, double resolution, pm_diag_t *diag);
+
 /* map.graphml: GraphML 1.0, undirected, node ids n0.. in vertex order, typed keys with distinct
  * ids (v_* for nodes, e_* for edges, g_* for the graph): node data name, category,
  * respondents, share, cluster, x, y; edge data together, phi, lift, jaccard, q_value, weight.

@@ -122,6 +122,14 @@ typedef struct {
     unsigned restarts;
     unsigned best_restart; /* index of the kept run (highest modularity, ties: lowest) */
     double *restart_q;     /* [restarts] modularity of each run */
+    /* [restarts * n] every run's community labels, run r at runs[r * n ..] (arbitrary label
+     * values; isolated vertices a label of their own); NULL with one restart or no edge */
+    uint32_t *runs;
+    /* [n_clusters] cluster-wise stability (Hennig 2007, Comput. Stat. Data Anal. 52:258-271):
+     * for cluster c+1 of the kept run, the mean over the other runs of the best Jaccard
+     * overlap |C & D| / |C | D| with one of their communities D; 1 for every cluster when no
+     * edge took part, NaN with one restart */
+    double *cluster_stability;
 } pm_clusters_t;
 
 /* The name of cluster c (0-based: cluster c + 1) for people: its PM_CLUSTER_NAME_MEMBERS most

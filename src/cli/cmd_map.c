@@ -25,20 +25,27 @@ static const char help[] =
     "               weight)\n"
     "  map.svg      the picture, for a report\n"
     "  map.html     the same picture in one offline page to explore in a browser: find an\n"
-    "               item, its partners with the numbers of `pairmap partners`, clusters,\n"
-    "               phi and q filters, zoom; the view is kept in the address's #fragment\n"
-    "               (item=NAME, cluster=N, phi=F, q=F); nothing is fetched from anywhere\n"
+    "               item, its partners with the numbers of `pairmap partners --family\n"
+    "               all`, clusters, phi and q filters, zoom; the view is kept in the\n"
+    "               address's #fragment (item=NAME, cluster=N, phi=F, q=F); nothing is\n"
+    "               fetched from anywhere\n"
     "  edges.csv    the kept pairs, columns as `pairmap pairs`\n"
     "  nodes.csv    " PM_NODES_HEADER "\n"
     "               (one row per eligible item; rows by cluster, then share descending,\n"
     "               then name; x, y in the unit box, items without edges on a ring outside)\n"
+    "  clusters.csv " PM_CLUSTERS_HEADER "\n"
+    "               (one row per cluster; stability: for each cluster, the mean over the\n"
+    "               other Louvain runs of its best Jaccard overlap with one of their\n"
+    "               clusters, Hennig 2007: near 1 solid, low an accident of the run)\n"
     "  run.json     version, options, input size and SHA-256, counts, pairs removed by each\n"
     "               threshold, clusters, modularity, stability, and seconds per stage under\n"
     "               \"timings\" (the one part that differs between identical runs)\n"
     "A summary goes to standard output. DIR is created if missing. Every file is written to a\n"
     "temporary file in DIR first and all are renamed into place only when all are complete:\n"
     "a failed or interrupted run leaves the files already in DIR untouched.\n"
-    "\n"
+    "\n";
+
+static const char help_network[] =
     "Network:\n"
     "  -o, --output DIR      output directory (required)\n"
     "  --seed N              seed of the clustering and the layout (default 1)\n"
@@ -332,7 +339,8 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
                    "holds all)");
         }
     }
-    printf("\nwritten       %s/: map.graphml, map.svg,%s edges.csv, nodes.csv, run.json%s\n",
+    printf("\nwritten       %s/: map.graphml, map.svg,%s edges.csv, nodes.csv, clusters.csv, "
+           "run.json%s\n",
            pm_cli_shown(no->dir), no->html ? " map.html," : "",
            s->seg.n ? ", segments.csv, segments.svg" : "");
 }
@@ -364,9 +372,9 @@ static int net_options(const pm_cli_t *c, net_opts *no) {
 int pm_cmd_map(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s%s%s%s%s%s\n%s%s%s", help, pm_cli_input_help, pm_cli_only_help,
-             pm_cli_segment_help, pm_cli_basket_help, pm_cli_memory_help, pm_cli_csv_help,
-             pm_cli_select_help, pm_cli_edge_help, pm_cli_mapseg_help);
+    snprintf(full, sizeof full, "%s%s%s%s%s%s%s%s\n%s%s%s", help, help_network, pm_cli_input_help,
+             pm_cli_only_help, pm_cli_segment_help, pm_cli_basket_help, pm_cli_memory_help,
+             pm_cli_csv_help, pm_cli_select_help, pm_cli_edge_help, pm_cli_mapseg_help);
     int rc = pm_cli_parse(&c, "map", PM_CMD_MAP, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;

@@ -49,17 +49,17 @@ static void json_segments(pm_json_t *j, const void *ud) {
 }
 
 static const char *const files[] = {"map.graphml", "map.svg", "edges.csv", "nodes.csv", "run.json"};
-static const char *const files_html[] = {"map.graphml", "map.svg",   "map.html",
-                                         "edges.csv",   "nodes.csv", "run.json"};
+static const char *const files_html[] = {"map.graphml", "map.svg",      "map.html", "edges.csv",
+                                         "nodes.csv",   "clusters.csv", "run.json"};
 
 static pm_err_t write_run_json(FILE *fp, const pm_cli_t *c, const net_opts *no,
                                const pm_select_opts_t *sel, const run_state *s, const pm_map_t *map,
                                pm_diag_t *d) {
     static const char *const formats[] = {"long", "lines", "wide"};
     json_ud ud = {c, s};
-    const char *names[8];
+    const char *names[9];
     size_t nf = 0;
-    for (size_t k = 0; k < 6; k++) {
+    for (size_t k = 0; k < 7; k++) {
         if (k != 2 || no->html) {
             names[nf++] = files_html[k];
         }
@@ -170,6 +170,30 @@ typedef struct {
     pm_err_t *rc_graphml, *rc_nodes;
     pm_diag_t *d_graphml, *d_nodes;
 } side_job;
+
+/* PM_DEBUG_RUNS=FILE (for the reference checks, tests/ref/cluster_stability.py): every
+ * Louvain run's community labels, one line per item: item, then one label per run, and a
+ * first line naming the kept run. Not part of the output directory, not atomic. */
+static void debug_runs(const run_state *s) {
+    const char *path = getenv("PM_DEBUG_RUNS");
+    const pm_clusters_t *cl = s->cl;
+    if (!path || !*path || !cl->runs) {
+        return;
+    }
+    FILE *f = fopen(path, "w");
+    if (!f) {
+        return;
+    }
+    fprintf(f, "kept,%u\n", cl->best_restart);
+    for (size_t v = 0; v < s->n; v++) {
+        pm_write_csv_field(f, s->names[v], PM_CSV_RAW);
+        for (unsigned r = 0; r < cl->restarts; r++) {
+            fprintf(f, ",%u", cl->runs[(size_t)r * s->n + v]);
+        }
+        fputc('\n', f);
+    }
+    fclose(f);
+}
 
 static void *side_writer(void *arg) {
     side_job *j = arg;
@@ -406,12 +430,20 @@ int pm_cli_map_write_files(const pm_cli_t *c, const net_opts *no, const pm_selec
                                .title = no->title,
                                .respondents = s->inc->N};
     rc = pm_cli_mapseg_write(&s->seg, s->od, s->inc, segpic, s->csv_flags, &d);
+    FILE *fp;
+    if (rc == PM_OK && (rc = pm_outdir_create(s->od, "clusters.csv", &fp, &d)) == PM_OK) {
+        rc = pm_write_clusters_csv(fp, &fj.map, no->resolution, &d);
+        pm_err_t rc2 = pm_outdir_finish(s->od, fp, rc ? NULL : &d);
+        if (!rc) {
+            rc = rc2;
+        }
+    }
     if (rc != PM_OK) {
         files_job_free(&fj);
         return pm_cli_fail(&d);
     }
+    debug_runs(s);
     s->t_write = pm_cli_now() - t0;
-    FILE *fp;
     rc = pm_outdir_create(s->od, files[4], &fp, &d);
     if (!rc) {
         rc = write_run_json(fp, c, no, sel, s, &fj.map, &d);

@@ -6,7 +6,7 @@
 # and run.json agree. Usage: bash test_map_atomic.sh /path/to/pairmap
 source "$(dirname "${BASH_SOURCE[0]}")/errors_lib.sh"
 D="$DEMO/cafe-orders.csv"
-FILES="map.graphml map.svg map.html edges.csv nodes.csv run.json"
+FILES="map.graphml map.svg map.html edges.csv nodes.csv clusters.csv run.json"
 
 # ---- DIR and its parents are created; a failed run takes them away again -----------------------
 expect_ok map "$D" -q -o "$TMP/a/b/c"
@@ -18,11 +18,11 @@ left="$(find "$TMP/a" -name '.*' | head -3)"
 expect_fail 2 "$DATA/short_row_line3.csv:3: " "" -- map "$DATA/short_row_line3.csv" -o "$TMP/new/dir"
 [ -e "$TMP/new" ] && fail "a failed run left the directories it created: $(find "$TMP/new")"
 
-# ---- --no-html: the five other files and no page (README "Output") -----------------------------
+# ---- --no-html: the six other files and no page (README "Output") -----------------------------
 CASES=$((CASES + 1))
 "$PAIRMAP" map "$D" -o "$TMP/nohtml" --no-html >"$TMP/summary" 2>"$TMP/err" ||
     fail "map --no-html failed: $(cat "$TMP/err")"
-[ "$(ls -A "$TMP/nohtml" | tr '\n' ' ')" = "edges.csv map.graphml map.svg nodes.csv run.json " ] ||
+[ "$(ls -A "$TMP/nohtml" | tr '\n' ' ')" = "clusters.csv edges.csv map.graphml map.svg nodes.csv run.json " ] ||
     fail "map --no-html wrote: $(ls -A "$TMP/nohtml" | tr '\n' ' ')"
 grep -q '^written .*map.html' "$TMP/summary" && fail "map --no-html: the summary names map.html"
 grep -q '"map.html"' "$TMP/nohtml/run.json" && fail "map --no-html: run.json lists map.html"
@@ -33,7 +33,7 @@ out="$TMP/results"
 expect_ok map "$D" -q -o "$out" --seed 1
 rm "$out/run.json"
 mkdir -p "$out/run.json/keep"          # the last rename (run.json) must fail
-(cd "$out" && sha256sum map.graphml map.svg map.html edges.csv nodes.csv && ls -i map.graphml nodes.csv) \
+(cd "$out" && sha256sum map.graphml map.svg map.html edges.csv nodes.csv clusters.csv && ls -i map.graphml nodes.csv) \
     >"$TMP/before"
 CASES=$((CASES + 1))
 "$PAIRMAP" map "$D" -q -o "$out" --seed 2 >"$TMP/out" 2>"$TMP/err"
@@ -42,7 +42,7 @@ rc=$?
 grep -q "^pairmap: $out/run.json: cannot put the output in place" "$TMP/err" ||
     fail "map with run.json a directory: message: $(cat "$TMP/err")"
 [ -s "$TMP/out" ] && fail "map printed a summary although it failed"
-(cd "$out" && sha256sum map.graphml map.svg map.html edges.csv nodes.csv && ls -i map.graphml nodes.csv) \
+(cd "$out" && sha256sum map.graphml map.svg map.html edges.csv nodes.csv clusters.csv && ls -i map.graphml nodes.csv) \
     >"$TMP/after"
 cmp -s "$TMP/before" "$TMP/after" ||
     fail "a failed rename changed the earlier files: $(diff "$TMP/before" "$TMP/after")"

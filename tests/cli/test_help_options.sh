@@ -59,7 +59,7 @@ value_for() { # a value that makes sense for the option on the café demo
     resolution) echo 1.5 ;; iterations) echo 50 ;; draw) echo 20 ;; title) echo "A title" ;;
     width) echo 900 ;; height) echo 700 ;; color-by) echo category ;; item) echo Espresso ;;
     top) echo 5 ;; by) echo lift ;; unit) echo orders ;; max-basket) echo 50 ;;
-    max-memory) echo 4G ;; sort) echo lift ;; pair-test) echo SKIP ;; *) echo ;;
+    max-memory) echo 4G ;; sort) echo lift ;; pair-test) echo SKIP ;; family) echo all ;; *) echo ;;
     esac
 }
 for c in map partners pairs items count; do

@@ -39,7 +39,7 @@ CASES=$((CASES + 1))
 rc=$?
 [ "$rc" -eq 3 ] || fail "pairmap map > /dev/full: exit $rc, expected 3: $(cat "$TMP/err")"
 grep -q '^pairmap: cannot write to standard output' "$TMP/err" || fail "map > /dev/full: $(cat "$TMP/err")"
-[ "$(ls -A "$TMP/full-stdout" | wc -l)" -eq 6 ] || fail "map > /dev/full: files: $(ls -A "$TMP/full-stdout")"
+[ "$(ls -A "$TMP/full-stdout" | wc -l)" -eq 7 ] || fail "map > /dev/full: files: $(ls -A "$TMP/full-stdout")"
 
 # ---- the output directory ----------------------------------------------------------------------
 # its parent is a file
@@ -71,7 +71,7 @@ expect_ok map "$D" -o "$out" -q || fail "map on the demo failed"
 snapshot() { (cd "$1" && find . -mindepth 1 -printf '%p %s %T@ %m\n' | sort && sha256sum $(find . -type f | sort)); }
 snapshot "$out" >"$TMP/before"
 nfiles=$(find "$out" -type f | wc -l)
-[ "$nfiles" -eq 6 ] || fail "map wrote $nfiles files, expected 6"
+[ "$nfiles" -eq 7 ] || fail "map wrote $nfiles files, expected 7"
 check_untouched() { # WHAT
     snapshot "$out" >"$TMP/after"
     if ! cmp -s "$TMP/before" "$TMP/after"; then

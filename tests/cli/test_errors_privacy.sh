@@ -67,9 +67,9 @@ CASES=$((CASES + 1))
 "$PAIRMAP" partners "$TMP/ids.csv" --item Espreso >"$TMP/scan/unknown.stdout" 2>"$TMP/scan/unknown.stderr"
 [ $? -eq 2 ] || fail "partners with an unknown item did not fail"
 
-# every map wrote its six files (map.html among them: scanned like the others)
+# every map wrote its seven files (map.html and clusters.csv among them: scanned like the others)
 for d in "$TMP"/scan/map-*/; do
-    [ "$(ls "$d" | wc -l)" -eq 6 ] || fail "map into $d wrote: $(ls "$d")"
+    [ "$(ls "$d" | wc -l)" -eq 7 ] || fail "map into $d wrote: $(ls "$d")"
 done
 # the scan: fixed strings, every file under scan/
 CASES=$((CASES + 1))

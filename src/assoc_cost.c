@@ -17,7 +17,8 @@ pm_err_t pm_assoc_cost(const pm_incidence_t *inc, const pm_assoc_opts_t *o, pm_c
     uint64_t E = 0;
     for (size_t i = 0; i < inc->n_items; i++) { /* as pm_assoc_run decides */
         el[i] = inc->count[i] > 0 && inc->count[i] < inc->N &&
-                !(pm_incidence_share(inc, i) < o->min_share);
+                !(pm_incidence_share(inc, i) < o->min_share) &&
+                inc->count[i] >= o->min_count; /* the family's items: only they are counted */
         E += el[i];
     }
     pm_counts_opts_t co;

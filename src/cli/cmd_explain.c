@@ -315,8 +315,8 @@ static void print_report(const pm_cli_t *c, const pm_incidence_t *inc, const pm_
 int pm_cmd_explain(int argc, char **argv) {
     pm_cli_t c;
     static char full[8192];
-    snprintf(full, sizeof full, "%s%s%s\n%s%s", help, pm_cli_input_help, pm_cli_only_help,
-             pm_cli_select_help, pm_cli_edge_help);
+    snprintf(full, sizeof full, "%s%s%s%s%s\n%s%s", help, pm_cli_input_help, pm_cli_only_help,
+             pm_cli_basket_help, pm_cli_memory_help, pm_cli_select_help, pm_cli_edge_help);
     int rc = pm_cli_parse(&c, "explain", PM_CMD_EXPLAIN, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;

@@ -23,17 +23,22 @@ awk 'BEGIN { srand(11); print "order,dish"
 bound_memory 1200
 
 # ---- refused before counting, with the cause ----------------------------------------------------
-for cmd in pairs map partners count; do
-    args=("$cmd" "$TMP/big.csv")
-    case "$cmd" in map) args+=(-o "$TMP/map") ;; count) args+=(-o "$TMP/c.pmc") ;;
-    partners) args+=(--item dish000001 --by phi) ;; esac
+# --min-count 1: the 100,000 items are chosen once each, so only then are they in the family of
+# tests (its items reach --min-count) and their pairs counted
+for cmd in pairs map partners-all count; do
+    args=("$cmd" "$TMP/big.csv" --min-count 1)
+    case "$cmd" in map) args+=(-o "$TMP/map") ;; count) args=(count "$TMP/big.csv" -o "$TMP/c.pmc") ;;
+    partners-all) args=(partners "$TMP/big.csv" --min-count 1 --item dish000001 --by phi --family all) ;; esac
     expect_fail 4 "$TMP/big.csv: " "the largest of the respondents holds 100000 items (4999950000 pairs)" -- "${args[@]}"
     grep -q -- "--id-col" "$TMP/err" || fail "$cmd: the message does not name the likely cause: $(cat "$TMP/err")"
     grep -q "till-total" "$TMP/err" && fail "$cmd: the message shows the respondent's id"
 done
 [ -e "$TMP/map" ] && fail "a refused map left its directory"
+# one item's partners count only its own pairs (issue 15 point 9): memory in items, nothing to
+# refuse
+expect_ok partners "$TMP/big.csv" --item dish000001 --by phi -q
 # --unit words the message
-expect_fail 4 "$TMP/big.csv: " "the largest of the orders holds 100000 items" -- pairs "$TMP/big.csv" --unit orders
+expect_fail 4 "$TMP/big.csv: " "the largest of the orders holds 100000 items" -- pairs "$TMP/big.csv" --unit orders --min-count 1
 # --max-memory: a bound of the user's, with K/M/G suffixes
 expect_fail 4 "$DEMO/cafe-orders.csv: " "more than 1 MiB of --max-memory" -- pairs "$DEMO/cafe-orders.csv" --max-memory 1M
 expect_ok pairs "$DEMO/cafe-orders.csv" --max-memory 1G
@@ -111,7 +116,8 @@ awk 'BEGIN { srand(12); print "order,dish"
 if [ "$asan" = 1 ]; then
     printf 'test_basket_bounds.sh: the estimate-against-peak cases are not run on an ASan build (its allocator adds redzones and quarantine that the estimate does not model)\n'
 else
-    for args in "pairs" "pairs --min-count 1 --max-q 1" "pairs --sign both" "count -o $TMP/m.pmc"; do
+    # --min-count 1: the mid file's items are rare, so that all of them are in the family
+    for args in "pairs --min-count 1" "pairs --min-count 1 --max-q 1" "pairs --sign both --min-count 1" "count -o $TMP/m.pmc"; do
         CASES=$((CASES + 1))
         # shellcheck disable=SC2086
         "$PAIRMAP" $args "$TMP/mid.csv" --max-memory 1M >/dev/null 2>"$TMP/err"

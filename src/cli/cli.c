@@ -86,7 +86,7 @@ static const opt_def OPTS[] = {
     {"segment-file", 0, 1, 0, ALL},
     {"segment-levels", 0, 1, 1, SEGMENTED},
     {"only-segment", 0, 1, 1, ALL},
-    {"pair-test", 0, 1, 0, SCORE},
+    {"pair-test", 0, 1, 0, PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS},
     {"csv-raw", 0, 0, 0,
      PM_CMD_MAP | PM_CMD_PARTNERS | PM_CMD_PAIRS | PM_CMD_ITEMS | PM_CMD_SEGMENTS},
     {"help", 'h', 0, 0, ALL},
@@ -662,65 +662,13 @@ void pm_cli_progress_end(const pm_cli_t *c) {
 }
 
 /* ---- loading ----------------------------------------------------------------------------- */
-int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, double *t_read) {
-    *table = NULL;
-    *inc = NULL;
-    if (pm_cli_get(c, "from-counts")) {
-        size_t a, b;
-        pm_cli_all(c, "segment-col", &a);
-        pm_cli_all(c, "only-segment", &b);
-        if (a + b) { /* a shard holds pair counts, not who is in which segment */
-            return pm_cli_usage_error(c, "--segment-col and --only-segment need the rows; "
-                                         "they do not apply to --from-counts");
-        }
-        if (pm_cli_get(c, "max-basket")) {
-            return pm_cli_usage_error(c, "--max-basket applies to rows, not to a shard: give it "
-                                         "to 'pairmap count'");
-        }
-        return pm_cli_load_counts(c, table, inc, t_read);
-    }
-    pm_input_opts_t io;
-    if (pm_cli_input_opts(c, &io)) {
-        return 1;
-    }
-    if (strcmp(c->input, "-") != 0) {
-        struct stat st;
-        if (stat(c->input, &st) == 0 && S_ISDIR(st.st_mode)) {
-            fprintf(stderr, "pairmap: %s: is a directory; give a CSV file\n",
-                    pm_cli_shown(c->input));
-            return 3;
-        }
-    }
-    pm_diag_t d;
-    pm_diag_clear(&d);
-    double t0 = pm_cli_now();
-    if (pm_cli_show_progress(c)) {
-        io.progress = pm_cli_progress;
-    }
-    /* the SHA-256 (only run.json shows it) may finish in the background: map waits for it
-     * before it replaces any output (pm_table_wait_hash); the others never need it */
-    io.defer_hash = true;
-    pm_err_t rc = pm_input_read(c->input, &io, table, &d);
-    pm_cli_progress_end(c);
-    if (rc) {
-        return pm_cli_fail(&d);
-    }
-    /* segments: read once here, --only-segment applied to the table before the incidence */
-    int src = pm_cli_segments_load(c, *table);
-    if (src) {
-        pm_table_free(*table);
-        *table = NULL;
-        return src;
-    }
-    rc = pm_incidence_build_threads(*table, io.threads, inc, &d);
-    if (rc) {
-        pm_table_free(*table);
-        *table = NULL;
-        return pm_cli_fail(&d);
-    }
-    if (t_read) {
-        *t_read = pm_cli_now() - t0;
-    }
+/* The notes and warnings after reading (pm_cli_load): what was taken as a header, merged,
+ * dropped or left out. Returns 0, 1 when --max-basket left no respondent, or 4 when leaving
+ * its respondents out of the segment columns ran out of memory (the table and the incidence
+ * are freed then). */
+static int load_notes(const pm_cli_t *c, const pm_input_opts_t *iop, pm_table_t **table,
+                      pm_incidence_t **inc) {
+    const pm_input_opts_t io = *iop;
     const pm_input_stats_t *s = pm_table_stats(*table);
     const pm_incidence_t *ic = *inc;
     /* a header taken from a file that may have none (issue 16): always for baskets, for long
@@ -798,6 +746,68 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
                     (unsigned long long)ic->single_item, pm_cli_unit(c));
     }
     return 0;
+}
+
+int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, double *t_read) {
+    *table = NULL;
+    *inc = NULL;
+    if (pm_cli_get(c, "from-counts")) {
+        size_t a, b;
+        pm_cli_all(c, "segment-col", &a);
+        pm_cli_all(c, "only-segment", &b);
+        if (a + b) { /* a shard holds pair counts, not who is in which segment */
+            return pm_cli_usage_error(c, "--segment-col and --only-segment need the rows; "
+                                         "they do not apply to --from-counts");
+        }
+        if (pm_cli_get(c, "max-basket")) {
+            return pm_cli_usage_error(c, "--max-basket applies to rows, not to a shard: give it "
+                                         "to 'pairmap count'");
+        }
+        return pm_cli_load_counts(c, table, inc, t_read);
+    }
+    pm_input_opts_t io;
+    if (pm_cli_input_opts(c, &io)) {
+        return 1;
+    }
+    if (strcmp(c->input, "-") != 0) {
+        struct stat st;
+        if (stat(c->input, &st) == 0 && S_ISDIR(st.st_mode)) {
+            fprintf(stderr, "pairmap: %s: is a directory; give a CSV file\n",
+                    pm_cli_shown(c->input));
+            return 3;
+        }
+    }
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    double t0 = pm_cli_now();
+    if (pm_cli_show_progress(c)) {
+        io.progress = pm_cli_progress;
+    }
+    /* the SHA-256 (only run.json shows it) may finish in the background: map waits for it
+     * before it replaces any output (pm_table_wait_hash); the others never need it */
+    io.defer_hash = true;
+    pm_err_t rc = pm_input_read(c->input, &io, table, &d);
+    pm_cli_progress_end(c);
+    if (rc) {
+        return pm_cli_fail(&d);
+    }
+    /* segments: read once here, --only-segment applied to the table before the incidence */
+    int src = pm_cli_segments_load(c, *table);
+    if (src) {
+        pm_table_free(*table);
+        *table = NULL;
+        return src;
+    }
+    rc = pm_incidence_build_threads(*table, io.threads, inc, &d);
+    if (rc) {
+        pm_table_free(*table);
+        *table = NULL;
+        return pm_cli_fail(&d);
+    }
+    if (t_read) {
+        *t_read = pm_cli_now() - t0;
+    }
+    return load_notes(c, &io, table, inc);
 }
 
 int pm_cli_score(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,

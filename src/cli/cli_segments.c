@@ -34,6 +34,8 @@ const char pm_cli_segment_help[] =
     "                        both items vary counts as p = 1); p_value and test stay the\n"
     "                        pooled test's, and --sign still asks the pooled phi's direction.\n"
     "                        Respondents without a segment are left out of the test.\n"
+    "                        partners: over the family --family names (by default the\n"
+    "                        item's own: its pairs with every other item).\n"
     "                        Unweighted input only (--weight-col is a usage error)\n";
 
 const char pm_cli_only_help[] =

@@ -217,26 +217,8 @@ static void summary_pair_test(const run_state *s, const char *c_unit) {
     }
 }
 
-static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_state *s,
-                    const char *c_unit) {
-    const pm_edges_t *e = s->e;
-    const pm_pairs_t *pp = s->pp;
-    const pm_clusters_t *cl = s->cl;
-    printf("%-13s %llu\n", c_unit, (unsigned long long)s->inc->N);
-    printf("items         %zu eligible", pp->n_eligible);
-    if (pp->n_eligible != s->inc->n_items) {
-        printf(" of %zu (left out: %zu chosen by nobody, %zu by everyone, %zu below "
-               "--min-share)",
-               s->inc->n_items, pp->excluded_none, pp->excluded_all, pp->excluded_share);
-    }
-    printf("\npairs tested  %llu (%llu seen together)", (unsigned long long)e->tested,
-           (unsigned long long)pp->seen);
-    if (pp->n_family != pp->n_eligible) { /* the family, DESIGN.md */
-        printf(": the family of pairs among the %zu items chosen by at least %u %s (the other "
-               "%zu cannot reach --min-count)",
-               pp->n_family, sel->min_count, c_unit, pp->n_eligible - pp->n_family);
-    }
-    printf("\n");
+/* The summary's "pairs kept" line: what each threshold removed. */
+static void summary_kept(const pm_select_opts_t *sel, const pm_edges_t *e) {
     /* never-seen pairs are listed (and go through the thresholds) only under --min-count 0
      * with --sign negative or both; otherwise they are a reason of their own */
     bool unseen_apart = e->never_seen && !(sel->min_count == 0 && sel->sign != PM_SIGN_POSITIVE);
@@ -266,6 +248,58 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
         printf(", %llu beyond the top %zu", (unsigned long long)e->removed_top, sel->top_edges);
     }
     printf(")\n");
+}
+
+/* The summary's "picture" lines: the draw budget's choices, labels, items left out. */
+static void summary_picture(const run_state *s) {
+    const pm_svg_stats_t *v = &s->svg;
+    printf("picture       %zu of %zu items drawn, %zu edges", v->drawn, s->n, v->edges_drawn);
+    /* what was chosen and why (the draw budget, README "The picture") */
+    printf("\n              chosen: the %zu most chosen items, the hubs of %zu of %zu clusters of "
+           "3 or more items and more members in proportion to cluster size, %zu items on their "
+           "own by share",
+           v->top_drawn, v->clusters_drawn, v->clusters, v->alone_drawn);
+    if (v->small > v->small_drawn) {
+        printf("; %zu clusters of 2 summarised in the legend, not drawn",
+               v->small - v->small_drawn);
+    }
+    if (v->negative_left_out) {
+        printf("\n              %zu negative pairs left out of the picture (at most 2 dashed "
+               "lines an item, the strongest first; the files keep all)",
+               v->negative_left_out);
+    }
+    printf("\n              labels: %zu shortened (to 12 characters or more), %zu left out "
+           "(named in the tooltip)",
+           v->labels_shortened, v->labels_left_out);
+    if (s->svg.left_out) {
+        printf("\n              %zu items left out of map.svg so that labels fit (the GraphML and "
+               "CSV files "
+               "keep all; --draw and --width/--height change it)",
+               s->svg.left_out);
+    }
+}
+
+static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_state *s,
+                    const char *c_unit) {
+    const pm_edges_t *e = s->e;
+    const pm_pairs_t *pp = s->pp;
+    const pm_clusters_t *cl = s->cl;
+    printf("%-13s %llu\n", c_unit, (unsigned long long)s->inc->N);
+    printf("items         %zu eligible", pp->n_eligible);
+    if (pp->n_eligible != s->inc->n_items) {
+        printf(" of %zu (left out: %zu chosen by nobody, %zu by everyone, %zu below "
+               "--min-share)",
+               s->inc->n_items, pp->excluded_none, pp->excluded_all, pp->excluded_share);
+    }
+    printf("\npairs tested  %llu (%llu seen together)", (unsigned long long)e->tested,
+           (unsigned long long)pp->seen);
+    if (pp->n_family != pp->n_eligible) { /* the family, DESIGN.md */
+        printf(": the family of pairs among the %zu items chosen by at least %u %s (the other "
+               "%zu cannot reach --min-count)",
+               pp->n_family, sel->min_count, c_unit, pp->n_eligible - pp->n_family);
+    }
+    printf("\n");
+    summary_kept(sel, e);
     summary_pair_test(s, c_unit);
     if (s->n_negative) {
         printf("              %zu negative edges are in the files but take no part in "
@@ -305,31 +339,7 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
                "partitions; 1 = all agree)\n",
                cl->stability, (unsigned long long)no->restarts);
     }
-    const pm_svg_stats_t *v = &s->svg;
-    printf("picture       %zu of %zu items drawn, %zu edges", v->drawn, s->n, v->edges_drawn);
-    /* what was chosen and why (the draw budget, README "The picture") */
-    printf("\n              chosen: the %zu most chosen items, the hubs of %zu of %zu clusters of "
-           "3 or more items and more members in proportion to cluster size, %zu items on their "
-           "own by share",
-           v->top_drawn, v->clusters_drawn, v->clusters, v->alone_drawn);
-    if (v->small > v->small_drawn) {
-        printf("; %zu clusters of 2 summarised in the legend, not drawn",
-               v->small - v->small_drawn);
-    }
-    if (v->negative_left_out) {
-        printf("\n              %zu negative pairs left out of the picture (at most 2 dashed "
-               "lines an item, the strongest first; the files keep all)",
-               v->negative_left_out);
-    }
-    printf("\n              labels: %zu shortened (to 12 characters or more), %zu left out "
-           "(named in the tooltip)",
-           v->labels_shortened, v->labels_left_out);
-    if (s->svg.left_out) {
-        printf("\n              %zu items left out of map.svg so that labels fit (the GraphML and "
-               "CSV files "
-               "keep all; --draw and --width/--height change it)",
-               s->svg.left_out);
-    }
+    summary_picture(s);
     if (s->seg.n) {
         printf("\nsegments      %zu of %zu items in segments.svg, %zu segments of %zu column%s",
                s->seg.svg.rows_drawn, s->n, s->seg.svg.segments_drawn, s->seg.n,

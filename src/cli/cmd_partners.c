@@ -440,12 +440,68 @@ static void fill_row(const pm_incidence_t *inc, const anchor *an, uint32_t b,
     }
 }
 
+/* --pair-test within for the anchor's family: pv[j] becomes the Cochran-Mantel-Haenszel p of
+ * the pair (a, fam[j]) over the segments of the first --segment-col (an undefined test counts
+ * as p = 1, as map's family does), so Benjamini-Hochberg runs over the CMH p-values of the
+ * same family. Returns 0 or an exit status. */
+static int within_p(const pm_cli_t *c, const pm_incidence_t *inc, uint32_t a, const uint32_t *fam,
+                    size_t nf, const pm_select_opts_t *sel, double *pv) {
+    size_t nseg;
+    const pm_segcol_t *seg = pm_cli_segcols(&nseg);
+    uint32_t *ab = malloc(2 * (nf ? nf : 1) * sizeof *ab);
+    size_t *idx = malloc((nf ? nf : 1) * sizeof *idx);
+    if (!ab || !idx || nseg == 0) {
+        free(ab);
+        free(idx);
+        fputs(nseg ? "pairmap: out of memory\n" : "pairmap: --pair-test within: no segments\n",
+              stderr);
+        return 4;
+    }
+    for (size_t j = 0; j < nf; j++) {
+        ab[j] = a;
+        ab[nf + j] = fam[j];
+        idx[j] = j;
+    }
+    pm_pairs_t pairs = {0}; /* only a and b are read (pm_stratified_edges) */
+    pairs.a = ab;
+    pairs.b = ab + nf;
+    pm_edges_t sub = {0};
+    sub.n = nf;
+    sub.idx = idx;
+    pm_strat_t *st = NULL;
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    int rc = 0;
+    size_t undefined = 0;
+    if (pm_stratified_edges(inc, &seg[0], &pairs, &sub, sel->sign, &st, &d) != PM_OK) {
+        rc = pm_cli_fail(&d);
+    }
+    for (size_t j = 0; !rc && j < nf; j++) {
+        pv[j] = isnan(st[j].cmh_p) ? 1.0 : st[j].cmh_p;
+        undefined += isnan(st[j].cmh_p) != 0;
+    }
+    if (!rc) {
+        pm_cli_note(c,
+                    "note: --pair-test within: partners selected by the Cochran-Mantel-Haenszel "
+                    "test within the %zu segments of '%s'; q over the %zu pairs of the item's "
+                    "family (%zu without a defined test, taken as p = 1); %llu %s without a "
+                    "segment left out of the test",
+                    seg[0].n_levels, seg[0].column, nf, undefined,
+                    (unsigned long long)seg[0].none, pm_cli_unit(c));
+    }
+    free(st);
+    free(ab);
+    free(idx);
+    return rc;
+}
+
 /* The anchor's family (DESIGN.md): one test per eligible partner outside the set whose total,
  * like the anchor's, reaches --min-count (pairs below it can never be reported: independent
  * filtering on the totals); Benjamini-Hochberg over them; the partners that pass the
  * selection become rows[0..*nrows). Returns 0 or 4 (out of memory). */
-static int score_partners(const pm_incidence_t *inc, const anchor *an, const unsigned char *in_set,
-                          const pm_select_opts_t *sel, row *rows, size_t *nrows, size_t *nfam) {
+static int score_partners(const pm_cli_t *c, const pm_incidence_t *inc, const anchor *an,
+                          const unsigned char *in_set, const pm_select_opts_t *sel, int within,
+                          row *rows, size_t *nrows, size_t *nfam) {
     size_t n = inc->n_items ? inc->n_items : 1, nf = 0;
     pm_measures_t *ms = malloc(n * sizeof *ms);
     uint32_t *fam = malloc(n * sizeof *fam);
@@ -470,7 +526,11 @@ static int score_partners(const pm_incidence_t *inc, const anchor *an, const uns
         pv[nf] = ms[nf].p;
         fam[nf++] = (uint32_t)b;
     }
-    int rc = nf && pm_assoc_bh(pv, nf, pv) ? 4 : 0;
+    int rc = within && nf && an->one >= 0 ? within_p(c, inc, (uint32_t)an->one, fam, nf, sel, pv)
+                                          : 0;
+    if (!rc && nf && pm_assoc_bh(pv, nf, pv)) {
+        rc = 4;
+    }
     *nrows = 0;
     for (size_t j = 0; j < nf && !rc; j++) {
         ms[j].q = pv[j];
@@ -539,6 +599,112 @@ static void print_heading(const pm_cli_t *c, const pm_incidence_t *inc, const an
            by, sel->min_count, sel->max_q, nfam, pm_sign_name(sel->sign));
 }
 
+/* The command's options (after pm_cli_parse). */
+typedef struct {
+    pm_select_opts_t sel;
+    uint64_t top;
+    int by;
+    unsigned threads;
+    bool csv, fam_all;
+    int within; /* --pair-test within (one --item) */
+    const char *const *names;
+    size_t nnames;
+} partners_opts;
+
+static const char *const bys[] = {"phi", "lift", "confidence", "together", "lower", NULL};
+
+/* Reads the options; returns 0 or the exit status. */
+static int read_opts(pm_cli_t *c, partners_opts *po) {
+    po->names = pm_cli_all(c, "item", &po->nnames);
+    if (po->nnames == 0) {
+        return pm_cli_usage_error(c, "'pairmap partners' needs --item NAME");
+    }
+    static const char *const fams[] = {"item", "all", NULL};
+    int famc;
+    if (pm_cli_select_opts(c, &po->sel) || pm_cli_uint(c, "top", 10, 0, SIZE_MAX, &po->top) ||
+        pm_cli_choice(c, "by", bys, BY_PHI, &po->by) || pm_cli_threads(c, &po->threads) ||
+        pm_cli_choice(c, "family", fams, 0, &famc)) {
+        return 1;
+    }
+    po->csv = pm_cli_flag(c, "csv");
+    po->fam_all = famc == 1;
+    if (pair_test_check(c, po->nnames) || pm_cli_pair_test(c, &po->within)) {
+        return 1;
+    }
+    return 0;
+}
+
+/* Finds every --item and marks it in in_set (*k distinct items, *first the first of them);
+ * then the checks that depend on the set. Returns 0 or the exit status. */
+static int find_set(const pm_cli_t *c, const pm_incidence_t *inc, const char *src,
+                    const partners_opts *po, unsigned char *in_set, size_t *k, uint32_t *first) {
+    *k = 0;
+    for (size_t i = 0; i < po->nnames; i++) {
+        long it = -1;
+        int rc = find_item(c, inc, src, po->names[i], &it);
+        if (rc != 0) {
+            return rc;
+        }
+        if (!eligible(inc, (size_t)it, po->sel.min_share)) {
+            fprintf(stderr, "pairmap: %s: item '%s' %s: it has no association to rank\n",
+                    pm_cli_shown(src), pm_cli_shown(po->names[i]),
+                    inc->count[it] >= inc->N ? "was chosen by every respondent"
+                                             : "is below --min-share");
+            return 2;
+        }
+        if (!in_set[it]) {
+            in_set[it] = 1;
+            if ((*k)++ == 0) {
+                *first = (uint32_t)it;
+            }
+        }
+    }
+    int rc = pm_cli_check_eligible(c, inc, po->sel.min_share);
+    if (rc != 0) {
+        return rc;
+    }
+    if (po->fam_all && *k > 1) {
+        return pm_cli_usage_error(c, "--family all applies to one --item (a set's q-values are "
+                                     "over its own tests)");
+    }
+    if (pm_cli_given_counts() && *k > 1) { /* --from-counts holds pairs, not rows */
+        return pm_cli_usage_error(c,
+                                  "partners of a set of %zu items need the respondents' rows "
+                                  "(who chose all of them); a count shard holds pairs only: "
+                                  "give INPUT instead of --from-counts, or one --item",
+                                  *k);
+    }
+    return 0;
+}
+
+/* The ranked rows as CSV or a text table, and the notes after them. */
+static void print_rows(const pm_cli_t *c, const pm_incidence_t *inc, const partners_opts *po,
+                       const anchor *an, const unsigned char *in_set, const row *rows, size_t nrows,
+                       size_t shown, size_t nfam) {
+    if (po->csv) {
+        size_t nseg;
+        pm_cli_segcols(&nseg);
+        print_csv(inc, rows, shown, pm_cli_csv_flags(c), nseg > 0);
+    } else {
+        print_heading(c, inc, an, in_set, bys[po->by], &po->sel, nfam);
+        if (nrows == 0) {
+            printf("no partner passes the selection\n");
+        } else {
+            print_text(inc, rows, shown, inc->weight != NULL);
+            if (shown < nrows) {
+                printf("(%zu more; --top 0 shows all)\n", nrows - shown);
+            }
+        }
+    }
+    if (po->sel.sign == PM_SIGN_NEGATIVE && po->sel.min_count > 0) {
+        /* the strongest substitutes are often the pairs almost never chosen together */
+        pm_cli_note(c,
+                    "note: partners seen together fewer than %u times are hidden by "
+                    "--min-count (small-cell suppression); --min-count 0 shows them",
+                    po->sel.min_count);
+    }
+}
+
 int pm_cmd_partners(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
@@ -549,90 +715,34 @@ int pm_cmd_partners(int argc, char **argv) {
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
     }
-    size_t nnames;
-    const char *const *names = pm_cli_all(&c, "item", &nnames);
-    if (nnames == 0) {
-        return pm_cli_usage_error(&c, "'pairmap partners' needs --item NAME");
+    partners_opts po;
+    memset(&po, 0, sizeof po);
+    if ((rc = read_opts(&c, &po)) != 0) {
+        return rc;
     }
-    if (pair_test_check(&c, nnames)) {
-        return 1;
-    }
-    pm_select_opts_t sel;
-    uint64_t top;
-    int by;
-    static const char *const bys[] = {"phi", "lift", "confidence", "together", "lower", NULL};
-    unsigned th;
-    if (pm_cli_select_opts(&c, &sel) || pm_cli_uint(&c, "top", 10, 0, SIZE_MAX, &top) ||
-        pm_cli_choice(&c, "by", bys, BY_PHI, &by) || pm_cli_threads(&c, &th)) {
-        return 1;
-    }
-    bool csv = pm_cli_flag(&c, "csv");
-    static const char *const fams[] = {"item", "all", NULL};
-    int famc;
-    if (pm_cli_choice(&c, "family", fams, 0, &famc)) {
-        return 1;
-    }
-    bool fam_all = famc == 1;
+    const pm_select_opts_t sel = po.sel;
     pm_table_t *t = NULL;
     pm_incidence_t *inc = NULL;
     unsigned char *in_set = NULL;
     row *rows = NULL;
     anchor an = {0};
-    size_t nrows = 0;
+    size_t nrows = 0, k = 0;
+    uint32_t first = 0;
     rc = pm_cli_load(&c, &t, &inc, NULL);
     if (rc) {
         goto done;
     }
     const char *src = pm_table_source(t);
     in_set = calloc(inc->n_items ? inc->n_items : 1, 1);
-    if (!in_set) {
+    rows = calloc(inc->n_items ? inc->n_items : 1, sizeof *rows);
+    if (!in_set || !rows) {
         rc = 4;
         goto done;
     }
-    size_t k = 0;
-    uint32_t first = 0;
-    for (size_t i = 0; i < nnames; i++) {
-        long it = -1;
-        if ((rc = find_item(&c, inc, src, names[i], &it)) != 0) {
-            goto done;
-        }
-        if (!eligible(inc, (size_t)it, sel.min_share)) {
-            fprintf(stderr, "pairmap: %s: item '%s' %s: it has no association to rank\n",
-                    pm_cli_shown(src), pm_cli_shown(names[i]),
-                    inc->count[it] >= inc->N ? "was chosen by every respondent"
-                                             : "is below --min-share");
-            rc = 2;
-            goto done;
-        }
-        if (!in_set[it]) {
-            in_set[it] = 1;
-            if (k++ == 0) {
-                first = (uint32_t)it;
-            }
-        }
-    }
-    if ((rc = pm_cli_check_eligible(&c, inc, sel.min_share)) != 0) {
-        goto done;
-    }
-    if (fam_all && k > 1) {
-        rc = pm_cli_usage_error(&c, "--family all applies to one --item (a set's q-values are "
-                                    "over its own tests)");
-        goto done;
-    }
-    if (pm_cli_given_counts() && k > 1) { /* --from-counts holds pairs, not rows */
-        rc = pm_cli_usage_error(&c,
-                                "partners of a set of %zu items need the respondents' rows "
-                                "(who chose all of them); a count shard holds pairs only: "
-                                "give INPUT instead of --from-counts, or one --item",
-                                k);
+    if ((rc = find_set(&c, inc, src, &po, in_set, &k, &first)) != 0) {
         goto done;
     }
     if (k == 1 ? anchor_one(inc, first, &an) : anchor_scan(inc, in_set, k, &an)) {
-        rc = 4;
-        goto done;
-    }
-    rows = calloc(inc->n_items ? inc->n_items : 1, sizeof *rows);
-    if (!rows) {
         rc = 4;
         goto done;
     }
@@ -640,11 +750,12 @@ int pm_cmd_partners(int argc, char **argv) {
     if (an.n == 0 || an.n >= inc->N) {
         fprintf(stderr, "pairmap: %s: %s respondent chose all %zu items: no partner to rank\n",
                 pm_cli_shown(src), an.n == 0 ? "no" : "every", k);
-    } else if (fam_all) {
+    } else if (po.fam_all) {
         if ((rc = map_partners(&c, t, inc, &an, first, &sel, rows, &nrows, &nfam)) != 0) {
             goto done;
         }
-    } else if ((rc = score_partners(inc, &an, in_set, &sel, rows, &nrows, &nfam)) != 0) {
+    } else if ((rc = score_partners(&c, inc, &an, in_set, &sel, po.within, rows, &nrows,
+                                    &nfam)) != 0) {
         goto done;
     }
     if (an.n < sel.min_count) {
@@ -655,36 +766,15 @@ int pm_cmd_partners(int argc, char **argv) {
                     pm_cli_unit(&c));
     }
     for (size_t j = 0; j < nrows; j++) {
-        rows[j].key = rank_key(&rows[j], by, sel.sign);
+        rows[j].key = rank_key(&rows[j], po.by, sel.sign);
     }
     g_rank_inc = inc;
     qsort(rows, nrows, sizeof *rows, cmp_row);
-    size_t shown = top && top < nrows ? (size_t)top : nrows;
-    if (csv && k == 1 && (rc = rows_strat(&c, inc, first, rows, shown, &sel)) != 0) {
+    size_t shown = po.top && po.top < nrows ? (size_t)po.top : nrows;
+    if (po.csv && k == 1 && (rc = rows_strat(&c, inc, first, rows, shown, &sel)) != 0) {
         goto done; /* within segments: CSV only, one item only */
     }
-    if (csv) {
-        size_t nseg;
-        pm_cli_segcols(&nseg);
-        print_csv(inc, rows, shown, pm_cli_csv_flags(&c), nseg > 0);
-    } else {
-        print_heading(&c, inc, &an, in_set, bys[by], &sel, nfam);
-        if (nrows == 0) {
-            printf("no partner passes the selection\n");
-        } else {
-            print_text(inc, rows, shown, inc->weight != NULL);
-            if (shown < nrows) {
-                printf("(%zu more; --top 0 shows all)\n", nrows - shown);
-            }
-        }
-    }
-    if (sel.sign == PM_SIGN_NEGATIVE && sel.min_count > 0) {
-        /* the strongest substitutes are often the pairs almost never chosen together */
-        pm_cli_note(&c,
-                    "note: partners seen together fewer than %u times are hidden by "
-                    "--min-count (small-cell suppression); --min-count 0 shows them",
-                    sel.min_count);
-    }
+    print_rows(&c, inc, &po, &an, in_set, rows, nrows, shown, nfam);
     rc = pm_cli_close_stdout();
 done:
     anchor_free(&an);

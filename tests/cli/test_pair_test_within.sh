@@ -38,6 +38,8 @@ check "the note names the test" grep -q "note: --pair-test within: pairs selecte
     >"$TMP/partners.csv" 2>/dev/null || fail "partners --pair-test within: exit $?"
 "$PAIRMAP" partners "$D" --segment-col location --item "${MIX%%,*}" --csv --top 0 \
     >"$TMP/partners-pooled.csv" 2>/dev/null || fail "partners (pooled): exit $?"
+"$PAIRMAP" partners "$D" --segment-col location --pair-test within --item "${MIX%%,*}" --csv --top 0 \
+    --family all >"$TMP/partners-all.csv" 2>/dev/null || fail "partners --family all: exit $?"
 /usr/bin/python3 - "$TMP" "$MIX" <<'EOF' || fail "edges.csv, pairs, partners, run.json: see above"
 import json, sys
 import pandas as pd
@@ -71,7 +73,9 @@ pw, pp = rd(f"{tmp}/partners.csv"), rd(f"{tmp}/partners-pooled.csv")
 check(mix[1] in set(pp.partner) and mix[1] not in set(pw.partner),
       f"partners of {mix[0]}: {list(pw.partner)} / pooled {list(pp.partner)}")
 mine = w[(w.item_a == mix[0]) | (w.item_b == mix[0])]
-check(len(pw) == len(mine), f"partners {len(pw)} rows, edges.csv {len(mine)} with the item")
+# --family all: the map's family and its CMH q-values, so the rows of edges.csv with the item
+pa = rd(f"{tmp}/partners-all.csv")
+check(len(pa) == len(mine), f"partners --family all {len(pa)} rows, edges.csv {len(mine)} with the item")
 for d, want in (("w", "within"), ("p", "pooled")):
     s = json.load(open(f"{tmp}/{d}/run.json"))["settings"]
     check(s.get("pair_test") == want, f"run.json settings.pair_test {s.get('pair_test')}")

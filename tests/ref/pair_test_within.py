@@ -152,6 +152,35 @@ def case(d, rng, n, k, n_items):
                 want.add((x, y))
         got = {(r["item_a"], r["item_b"]) for _, r in out.iterrows()}
         CHK.equal(f"{label}: kept pairs", sorted(got ^ want), [], f"{len(got)} vs {len(want)}")
+    # partners --pair-test within (the item's own family, partners' default --family item):
+    # BH over the CMH p-values of the pairs (a, b) for every other item b whose total reaches
+    # --min-count (every item here holds at least 5), against statsmodels as above
+    for anchor, sign, max_q in [("dish 00", "positive", 0.05), ("dish 02", "both", 0.5),
+                                ("dish 05", "negative", 1.0)]:
+        a = names.index(anchor)
+        others = [b for b in range(n_items) if b != a]
+        ps = np.array([cmh_p(M, seg, k, a, b, sign)[0] for b in others])
+        qs = multipletests(np.where(np.isnan(ps), 1.0, ps), method="fdr_bh")[1]
+        label = f"n={n} k={k} partners of {anchor} {sign} max-q {max_q}"
+        out, _ = pm(["partners", d / "in.csv", "--segment-col", "zone", "--pair-test", "within",
+                     "--item", anchor, "--sign", sign, "--max-q", str(max_q), "--min-count", "1",
+                     "--csv", "--top", "0", "--quiet"])
+        want = set()
+        for b, p, q in zip(others, ps, qs):
+            phi_num = N * joint[a, b] - cnt[a] * cnt[b]
+            ok_sign = {"both": True, "positive": phi_num > 0, "negative": phi_num < 0}[sign]
+            if joint[a, b] >= 1 and ok_sign and q <= max_q:
+                want.add(names[b])
+        got = set(out["partner"])
+        CHK.equal(f"{label}: kept partners", sorted(got ^ want), [], f"{len(got)} vs {len(want)}")
+        for _, r in out.iterrows():
+            j = others.index(names.index(r["partner"]))
+            CHK.close_p(f"{label}: q_value", float(r["q_value"]), qs[j], rtol=1e-9,
+                        where=r["partner"])
+            if not np.isnan(ps[j]):
+                CHK.close_p(f"{label}: cmh_p", float(r["cmh_p"]), ps[j], rtol=1e-9,
+                            where=r["partner"])
+        n_pairs += len(out)
     # the planted pairs under the default selection
     out, err = pm(base)
     got = {(r["item_a"], r["item_b"]) for _, r in out.iterrows()}

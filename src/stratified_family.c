@@ -20,9 +20,10 @@
  * (the pooled family's cap, src/assoc_family.c). */
 #define MAX_CLASS_COMBOS 400000000ULL
 
-/* The family's items: those of the pooled family (pm_pairs_t). */
+/* The family's items: those of the pooled family (pm_pairs_t.in_family: eligible and chosen
+ * by at least --min-count respondents). */
 static int in_family(const pm_pairs_t *pp, size_t i) {
-    return pp->eligible[i] != 0;
+    return pp->in_family[i] != 0;
 }
 
 /* One thread's state. */

@@ -16,8 +16,8 @@ References:
   pairmap documents.
 Random data (invented here): items of very different shares so that many pairs are never
 chosen together within a segment, a few respondents without a segment, strata of different
-sizes; each item is chosen by at least 5 respondents, so that --min-count 1 and 5 give the
-same family whichever way the family is filtered by the item totals.
+sizes; in one case a few items chosen by 3 respondents only, outside the family at the default
+--min-count 5 and inside it at --min-count 1.
 """
 
 import io
@@ -90,10 +90,14 @@ def cmh_p(M, seg, k, a, b, sign):
     return p, t.pvalue
 
 
-def family(M, seg, k, names, sign):
-    """Every pair of the family with its CMH p (NaN: undefined) and its BH q."""
+def family(M, seg, k, names, sign, min_count):
+    """Every pair of the family with its CMH p (NaN: undefined) and its BH q: the pairs of the
+    items chosen by at least min_count respondents (DESIGN.md's family; every item here is
+    chosen by some but not all)."""
     keys, ps = [], []
-    order = sorted(range(len(names)), key=lambda i: names[i].encode())
+    cnt = M.sum(0)
+    order = sorted((i for i in range(len(names)) if cnt[i] >= min_count),
+                   key=lambda i: names[i].encode())
     for i, a in enumerate(order):
         for b in order[i + 1:]:
             p, own = cmh_p(M, seg, k, a, b, sign)
@@ -122,8 +126,17 @@ def compare(label, out, ref, max_q):
             CHK.fail(f"{label}: {where} kept with reference q {q} > {max_q}")
 
 
-def case(d, rng, n, k, n_items):
+def case(d, rng, n, k, n_items, rare=0):
     M, seg = generate(rng, n, k, n_items)
+    if rare:  # items chosen by 3 respondents: outside the family at --min-count 5; each by
+        # respondents who chose dish 00, so that their small p-values would shift the family's
+        # ranks if they entered it
+        R = np.zeros((n, rare), dtype=bool)
+        with0 = np.flatnonzero(M[:, 0])
+        for j in range(rare):
+            R[rng.choice(with0, size=3, replace=False), j] = True
+        M = np.hstack([M, R])
+        n_items += rare
     names = [f"dish {j:02d}" for j in range(n_items)]
     write_input(d / "in.csv", M, seg, names)
     base = ["pairs", d / "in.csv", "--segment-col", "zone", "--pair-test", "within", "--quiet"]
@@ -134,15 +147,16 @@ def case(d, rng, n, k, n_items):
     for sign, extra, max_q in [("both", ["--min-count", "1"], 1.0),
                                ("negative", ["--min-count", "0"], 1.0),
                                ("positive", ["--min-count", "1"], 1.0),
-                               ("positive", [], 0.05), ("both", ["--min-count", "1"], 0.01)]:
-        ref = family(M, seg, k, names, sign)
-        label = f"n={n} k={k} {sign} max-q {max_q}"
+                               ("positive", [], 0.05), ("both", [], 1.0),
+                               ("both", ["--min-count", "1"], 0.01)]:
+        min_count = int(extra[1]) if extra else 5
+        ref = family(M, seg, k, names, sign, min_count)
+        label = f"n={n} k={k} rare={rare} {sign} max-q {max_q}"
         out, _ = pm(base + ["--sign", sign, "--max-q", str(max_q)] + extra)
         compare(label, out, ref, max_q)
         n_pairs += len(out)
         # the kept set: the pooled listing rules (joint count, direction of the pooled phi)
         # and the reference q
-        min_count = int(extra[1]) if extra else 5
         want = set()
         for (x, y), (p, q) in ref.items():
             a, b = names.index(x), names.index(y)
@@ -158,7 +172,7 @@ def case(d, rng, n, k, n_items):
     for anchor, sign, max_q in [("dish 00", "positive", 0.05), ("dish 02", "both", 0.5),
                                 ("dish 05", "negative", 1.0)]:
         a = names.index(anchor)
-        others = [b for b in range(n_items) if b != a]
+        others = [b for b in range(n_items) if b != a and cnt[b] >= 1]
         ps = np.array([cmh_p(M, seg, k, a, b, sign)[0] for b in others])
         qs = multipletests(np.where(np.isnan(ps), 1.0, ps), method="fdr_bh")[1]
         label = f"n={n} k={k} partners of {anchor} {sign} max-q {max_q}"
@@ -199,8 +213,9 @@ def main():
     n_pairs = 0
     with tempdir() as t:
         d = Path(t)
-        for n, k, n_items in [(900, 3, 18), (2500, 6, 24), (400, 2, 12)]:
-            n_pairs += case(d, rng, n, k, n_items)
+        for n, k, n_items, rare in [(900, 3, 18, 0), (2500, 6, 24, 0), (400, 2, 12, 0),
+                                    (1200, 4, 16, 5)]:
+            n_pairs += case(d, rng, n, k, n_items, rare)
     CHK.note(f"{n_pairs} listed pairs compared (every family pair's p enters each reference "
              "Benjamini-Hochberg)")
     if n_pairs < 200:

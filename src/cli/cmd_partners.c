@@ -486,8 +486,8 @@ static int within_p(const pm_cli_t *c, const pm_incidence_t *inc, uint32_t a, co
                     "test within the %zu segments of '%s'; q over the %zu pairs of the item's "
                     "family (%zu without a defined test, taken as p = 1); %llu %s without a "
                     "segment left out of the test",
-                    seg[0].n_levels, seg[0].column, nf, undefined,
-                    (unsigned long long)seg[0].none, pm_cli_unit(c));
+                    seg[0].n_levels, seg[0].column, nf, undefined, (unsigned long long)seg[0].none,
+                    pm_cli_unit(c));
     }
     free(st);
     free(ab);
@@ -526,8 +526,8 @@ static int score_partners(const pm_cli_t *c, const pm_incidence_t *inc, const an
         pv[nf] = ms[nf].p;
         fam[nf++] = (uint32_t)b;
     }
-    int rc = within && nf && an->one >= 0 ? within_p(c, inc, (uint32_t)an->one, fam, nf, sel, pv)
-                                          : 0;
+    int rc =
+        within && nf && an->one >= 0 ? within_p(c, inc, (uint32_t)an->one, fam, nf, sel, pv) : 0;
     if (!rc && nf && pm_assoc_bh(pv, nf, pv)) {
         rc = 4;
     }
@@ -754,8 +754,8 @@ int pm_cmd_partners(int argc, char **argv) {
         if ((rc = map_partners(&c, t, inc, &an, first, &sel, rows, &nrows, &nfam)) != 0) {
             goto done;
         }
-    } else if ((rc = score_partners(&c, inc, &an, in_set, &sel, po.within, rows, &nrows,
-                                    &nfam)) != 0) {
+    } else if ((rc = score_partners(&c, inc, &an, in_set, &sel, po.within, rows, &nrows, &nfam)) !=
+               0) {
         goto done;
     }
     if (an.n < sel.min_count) {

@@ -454,6 +454,7 @@ static pm_err_t finish(fam_ctx *x, size_t nth, int classes, const pm_strat_famil
     }
     free(bh.qp);
     free(bh.qq);
+    free(bh.qr); /* the ranks the walk records (pm_pairs_prank) */
     free(f.lv);
     free(f.pf);
     free(f.pd);

@@ -120,7 +120,9 @@ static pm_err_t write_items(FILE *fp, const pm_html_data_t *d, double *buf) {
 }
 
 /* The kept edges, columnar: vertex indices a < b and the numbers of the partner table for
- * both directions (buf: EDGE_COLS * edges numbers). */
+ * both directions (buf: EDGE_COLS * edges numbers, column by column in the order of slot[]:
+ * both lower bounds side by side and both upper bounds, so that the 2 x edges Jeffreys
+ * intervals are solved in one call). */
 #define EDGE_COLS 11
 static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
     const pm_map_t *map = d->map;
@@ -152,21 +154,26 @@ static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
                                                 "confidence_ba",
                                                 "confidence_ba_low",
                                                 "confidence_ba_high"};
+    static const size_t slot[EDGE_COLS] = {0, 1, 2, 3, 4, 5, 7, 9, 6, 8, 10};
+    double *lo = buf + 7 * m, *hi = buf + 9 * m; /* a -> b at k, b -> a at m + k */
     for (size_t k = 0; k < m; k++) {
         size_t idx = map->edges->idx[k];
         double w_ab = pp->w_ab ? pp->w_ab[idx] : (double)pp->n_ab[idx];
         pm_measures_t ms;
         pm_pairs_measures(pp, inc, idx, &ms);
-        double *r = buf + k * EDGE_COLS;
-        r[0] = ms.together;
-        r[1] = ms.expected;
-        r[2] = ms.lift;
-        r[3] = ms.phi;
-        r[4] = ms.q;
-        /* a -> b and b -> a, as `partners --item a` and `--item b` print them */
-        pm_assoc_confidence(inc, pp->a[idx], pp->n_ab[idx], w_ab, &r[5], &r[6], &r[7]);
-        pm_assoc_confidence(inc, pp->b[idx], pp->n_ab[idx], w_ab, &r[8], &r[9], &r[10]);
+        buf[k] = ms.together;
+        buf[m + k] = ms.expected;
+        buf[2 * m + k] = ms.lift;
+        buf[3 * m + k] = ms.phi;
+        buf[4 * m + k] = ms.q;
+        /* a -> b and b -> a, as `partners --item a` and `--item b` print them: the (x, n) of
+         * each interval first, in the places of its bounds */
+        pm_assoc_confidence_args(inc, pp->a[idx], pp->n_ab[idx], w_ab, &buf[5 * m + k], &lo[k],
+                                 &hi[k]);
+        pm_assoc_confidence_args(inc, pp->b[idx], pp->n_ab[idx], w_ab, &buf[6 * m + k], &lo[m + k],
+                                 &hi[m + k]);
     }
+    pm_assoc_jeffreys_many(lo, hi, 2 * m, 0.05, d->threads, lo, hi);
     for (size_t col = 0; col < EDGE_COLS; col++) {
         /* unweighted, expected, lift and both confidences are one or two double operations
          * on the counts the page holds (src/assoc.c's order): the script derives them, bit
@@ -176,11 +183,12 @@ static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
         }
         jkey(fp, cols[col], 0);
         fputc('[', fp);
+        const double *v = buf + slot[col] * m;
         for (size_t k = 0; k < m; k++) {
             if (k) {
                 fputc(',', fp);
             }
-            jnum(fp, buf[k * EDGE_COLS + col]);
+            jnum(fp, v[k]);
         }
         fputc(']', fp);
     }

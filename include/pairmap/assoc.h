@@ -55,6 +55,17 @@ void pm_assoc_jeffreys(double x, double n, double alpha, double *lo, double *hi)
  * (ignored when unweighted). */
 void pm_assoc_confidence(const pm_incidence_t *inc, uint32_t a, uint64_t n_ab, double w_ab,
                          double *conf, double *lo, double *hi);
+/* What pm_assoc_confidence solves: the confidence into *conf and the (x, n) of its Jeffreys
+ * interval (pm_assoc_jeffreys(x, n, 0.05, ..) gives the interval pm_assoc_confidence gives). */
+void pm_assoc_confidence_args(const pm_incidence_t *inc, uint32_t a, uint64_t n_ab, double w_ab,
+                              double *conf, double *x, double *n);
+/* pm_assoc_jeffreys(x[q], n[q], alpha, &lo[q], &hi[q]) for every q < k, the same values bit for
+ * bit, on `threads` threads (0: all cores): each distinct (x, n) is solved once (a kept pair's
+ * confidence shares its (n_ab, n_a) with many others). lo may be x and hi may be n (the
+ * arguments are read first). Extra memory: 4 bytes a query, and a table of at most 16 bytes a
+ * query while the queries are grouped; without it every query is solved on its own. */
+void pm_assoc_jeffreys_many(const double *x, const double *n, size_t k, double alpha,
+                            unsigned threads, double *lo, double *hi);
 /* The p-quantile of Beta(a, b), a, b > 0 (the robust solver behind pm_assoc_jeffreys: Newton
  * steps on GSL's beta CDF inside a shrinking bracket). */
 double pm_assoc_beta_quantile(double p, double a, double b);

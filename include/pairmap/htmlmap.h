@@ -53,13 +53,15 @@ typedef struct {
     const pm_html_run_t *run;
     size_t n_segments; /* segment columns (0: no selector) */
     const pm_html_segments_t *segments;
+    unsigned threads; /* for the partner table's Jeffreys intervals (0: all cores) */
 } pm_html_data_t;
 
 /* Writes the page to fp. Every text of the data reaches the page through one of two escapers:
  * the XML escaper (pm_write_xml_text) for the title, and pm_json_write_script_string for the
  * embedded JSON (which also escapes < > & and U+2028/U+2029, so no name can end the script
  * element or start markup); the SVG comes escaped from pm_svg_write. Cost O(items + edges)
- * plus one Jeffreys interval per edge end. Errors: PM_ENOMEM, PM_EIO (stream). */
+ * plus one Jeffreys interval per distinct (together, item total) of an edge end, on
+ * d->threads threads. Errors: PM_ENOMEM, PM_EIO (stream). */
 pm_err_t pm_html_write(FILE *fp, const pm_html_data_t *d, pm_diag_t *diag);
 
 #ifdef __cplusplus

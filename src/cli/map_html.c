@@ -94,6 +94,7 @@ pm_err_t pm_cli_map_picture(const pm_cli_map_picture_t *p, pm_svg_stats_t *stats
         .drawn = stats ? stats->drawn : 0,
         .run = &run,
     };
+    (void)pm_cli_threads(p->cli, &hd.threads); /* validated earlier */
     /* --segment-col: each column's shrunk index per level and item (pm_segstats_index, the
      * index column of segments.csv) for the page's segment selector */
     const pm_map_t *map = p->map;

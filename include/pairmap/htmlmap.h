@@ -62,6 +62,13 @@ typedef struct {
  * element or start markup); the SVG comes escaped from pm_svg_write. Cost O(items + edges)
  * plus one Jeffreys interval per distinct (together, item total) of an edge end, on
  * d->threads threads. Errors: PM_ENOMEM, PM_EIO (stream). */
+/* An upper bound of the memory pm_html_write allocates per edge of d->map->edges beyond what
+ * its inputs hold: the partner table's 11 columns of doubles (88 bytes) and the Jeffreys
+ * intervals' grouping (pm_assoc_jeffreys_many: a 4-byte representative per query and a hash
+ * table of fewer than 4 slots of 4 bytes per query, 2 queries per edge: 40 bytes). map checks
+ * it against the memory bound before writing (src/cli/map_files.c). */
+#define PM_HTML_EDGE_BYTES 128u
+
 pm_err_t pm_html_write(FILE *fp, const pm_html_data_t *d, pm_diag_t *diag);
 
 #ifdef __cplusplus

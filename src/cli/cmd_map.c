@@ -9,6 +9,7 @@
 #include <unistd.h>
 
 #include "cli.h"
+#include "pairmap/htmlmap.h"
 #include "pairmap/mapwrite.h"
 #include "pairmap/network.h"
 #include "pairmap/outfile.h"
@@ -431,6 +432,11 @@ int pm_cmd_map(int argc, char **argv) {
     double t0 = pm_cli_now();
     if (pm_select_run(s.pp, s.inc, &sel, &s.e, &d)) {
         rc = pm_cli_fail(&d);
+        goto done;
+    }
+    /* map.html's partner table, bounded before the graph stage spends its time */
+    if (no.html && (rc = pm_cli_check_bytes(&c, (uint64_t)s.e->n * PM_HTML_EDGE_BYTES,
+                                            "the columns of map.html's partner table")) != 0) {
         goto done;
     }
     {

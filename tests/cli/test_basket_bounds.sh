@@ -130,5 +130,36 @@ else
         awk -v e="$est" -v m="$rss" 'BEGIN { m /= 1024; exit !(e >= m && e <= 3 * m) }' ||
             fail "$args: estimate $est MiB against a measured peak of $((rss / 1024)) MiB"
     done
+    # map.html's partner table (columns and the intervals' grouping, PM_HTML_EDGE_BYTES an edge)
+    # is bounded after the selection, before the graph stage: 180,000 kept pairs, a bound just
+    # above the counting's need refuses the page (exit 4, nothing written) and --no-html fits;
+    # the page's estimate is above the measured peak of the run that writes it
+    awk 'BEGIN { srand(7); print "id,item"; for (r = 0; r < 30000; r++)
+        for (j = 0; j < 12; j++) printf "r%d,i%d\n", r, int(rand() * 600) }' >"$TMP/edges.csv"
+    M=(map "$TMP/edges.csv" --min-count 1 --max-q 1 --sign both -q)
+    CASES=$((CASES + 1))
+    "$PAIRMAP" "${M[@]}" -o "$TMP/h" --max-memory 1M >/dev/null 2>"$TMP/err"
+    est="$(sed -n 's/.*counting pairs needs about \([0-9]*\) MiB.*/\1/p' "$TMP/err")"
+    if [ -z "$est" ]; then
+        fail "map: no counting estimate in: $(cat "$TMP/err")"
+    else
+        expect_fail 4 "$TMP/edges.csv: " "the columns of map.html's partner table need about" -- \
+            "${M[@]}" -o "$TMP/h" --max-memory "$((est + 3))M"
+        check "nothing written when the page does not fit" test ! -e "$TMP/h"
+        expect_ok "${M[@]}" -o "$TMP/h" --max-memory "$((est + 3))M" --no-html
+        # the page's own memory (PM_HTML_EDGE_BYTES, 128 bytes an edge) against the measured
+        # difference of the peaks with and without it: above it, not far above
+        CASES=$((CASES + 1))
+        /usr/bin/time -f '%M' -o "$TMP/rss" "$PAIRMAP" "${M[@]}" -o "$TMP/h2" >/dev/null 2>&1 ||
+            fail "map with the page: the run failed"
+        with="$(tail -1 "$TMP/rss")"
+        /usr/bin/time -f '%M' -o "$TMP/rss" "$PAIRMAP" "${M[@]}" -o "$TMP/h3" --no-html \
+            >/dev/null 2>&1 || fail "map --no-html: the run failed"
+        without="$(tail -1 "$TMP/rss")"
+        edges="$(($(wc -l <"$TMP/h2/edges.csv") - 1))"
+        awk -v n="$edges" -v a="$with" -v b="$without" 'BEGIN { e = 128 * n / 1024; d = a - b
+            exit !(e >= d && e <= 3 * d) }' ||
+            fail "map.html: 128 bytes x $edges edges against a measured $((with - without)) KiB"
+    fi
 fi
 finish

@@ -550,12 +550,20 @@ static void this_host(char *host, size_t size) {
 
 /* Creates the lock exclusively with our pid and host; 0, or the errno. */
 static int create_lock(const char *path, const char *host) {
+    /* created and registered under g_commit, as the temporary files are: a signal's clean-up
+     * (pm_outdir_stop, on the CLI's signal thread) runs before or after both, never between
+     * them, so it cannot miss a lock that exists (test_errors_output.sh's signal at any
+     * moment found one left once) */
+    pthread_mutex_lock(&g_commit);
     int fd = open(path, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
     if (fd < 0) {
-        return errno;
+        int e = errno;
+        pthread_mutex_unlock(&g_commit);
+        return e;
     }
     memcpy(g_lock, path, strlen(path) + 1);
     g_lock_used = 1; /* from here on every way out removes it */
+    pthread_mutex_unlock(&g_commit);
     char line[400];
     int n = snprintf(line, sizeof line, "%ld %s\n", (long)getpid(), host);
     int e = 0;
@@ -566,8 +574,10 @@ static int create_lock(const char *path, const char *host) {
         e = errno;
     }
     if (e) {
+        pthread_mutex_lock(&g_commit);
         (void)unlink(path);
         g_lock_used = 0;
+        pthread_mutex_unlock(&g_commit);
     }
     return e;
 }

@@ -12,13 +12,26 @@
 typedef struct {
     double N, K, n;
     uint64_t lo, hi, x;
+    double *qc; /* q(lo + i) once computed, NaN before; NULL: none kept */
 } nchg;
 
-/* q(k) = P(k+1) / (w P(k)) = (K - k)(n - k) / ((k + 1)(N - K - n + k + 1)), for lo <= k < hi */
+/* q(k) = P(k+1) / (w P(k)) = (K - k)(n - k) / ((k + 1)(N - K - n + k + 1)), for lo <= k < hi.
+ * The about twelve evaluations of one table walk much the same k: each q is computed once
+ * and kept (the same value, so the same bits as computing it again). */
 static inline double step_ratio(const nchg *d, uint64_t k) {
+    double *c = d->qc ? &d->qc[k - d->lo] : NULL;
+    if (c && !isnan(*c)) {
+        return *c;
+    }
     double dk = (double)k;
-    return (d->K - dk) * (d->n - dk) / ((dk + 1) * (d->N - d->K - d->n + dk + 1));
+    double q = (d->K - dk) * (d->n - dk) / ((dk + 1) * (d->N - d->K - d->n + dk + 1));
+    if (c) {
+        *c = q;
+    }
+    return q;
 }
+
+#define QCACHE 2048 /* tables with a wider support compute each q afresh */
 
 /* The sums of the distribution at log odds ratio th, relative to its largest term, at the
  * mode m: total s, moments about the mode c1 = sum (k - m) t, c2 = sum (k - m)^2 t, the upper
@@ -32,7 +45,11 @@ typedef struct {
     uint64_t m;
 } nchg_sums;
 
-static void add_term(const nchg *d, nchg_sums *o, uint64_t k, double t) {
+#if defined(__GNUC__)
+__attribute__((always_inline))
+#endif
+static inline void
+add_term(const nchg *d, nchg_sums *o, uint64_t k, double t) {
     double dk = (double)k - (double)o->m;
     o->s += t;
     o->c1 += dk * t;
@@ -156,9 +173,16 @@ void pm_oddsratio_exact(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, pm_o
         na = nb;
         nb = t;
     }
-    nchg d = {(double)N, (double)na, (double)nb, 0, 0, nab};
+    nchg d = {(double)N, (double)na, (double)nb, 0, 0, nab, NULL};
     d.lo = nb > N - na ? nb - (N - na) : 0;
     d.hi = na < nb ? na : nb;
+    double qc[QCACHE];
+    if (d.hi - d.lo <= QCACHE) {
+        for (uint64_t i = 0; i < d.hi - d.lo; i++) {
+            qc[i] = NAN;
+        }
+        d.qc = qc;
+    }
     out->method = PM_OR_EXACT;
     out->estimate = out->low = out->high = NAN;
     if (d.lo == d.hi) { /* a single possible table: nothing to estimate */

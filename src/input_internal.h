@@ -118,6 +118,14 @@ pm_err_t pm_i_table_finish(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *d
  * group that would take a second category). Table: src/table_late.c. */
 pm_err_t pm_i_table_late(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *diag);
 
+/* Adds a line ("note: ..." or "warning: ...") to t->notes (pm_table_notes). 0, or -1 when out
+ * of memory. */
+int pm_i_table_note(pm_table_t *t, const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 2, 3)))
+#endif
+    ;
+
 /* Resolves a column selector (name or 1-based number) against a header record; returns the
  * 0-based index or -1 when absent. With no header only numbers are accepted. */
 long pm_i_column_index(const char *sel, const char *const *hdr, const uint32_t *hlen, size_t n);

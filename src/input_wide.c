@@ -47,6 +47,8 @@ typedef struct {
     uint8_t act;
     const char *key;
     size_t keylen;
+    uint64_t cells; /* label columns: cells that held it */
+    uint32_t col;   /* the column it was first seen in */
 } rawinfo;
 
 typedef struct {
@@ -484,6 +486,10 @@ static pm_err_t add_choice(wide *w, uint32_t resp, size_t ci, const pm_i_record 
             return oom(w, diag);
         }
         c->last_rid = rid;
+        if (added) {
+            w->rinfo[rid].cells = 0;
+            w->rinfo[rid].col = (uint32_t)ci;
+        }
         if (c->kind == KIND_LABEL) {
             if (pm_i_grow((void **)&c->last, &c->last_cap, ll + 1, 1)) {
                 return oom(w, diag);
@@ -492,7 +498,8 @@ static pm_err_t add_choice(wide *w, uint32_t resp, size_t ci, const pm_i_record 
             c->last_len = ll;
         }
     }
-    const rawinfo *ri = &w->rinfo[rid];
+    rawinfo *ri = &w->rinfo[rid];
+    ri->cells += c->kind == KIND_LABEL;
     if (ri->act & ACT_MERGED) {
         t->stats.merged_rows++;
     }
@@ -675,6 +682,153 @@ cleanup:
     return rc;
 }
 
+/* ==== pitfalls said out loud ================================================================= */
+
+/* A label that reads as "not asked" rather than an option: only ASCII punctuation and spaces,
+ * or a dash or ellipsis, or a word a survey export writes for a missing answer. */
+static int placeholder_like(const char *s, size_t n) {
+    static const char *const words[] = {
+        "n/a", "na", "null", "nan", "missing", "not asked", "not applicable", "skipped", NULL};
+    for (int k = 0; words[k]; k++) {
+        if (word_eq(s, n, words[k])) {
+            return 1;
+        }
+    }
+    for (size_t i = 0; i < n;) {
+        unsigned char c = (unsigned char)s[i];
+        if (c < 0x80) {
+            if (isalnum(c)) {
+                return 0;
+            }
+            i++;
+        } else if (n - i >= 3 && c == 0xE2 && (unsigned char)s[i + 1] == 0x80 &&
+                   ((unsigned char)s[i + 2] == 0x93 || (unsigned char)s[i + 2] == 0x94 ||
+                    (unsigned char)s[i + 2] == 0xA6)) {
+            i += 3; /* U+2013, U+2014, U+2026 */
+        } else {
+            return 0;
+        }
+    }
+    return 1;
+}
+
+/* The label of raw id rid (the key without its category). */
+static size_t raw_label(const wide *w, int64_t rid, const char **s) {
+    const char *k = w->raw.str[rid];
+    const char *sep = memchr(k, '\x1f', w->raw.len[rid]);
+    *s = k;
+    return sep ? (size_t)(sep - k) : w->raw.len[rid];
+}
+
+/* The three raw ids of column ci (or of question qi when ci is SIZE_MAX) with the most cells,
+ * placeholder-like ones only (ph 1) or the others (ph 0), as "'a' (12), 'b' (9)" in buf.
+ * Returns how many ids matched and sets *cells to their cells. */
+static size_t top_labels(const wide *w, size_t ci, int32_t qi, int ph, char *buf, size_t cap,
+                         uint64_t *cells, size_t *rare, int64_t *top) {
+    int64_t best[3] = {-1, -1, -1};
+    size_t n = 0;
+    *cells = 0;
+    *rare = 0;
+    for (size_t r = 0; r < w->raw.count; r++) {
+        const rawinfo *ri = &w->rinfo[r];
+        if (ri->cells == 0 || (ci != SIZE_MAX ? ri->col != ci : w->cols[ri->col].q != qi)) {
+            continue;
+        }
+        const char *s;
+        size_t l = raw_label(w, (int64_t)r, &s);
+        if (placeholder_like(s, l) != ph) {
+            continue;
+        }
+        n++;
+        *cells += ri->cells;
+        *rare += ri->cells <= 2;
+        for (int k = 0; k < 3; k++) {
+            if (best[k] < 0 || ri->cells > w->rinfo[best[k]].cells) {
+                for (int j = 2; j > k; j--) {
+                    best[j] = best[j - 1];
+                }
+                best[k] = (int64_t)r;
+                break;
+            }
+        }
+    }
+    size_t used = 0;
+    buf[0] = '\0';
+    *top = best[0];
+    for (int k = 0; k < 3 && best[k] >= 0 && used < cap; k++) {
+        const char *s;
+        size_t l = raw_label(w, best[k], &s);
+        char b[96];
+        int m =
+            snprintf(buf + used, cap - used, "%s'%s' (%llu cells)", k ? ", " : "",
+                     pm_i_shown(s, l, b, sizeof b), (unsigned long long)w->rinfo[best[k]].cells);
+        used += m > 0 ? (size_t)m : 0;
+    }
+    return n;
+}
+
+/* Notes on what a selected question's columns hold that is likely not an option: free text
+ * (a label column with many different answers, most given once or twice, or with several
+ * where the question's other label columns hold one each) and placeholders such as '-'. */
+static int pitfall_notes(wide *w) {
+    char list[400];
+    uint64_t cells;
+    size_t rare;
+    int64_t top;
+    for (size_t qi = 0; qi < w->nq; qi++) {
+        size_t single = 0, labelcols = 0;
+        for (size_t ci = 0; ci < w->ncols; ci++) {
+            if (w->cols[ci].q == (int32_t)qi && w->cols[ci].kind == KIND_LABEL) {
+                labelcols++;
+                single += top_labels(w, ci, 0, 0, list, sizeof list, &cells, &rare, &top) <= 1;
+            }
+        }
+        for (size_t ci = 0; ci < w->ncols; ci++) {
+            const column *c = &w->cols[ci];
+            if (c->q != (int32_t)qi || c->kind != KIND_LABEL) {
+                continue;
+            }
+            size_t n = top_labels(w, ci, 0, 0, list, sizeof list, &cells, &rare, &top);
+            if ((n >= 5 && 2 * rare >= n) || (n >= 3 && single >= 2 && 2 * single >= labelcols)) {
+                char b[96];
+                if (pm_i_table_note(w->t,
+                                    "note: column '%s' looks like free text: %zu different "
+                                    "answers (%zu given once or twice), most often %s; each "
+                                    "answer counts as an item; --skip-col '%s' leaves it out",
+                                    pm_i_shown(c->name, strlen(c->name), b, sizeof b), n, rare,
+                                    list, b) < 0) {
+                    return -1;
+                }
+            }
+        }
+        size_t n = top_labels(w, SIZE_MAX, (int32_t)qi, 1, list, sizeof list, &cells, &rare, &top);
+        if (n) {
+            size_t first = SIZE_MAX, ncol = 0;
+            for (size_t ci = 0; ci < w->ncols; ci++) {
+                if (w->cols[ci].q == (int32_t)qi && w->cols[ci].kind == KIND_LABEL) {
+                    first = first == SIZE_MAX ? ci : first;
+                    ncol++;
+                }
+            }
+            const char *s;
+            size_t l = raw_label(w, top, &s);
+            char b[96], v[96];
+            const char *fc = w->cols[first].name;
+            if (pm_i_table_note(w->t,
+                                "note: %s'%s'%s hold%s %s, which look%s like 'not asked' "
+                                "rather than an option and count%s as an item; --drop-value "
+                                "'%s' reads it as not chosen",
+                                ncol > 1 ? "the label columns from " : "column ",
+                                pm_i_shown(fc, strlen(fc), b, sizeof b), ncol > 1 ? "" : "",
+                                ncol > 1 ? "" : "s", list, n > 1 ? "" : "s", n > 1 ? "" : "s",
+                                pm_i_shown(s, l, v, sizeof v)) < 0) {
+                return -1;
+            }
+        }
+    }
+    return 0;
+}
+
 /* ==== entry ================================================================================== */
 
 static pm_err_t setup(wide *w, pm_diag_t *diag) {
@@ -752,6 +906,9 @@ pm_err_t pm_i_read_wide(FILE *fp, const pm_input_opts_t *o, pm_table_t *t, pm_i_
     }
     if (rc == PM_OK) {
         rc = blank_duplicates(&w, diag);
+    }
+    if (rc == PM_OK && pitfall_notes(&w) < 0) {
+        rc = oom(&w, diag);
     }
     if (rc == PM_OK) {
         rc = name_items(&w, diag);

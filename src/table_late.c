@@ -14,7 +14,7 @@
  * in one line (a merge file may list many codes this file does not hold). */
 #define MAX_MISSING 5
 
-static int add_note(pm_table_t *t, const char *fmt, ...) {
+int pm_i_table_note(pm_table_t *t, const char *fmt, ...) {
     char buf[1024];
     va_list ap;
     va_start(ap, fmt);
@@ -65,18 +65,18 @@ static int look_up(late *L, const char *name, const char *kind, uint64_t line, p
     }
     if (f->how == PM_ITEM_CASE || f->how == PM_ITEM_LABEL || f->how == PM_ITEM_EXACT) {
         name_list(L->t, f->match, f->n, list, sizeof list);
-        return add_note(L->t, "note: %s '%.200s' taken as %s (%s)", kind, name, list,
-                        f->how == PM_ITEM_LABEL ? "the label under each question"
-                                                : "letter case differs") < 0
+        return pm_i_table_note(L->t, "note: %s '%.200s' taken as %s (%s)", kind, name, list,
+                               f->how == PM_ITEM_LABEL ? "the label under each question"
+                                                       : "letter case differs") < 0
                    ? -1
                    : 1;
     }
     if (f->how == PM_ITEM_AMBIGUOUS) {
         name_list(L->t, f->match, f->n, list, sizeof list);
-        return add_note(L->t,
-                        "warning: %s '%.200s' matches no item exactly and, ignoring letter "
-                        "case, several: %s; none taken: give the name exactly",
-                        kind, name, list) < 0
+        return pm_i_table_note(L->t,
+                               "warning: %s '%.200s' matches no item exactly and, ignoring letter "
+                               "case, several: %s; none taken: give the name exactly",
+                               kind, name, list) < 0
                    ? -1
                    : 0;
     }
@@ -87,8 +87,8 @@ static int look_up(late *L, const char *name, const char *kind, uint64_t line, p
         return 0;
     }
     name_list(L->t, f->near, f->n_near, list, sizeof list);
-    return add_note(L->t, "warning: %s '%.200s' matches no item; closest: %s", kind, name,
-                    f->n_near ? list : "(no items)") < 0
+    return pm_i_table_note(L->t, "warning: %s '%.200s' matches no item; closest: %s", kind, name,
+                           f->n_near ? list : "(no items)") < 0
                ? -1
                : 0;
 }
@@ -380,8 +380,9 @@ pm_err_t pm_i_table_late(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *dia
         goto done;
     }
     if (L.missing > MAX_MISSING &&
-        add_note(t, "warning: %zu more names given to --drop-item or --merge-file match no item",
-                 L.missing - MAX_MISSING) < 0) {
+        pm_i_table_note(
+            t, "warning: %zu more names given to --drop-item or --merge-file match no item",
+            L.missing - MAX_MISSING) < 0) {
         rc = PM_ENOMEM;
         goto done;
     }

@@ -124,7 +124,9 @@ static void print_selection(const pm_select_opts_t *sel, const pm_pairs_t *pp, c
          sel->sign == PM_SIGN_BOTH || (sel->sign == PM_SIGN_POSITIVE ? m->phi > 0 : m->phi < 0),
          buf, first);
     snprintf(what, sizeof what, "--max-q %g", sel->max_q);
-    snprintf(buf, sizeof buf, "q %.4g (%.3g times the bound)", m->q, m->q / sel->max_q);
+    char qs[32]; /* the one style of q-values in text (pm_cli_q) */
+    snprintf(buf, sizeof buf, "q %s (%.3g times the bound)", pm_cli_q(m->q, qs, sizeof qs),
+             m->q / sel->max_q);
     gate(what, m->q <= sel->max_q, buf, first);
     if (sel->min_phi > 0) {
         snprintf(what, sizeof what, "--min-phi %g", sel->min_phi);

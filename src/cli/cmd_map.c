@@ -47,12 +47,15 @@ static const char help[] =
     "\n";
 
 static const char help_network[] =
-    "Network:\n"
+    "Output, clustering and layout:\n"
     "  -o, --output DIR      output directory (required)\n"
-    "  --seed N              seed of the clustering and the layout (default 1)\n"
-    "  --restarts R          Louvain runs (default 10); run r uses seed + r * 0x9E3779B97F4A7C15\n"
-    "                        (mod 2^64). The run with the highest modularity is kept (ties: the\n"
-    "                        first); stability is the mean adjusted Rand index between the\n"
+    "  --seed N              seed of the clustering and the layout (default 1): the same\n"
+    "                        --seed repeats every run, and another seed may give other\n"
+    "                        clusters where the data leave them open\n"
+    "  --restarts R          Louvain runs (default 10), each with a seed of its own derived\n"
+    "                        from --seed and its number. The run with the highest modularity\n"
+    "                        is kept (ties: the first); stability is the mean adjusted Rand index "
+    "between the\n"
     "                        runs' partitions (1 = every run found the same clusters). At most\n"
     "                        1000, and fewer on large maps: every run's clusters are kept\n"
     "                        (R x items x 4 bytes, up to 1 GiB) and the stability compares\n"
@@ -62,6 +65,7 @@ static const char help_network[] =
     "  --resolution F        Louvain resolution (default 1; higher gives more, smaller clusters)\n"
     "  --iterations N        Fruchterman-Reingold iterations (default 500 up to 1,000 items\n"
     "                        with edges; above, 500,000 / items, at least 150)\n"
+    "Picture (map.svg, map.html):\n"
     "  --title TEXT          title of the picture (also stored in the GraphML)\n"
     "  --draw N              how many items the SVG draws (default: as many as fit); the\n"
     "                        GraphML and CSV files keep all\n"

@@ -22,7 +22,7 @@ else:
     for o in ["--seed", "--restarts", "--resolution"]:
         if o in pic[0]:
             bad.append(f"{o} under the picture heading")
-if "the same --seed repeats every run" not in re.sub(r"\s+", " ", t):
+if "the same --seed repeat every file" not in re.sub(r"\s+", " ", t):
     bad.append("the seed rule is not stated in words")
 for b in bad:
     print(b, file=sys.stderr)

@@ -23,7 +23,7 @@ expect_fail 2 "$DATA/everyone_chose_everything.csv: " "every respondent" -- \
 # --help says what the issue asks to be said
 CASES=$((CASES + 1))
 "$PAIRMAP" map --help >"$TMP/help" || fail "map --help failed"
-for s in "negative edges" "take no part" "singleton" "0x9E3779B97F4A7C15" "timings" "temporary"; do
+for s in "negative edges" "take no part" "singleton" "the same --seed repeat every file" "timings" "temporary"; do
     grep -q -- "$s" "$TMP/help" || fail "map --help does not mention '$s'"
 done
 CASES=$((CASES + 1))

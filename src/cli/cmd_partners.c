@@ -397,10 +397,8 @@ static void confidence(const pm_incidence_t *inc, const anchor *an, uint32_t b, 
     }
 }
 
-static bool passes(const pm_select_opts_t *sel, uint32_t nab, const pm_measures_t *m) {
-    if (nab < sel->min_count) {
-        return false;
-    }
+/* Every threshold but --min-count (the small-cell bound). */
+static bool passes_rest(const pm_select_opts_t *sel, const pm_measures_t *m) {
     if ((sel->sign == PM_SIGN_POSITIVE && !(m->phi > 0)) ||
         (sel->sign == PM_SIGN_NEGATIVE && !(m->phi < 0))) {
         return false;
@@ -413,6 +411,17 @@ static bool passes(const pm_select_opts_t *sel, uint32_t nab, const pm_measures_
     }
     return !(sel->min_lift > 0 && !(m->lift >= sel->min_lift));
 }
+
+static bool passes(const pm_select_opts_t *sel, uint32_t nab, const pm_measures_t *m) {
+    return nab >= sel->min_count && passes_rest(sel, m);
+}
+
+/* Partners of the family left out by --min-count alone (issue 16): how many, and the
+ * smallest count together among them. */
+typedef struct {
+    size_t n;
+    uint32_t least;
+} hidden_t;
 
 static bool eligible(const pm_incidence_t *inc, size_t i, double min_share) {
     return inc->count[i] > 0 && inc->count[i] < inc->N && !(pm_incidence_share(inc, i) < min_share);
@@ -501,7 +510,7 @@ static int within_p(const pm_cli_t *c, const pm_incidence_t *inc, uint32_t a, co
  * selection become rows[0..*nrows). Returns 0 or 4 (out of memory). */
 static int score_partners(const pm_cli_t *c, const pm_incidence_t *inc, const anchor *an,
                           const unsigned char *in_set, const pm_select_opts_t *sel, int within,
-                          row *rows, size_t *nrows, size_t *nfam) {
+                          row *rows, size_t *nrows, size_t *nfam, hidden_t *hid) {
     size_t n = inc->n_items ? inc->n_items : 1, nf = 0;
     pm_measures_t *ms = malloc(n * sizeof *ms);
     uint32_t *fam = malloc(n * sizeof *fam);
@@ -534,8 +543,12 @@ static int score_partners(const pm_cli_t *c, const pm_incidence_t *inc, const an
     *nrows = 0;
     for (size_t j = 0; j < nf && !rc; j++) {
         ms[j].q = pv[j];
-        if (passes(sel, an->nb[fam[j]], &ms[j])) {
+        uint32_t nab = an->nb[fam[j]];
+        if (passes(sel, nab, &ms[j])) {
             fill_row(inc, an, fam[j], &ms[j], &rows[(*nrows)++]);
+        } else if (nab < sel->min_count && passes_rest(sel, &ms[j])) {
+            hid->least = hid->n == 0 || nab < hid->least ? nab : hid->least;
+            hid->n++;
         }
     }
     *nfam = nf;
@@ -680,7 +693,7 @@ static int find_set(const pm_cli_t *c, const pm_incidence_t *inc, const char *sr
 /* The ranked rows as CSV or a text table, and the notes after them. */
 static void print_rows(const pm_cli_t *c, const pm_incidence_t *inc, const partners_opts *po,
                        const anchor *an, const unsigned char *in_set, const row *rows, size_t nrows,
-                       size_t shown, size_t nfam) {
+                       size_t shown, size_t nfam, const hidden_t *hid) {
     if (po->csv) {
         size_t nseg;
         pm_cli_segcols(&nseg);
@@ -696,12 +709,16 @@ static void print_rows(const pm_cli_t *c, const pm_incidence_t *inc, const partn
             }
         }
     }
-    if (po->sel.sign == PM_SIGN_NEGATIVE && po->sel.min_count > 0) {
-        /* the strongest substitutes are often the pairs almost never chosen together */
+    if (hid->n) {
+        /* substitutes are by nature seen together rarely: say what the bound left out */
         pm_cli_note(c,
-                    "note: partners seen together fewer than %u times are hidden by "
-                    "--min-count (small-cell suppression); --min-count 0 shows them",
-                    po->sel.min_count);
+                    "note: %zu partner%s of the family pass%s every other threshold but %s "
+                    "seen together fewer than --min-count %u times (the small-cell bound) and "
+                    "%s left out; --min-count %u lists %s (a lower --min-count also takes "
+                    "rarer items into the family, so q-values can change)",
+                    hid->n, hid->n == 1 ? "" : "s", hid->n == 1 ? "es" : "",
+                    hid->n == 1 ? "was" : "were", po->sel.min_count, hid->n == 1 ? "is" : "are",
+                    hid->least, hid->n == 1 ? "it" : "them");
     }
 }
 
@@ -747,6 +764,7 @@ int pm_cmd_partners(int argc, char **argv) {
         goto done;
     }
     size_t nfam = 0;
+    hidden_t hid = {0, 0};
     if (an.n == 0 || an.n >= inc->N) {
         fprintf(stderr, "pairmap: %s: %s respondent chose all %zu items: no partner to rank\n",
                 pm_cli_shown(src), an.n == 0 ? "no" : "every", k);
@@ -754,8 +772,8 @@ int pm_cmd_partners(int argc, char **argv) {
         if ((rc = map_partners(&c, t, inc, &an, first, &sel, rows, &nrows, &nfam)) != 0) {
             goto done;
         }
-    } else if ((rc = score_partners(&c, inc, &an, in_set, &sel, po.within, rows, &nrows, &nfam)) !=
-               0) {
+    } else if ((rc = score_partners(&c, inc, &an, in_set, &sel, po.within, rows, &nrows, &nfam,
+                                    &hid)) != 0) {
         goto done;
     }
     if (an.n < sel.min_count) {
@@ -774,7 +792,7 @@ int pm_cmd_partners(int argc, char **argv) {
     if (po.csv && k == 1 && (rc = rows_strat(&c, inc, first, rows, shown, &sel)) != 0) {
         goto done; /* within segments: CSV only, one item only */
     }
-    print_rows(&c, inc, &po, &an, in_set, rows, nrows, shown, nfam);
+    print_rows(&c, inc, &po, &an, in_set, rows, nrows, shown, nfam, &hid);
     rc = pm_cli_close_stdout();
 done:
     anchor_free(&an);

@@ -774,6 +774,13 @@ pm_err_t pm_assoc_finish(pm_assoc_stage_t *st, pm_counts_t *cnt, pm_pairs_t **ou
     if (rc == PM_OK) { /* step 9: Benjamini-Hochberg over the whole family */
         rc = pm_i_assoc_family_bh(st->pp, &f, st->threads);
     }
+    if (rc == PM_OK) { /* the pruned pairs that --min-count alone keeps out of the listing */
+        st->pp->below_count_q = 0;
+        for (size_t i = 0; i < f.npf + f.npd; i++) {
+            double p = i < f.npf ? f.pf[i] : f.pd[i - f.npf];
+            st->pp->below_count_q += pm_pairs_qvalue(st->pp, p) <= st->pp->q_limit;
+        }
+    }
     free(f.lv);
     free(f.pf);
     free(f.pd);

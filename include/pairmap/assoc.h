@@ -116,10 +116,14 @@ typedef struct {
     size_t n_eligible;
     unsigned char *in_family; /* per item: eligible, and chosen by at least min_count */
     size_t n_family;
-    uint64_t hypotheses;  /* the family: n_family (n_family - 1) / 2 pairs */
-    uint64_t seen;        /* pairs seen together */
-    uint64_t below_count; /* seen together fewer than min_count times: tested, not listed */
-    uint64_t unseen;      /* pairs never seen together */
+    uint64_t hypotheses;    /* the family: n_family (n_family - 1) / 2 pairs */
+    uint64_t seen;          /* pairs seen together */
+    uint64_t below_count;   /* seen together fewer than min_count times: tested, not listed */
+    uint64_t below_count_q; /* of those, the ones with q <= q_limit: their one-sided p (or
+                             * two-sided, sign both) is small, so they also point in the
+                             * sign's direction; left out by min_count alone unless a phi or
+                             * lift bound would remove them too */
+    uint64_t unseen;        /* pairs never seen together */
     size_t excluded_none, excluded_all, excluded_share; /* items left out, by reason */
     int kernel;
     uint64_t work;

@@ -906,12 +906,27 @@ int pm_cli_score_q(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
         *pairs = NULL;
         return 2;
     }
+    if (!within && q_limit == sel->max_q) { /* the pooled q selects: say what --min-count hid */
+        pm_cli_note_min_count(c, (*pairs)->below_count_q, sel->min_count);
+    }
     int wrc = pm_cli_within(c, inc, sel, *pairs); /* --pair-test within: CMH q-values */
     if (wrc) {
         pm_pairs_free(*pairs);
         *pairs = NULL;
     }
     return wrc;
+}
+
+void pm_cli_note_min_count(const pm_cli_t *c, uint64_t n, unsigned min_count) {
+    if (n && min_count > 1) {
+        pm_cli_note(c,
+                    "note: %llu pair%s pass%s --sign and --max-q but %s seen together fewer "
+                    "than --min-count (%u) times, so %s left out (small cells, README); "
+                    "--min-count 1 lists %s",
+                    (unsigned long long)n, n == 1 ? "" : "s", n == 1 ? "es" : "",
+                    n == 1 ? "was" : "were", min_count, n == 1 ? "it is" : "they are",
+                    n == 1 ? "it" : "them");
+    }
 }
 
 int pm_cli_check_eligible(const pm_cli_t *c, const pm_incidence_t *inc, double min_share) {

@@ -136,6 +136,9 @@ int pm_cli_score_q(const pm_cli_t *c, pm_table_t *t, const pm_incidence_t *inc,
 /* The notes on items left out (chosen by nobody, by everyone, below min_share) and the error
  * when fewer than 2 items are eligible, as pm_cli_score prints them, without scoring. Returns
  * 0 or 2. */
+/* The note on pairs left out by --min-count alone (n of them; nothing when n is 0 or nothing
+ * is pruned, min_count <= 1): issue 16 point 1. */
+void pm_cli_note_min_count(const pm_cli_t *c, uint64_t n, unsigned min_count);
 int pm_cli_check_eligible(const pm_cli_t *c, const pm_incidence_t *inc, double min_share);
 
 /* ---- segments (src/cli/cli_segments.c) ---- */

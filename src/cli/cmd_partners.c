@@ -261,6 +261,45 @@ static void print_csv(const pm_incidence_t *inc, const row *r, size_t n, unsigne
     }
 }
 
+/* The pairs (a, b_j), j < n, as the view of listed pairs and edges pm_stratified_edges reads
+ * (only a, b and the edge indices): a is filled in here, the caller sets each b_j in
+ * b[j]. 0, or 4 after an out-of-memory message. */
+typedef struct {
+    uint32_t *ab, *b;
+    size_t *idx;
+    pm_pairs_t pairs;
+    pm_edges_t sub;
+} anchor_view;
+
+static int anchor_view_new(uint32_t a, size_t n, anchor_view *v) {
+    memset(v, 0, sizeof *v);
+    v->ab = malloc(2 * (n ? n : 1) * sizeof *v->ab);
+    v->idx = malloc((n ? n : 1) * sizeof *v->idx);
+    if (!v->ab || !v->idx) {
+        free(v->ab);
+        free(v->idx);
+        v->ab = NULL;
+        v->idx = NULL;
+        fputs("pairmap: out of memory\n", stderr);
+        return 4;
+    }
+    v->b = v->ab + n;
+    for (size_t j = 0; j < n; j++) {
+        v->ab[j] = a;
+        v->idx[j] = j;
+    }
+    v->pairs.a = v->ab;
+    v->pairs.b = v->b;
+    v->sub.n = n;
+    v->sub.idx = v->idx;
+    return 0;
+}
+
+static void anchor_view_free(anchor_view *v) {
+    free(v->ab);
+    free(v->idx);
+}
+
 /* The figures within segments (--segment-col) of the pairs (first, r[j].item), j < n, stored
  * in the rows; nothing without segments or with weights (a note says so). Returns 0 or the
  * exit status. */
@@ -271,34 +310,21 @@ static int rows_strat(const pm_cli_t *c, const pm_incidence_t *inc, uint32_t fir
     if (nseg == 0) {
         return 0;
     }
-    uint32_t *ab = malloc(2 * (n ? n : 1) * sizeof *ab);
-    size_t *idx = malloc((n ? n : 1) * sizeof *idx);
-    if (!ab || !idx) {
-        free(ab);
-        free(idx);
-        fputs("pairmap: out of memory\n", stderr);
+    anchor_view v;
+    if (anchor_view_new(first, n, &v)) {
         return 4;
     }
     for (size_t j = 0; j < n; j++) {
-        ab[j] = first;
-        ab[n + j] = r[j].item;
-        idx[j] = j;
+        v.b[j] = r[j].item;
     }
-    pm_pairs_t pairs = {0}; /* only a and b are read (pm_stratified_edges) */
-    pairs.a = ab;
-    pairs.b = ab + n;
-    pm_edges_t sub = {0};
-    sub.n = n;
-    sub.idx = idx;
     pm_strat_t *st = NULL;
-    int rc = pm_cli_strat(c, inc, seg, nseg, &pairs, &sub, sel, &st);
+    int rc = pm_cli_strat(c, inc, seg, nseg, &v.pairs, &v.sub, sel, &st);
     for (size_t j = 0; st && j < n; j++) {
         r[j].st = st[j];
         r[j].has_st = 1;
     }
     free(st);
-    free(ab);
-    free(idx);
+    anchor_view_free(&v);
     return rc;
 }
 
@@ -457,32 +483,21 @@ static int within_p(const pm_cli_t *c, const pm_incidence_t *inc, uint32_t a, co
                     size_t nf, const pm_select_opts_t *sel, double *pv) {
     size_t nseg;
     const pm_segcol_t *seg = pm_cli_segcols(&nseg);
-    uint32_t *ab = malloc(2 * (nf ? nf : 1) * sizeof *ab);
-    size_t *idx = malloc((nf ? nf : 1) * sizeof *idx);
-    if (!ab || !idx || nseg == 0) {
-        free(ab);
-        free(idx);
-        fputs(nseg ? "pairmap: out of memory\n" : "pairmap: --pair-test within: no segments\n",
-              stderr);
+    if (nseg == 0) {
+        fputs("pairmap: --pair-test within: no segments\n", stderr);
         return 4;
     }
-    for (size_t j = 0; j < nf; j++) {
-        ab[j] = a;
-        ab[nf + j] = fam[j];
-        idx[j] = j;
+    anchor_view v;
+    if (anchor_view_new(a, nf, &v)) {
+        return 4;
     }
-    pm_pairs_t pairs = {0}; /* only a and b are read (pm_stratified_edges) */
-    pairs.a = ab;
-    pairs.b = ab + nf;
-    pm_edges_t sub = {0};
-    sub.n = nf;
-    sub.idx = idx;
+    memcpy(v.b, fam, nf * sizeof *fam);
     pm_strat_t *st = NULL;
     pm_diag_t d;
     pm_diag_clear(&d);
     int rc = 0;
     size_t undefined = 0;
-    if (pm_stratified_edges(inc, &seg[0], &pairs, &sub, sel->sign, &st, &d) != PM_OK) {
+    if (pm_stratified_edges(inc, &seg[0], &v.pairs, &v.sub, sel->sign, &st, &d) != PM_OK) {
         rc = pm_cli_fail(&d);
     }
     for (size_t j = 0; !rc && j < nf; j++) {
@@ -499,8 +514,7 @@ static int within_p(const pm_cli_t *c, const pm_incidence_t *inc, uint32_t a, co
                     pm_cli_unit(c));
     }
     free(st);
-    free(ab);
-    free(idx);
+    anchor_view_free(&v);
     return rc;
 }
 

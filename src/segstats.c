@@ -21,6 +21,9 @@ void pm_segstats_destroy(pm_segstats_t *s) {
         return;
     }
     free(s->chose);
+    free(s->n_eff);
+    free(s->x_eff);
+    free(s->share);
     free(s->mu);
     free(s->share_low);
     free(s->share_high);
@@ -42,7 +45,15 @@ void pm_segstats_destroy(pm_segstats_t *s) {
  * difference written without cancellation, (a - 1/2) log1p(x / a) + x log(a + x) - x
  * + c(a + x) - c(a) with c(z) = 1/(12 z) - 1/(360 z^3) + 1/(1260 z^5) (Abramowitz and Stegun
  * 6.1.41; the next term is below 1e-30 for z >= 1e4). Otherwise GSL. */
-static double lnpoch(double a, double x) {
+#define PM_STIRLING_C(t)                                                                           \
+    (1 / (12 * (t)) - 1 / (360 * (t) * (t) * (t)) + 1 / (1260 * (t) * (t) * (t) * (t) * (t)))
+static double stirling_diff(double a, double x) {
+    double z = a + x;
+    return (a - 0.5) * log1p(x / a) + x * log(z) - x + (PM_STIRLING_C(z) - PM_STIRLING_C(a));
+}
+#undef PM_STIRLING_C
+
+static double lnpoch_int(double a, double x) {
     if (x <= 0) {
         return 0;
     }
@@ -54,13 +65,30 @@ static double lnpoch(double a, double x) {
         return s;
     }
     if (a >= 1e4 && x <= 0.1 * a) {
-        double z = a + x;
-#define PM_STIRLING_C(t)                                                                           \
-    (1 / (12 * (t)) - 1 / (360 * (t) * (t) * (t)) + 1 / (1260 * (t) * (t) * (t) * (t) * (t)))
-        return (a - 0.5) * log1p(x / a) + x * log(z) - x + (PM_STIRLING_C(z) - PM_STIRLING_C(a));
-#undef PM_STIRLING_C
+        return stirling_diff(a, x);
     }
     return gsl_sf_lnpoch(a, x);
+}
+
+/* The same for any x >= 0 (weighted input gives effective counts with a fraction f):
+ * Gamma(a + x) / Gamma(a) = Gamma(a + f) / Gamma(a) * Gamma(a + f + n) / Gamma(a + f),
+ * n = floor(x); a whole x takes lnpoch_int alone (the same bits as before fractions). */
+static double lnpoch(double a, double x) {
+    double n = floor(x), f = x - n;
+    if (!(f > 0)) {
+        return lnpoch_int(a, x);
+    }
+    double head = a >= 1e4 ? stirling_diff(a, f) : gsl_sf_lnpoch(a, f);
+    return head + lnpoch_int(a + f, n);
+}
+
+/* log C(n, x) for counts, or for effective counts as log Gamma(n + 1) - log Gamma(x + 1)
+ * - log Gamma(n - x + 1) = -log(n + 1) - log B(n - x + 1, x + 1). */
+static double lnchoose(double n, double x, int whole) {
+    if (whole) {
+        return gsl_sf_lnchoose((unsigned)n, (unsigned)x);
+    }
+    return -log1p(n) - gsl_sf_lnbeta(n - x + 1, x + 1);
 }
 
 /* ==== the beta-binomial fit ================================================================= */
@@ -94,15 +122,15 @@ static int ll_chunk(void *ud, size_t ch, unsigned th) {
         }
         double a = m * mu, b = m * (1 - mu);
         for (size_t k = 0; k < s->n_levels; k++) {
-            double n = (double)f->c->base[k], x = (double)s->chose[k * s->n_items + i];
-            if (n == 0) {
+            double n = s->n_eff[k], x = s->x_eff[k * s->n_items + i];
+            if (f->c->base[k] == 0) {
                 continue;
             }
             /* log B(x + a, n - x + b) - log B(a, b) as Pochhammer terms: no cancellation of
              * two large log-betas when m is large */
             ll += lnpoch(a, x) + lnpoch(b, n - x) - f->lpn[k];
             if (f->with_const) {
-                ll += gsl_sf_lnchoose((unsigned)n, (unsigned)x);
+                ll += lnchoose(n, x, !s->weighted);
             }
         }
     }
@@ -114,7 +142,7 @@ static double loglik_c(fit_ctx *f, double m, int with_const) {
     f->m = m;
     f->with_const = with_const;
     for (size_t k = 0; k < f->s->n_levels; k++) {
-        f->lpn[k] = lnpoch(m, (double)f->c->base[k]);
+        f->lpn[k] = lnpoch(m, f->s->n_eff[k]);
     }
     if (f->threads < 2 || pm_i_parallel(f->threads, FIT_CHUNKS, ll_chunk, f) != 0) {
         for (size_t ch = 0; ch < FIT_CHUNKS; ch++) {
@@ -278,33 +306,57 @@ static pm_err_t fit_m(pm_segstats_t *s, const pm_segcol_t *c, unsigned threads) 
 }
 
 /* ==== per cell ============================================================================== */
+/* The weighted sums a weighted table needs besides the counts (NULL arrays when unweighted). */
+typedef struct {
+    double *wchose; /* [cells] weight of the segment's respondents who chose the item */
+    double *wbase;  /* [levels] weight of the segment */
+    double *w2base; /* [levels] squared weights of the segment */
+    double *wtot;   /* [items] weight of the respondents with a segment who chose the item */
+    double WB, W2B; /* weight and squared weights of the respondents with a segment */
+} wsums;
+
 /* The Jeffreys intervals of the counts 0..JT of every segment, computed once (most items
  * are rare: their counts repeat from item to item); jt[(k * (JT + 1) + x) * 2 + 0/1]. The
- * same function on the same arguments: the same bits as computing them per cell. */
+ * same function on the same arguments: the same bits as computing them per cell. Unweighted
+ * only (weighted counts are fractions). */
 #define JT 64
-static void cell(pm_segstats_t *s, const pm_segcol_t *c, const double *jt, size_t k, size_t i,
-                 uint64_t tot) {
+static void cell_test(pm_segstats_t *s, const pm_segcol_t *c, const wsums *w, size_t k, size_t i,
+                      uint64_t tot) {
     size_t j = k * s->n_items + i;
     uint64_t n = c->base[k], x = s->chose[j];
-    double mu = s->mu[i];
-    if (jt && x <= JT && x <= n) {
-        s->share_low[j] = jt[(k * (JT + 1) + x) * 2];
-        s->share_high[j] = jt[(k * (JT + 1) + x) * 2 + 1];
-    } else {
-        pm_assoc_jeffreys((double)x, (double)n, 0.05, &s->share_low[j], &s->share_high[j]);
+    s->p[j] = NAN;
+    s->test[j] = 0;
+    if (!(n > 0 && n < s->B && tot > 0 && tot < s->B)) {
+        return;
     }
-    double a = (double)x + s->m * mu, b = (double)(n - x) + s->m * (1 - mu);
+    pm_measures_t m;
+    if (s->weighted) {
+        /* as pairs are tested with weights: chi-square on Kish's effective size of the
+         * respondents with a segment (the segment and the item as the two "items") */
+        pm_assoc_weighted(w->WB, w->wbase[k], w->wtot[i], w->wchose[j], w->WB * w->WB / w->W2B,
+                          PM_SIGN_BOTH, &m);
+    } else {
+        pm_assoc_counts(s->B, n, tot, x, PM_SIGN_BOTH, &m);
+    }
+    s->p[j] = m.p;
+    s->test[j] = m.test == PM_TEST_FISHER ? 1 : 2;
+}
+
+static void cell(pm_segstats_t *s, const pm_segcol_t *c, const wsums *w, const double *jt, size_t k,
+                 size_t i, uint64_t tot) {
+    size_t j = k * s->n_items + i;
+    double n = s->n_eff[k], x = s->x_eff[j], mu = s->mu[i];
+    if (jt && s->chose[j] <= JT) {
+        s->share_low[j] = jt[(k * (JT + 1) + s->chose[j]) * 2];
+        s->share_high[j] = jt[(k * (JT + 1) + s->chose[j]) * 2 + 1];
+    } else {
+        pm_assoc_jeffreys(x, n, 0.05, &s->share_low[j], &s->share_high[j]);
+    }
+    double a = x + s->m * mu, b = (n - x) + s->m * (1 - mu);
     s->shrunk[j] = a / (a + b);
     s->shrunk_low[j] = a <= 0 ? 0 : pm_assoc_beta_quantile(0.025, a, b);
     s->shrunk_high[j] = b <= 0 ? 1 : pm_assoc_beta_quantile(0.975, a, b);
-    s->p[j] = NAN;
-    s->test[j] = 0;
-    if (n > 0 && n < s->B && tot > 0 && tot < s->B) {
-        pm_measures_t m;
-        pm_assoc_counts(s->B, n, tot, x, PM_SIGN_BOTH, &m);
-        s->p[j] = m.p;
-        s->test[j] = m.test == PM_TEST_FISHER ? 1 : 2;
-    }
+    cell_test(s, c, w, k, i, tot);
 }
 
 /* The cells in CELL_CHUNKS fixed ranges shared by the threads (each cell on its own). */
@@ -313,6 +365,7 @@ typedef struct {
     pm_segstats_t *s;
     const pm_segcol_t *c;
     const uint64_t *tot;
+    const wsums *w;
     double *jt; /* NULL: no table */
 } cell_job;
 
@@ -335,28 +388,32 @@ static int cell_chunk(void *ud, size_t ch, unsigned th) {
     cell_job *j = ud;
     size_t n = j->s->n_levels * j->s->n_items, ni = j->s->n_items;
     for (size_t x = n * ch / CELL_CHUNKS; x < n * (ch + 1) / CELL_CHUNKS; x++) {
-        cell(j->s, j->c, j->jt, x / ni, x % ni, j->tot[x % ni]);
+        cell(j->s, j->c, j->w, j->jt, x / ni, x % ni, j->tot[x % ni]);
     }
     return 0;
 }
 
 /* Cochran-Armitage test of a linear trend in item i's share over the ordered levels, scores
  * 1..k, no continuity correction (Agresti, Categorical Data Analysis, section 5.3.5):
- * z = sum t_s (x_s - n_s pbar) / sqrt(pbar (1 - pbar) sum n_s (t_s - tbar)^2). */
+ * z = sum t_s (x_s - n_s pbar) / sqrt(pbar (1 - pbar) sum n_s (t_s - tbar)^2), on the
+ * effective counts x_eff of n_eff when weighted (pbar = sum x_s / sum n_s). */
 static void trend(pm_segstats_t *s, const pm_segcol_t *c, size_t i, uint64_t tot) {
     s->trend_z[i] = s->trend_p[i] = NAN;
     if (!c->ordered || s->n_levels < 2 || tot == 0 || tot >= s->B) {
         return;
     }
-    double B = (double)s->B, pbar = (double)tot / B, tbar = 0;
+    double B = 0, X = 0, tbar = 0;
     for (size_t k = 0; k < s->n_levels; k++) {
-        tbar += (double)(k + 1) * (double)c->base[k];
+        B += s->n_eff[k];
+        X += s->x_eff[k * s->n_items + i];
+        tbar += (double)(k + 1) * s->n_eff[k];
     }
-    tbar /= B;
+    double pbar = s->weighted ? X / B : (double)tot / (double)s->B;
+    tbar /= s->weighted ? B : (double)s->B;
     double num = 0, ss = 0;
     for (size_t k = 0; k < s->n_levels; k++) {
-        double t = (double)(k + 1), n = (double)c->base[k];
-        num += t * ((double)s->chose[k * s->n_items + i] - n * pbar);
+        double t = (double)(k + 1), n = s->n_eff[k];
+        num += t * (s->x_eff[k * s->n_items + i] - n * pbar);
         ss += n * (t - tbar) * (t - tbar);
     }
     double v = pbar * (1 - pbar) * ss;
@@ -366,68 +423,131 @@ static void trend(pm_segstats_t *s, const pm_segcol_t *c, size_t i, uint64_t tot
     }
 }
 
-static pm_err_t alloc_all(pm_segstats_t *s, size_t k, size_t ni) {
-    size_t cells = k * ni > 0 ? k * ni : 1, items = ni ? ni : 1;
+uint64_t pm_segstats_bytes(size_t levels, size_t items) {
+    double cells = (double)levels * (double)items;
+    double b = (cells + 1) * PM_SEG_CELL_BYTES + ((double)levels + 1) * (JT + 1) * 16 +
+               ((double)items + 1) * 48 + ((double)levels + 1) * 32;
+    return b >= 1.8e19 ? UINT64_MAX : (uint64_t)b;
+}
+
+static pm_err_t alloc_all(pm_segstats_t *s, size_t k, size_t ni, wsums *w) {
+    size_t cells = k * ni > 0 ? k * ni : 1, items = ni ? ni : 1, lv = k ? k : 1;
     s->chose = pm_i_calloc(cells, sizeof *s->chose);
     s->mu = pm_i_calloc(items, sizeof *s->mu);
     s->trend_z = pm_i_calloc(items, sizeof *s->trend_z);
     s->trend_p = pm_i_calloc(items, sizeof *s->trend_p);
-    double **d[] = {&s->share_low,   &s->share_high, &s->shrunk, &s->shrunk_low,
-                    &s->shrunk_high, &s->p,          &s->q};
-    int ok = s->chose && s->mu && s->trend_z && s->trend_p;
+    s->n_eff = pm_i_calloc(lv, sizeof *s->n_eff);
+    double **d[] = {&s->share_low, &s->share_high, &s->shrunk, &s->shrunk_low, &s->shrunk_high,
+                    &s->p,         &s->q,          &s->x_eff,  &s->share};
+    int ok = s->chose && s->mu && s->trend_z && s->trend_p && s->n_eff;
     for (size_t j = 0; j < sizeof d / sizeof d[0]; j++) {
         ok &= (*d[j] = pm_i_calloc(cells, sizeof(double))) != NULL;
     }
     ok &= (s->test = pm_i_calloc(cells, 1)) != NULL;
+    if (s->weighted) {
+        ok &= (w->wchose = pm_i_calloc(cells, sizeof(double))) != NULL;
+        ok &= (w->wbase = pm_i_calloc(lv, sizeof(double))) != NULL;
+        ok &= (w->w2base = pm_i_calloc(lv, sizeof(double))) != NULL;
+        ok &= (w->wtot = pm_i_calloc(items, sizeof(double))) != NULL;
+    }
     return ok ? PM_OK : PM_ENOMEM;
 }
 
-pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, unsigned threads,
-                         pm_segstats_t *s, pm_diag_t *diag) {
-    memset(s, 0, sizeof *s);
-    size_t k = c->n_levels, ni = inc->n_items;
-    s->n_levels = k;
-    s->n_items = ni;
-    if (alloc_all(s, k, ni) != PM_OK) {
-        pm_segstats_destroy(s);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
-    }
-    size_t nr = inc->n_resp < c->n_resp ? inc->n_resp : c->n_resp;
+static void wsums_free(wsums *w) {
+    pm_i_free(w->wchose);
+    pm_i_free(w->wbase);
+    pm_i_free(w->w2base);
+    pm_i_free(w->wtot);
+}
+
+/* The counts (and weighted sums) of every cell, in respondent order. */
+static void count_cells(pm_segstats_t *s, const pm_segcol_t *c, const pm_incidence_t *inc,
+                        wsums *w) {
+    size_t ni = s->n_items, nr = inc->n_resp < c->n_resp ? inc->n_resp : c->n_resp;
     for (size_t r = 0; r < nr; r++) {
         int32_t lv = c->of[r];
         if (lv < 0) {
             continue;
         }
+        double wr = s->weighted ? inc->weight[r] : 0;
+        if (s->weighted) {
+            w->wbase[lv] += wr;
+            w->w2base[lv] += wr * wr;
+        }
         for (uint64_t p = inc->row_ptr[r]; p < inc->row_ptr[r + 1]; p++) {
-            s->chose[(size_t)lv * ni + inc->col[p]]++;
+            size_t j = (size_t)lv * ni + inc->col[p];
+            s->chose[j]++;
+            if (s->weighted) {
+                w->wchose[j] += wr;
+            }
         }
     }
-    for (size_t j = 0; j < k; j++) {
-        s->B += c->base[j];
+}
+
+/* Shares, effective sizes and counts, the item totals tot[] and the prior means mu[]. */
+static void shares(pm_segstats_t *s, const pm_segcol_t *c, wsums *w, uint64_t *tot) {
+    size_t k = s->n_levels, ni = s->n_items;
+    for (size_t l = 0; l < k; l++) {
+        s->B += c->base[l];
+        if (s->weighted) {
+            w->WB += w->wbase[l];
+            w->W2B += w->w2base[l];
+        }
+        s->n_eff[l] = s->weighted
+                          ? (w->w2base[l] > 0 ? w->wbase[l] * w->wbase[l] / w->w2base[l] : 0)
+                          : (double)c->base[l];
     }
-    uint64_t *tot = pm_i_calloc(ni ? ni : 1, sizeof *tot);
-    if (!tot) {
-        pm_segstats_destroy(s);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    for (size_t l = 0; l < k; l++) {
+        for (size_t i = 0; i < ni; i++) {
+            size_t j = l * ni + i;
+            if (s->weighted) {
+                s->share[j] = w->wbase[l] > 0 ? w->wchose[j] / w->wbase[l] : NAN;
+                s->x_eff[j] = w->wbase[l] > 0 ? s->share[j] * s->n_eff[l] : 0;
+                w->wtot[i] += w->wchose[j];
+            } else {
+                s->share[j] = c->base[l] ? (double)s->chose[j] / (double)c->base[l] : NAN;
+                s->x_eff[j] = (double)s->chose[j];
+            }
+            tot[i] += s->chose[j];
+        }
     }
     for (size_t i = 0; i < ni; i++) {
-        for (size_t j = 0; j < k; j++) {
-            tot[i] += s->chose[j * ni + i];
+        if (s->weighted) {
+            s->mu[i] = w->WB > 0 ? w->wtot[i] / w->WB : NAN;
+        } else {
+            s->mu[i] = s->B ? (double)tot[i] / (double)s->B : NAN;
         }
-        s->mu[i] = s->B ? (double)tot[i] / (double)s->B : NAN;
         s->cells_fitted += (tot[i] > 0 && tot[i] < s->B) ? k : 0;
     }
-    if (threads == 0) {
-        threads = pm_cpu_count();
+}
+
+/* Benjamini-Hochberg over the cells that have a test. */
+static pm_err_t bh_cells(pm_segstats_t *s) {
+    size_t nt = 0, n = s->n_levels * s->n_items;
+    double *pp = pm_i_malloc(n > 0 ? n : 1, sizeof *pp);
+    if (!pp) {
+        return PM_ENOMEM;
     }
-    if (fit_m(s, c, threads) != PM_OK) {
-        free(tot);
-        pm_segstats_destroy(s);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+    for (size_t j = 0; j < n; j++) {
+        if (!isnan(s->p[j])) {
+            pp[nt++] = s->p[j];
+        }
     }
+    pm_err_t rc = pm_assoc_bh(pp, nt, pp);
+    for (size_t j = 0, t = 0; rc == PM_OK && j < n; j++) {
+        s->q[j] = isnan(s->p[j]) ? NAN : pp[t++];
+    }
+    pm_i_free(pp);
+    return rc;
+}
+
+static void cells_all(pm_segstats_t *s, const pm_segcol_t *c, const wsums *w, const uint64_t *tot,
+                      unsigned threads) {
+    size_t k = s->n_levels, ni = s->n_items;
     /* the table only where it costs fewer quantiles than it saves at most */
-    double *jt = ni > 2 * (JT + 1) ? pm_i_malloc(k * (JT + 1) * 2, sizeof *jt) : NULL;
-    cell_job cj = {s, c, tot, jt};
+    double *jt =
+        !s->weighted && ni > 2 * (JT + 1) ? pm_i_malloc(k * (JT + 1) * 2, sizeof *jt) : NULL;
+    cell_job cj = {s, c, tot, w, jt};
     if (jt && (threads < 2 || pm_i_parallel(threads, CELL_CHUNKS, jt_chunk, &cj) != 0)) {
         for (size_t ch = 0; ch < CELL_CHUNKS; ch++) {
             jt_chunk(&cj, ch, 0);
@@ -442,24 +562,35 @@ pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, unsign
     for (size_t i = 0; i < ni; i++) {
         trend(s, c, i, tot[i]);
     }
-    free(tot);
-    /* Benjamini-Hochberg over the cells that have a test */
-    size_t nt = 0;
-    double *pp = pm_i_malloc(k * ni > 0 ? k * ni : 1, sizeof *pp);
-    if (!pp) {
-        pm_segstats_destroy(s);
-        return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
+}
+
+pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, unsigned threads,
+                         pm_segstats_t *s, pm_diag_t *diag) {
+    memset(s, 0, sizeof *s);
+    size_t k = c->n_levels, ni = inc->n_items;
+    s->n_levels = k;
+    s->n_items = ni;
+    s->weighted = inc->weight != NULL;
+    wsums w = {0};
+    uint64_t *tot = NULL;
+    pm_err_t rc = alloc_all(s, k, ni, &w);
+    if (rc == PM_OK && !(tot = pm_i_calloc(ni ? ni : 1, sizeof *tot))) {
+        rc = PM_ENOMEM;
     }
-    for (size_t j = 0; j < k * ni; j++) {
-        if (!isnan(s->p[j])) {
-            pp[nt++] = s->p[j];
+    if (rc == PM_OK) {
+        count_cells(s, c, inc, &w);
+        shares(s, c, &w, tot);
+        if (threads == 0) {
+            threads = pm_cpu_count();
         }
+        rc = fit_m(s, c, threads);
     }
-    pm_err_t rc = pm_assoc_bh(pp, nt, pp);
-    for (size_t j = 0, t = 0; rc == PM_OK && j < k * ni; j++) {
-        s->q[j] = isnan(s->p[j]) ? NAN : pp[t++];
+    if (rc == PM_OK) {
+        cells_all(s, c, &w, tot, threads);
+        rc = bh_cells(s);
     }
-    free(pp);
+    pm_i_free(tot);
+    wsums_free(&w);
     if (rc != PM_OK) {
         pm_segstats_destroy(s);
         return pm_diag_set(diag, rc, NULL, 0, "out of memory");

@@ -90,6 +90,11 @@ typedef struct {
     size_t ncolw;
 } seg_ctx;
 
+/* The plural noun of the picture's counts (--unit). */
+static const char *unit_word(const pm_segsvg_data_t *d) {
+    return d->unit && d->unit[0] ? d->unit : "respondents";
+}
+
 static double cell_index(const pm_segstats_t *s, size_t k, size_t i) {
     double mu = s->mu[i];
     return mu > 0 ? s->shrunk[k * s->n_items + i] / mu : NAN;
@@ -364,11 +369,11 @@ static void heads(seg_ctx *c, double x, double y) {
         if (s->m_at > 0) {
             snprintf(m, sizeof m, "no spread beyond chance: m at its bound");
         } else if (s->m < 999.5) {
-            snprintf(m, sizeof m, "m = %.3g pseudo-respondents", s->m);
+            snprintf(m, sizeof m, "m = %.3g pseudo-%s", s->m, unit_word(d));
         } else {
             char mb[40];
             pm_i_svg_fmt_count(mb, sizeof mb, (uint64_t)llround(s->m));
-            snprintf(m, sizeof m, "m = %s pseudo-respondents", mb);
+            snprintf(m, sizeof m, "m = %s pseudo-%s", mb, unit_word(d));
         }
         text_fit(b, "attribute-note", x, y + 14, FS_SMALL, 0, 0, GREY_TEXT, m, w);
         for (size_t k = 0; k < c->nlev[j]; k++, f++) {
@@ -542,7 +547,9 @@ static double key(seg_ctx *c, double x, double y, double *wmax) {
              q);
     snprintf(line[3], sizeof line[3],
              "Numbers: the shrunk share (empirical Bayes: the segment's share pulled towards "
-             "the overall share by m pseudo-respondents); n: respondents in the segment");
+             "the overall share by m pseudo-%s)%s; n: %s in the segment",
+             unit_word(d), d->stats && d->n_cols && d->stats[0].weighted ? ", weighted" : "",
+             unit_word(d));
     double tx = x + 34.0 * 9 + 16;
     pm_i_svg_write_text(b, "key", tx, y + 12, FS_SMALL, 0, 0, INK, line[0], NULL, 0);
     double right = tx + pm_i_svg_text_width(line[0], FS_SMALL, 0);
@@ -570,7 +577,7 @@ static void subtitle(const seg_ctx *c, char *buf, size_t size) {
     const pm_segsvg_data_t *d = c->d;
     char n[40];
     pm_i_svg_fmt_count(n, sizeof n, d->respondents);
-    size_t k = (size_t)snprintf(buf, size, "%s respondents \xc2\xb7 ", n);
+    size_t k = (size_t)snprintf(buf, size, "%s %s \xc2\xb7 ", n, unit_word(d));
     if (c->nrow < d->n) {
         k += (size_t)snprintf(
             buf + k, size - k,

@@ -46,7 +46,7 @@ pm_err_t pm_segstats_write_csv(FILE *fp, const pm_segcol_t *col, const pm_segsta
             pm_write_csv_field(fp, inc->category[i] ? inc->category[i] : "", flags);
             fprintf(fp, ",%llu,%llu,", (unsigned long long)col->base[k],
                     (unsigned long long)s->chose[j]);
-            num(fp, col->base[k] ? (double)s->chose[j] / (double)col->base[k] : NAN);
+            num(fp, s->share[j]);
             const double v[] = {s->share_low[j],  s->share_high[j],  s->shrunk[j],
                                 s->shrunk_low[j], s->shrunk_high[j], pm_segstats_index(s, k, i)};
             for (size_t t = 0; t < sizeof v / sizeof v[0]; t++) {

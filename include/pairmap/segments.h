@@ -85,8 +85,15 @@ typedef struct {
                           * noise); -1: at the lower bound */
     size_t cells_fitted; /* (item, segment) cells in the fit */
     uint64_t B;          /* respondents with a segment */
-    uint64_t *chose;     /* [n_levels * n_items] */
-    double *mu;          /* [n_items] share over respondents with a segment */
+    uint64_t *chose;     /* [n_levels * n_items] respondents (unweighted counts, also when
+                          * the input is weighted) */
+    bool weighted;       /* the input carries weights: shares weighted, sizes effective */
+    double *n_eff;       /* [n_levels] the segment's size in the intervals, the shrinkage and
+                          * the trend: its base, or weighted Kish's (sum w)^2 / sum w^2 */
+    double *x_eff;       /* [n_levels * n_items] chose, or weighted share * n_eff */
+    double *share;       /* [n_levels * n_items] chose / base, or weighted the chosen weight
+                          * over the segment's weight (NaN for an empty segment) */
+    double *mu;          /* [n_items] share over respondents with a segment (weighted) */
     double *share_low, *share_high, *shrunk, *shrunk_low, *shrunk_high, *p, *q;
     unsigned char *test;       /* 0 none, 1 fisher, 2 chi2 */
     double *trend_z, *trend_p; /* [n_items]; NaN when the column is not ordered */
@@ -96,7 +103,11 @@ typedef struct {
 #define PM_SEG_M_MIN 1e-3
 #define PM_SEG_M_MAX 1e8
 
-/* Computes the table of column c over incidence inc (unweighted). m is fitted by maximum
+/* Computes the table of column c over incidence inc. Weighted input (inc->weight): shares
+ * weighted; the Jeffreys and posterior intervals, the beta-binomial fit and the trend test on
+ * each segment's effective counts (x_eff of n_eff, Kish); the one-against-the-rest test is the
+ * pairs' weighted test (chi-square on Kish's effective size of the respondents with a segment,
+ * pm_assoc_weighted). m is fitted by maximum
  * likelihood over every (item, segment) cell of items with 0 < chosen < B, on log m in
  * [PM_SEG_M_MIN, PM_SEG_M_MAX]: a grid of 241 points (22 a decade) evaluated coarse to fine
  * (every 6th point, then the fine points around the best, climbing while the best is at the
@@ -104,6 +115,11 @@ typedef struct {
  * threads (0: every core); the result is the same for any number. *out owned by the caller
  * (pm_segstats_destroy). Errors: PM_ENOMEM. Cost O(rows + levels * items * evaluations),
  * about 60 evaluations. */
+/* Bytes the table of levels x items cells takes at most while it is computed (the bound
+ * checked before allocation). */
+#define PM_SEG_CELL_BYTES 128u
+uint64_t pm_segstats_bytes(size_t levels, size_t items);
+
 pm_err_t pm_segstats_run(const pm_incidence_t *inc, const pm_segcol_t *c, unsigned threads,
                          pm_segstats_t *out, pm_diag_t *diag);
 void pm_segstats_destroy(pm_segstats_t *s);

@@ -37,6 +37,8 @@ typedef struct {
     size_t draw;          /* rows at most; 0: PM_SEGSVG_ROWS */
     const char *title;    /* NULL: a default title */
     uint64_t respondents; /* for the subtitle */
+    const char *unit;     /* what one respondent is, a plural noun (--unit); NULL or "":
+                           * respondents */
 } pm_segsvg_data_t;
 
 #define PM_SEGSVG_ROWS 60         /* default rows */

@@ -49,7 +49,7 @@ static const opt_def OPTS[] = {
     {"threads", 0, 1, 0, ALL},
     {"unit", 0, 1, 0, FROM_COUNTS},
     {"max-basket", 0, 1, 0, FROM_COUNTS | PM_CMD_COUNT | PM_CMD_SEGMENTS},
-    {"max-memory", 0, 1, 0, SCORE | PM_CMD_COUNT},
+    {"max-memory", 0, 1, 0, SCORE | PM_CMD_COUNT | PM_CMD_SEGMENTS},
     /* selection */
     {"min-count", 0, 1, 0, SCORE},
     {"min-share", 0, 1, 0, SCORE},
@@ -129,9 +129,10 @@ const char pm_cli_basket_help[] =
     "                        and out of N: store-level or test baskets (a note says how many)\n";
 
 const char pm_cli_memory_help[] =
-    "  --max-memory SIZE     refuse before counting when the pairs would need more than SIZE\n"
-    "                        (K, M, G, T: powers of 1024; default: physical memory, or the\n"
-    "                        ulimit -v, ulimit -d or control-group bound when lower)\n";
+    "  --max-memory SIZE     refuse before counting when the pairs (or segment tables) would\n"
+    "                        need more than SIZE (K, M, G, T: powers of 1024; default:\n"
+    "                        physical memory, or the ulimit -v, ulimit -d or control-group\n"
+    "                        bound when lower)\n";
 
 const char pm_cli_edge_help[] =
     "Edges (map and pairs):\n"

@@ -122,6 +122,11 @@ int pm_cli_check_memory(const pm_cli_t *c, const pm_counts_cost_t *cost);
  * "the pair tests within segments"): 0, or 4 after the one-line reason; 1 after a bad
  * --max-memory. */
 int pm_cli_check_bytes(const pm_cli_t *c, uint64_t bytes, const char *what);
+/* The same with another way out than --min-share in the message. */
+int pm_cli_check_bytes_hint(const pm_cli_t *c, uint64_t bytes, const char *what, const char *hint);
+/* The segments table of a column of `levels` segments over `items` items (segments,
+ * map --segment-col) against the bound, before it is allocated. */
+int pm_cli_check_segtable(const pm_cli_t *c, size_t levels, size_t items);
 /* --max-memory in bytes (0 when absent); 1 after a usage error. */
 int pm_cli_max_memory(const pm_cli_t *c, uint64_t *bytes);
 /* Scores every pair with the command line's options. */

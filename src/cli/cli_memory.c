@@ -2,6 +2,7 @@
  * may use (physical memory, the control group's memory.max, ulimit -v and -d, or --max-memory),
  * checked against the counting's cost before anything of it is allocated. */
 #include "cli.h"
+#include "pairmap/segments.h"
 
 #include <errno.h>
 #include <stdio.h>
@@ -151,7 +152,8 @@ int pm_cli_check_memory(const pm_cli_t *c, const pm_counts_cost_t *cost) {
     return 4; /* README: 4 out of memory */
 }
 
-int pm_cli_check_bytes(const pm_cli_t *c, uint64_t bytes, const char *stage) {
+int pm_cli_check_bytes_hint(const pm_cli_t *c, uint64_t bytes, const char *stage,
+                            const char *hint) {
     char nb[32], lb[32];
     const char *what;
     int over = mem_over(c, bytes, nb, lb, &what);
@@ -159,9 +161,18 @@ int pm_cli_check_bytes(const pm_cli_t *c, uint64_t bytes, const char *stage) {
         return over;
     }
     fprintf(stderr,
-            "pairmap: %s: %s need about %s with what is in use, more than %s of %s; --min-share "
-            "F leaves rare items out, --max-memory SIZE sets the bound\n",
+            "pairmap: %s: %s need about %s with what is in use, more than %s of %s; %s, "
+            "--max-memory SIZE sets the bound\n",
             c->input[0] == '-' && !c->input[1] ? "stdin" : pm_cli_shown(c->input), stage, nb, lb,
-            what);
+            what, hint);
     return 4; /* README: 4 out of memory */
+}
+
+int pm_cli_check_bytes(const pm_cli_t *c, uint64_t bytes, const char *stage) {
+    return pm_cli_check_bytes_hint(c, bytes, stage, "--min-share F leaves rare items out");
+}
+
+int pm_cli_check_segtable(const pm_cli_t *c, size_t levels, size_t items) {
+    return pm_cli_check_bytes_hint(c, pm_segstats_bytes(levels, items), "the segment tables",
+                                   "a column of fewer segments (or --only-segment) needs less");
 }

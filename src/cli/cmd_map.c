@@ -397,8 +397,7 @@ int pm_cmd_map(int argc, char **argv) {
     pm_select_opts_t sel;
     net_opts no;
     unsigned th;
-    if (pm_cli_select_opts(&c, &sel) || net_options(&c, &no) || pm_cli_threads(&c, &th) ||
-        pm_cli_mapseg_check(&c)) {
+    if (pm_cli_select_opts(&c, &sel) || net_options(&c, &no) || pm_cli_threads(&c, &th)) {
         return 1;
     }
     pm_input_opts_t io;
@@ -465,7 +464,7 @@ int pm_cmd_map(int argc, char **argv) {
     /* edges.csv's thread starts after the network: the Louvain runs fork, and no thread but the
      * sigwait one may run when they do (issue 12 point 2) */
     pm_cli_map_early_start(&s, th);
-    if ((rc = pm_cli_mapseg_run(&s.seg, s.inc, th)) != 0) {
+    if ((rc = pm_cli_mapseg_run(&s.seg, &c, s.inc, th)) != 0) {
         goto done;
     }
     rc = pm_cli_map_write_files(&c, &no, &sel, &s);

@@ -48,7 +48,12 @@ static const char help[] =
     "                        ties and labels without a number by label (bytes); a column is\n"
     "                        ordered when every label holds a number\n"
     "  --csv-raw             names as they are (default: a leading apostrophe before = + - @)\n"
-    "Weighted input (--weight-col) is not supported by this command yet.\n"
+    "Weighted input (--weight-col): base and chose stay counts of respondents; share, mu\n"
+    "and shrunk are weighted (the chosen weight over the segment's weight), and the\n"
+    "intervals, the beta-binomial fit (m, log-likelihood) and the trend test take each\n"
+    "segment's Kish effective size n' = (sum w)^2 / sum w^2 with share x n' chosen; the\n"
+    "test is the pairs' weighted one: chi-square (1 df) on the effective size of all\n"
+    "respondents with a segment.\n"
     "\n";
 
 static void notes(const pm_cli_t *c, const pm_segcol_t *col, const pm_segstats_t *s) {
@@ -69,13 +74,20 @@ static void notes(const pm_cli_t *c, const pm_segcol_t *col, const pm_segstats_t
                                 "share is the item's overall share)"
                 : s->m_at < 0 ? " (m at its lower bound: the segments differ a lot)"
                               : "");
+    if (s->weighted) {
+        pm_cli_note(c,
+                    "note: '%s': weighted: shares weighted; intervals, m and trends on each "
+                    "segment's Kish effective size; tests chi-square on the effective size of "
+                    "those with a segment (base and chose count %s)",
+                    pm_cli_shown(col->column), pm_cli_unit(c));
+    }
 }
 
 int pm_cmd_segments(int argc, char **argv) {
     pm_cli_t c;
     static char full[16384];
-    snprintf(full, sizeof full, "%s%s%s%s", help, pm_cli_input_help, pm_cli_only_help,
-             pm_cli_basket_help);
+    snprintf(full, sizeof full, "%s%s%s%s%s", help, pm_cli_input_help, pm_cli_only_help,
+             pm_cli_basket_help, pm_cli_memory_help);
     int rc = pm_cli_parse(&c, "segments", PM_CMD_SEGMENTS, argc, argv, full);
     if (rc) {
         return rc < 0 ? pm_cli_close_stdout() : rc;
@@ -84,9 +96,6 @@ int pm_cmd_segments(int argc, char **argv) {
     pm_cli_all(&c, "segment-col", &ncol);
     if (ncol == 0) {
         return pm_cli_usage_error(&c, "give --segment-col COL");
-    }
-    if (pm_cli_get(&c, "weight-col")) {
-        return pm_cli_usage_error(&c, "segments does not take --weight-col yet");
     }
     pm_table_t *t = NULL;
     pm_incidence_t *inc = NULL;
@@ -103,6 +112,9 @@ int pm_cmd_segments(int argc, char **argv) {
         rc = 4;
     }
     for (; rc == 0 && done < ncol; done++) {
+        if ((rc = pm_cli_check_segtable(&c, sc[done].n_levels, inc->n_items))) {
+            break;
+        }
         pm_diag_t d;
         pm_diag_clear(&d);
         if (pm_segstats_run(inc, &sc[done], 0, &st[done], &d)) {

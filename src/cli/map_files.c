@@ -428,7 +428,8 @@ int pm_cli_map_write_files(const pm_cli_t *c, const net_opts *no, const pm_selec
                                .max_q = sel->max_q,
                                .draw = (size_t)no->draw,
                                .title = no->title,
-                               .respondents = s->inc->N};
+                               .respondents = s->inc->N,
+                               .unit = pm_cli_get(c, "unit")};
     rc = pm_cli_mapseg_write(&s->seg, s->od, s->inc, segpic, s->csv_flags, &d);
     FILE *fp;
     if (rc == PM_OK && (rc = pm_outdir_create(s->od, "clusters.csv", &fp, &d)) == PM_OK) {

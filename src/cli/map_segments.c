@@ -22,17 +22,8 @@ const char pm_cli_mapseg_help[] =
     "               the items whose segments differ most (largest |log index| to 3\n"
     "               decimals), then the most chosen; at most 40 segments per column\n";
 
-int pm_cli_mapseg_check(const pm_cli_t *c) {
-    size_t n = 0;
-    pm_cli_all(c, "segment-col", &n);
-    if (n && pm_cli_get(c, "weight-col")) {
-        return pm_cli_usage_error(c, "the segment tables of map (segments.csv, segments.svg) do "
-                                     "not take --weight-col yet, as segments does not");
-    }
-    return 0;
-}
-
-int pm_cli_mapseg_run(pm_cli_mapseg_t *ms, const pm_incidence_t *inc, unsigned threads) {
+int pm_cli_mapseg_run(pm_cli_mapseg_t *ms, const pm_cli_t *c, const pm_incidence_t *inc,
+                      unsigned threads) {
     memset(ms, 0, sizeof *ms);
     size_t n = 0;
     const pm_segcol_t *cols = pm_cli_segcols(&n);
@@ -47,6 +38,11 @@ int pm_cli_mapseg_run(pm_cli_mapseg_t *ms, const pm_incidence_t *inc, unsigned t
     }
     ms->cols = cols;
     for (size_t j = 0; j < n; j++) {
+        int rc = pm_cli_check_segtable(c, cols[j].n_levels, inc->n_items);
+        if (rc) {
+            pm_cli_mapseg_free(ms);
+            return rc;
+        }
         pm_diag_t d;
         pm_diag_clear(&d);
         if (pm_segstats_run(inc, &cols[j], threads, &ms->stats[j], &d)) {

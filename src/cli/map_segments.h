@@ -20,14 +20,11 @@ typedef struct {
 /* map --help: the files --segment-col adds. */
 extern const char pm_cli_mapseg_help[];
 
-/* Before any work: --segment-col with --weight-col is a usage error (the tables are
- * unweighted). 0, or the exit status after the message. */
-int pm_cli_mapseg_check(const pm_cli_t *c);
-
 /* The tables of every --segment-col column over inc on `threads` threads (0: every core;
- * zeroes *ms first). 0, or the exit
- * status after an error message. */
-int pm_cli_mapseg_run(pm_cli_mapseg_t *ms, const pm_incidence_t *inc, unsigned threads);
+ * zeroes *ms first; weighted input as `segments` takes it), each one's memory checked against
+ * the bound first (pm_cli_check_bytes). 0, or the exit status after an error message. */
+int pm_cli_mapseg_run(pm_cli_mapseg_t *ms, const pm_cli_t *c, const pm_incidence_t *inc,
+                      unsigned threads);
 
 /* Creates, writes and finishes DIR/segments.csv and DIR/segments.svg in od (renamed into place
  * with the other files at the commit). pic: the picture's rows, clusters, title, max_q and

@@ -17,8 +17,14 @@ check "segments.svg is valid XML" xmllint --noout "$TMP/m/segments.svg"
 check "the summary names the new files" grep -q "segments.csv, segments.svg" "$TMP/m.out"
 "$PAIRMAP" map "$D" "${SEG[@]}" --draw 12 --max-q 0.01 -o "$TMP/d12" >/dev/null 2>&1 || fail "map --draw 12: exit $?"
 "$PAIRMAP" map "$D" -o "$TMP/plain" >/dev/null 2>&1 || fail "map without segments: exit $?"
-expect_fail 1 "" "do not take --weight-col yet" -- map "$D" --segment-col location --weight-col location -o "$TMP/w"
-check "no output directory after the usage error" test ! -e "$TMP/w"
+# the segments table bounded before it is allocated: 60,000 segments x 300 items (exit 4, no DIR)
+awk 'BEGIN { srand(3); print "r,i,seg"; for (r = 0; r < 60000; r++) for (j = 0; j < 3; j++)
+    printf "r%d,i%d,s%d\n", r, int(rand() * 300), r }' >"$TMP/manyseg.csv"
+expect_fail 4 "$TMP/manyseg.csv: " "the segment tables need about" -- \
+    map "$TMP/manyseg.csv" --segment-col seg --max-memory 100M -o "$TMP/w"
+check "no output directory after the refusal" test ! -e "$TMP/w"
+expect_fail 4 "$TMP/manyseg.csv: " "the segment tables need about" -- \
+    segments "$TMP/manyseg.csv" --segment-col seg --max-memory 100M
 check "no segment files without --segment-col" test ! -e "$TMP/plain/segments.csv" -a ! -e "$TMP/plain/segments.svg"
 /usr/bin/python3 - "$TMP" "$TMP/seg.err" <<'EOF' || fail "segments.svg, run.json, map.graphml: see above"
 import json, math, re, sys

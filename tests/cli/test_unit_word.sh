@@ -47,6 +47,26 @@ if bad:
     print("; ".join(bad))
 sys.exit(1 if bad else 0)
 PY
+# segments.svg (map --segment-col) speaks of orders too: subtitle, m, the key's n
+"$PAIRMAP" map "$cafe" -o "$TMP/s" --unit orders --segment-col location >/dev/null 2>&1 ||
+    fail "map --unit --segment-col"
+CASES=$((CASES + 1))
+/usr/bin/python3 - "$TMP/s/segments.svg" <<'PY' || fail "segments.svg does not use --unit orders"
+import sys, xml.etree.ElementTree as ET
+S = "{http://www.w3.org/2000/svg}"
+root = ET.parse(sys.argv[1]).getroot()
+texts = ["".join(el.itertext()) for el in root.iter(S + "text")]
+bad = []
+if not any(t.startswith("4,000 orders") for t in texts):
+    bad.append("subtitle: %r" % texts[:3])
+if not any("n: orders in the segment" in t for t in texts):
+    bad.append("key")
+if any("respondent" in t.lower() for t in texts):
+    bad.append("'respondent' in %r" % [t for t in texts if "respondent" in t.lower()])
+if bad:
+    print("; ".join(bad))
+sys.exit(1 if bad else 0)
+PY
 # CSV columns keep their names
 CASES=$((CASES + 1))
 head -1 "$TMP/m/nodes.csv" | grep -q '^item,category,respondents,' || fail "nodes.csv header changed"

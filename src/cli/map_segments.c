@@ -112,9 +112,13 @@ void pm_cli_mapseg_json(const pm_cli_mapseg_t *ms, pm_json_t *j) {
             pm_json_begin_object(j, NULL);
             pm_json_string(j, "segment", c->level[l]);
             pm_json_uint(j, "base", c->base[l]);
+            if (s->weighted) {
+                pm_json_number(j, "effective_size", s->n_eff[l]); /* Kish */
+            }
             pm_json_end_object(j);
         }
         pm_json_end_array(j);
+        pm_json_bool(j, "weighted", s->weighted);
         pm_json_uint(j, "respondents_with_segment", s->B);
         pm_json_number(j, "m", s->m);
         pm_json_string(j, "m_at",

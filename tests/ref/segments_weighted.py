@@ -227,6 +227,15 @@ def main():
             check((od / "segments.csv").read_text(encoding="utf-8") == out,
                   "map's segments.csv differs from pairmap segments")
             check((od / "segments.svg").stat().st_size > 1000, "no segments.svg")
+            import json
+            rj = json.loads((od / "run.json").read_text(encoding="utf-8"))["segments"][0]
+            resp = data[data["band"] != ""].drop_duplicates("id")
+            kish = (resp.groupby("band")["w"].sum() ** 2 /
+                    resp.groupby("band")["w"].apply(lambda v: (v * v).sum()))
+            check(rj["weighted"] is True, "run.json: segments not marked weighted")
+            for lv in rj["levels"]:
+                close("run.json effective_size (Kish)", lv["effective_size"], kish[lv["segment"]],
+                      rel=1e-13)
             e = pd.read_csv(od / "edges.csv", keep_default_na=False, dtype=str)
             check(len(e) > 0 and (e["mh_odds_ratio"] == "").all(),
                   "weighted edges.csv: the Mantel-Haenszel columns should be empty")

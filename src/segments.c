@@ -73,6 +73,13 @@ static void trim(const char **s, size_t *len) {
 typedef struct {
     const pm_segcol_src_t *src;
     const char *file;
+    const pm_table_t *t;
+    size_t n;           /* respondents of the table */
+    size_t next;        /* the respondent expected next: the table numbers respondents in the
+                         * order they first appear in the input, so when the input is read
+                         * again (or a segment file lists them alike) a new id is most often
+                         * this one, found with one comparison and no hash table */
+    int ids_built;      /* ids below is filled (at the first id that is not `next`) */
     pm_i_strtab ids;    /* respondent id -> table index (same ids, same order) */
     pm_i_strtab labels; /* label -> first-seen id */
     int32_t *lab;       /* [n_resp] label id or -1 */
@@ -127,6 +134,38 @@ static pm_err_t header(reader *rd, const pm_i_record *r, pm_diag_t *diag) {
     return PM_OK;
 }
 
+/* The respondent ids of the table in the hash table ids (their numbers as in the table). 0,
+ * or -1 when out of memory. */
+static int build_ids(reader *rd) {
+    for (size_t r = 0; r < rd->n; r++) {
+        const char *id = pm_table_respondent(rd->t, r);
+        if (pm_i_strtab_intern(&rd->ids, id, strlen(id), NULL) != (int64_t)r) {
+            return -1; /* ids are distinct: only an allocation failure gives another number */
+        }
+    }
+    rd->ids_built = 1;
+    return 0;
+}
+
+/* The table's number of the respondent id[0..il), -1 when it is not in the table, -2 when
+ * out of memory. */
+static int64_t find_resp(reader *rd, const char *id, size_t il) {
+    if (rd->next < rd->n) {
+        const char *e = pm_table_respondent(rd->t, rd->next);
+        if (strncmp(e, id, il) == 0 && e[il] == '\0') {
+            return (int64_t)rd->next++;
+        }
+    }
+    if (!rd->ids_built && build_ids(rd) != 0) {
+        return -2;
+    }
+    int64_t r = pm_i_strtab_find(&rd->ids, id, il);
+    if (r >= 0 && (size_t)r >= rd->next) {
+        rd->next = (size_t)r + 1;
+    }
+    return r;
+}
+
 static pm_err_t record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     reader *rd = ud;
     if (!rd->header_done) {
@@ -141,7 +180,10 @@ static pm_err_t record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     trim(&id, &il);
     trim(&v, &vl);
     int same_id = rd->last_id && il == rd->last_il && memcmp(id, rd->last_id, il) == 0;
-    int64_t resp = same_id ? rd->last_resp : pm_i_strtab_find(&rd->ids, id, il);
+    int64_t resp = same_id ? rd->last_resp : find_resp(rd, id, il);
+    if (resp == -2) {
+        return pm_diag_set(diag, PM_ENOMEM, rd->file, 0, "out of memory");
+    }
     if (resp < 0) {
         rd->unknown += !rd->src->is_input; /* the input's rows are all in the table */
         return PM_OK;
@@ -361,6 +403,8 @@ pm_err_t pm_segcol_read(const pm_table_t *t, const pm_segcol_src_t *src, pm_segc
     rd.src = src;
     rd.file = src->display ? src->display : src->path;
     size_t n = pm_table_nrespondents(t);
+    rd.t = t;
+    rd.n = n;
     pm_i_strtab_init(&rd.ids);
     pm_i_strtab_init(&rd.labels);
     pm_err_t rc = PM_OK;
@@ -378,10 +422,6 @@ pm_err_t pm_segcol_read(const pm_table_t *t, const pm_segcol_src_t *src, pm_segc
         if (!id) {
             rc = pm_diag_set(diag, PM_EUSAGE, NULL, 0,
                              "segments need respondent ids: give --id-col (lines format)");
-            goto cleanup;
-        }
-        if (pm_i_strtab_intern(&rd.ids, id, strlen(id), NULL) != (int64_t)r) {
-            rc = pm_diag_set(diag, PM_EINTERNAL, NULL, 0, "respondent ids out of order");
             goto cleanup;
         }
         rd.lab[r] = -1;

@@ -8,7 +8,9 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "pairmap/cooccur.h"
 #include "stratified_internal.h"
+#include "parallel.h"
 #include "util.h"
 
 #define Z975 1.959963984540054 /* the 0.975 normal quantile */
@@ -156,9 +158,86 @@ static int cmp_edge(const void *x, const void *y, const void *ud) {
     return a < b ? -1 : a > b ? 1 : (i < j ? -1 : i > j);
 }
 
+/* The edges in order (by item a) cut into chunks at changes of a, shared by the threads: each
+ * thread stamps its items' respondents in a mark array of its own (an item's edges all lie in
+ * one chunk, so the stamp a + 1 marks exactly a's respondents), and every edge's figures
+ * depend on that edge only: the same on any number of threads. */
+#define SEDGE_CHUNKS 64
+#define SEDGE_MAX_THREADS 8
+typedef struct {
+    const pm_segcol_t *c;
+    const pm_pairs_t *pp;
+    const pm_edges_t *e;
+    pm_sign_t sign;
+    const pm_i_strat_lists *L;
+    const size_t *order;
+    size_t bound[SEDGE_CHUNKS + 1];
+    uint32_t *mark[SEDGE_MAX_THREADS]; /* [nr] per thread */
+    uint64_t *cnt[SEDGE_MAX_THREADS];  /* [4 k] per thread */
+    pm_strat_t *r;
+} sedge_job;
+
+static int sedge_chunk(void *ud, size_t ch, unsigned th) {
+    sedge_job *j = ud;
+    const pm_i_strat_lists *L = j->L;
+    size_t k = j->c->n_levels;
+    uint32_t *mark = j->mark[th];
+    uint64_t *n = j->cnt[th], *na = n + k, *nb = n + 2 * k, *nab = n + 3 * k;
+    for (size_t s = 0; s < k; s++) {
+        n[s] = j->c->base[s];
+    }
+    uint32_t cur_a = UINT32_MAX;
+    for (size_t o = j->bound[ch]; o < j->bound[ch + 1]; o++) {
+        size_t i = j->order[o], pk = j->e->idx[i];
+        uint32_t a = j->pp->a[pk], b = j->pp->b[pk];
+        if (a != cur_a) { /* mark item a's respondents: the stamp a + 1 */
+            cur_a = a;
+            for (uint64_t p = L->start[a]; p < L->start[a + 1]; p++) {
+                mark[L->resp[p]] = a + 1;
+            }
+        }
+        memset(nab, 0, k * sizeof *nab);
+        for (uint64_t p = L->start[b]; p < L->start[b + 1]; p++) {
+            uint32_t q = L->resp[p];
+            if (mark[q] == a + 1) {
+                nab[j->c->of[q]]++;
+            }
+        }
+        for (size_t s = 0; s < k; s++) {
+            na[s] = L->tot[(size_t)a * k + s];
+            nb[s] = L->tot[(size_t)b * k + s];
+        }
+        pm_stratified_pair(k, n, na, nb, nab, j->sign, &j->r[i]);
+    }
+    return 0;
+}
+
+/* Chunk bounds over the sorted edges: about equal parts, each moved forward to where item a
+ * changes. */
+static void sedge_bounds(sedge_job *j) {
+    size_t ne = j->e->n;
+    j->bound[0] = 0;
+    for (size_t c = 1; c <= SEDGE_CHUNKS; c++) {
+        size_t b = c == SEDGE_CHUNKS ? ne : ne * c / SEDGE_CHUNKS;
+        b = b < j->bound[c - 1] ? j->bound[c - 1] : b;
+        while (b > 0 && b < ne &&
+               j->pp->a[j->e->idx[j->order[b]]] == j->pp->a[j->e->idx[j->order[b - 1]]]) {
+            b++;
+        }
+        j->bound[c] = b;
+    }
+}
+
+static void sedge_free(sedge_job *j) {
+    for (unsigned t = 0; t < SEDGE_MAX_THREADS; t++) {
+        free(j->mark[t]);
+        free(j->cnt[t]);
+    }
+}
+
 pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, const pm_pairs_t *pp,
-                             const pm_edges_t *e, pm_sign_t sign, pm_strat_t **out,
-                             pm_diag_t *diag) {
+                             const pm_edges_t *e, pm_sign_t sign, unsigned threads,
+                             pm_strat_t **out, pm_diag_t *diag) {
     *out = NULL;
     if (inc->weight) {
         return pm_diag_set(diag, PM_EUSAGE, NULL, 0,
@@ -169,13 +248,21 @@ pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, co
     if (k && ni > SIZE_MAX / 4 / k) {
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "too many segments x items");
     }
+    threads = threads ? threads : pm_cpu_count();
+    threads = threads > SEDGE_MAX_THREADS ? SEDGE_MAX_THREADS : threads;
+    threads = e->n < 2 * SEDGE_CHUNKS ? 1 : threads; /* few edges: not worth a thread */
     pm_i_strat_lists L;
     pm_err_t rc = pm_i_strat_lists_build(inc, c, nr, &L);
-    uint32_t *mark = pm_i_calloc(nr ? nr : 1, sizeof *mark);
+    sedge_job j = {c, pp, e, sign, &L, NULL, {0}, {NULL}, {NULL}, NULL};
     size_t *order = pm_i_malloc(e->n ? e->n : 1, sizeof *order);
-    uint64_t *cnt = pm_i_calloc(4 * (k ? k : 1), sizeof *cnt);
-    pm_strat_t *r = pm_i_malloc(e->n ? e->n : 1, sizeof *r);
-    if (rc || !mark || !order || !cnt || !r) {
+    j.r = pm_i_malloc(e->n ? e->n : 1, sizeof *j.r);
+    int ok = rc == PM_OK && order && j.r;
+    for (unsigned t = 0; ok && t < threads; t++) {
+        j.mark[t] = pm_i_calloc(nr ? nr : 1, sizeof *j.mark[t]);
+        j.cnt[t] = pm_i_calloc(4 * (k ? k : 1), sizeof *j.cnt[t]);
+        ok = j.mark[t] && j.cnt[t];
+    }
+    if (!ok) {
         rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0,
                          "out of memory for the pair tests within "
                          "segments");
@@ -189,40 +276,21 @@ pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, co
         rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
         goto done;
     }
-    uint64_t *n = cnt, *na = cnt + k, *nb = cnt + 2 * k, *nab = cnt + 3 * k;
-    for (size_t s = 0; s < k; s++) {
-        n[s] = c->base[s];
+    j.order = order;
+    sedge_bounds(&j);
+    if (threads < 2) {
+        for (size_t ch = 0; ch < SEDGE_CHUNKS; ch++) {
+            sedge_chunk(&j, ch, 0);
+        }
+    } else {
+        (void)pm_i_parallel(threads, SEDGE_CHUNKS, sedge_chunk, &j); /* every chunk runs */
     }
-    uint32_t cur_a = UINT32_MAX;
-    for (size_t o = 0; o < e->n; o++) {
-        size_t i = order[o], pk = e->idx[i];
-        uint32_t a = pp->a[pk], b = pp->b[pk];
-        if (a != cur_a) { /* mark item a's respondents: the stamp a + 1 */
-            cur_a = a;
-            for (uint64_t p = L.start[a]; p < L.start[a + 1]; p++) {
-                mark[L.resp[p]] = a + 1;
-            }
-        }
-        memset(nab, 0, k * sizeof *nab);
-        for (uint64_t p = L.start[b]; p < L.start[b + 1]; p++) {
-            uint32_t q = L.resp[p];
-            if (mark[q] == a + 1) {
-                nab[c->of[q]]++;
-            }
-        }
-        for (size_t s = 0; s < k; s++) {
-            na[s] = L.tot[(size_t)a * k + s];
-            nb[s] = L.tot[(size_t)b * k + s];
-        }
-        pm_stratified_pair(k, n, na, nb, nab, sign, &r[i]);
-    }
-    *out = r;
-    r = NULL;
+    *out = j.r;
+    j.r = NULL;
 done:
     pm_i_strat_lists_free(&L);
-    free(mark);
+    sedge_free(&j);
     free(order);
-    free(cnt);
-    free(r);
+    free(j.r);
     return rc;
 }

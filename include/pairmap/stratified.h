@@ -51,11 +51,13 @@ void pm_stratified_pair(size_t k, const uint64_t *n, const uint64_t *na, const u
 
 /* The figures of every edge of e (listed pairs of pp, over incidence inc) over the levels of
  * column c (respondents without a segment left out): out[i] for e->idx[i]. *out is
- * allocated here (free()). Cost O(nnz + sum over edges of the respondents of item_b + levels
- * x items); memory O(nnz + levels x items + edges). Errors: PM_ENOMEM, PM_EUSAGE (weighted). */
+ * allocated here (free()), on `threads` threads (0: every core; at most 8), the same for any
+ * number. Cost O(nnz + sum over edges of the respondents of item_b + levels x items); memory
+ * O(nnz + levels x items + edges + threads x respondents). Errors: PM_ENOMEM, PM_EUSAGE (weighted).
+ */
 pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, const pm_pairs_t *pp,
-                             const pm_edges_t *e, pm_sign_t sign, pm_strat_t **out,
-                             pm_diag_t *diag);
+                             const pm_edges_t *e, pm_sign_t sign, unsigned threads,
+                             pm_strat_t **out, pm_diag_t *diag);
 
 /* ---- --pair-test within: the Cochran-Mantel-Haenszel test of every pair of the family -------- */
 typedef struct {

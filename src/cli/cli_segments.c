@@ -304,7 +304,11 @@ int pm_cli_strat(const pm_cli_t *c, const pm_incidence_t *inc, const pm_segcol_t
     }
     pm_diag_t d;
     pm_diag_clear(&d);
-    if (pm_stratified_edges(inc, &seg[0], pp, e, sel->sign, st, &d) != PM_OK) {
+    unsigned th = 0;
+    if (pm_cli_threads(c, &th)) {
+        return 1;
+    }
+    if (pm_stratified_edges(inc, &seg[0], pp, e, sel->sign, th, st, &d) != PM_OK) {
         return pm_cli_fail(&d);
     }
     pm_cli_note(c,

@@ -497,7 +497,11 @@ static int within_p(const pm_cli_t *c, const pm_incidence_t *inc, uint32_t a, co
     pm_diag_clear(&d);
     int rc = 0;
     size_t undefined = 0;
-    if (pm_stratified_edges(inc, &seg[0], &v.pairs, &v.sub, sel->sign, &st, &d) != PM_OK) {
+    unsigned th = 0;
+    if (pm_cli_threads(c, &th)) {
+        rc = 1;
+    } else if (pm_stratified_edges(inc, &seg[0], &v.pairs, &v.sub, sel->sign, th, &st, &d) !=
+               PM_OK) {
         rc = pm_cli_fail(&d);
     }
     for (size_t j = 0; !rc && j < nf; j++) {

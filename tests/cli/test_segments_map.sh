@@ -17,6 +17,15 @@ check "segments.svg is valid XML" xmllint --noout "$TMP/m/segments.svg"
 check "the summary names the new files" grep -q "segments.csv, segments.svg" "$TMP/m.out"
 "$PAIRMAP" map "$D" "${SEG[@]}" --draw 12 --max-q 0.01 -o "$TMP/d12" >/dev/null 2>&1 || fail "map --draw 12: exit $?"
 "$PAIRMAP" map "$D" -o "$TMP/plain" >/dev/null 2>&1 || fail "map without segments: exit $?"
+# the Mantel-Haenszel columns are computed on several threads: the same bytes on any number
+# (--max-q 1 --sign both keeps some 900 pairs, enough for the threads to share them)
+for t in 1 2 3; do
+    "$PAIRMAP" pairs "$D" --segment-col location --sign both --max-q 1 --min-count 1 \
+        --threads "$t" -q >"$TMP/strat$t.csv" 2>/dev/null || fail "pairs --threads $t: exit $?"
+done
+check "over 128 pairs with the stratified columns" test "$(wc -l <"$TMP/strat1.csv")" -gt 129
+check "stratified columns: --threads 2 as 1" cmp -s "$TMP/strat1.csv" "$TMP/strat2.csv"
+check "stratified columns: --threads 3 as 1" cmp -s "$TMP/strat1.csv" "$TMP/strat3.csv"
 # the segments table bounded before it is allocated: 60,000 segments x 300 items (exit 4, no DIR)
 awk 'BEGIN { srand(3); print "r,i,seg"; for (r = 0; r < 60000; r++) for (j = 0; j < 3; j++)
     printf "r%d,i%d,s%d\n", r, int(rand() * 300), r }' >"$TMP/manyseg.csv"

@@ -247,22 +247,31 @@ static double beta_gap(double x, void *v) {
     return c - q->p;
 }
 
-/* p-quantile of Beta(a, b): Newton's method on gsl_cdf_beta_P with GSL's density as the
- * slope, from the normal approximation, kept inside a bracket of the root that every step
- * narrows (a step that would leave it bisects instead), to a relative step of 2 ulp.
- * (gsl_cdf_beta_Pinv returns NaN or spins at basket sizes: API-NOTES.md.) About 9 CDF
- * evaluations where Brent's method on [0, 1] took some 30 (measured on 39,000 random
- * intervals of up to 5 million respondents: the two agree to 6e-13 relative); against
- * scipy.stats.beta.ppf the largest deviation in tests/ref/jeffreys.py stays 1.8e-11, as it
- * was with Brent's method. */
+/* p-quantile of Beta(a, b): Halley's method on gsl_cdf_beta_P with the density (its log
+ * normalising constant computed once) and its slope, from the Cornish-Fisher start (the
+ * normal approximation corrected by the skewness), kept inside a bracket of the root that
+ * every step narrows (a step that would leave it bisects instead; a Halley factor outside
+ * [1/2, 2] takes Newton's step), to a relative step of 2 ulp. (gsl_cdf_beta_Pinv returns NaN
+ * or spins at basket sizes: API-NOTES.md.) About 5.9 CDF evaluations where Newton's method
+ * from the normal approximation took 8.7 and Brent's method on [0, 1] some 30 (measured on
+ * 400,000 Jeffreys bounds of 10 to 10^6 respondents: 30% less time; the results agree with
+ * Newton's to 2.4e-12 relative, and both with scipy.stats.beta.ppf to 2.4e-10 at worst on
+ * that sample); against scipy the largest deviation in tests/ref/jeffreys.py is printed by
+ * that check. */
 static double beta_quantile(double p, double a, double b) {
     beta_q q = {a, b, p};
     double lo = 0.0, hi = 1.0;
     double s = a + b, mu = a / s, sd = sqrt(mu * (1 - mu) / (s + 1));
-    double x = mu + gsl_cdf_ugaussian_Pinv(p) * sd;
+    double z = gsl_cdf_ugaussian_Pinv(p);
+    double skew = 2 * (b - a) * sqrt(s + 1) / ((s + 2) * sqrt(a * b));
+    double x = mu + sd * (z + (z * z - 1) * skew / 6);
+    if (!(x > 0 && x < 1)) {
+        x = mu + z * sd;
+    }
     if (!(x > 0 && x < 1)) {
         x = mu;
     }
+    double lnb = gsl_sf_lnbeta(a, b);
     for (int i = 0; i < 400; i++) {
         double g = beta_gap(x, &q);
         if (g == 0) {
@@ -273,7 +282,13 @@ static double beta_quantile(double p, double a, double b) {
         } else {
             hi = x;
         }
-        double xn = x - g / gsl_ran_beta_pdf(x, a, b);
+        double f = exp((a - 1) * log(x) + (b - 1) * log1p(-x) - lnb);
+        double dx = g / f;
+        double h = 1 - 0.5 * dx * ((a - 1) / x - (b - 1) / (1 - x));
+        if (h >= 0.5 && h <= 2) {
+            dx /= h;
+        }
+        double xn = x - dx;
         if (!(xn > lo && xn < hi)) { /* also NaN and infinities */
             xn = lo + (hi - lo) / 2;
         }

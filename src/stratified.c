@@ -164,7 +164,9 @@ static int cmp_edge(const void *x, const void *y, const void *ud) {
  * depend on that edge only: the same on any number of threads. */
 #define SEDGE_CHUNKS 64
 #define SEDGE_MAX_THREADS 8
+#define SEDGE_NABS ((size_t)1 << 21) /* counts (16 MiB) a thread holds for one item's edges */
 typedef struct {
+    const pm_incidence_t *inc;
     const pm_segcol_t *c;
     const pm_pairs_t *pp;
     const pm_edges_t *e;
@@ -174,40 +176,98 @@ typedef struct {
     size_t bound[SEDGE_CHUNKS + 1];
     uint32_t *mark[SEDGE_MAX_THREADS]; /* [nr] per thread */
     uint64_t *cnt[SEDGE_MAX_THREADS];  /* [4 k] per thread */
+    uint32_t *slot[SEDGE_MAX_THREADS]; /* [items] per thread: partner -> 1 + its place, or 0 */
+    uint64_t *nabs[SEDGE_MAX_THREADS]; /* [nabs_len] per thread */
+    size_t nabs_len;                   /* k x the largest group, at most SEDGE_NABS (>= k) */
     pm_strat_t *r;
 } sedge_job;
+
+#define SEDGE_ITEM(j, o) ((j)->pp->a[(j)->e->idx[(j)->order[o]]])
+#define SEDGE_PARTNER(j, o) ((j)->pp->b[(j)->e->idx[(j)->order[o]]])
+
+/* The joint counts per level of the edges [o0, o1) of item a, into nab (k per edge), by the
+ * cheaper of two ways that count the same: each partner's respondents looked up among a's
+ * (stamped in mark), or the rows of a's respondents scanned once for the partners (slot). */
+static void group_counts(sedge_job *j, unsigned th, uint32_t a, size_t o0, size_t o1,
+                         uint64_t *nab) {
+    const pm_i_strat_lists *L = j->L;
+    const pm_incidence_t *inc = j->inc;
+    size_t k = j->c->n_levels, g = o1 - o0;
+    uint64_t by_partner = 0, by_rows = 0;
+    for (size_t o = o0; o < o1; o++) {
+        uint32_t b = SEDGE_PARTNER(j, o);
+        by_partner += L->start[b + 1] - L->start[b];
+    }
+    for (uint64_t p = L->start[a]; p < L->start[a + 1]; p++) {
+        uint32_t q = L->resp[p];
+        by_rows += inc->row_ptr[q + 1] - inc->row_ptr[q];
+    }
+    memset(nab, 0, g * k * sizeof *nab);
+    if (by_rows < by_partner) {
+        uint32_t *slot = j->slot[th];
+        for (size_t o = o0; o < o1; o++) {
+            slot[SEDGE_PARTNER(j, o)] = (uint32_t)(o - o0) + 1;
+        }
+        for (uint64_t p = L->start[a]; p < L->start[a + 1]; p++) {
+            uint32_t q = L->resp[p];
+            size_t s = (size_t)j->c->of[q];
+            for (uint64_t x = inc->row_ptr[q]; x < inc->row_ptr[q + 1]; x++) {
+                uint32_t sl = slot[inc->col[x]];
+                if (sl) {
+                    nab[(size_t)(sl - 1) * k + s]++;
+                }
+            }
+        }
+        for (size_t o = o0; o < o1; o++) {
+            slot[SEDGE_PARTNER(j, o)] = 0;
+        }
+        return;
+    }
+    uint32_t *mark = j->mark[th];
+    for (uint64_t p = L->start[a]; p < L->start[a + 1]; p++) { /* the stamp a + 1 */
+        mark[L->resp[p]] = a + 1;
+    }
+    for (size_t o = o0; o < o1; o++) {
+        uint32_t b = SEDGE_PARTNER(j, o);
+        uint64_t *row = nab + (o - o0) * k;
+        for (uint64_t p = L->start[b]; p < L->start[b + 1]; p++) {
+            uint32_t q = L->resp[p];
+            if (mark[q] == a + 1) {
+                row[j->c->of[q]]++;
+            }
+        }
+    }
+}
 
 static int sedge_chunk(void *ud, size_t ch, unsigned th) {
     sedge_job *j = ud;
     const pm_i_strat_lists *L = j->L;
     size_t k = j->c->n_levels;
-    uint32_t *mark = j->mark[th];
-    uint64_t *n = j->cnt[th], *na = n + k, *nb = n + 2 * k, *nab = n + 3 * k;
+    uint64_t *n = j->cnt[th], *na = n + k, *nb = n + 2 * k;
     for (size_t s = 0; s < k; s++) {
         n[s] = j->c->base[s];
     }
-    uint32_t cur_a = UINT32_MAX;
-    for (size_t o = j->bound[ch]; o < j->bound[ch + 1]; o++) {
-        size_t i = j->order[o], pk = j->e->idx[i];
-        uint32_t a = j->pp->a[pk], b = j->pp->b[pk];
-        if (a != cur_a) { /* mark item a's respondents: the stamp a + 1 */
-            cur_a = a;
-            for (uint64_t p = L->start[a]; p < L->start[a + 1]; p++) {
-                mark[L->resp[p]] = a + 1;
-            }
-        }
-        memset(nab, 0, k * sizeof *nab);
-        for (uint64_t p = L->start[b]; p < L->start[b + 1]; p++) {
-            uint32_t q = L->resp[p];
-            if (mark[q] == a + 1) {
-                nab[j->c->of[q]]++;
-            }
+    for (size_t o0 = j->bound[ch], o1; o0 < j->bound[ch + 1]; o0 = o1) {
+        uint32_t a = SEDGE_ITEM(j, o0);
+        for (o1 = o0 + 1; o1 < j->bound[ch + 1] && SEDGE_ITEM(j, o1) == a; o1++) {
         }
         for (size_t s = 0; s < k; s++) {
             na[s] = L->tot[(size_t)a * k + s];
-            nb[s] = L->tot[(size_t)b * k + s];
         }
-        pm_stratified_pair(k, n, na, nb, nab, j->sign, &j->r[i]);
+        /* the whole group at once when its counts fit in nabs, else one edge at a time */
+        int whole = (o1 - o0) * k <= j->nabs_len;
+        for (size_t oa = o0, ob; oa < o1; oa = ob) {
+            ob = whole ? o1 : oa + 1;
+            group_counts(j, th, a, oa, ob, j->nabs[th]);
+            for (size_t o = oa; o < ob; o++) {
+                uint32_t b = SEDGE_PARTNER(j, o);
+                for (size_t s = 0; s < k; s++) {
+                    nb[s] = L->tot[(size_t)b * k + s];
+                }
+                pm_stratified_pair(k, n, na, nb, j->nabs[th] + (o - oa) * k, j->sign,
+                                   &j->r[j->order[o]]);
+            }
+        }
     }
     return 0;
 }
@@ -220,8 +280,7 @@ static void sedge_bounds(sedge_job *j) {
     for (size_t c = 1; c <= SEDGE_CHUNKS; c++) {
         size_t b = c == SEDGE_CHUNKS ? ne : ne * c / SEDGE_CHUNKS;
         b = b < j->bound[c - 1] ? j->bound[c - 1] : b;
-        while (b > 0 && b < ne &&
-               j->pp->a[j->e->idx[j->order[b]]] == j->pp->a[j->e->idx[j->order[b - 1]]]) {
+        while (b > 0 && b < ne && SEDGE_ITEM(j, b) == SEDGE_ITEM(j, b - 1)) {
             b++;
         }
         j->bound[c] = b;
@@ -232,7 +291,20 @@ static void sedge_free(sedge_job *j) {
     for (unsigned t = 0; t < SEDGE_MAX_THREADS; t++) {
         free(j->mark[t]);
         free(j->cnt[t]);
+        free(j->slot[t]);
+        free(j->nabs[t]);
     }
+}
+
+/* The most edges one item has in the sorted order. */
+static size_t sedge_max_group(const sedge_job *j) {
+    size_t best = 0;
+    for (size_t o0 = 0, o1; o0 < j->e->n; o0 = o1) {
+        for (o1 = o0 + 1; o1 < j->e->n && SEDGE_ITEM(j, o1) == SEDGE_ITEM(j, o0); o1++) {
+        }
+        best = o1 - o0 > best ? o1 - o0 : best;
+    }
+    return best;
 }
 
 pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, const pm_pairs_t *pp,
@@ -253,19 +325,12 @@ pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, co
     threads = e->n < 2 * SEDGE_CHUNKS ? 1 : threads; /* few edges: not worth a thread */
     pm_i_strat_lists L;
     pm_err_t rc = pm_i_strat_lists_build(inc, c, nr, &L);
-    sedge_job j = {c, pp, e, sign, &L, NULL, {0}, {NULL}, {NULL}, NULL};
+    sedge_job j = {inc, c, pp, e, sign, &L, NULL, {0}, {NULL}, {NULL}, {NULL}, {NULL}, 0, NULL};
     size_t *order = pm_i_malloc(e->n ? e->n : 1, sizeof *order);
     j.r = pm_i_malloc(e->n ? e->n : 1, sizeof *j.r);
-    int ok = rc == PM_OK && order && j.r;
-    for (unsigned t = 0; ok && t < threads; t++) {
-        j.mark[t] = pm_i_calloc(nr ? nr : 1, sizeof *j.mark[t]);
-        j.cnt[t] = pm_i_calloc(4 * (k ? k : 1), sizeof *j.cnt[t]);
-        ok = j.mark[t] && j.cnt[t];
-    }
-    if (!ok) {
+    if (rc != PM_OK || !order || !j.r) {
         rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0,
-                         "out of memory for the pair tests within "
-                         "segments");
+                         "out of memory for the pair tests within segments");
         goto done;
     }
     for (size_t i = 0; i < e->n; i++) {
@@ -277,6 +342,22 @@ pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, co
         goto done;
     }
     j.order = order;
+    size_t kk = k ? k : 1, mg = sedge_max_group(&j);
+    size_t per = SEDGE_NABS / kk ? SEDGE_NABS / kk : 1; /* edges whose counts fit */
+    j.nabs_len = kk * (mg < 1 ? 1 : mg < per ? mg : per);
+    int ok = 1;
+    for (unsigned t = 0; ok && t < threads; t++) {
+        j.mark[t] = pm_i_calloc(nr ? nr : 1, sizeof *j.mark[t]);
+        j.cnt[t] = pm_i_calloc(3 * (k ? k : 1), sizeof *j.cnt[t]);
+        j.slot[t] = pm_i_calloc(ni ? ni : 1, sizeof *j.slot[t]);
+        j.nabs[t] = pm_i_calloc(j.nabs_len, sizeof *j.nabs[t]);
+        ok = j.mark[t] && j.cnt[t] && j.slot[t] && j.nabs[t];
+    }
+    if (!ok) {
+        rc = pm_diag_set(diag, PM_ENOMEM, NULL, 0,
+                         "out of memory for the pair tests within segments");
+        goto done;
+    }
     sedge_bounds(&j);
     if (threads < 2) {
         for (size_t ch = 0; ch < SEDGE_CHUNKS; ch++) {

@@ -135,6 +135,58 @@ static void members_text(const ctx_t *c, const size_t *items, size_t n, size_t t
     }
 }
 
+/* The sub-clusters of cluster k (0-based): sub_label[*from .. *from + return). */
+static size_t subs_of(const pm_svg_data_t *d, size_t k, size_t *from) {
+    size_t f = 0, n = 0;
+    while (f < d->n_sub && d->sub_of[f] != k) {
+        f++;
+    }
+    while (f + n < d->n_sub && d->sub_of[f + n] == k) {
+        n++;
+    }
+    *from = f;
+    return n;
+}
+
+/* The sub-clusters of big cluster k, one a line from baseline y: "K.S: NAME (SIZE)", the name
+ * shortened to the line when needed (or left at "K.S (SIZE)"), at most max_lines lines, the
+ * last one "+J more sub-clusters" when they do not all fit. b NULL: measure only. Returns the
+ * lines drawn. */
+static size_t sub_entries(ctx_t *c, sbuf *b, size_t k, double x, double y, double fs,
+                          size_t max_lines, pm_err_t *err) {
+    const pm_svg_data_t *d = c->d;
+    size_t from, n = subs_of(d, k, &from);
+    size_t lines = n <= max_lines ? n : max_lines;
+    double room = max_units(c->legend.x1 - x, fs, 0);
+    for (size_t j = 0; j < lines && !*err; j++) {
+        char text[1400];
+        if (j + 1 == lines && lines < n) {
+            snprintf(text, sizeof text, "+%zu more sub-clusters", n - j);
+        } else {
+            char size[40];
+            snprintf(size, sizeof size, NBSP "(%zu)", d->sub_size[from + j]);
+            char *clean = pm_i_svg_clean_text(d->sub_label[from + j]);
+            char *cut = clean ? pm_i_svg_shorten(clean, room - pm_i_svg_text_units(size)) : NULL;
+            if (!clean) {
+                *err = pm_i_svg_nomem(c);
+                break;
+            }
+            if (cut) {
+                snprintf(text, sizeof text, "%s%s", cut, size);
+            } else { /* the number alone, up to the colon */
+                const char *colon = strchr(clean, ':');
+                int len = colon ? (int)(colon - clean) : (int)strlen(clean);
+                snprintf(text, sizeof text, "%.*s%s", len, clean, size);
+            }
+            pm_i_free(cut);
+            pm_i_free(clean);
+        }
+        pm_i_svg_write_text(b, "legend", x, y + (double)j * 1.25 * fs, fs, 0, 0, "#444444", text,
+                            NULL, 0);
+    }
+    return lines;
+}
+
 /* Does the cluster name already list this member (as a whole part of it)? */
 static int name_lists(const char *cname, const char *member) {
     size_t ml = strlen(member);
@@ -212,6 +264,37 @@ static double grey_entries(ctx_t *c, sbuf *b, double y, double keys_top, size_t 
     return y;
 }
 
+/* Opens the legend entry of cluster k (0-based) with its swatch at baseline y. */
+static void entry_open(const ctx_t *c, sbuf *b, size_t k, size_t drawn, size_t nsub, double x,
+                       double y) {
+    double fs = c->fs_leg;
+    int col = c->ccolour[k];
+    pm_i_sb_puts(b, "<g class=\"legend-cluster\" data-cluster=\"");
+    pm_i_sb_int(b, (long long)k + 1);
+    pm_i_sb_puts(b, "\" data-size=\"");
+    pm_i_sb_int(b, (long long)c->csize[k]);
+    pm_i_sb_puts(b, "\" data-drawn=\"");
+    pm_i_sb_int(b, (long long)drawn);
+    if (nsub) {
+        pm_i_sb_puts(b, "\" data-subclusters=\"");
+        pm_i_sb_int(b, (long long)nsub);
+    }
+    pm_i_sb_puts(b, "\">\n");
+    if (c->o->color_by_category) {
+        swatch_region(b, x, y - 0.8 * fs, 1.1 * fs, 0.9 * fs, GREY_FILL, GREY_TINT);
+        return;
+    }
+    swatch_circle(b, x + 0.45 * fs, y - 0.35 * fs, 0.45 * fs, PAL_FILL[col]);
+    if (c->ccycle[k] > 0) { /* the palette came round: dashed, as the region */
+        pm_i_sb_puts(b, "<circle class=\"swatch\"");
+        pm_i_sb_attr_num(b, "cx", x + 0.45 * fs);
+        pm_i_sb_attr_num(b, "cy", y - 0.35 * fs);
+        pm_i_sb_attr_num(b, "r", 0.45 * fs + 2);
+        pm_i_sb_attr(b, "stroke", PAL_FILL[col]);
+        pm_i_sb_puts(b, " fill=\"none\" stroke-width=\"1.2\" stroke-dasharray=\"3 2\"/>\n");
+    }
+}
+
 /* The legend's list of clusters from baseline y: each coloured cluster by colour with its
  * leading members, then the small clusters together and the items on their own. mode 0
  * gives names two lines and members two; mode 1 members one line; mode 2 names one line and
@@ -262,7 +345,13 @@ static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y
             }
         }
         line[0] = '\0';
-        if (cnt && mem_lines) {
+        /* a big cluster shows its sub-clusters, one a line, instead of more members */
+        size_t first_sub, nsub = subs_of(d, k, &first_sub);
+        size_t sub_lines = nsub && mem_lines ? mem_lines + 2 : 0;
+        if (nsub) {
+            cnt = 0;
+            sub_lines = sub_lines < nsub ? sub_lines : nsub;
+        } else if (cnt && mem_lines) {
             members_text(c, tmp, cnt, cnt, xi, fs2, (long)mem_lines, line + (named ? 5 : 0),
                          sizeof line - 5);
             if (named) {
@@ -279,38 +368,21 @@ static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y
                      c->csize[k], drawn_in[k]);
         }
         size_t hl = para_lines(c, xi, fs, 1, head, head_lines);
-        size_t ml = cnt && mem_lines ? para_lines(c, xi, fs2, 0, line, mem_lines) : 0;
+        size_t ml = cnt && mem_lines ? para_lines(c, xi, fs2, 0, line, mem_lines) : sub_lines;
         double need = (double)hl * 1.15 * lh + (double)ml * lh2 + 0.45 * fs;
         double reserve = (listed + 1 < coloured ? more_h : 0) + grey_h;
         if (y + need + reserve - lh > keys_top) {
             break;
         }
         listed++;
-        pm_i_sb_puts(b, "<g class=\"legend-cluster\" data-cluster=\"");
-        pm_i_sb_int(b, (long long)k + 1);
-        pm_i_sb_puts(b, "\" data-size=\"");
-        pm_i_sb_int(b, (long long)c->csize[k]);
-        pm_i_sb_puts(b, "\" data-drawn=\"");
-        pm_i_sb_int(b, (long long)drawn_in[k]);
-        pm_i_sb_puts(b, "\">\n");
-        if (cat_mode) {
-            swatch_region(b, x, y - 0.8 * fs, 1.1 * fs, 0.9 * fs, GREY_FILL, GREY_TINT);
-        } else {
-            swatch_circle(b, x + 0.45 * fs, y - 0.35 * fs, 0.45 * fs, PAL_FILL[col]);
-            if (c->ccycle[k] > 0) { /* the palette came round: dashed, as the region */
-                pm_i_sb_puts(b, "<circle class=\"swatch\"");
-                pm_i_sb_attr_num(b, "cx", x + 0.45 * fs);
-                pm_i_sb_attr_num(b, "cy", y - 0.35 * fs);
-                pm_i_sb_attr_num(b, "r", 0.45 * fs + 2);
-                pm_i_sb_attr(b, "stroke", PAL_FILL[col]);
-                pm_i_sb_puts(b, " fill=\"none\" stroke-width=\"1.2\" stroke-dasharray=\"3 2\"/>\n");
-            }
-        }
+        entry_open(c, b, k, drawn_in[k], nsub, x, y);
         rc = legend_para(c, b, xi, y, fs, 1, cat_mode ? INK : PAL_TEXT[col], head, head_lines, &nl);
         y += (double)nl * 1.15 * lh;
         nl = 0;
         if (!rc && cnt && mem_lines) {
             rc = legend_para(c, b, xi, y, fs2, 0, "#444444", line, mem_lines, &nl);
+        } else if (!rc && sub_lines) {
+            nl = sub_entries(c, b, k, xi, y, fs2, sub_lines, &rc);
         }
         y += (double)nl * lh2 + 0.45 * fs;
         pm_i_sb_puts(b, "</g>\n");

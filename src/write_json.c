@@ -302,6 +302,88 @@ static void run_network(pm_json_t *j, const pm_run_report_t *r) {
     pm_json_end_array(j);
 }
 
+/* The sub-clusters of one big cluster k (0-based): each with its number "K.S", size, name
+ * and members, leading ones first. */
+static void run_subclusters(pm_json_t *j, const pm_run_report_t *r, size_t k) {
+    const pm_multiscale_t *ms = r->map->multiscale;
+    const pm_clusters_t *cl = r->map->clusters, *sub = ms->sub[k];
+    char num[48];
+    pm_json_begin_object(j, NULL);
+    pm_json_uint(j, "cluster", k + 1);
+    pm_json_uint(j, "size", cl->size[k]);
+    pm_json_number(j, "share_of_clustered", (double)cl->size[k] / (double)ms->clustered);
+    pm_json_number(j, "modularity_within", sub->modularity);
+    pm_json_bool(j, "splits", sub->n_clusters > 1);
+    pm_json_begin_array(j, "subclusters");
+    for (size_t s = 0; s < sub->n_clusters && sub->n_clusters > 1; s++) {
+        pm_json_begin_object(j, NULL);
+        snprintf(num, sizeof num, "%zu.%zu", k + 1, s + 1);
+        pm_json_string(j, "subcluster", num);
+        pm_json_uint(j, "size", sub->size[s]);
+        pm_json_string(j, "name", ms->sub_name[k][s]);
+        pm_json_begin_array(j, "members");
+        for (size_t t = sub->first[s]; t < sub->first[s + 1]; t++) {
+            pm_json_string(j, NULL, r->names[cl->members[cl->first[k] + sub->members[t]]]);
+        }
+        pm_json_end_array(j);
+        pm_json_end_object(j);
+    }
+    pm_json_end_array(j);
+    pm_json_end_object(j);
+}
+
+/* One resolution tried: its numbers and its clusters of two or more items (members' names). */
+static void run_tried(pm_json_t *j, const pm_run_report_t *r, const pm_tried_resolution_t *tr) {
+    pm_json_begin_object(j, NULL);
+    pm_json_number(j, "resolution", tr->resolution);
+    pm_json_bool(j, "this_map", tr->own != 0);
+    pm_json_number(j, "modularity", tr->modularity);
+    pm_json_number(j, "modularity_at_1", tr->modularity_1);
+    pm_json_uint(j, "clusters", tr->n_clusters);
+    pm_json_uint(j, "largest", tr->largest);
+    pm_json_number(j, "largest_share", tr->largest_share);
+    pm_json_begin_array(j, "partition"); /* clusters of two or more, in cluster order */
+    for (size_t c = 0; c < tr->n_all; c++) {
+        if (tr->first[c + 1] - tr->first[c] < 2) {
+            continue;
+        }
+        pm_json_begin_array(j, NULL);
+        for (size_t t = tr->first[c]; t < tr->first[c + 1]; t++) {
+            pm_json_string(j, NULL, r->names[tr->grouped[t]]);
+        }
+        pm_json_end_array(j);
+    }
+    pm_json_end_array(j);
+    pm_json_end_object(j);
+}
+
+static void run_multiscale(pm_json_t *j, const pm_run_report_t *r) {
+    const pm_multiscale_t *ms = r->map->multiscale;
+    if (!ms) {
+        return;
+    }
+    pm_json_begin_object(j, "multiscale");
+    pm_json_number(j, "big_share", PM_BIG_CLUSTER_SHARE);
+    pm_json_uint(j, "clustered_items", ms->clustered);
+    pm_json_number(j, "largest_share", ms->largest_share);
+    pm_json_begin_array(j, "big_clusters");
+    for (size_t k = 0; k < ms->n_big; k++) {
+        run_subclusters(j, r, k);
+    }
+    pm_json_end_array(j);
+    pm_json_begin_array(j, "resolutions_tried");
+    for (size_t t = 0; t < ms->n_tried; t++) {
+        run_tried(j, r, &ms->tried[t]);
+    }
+    pm_json_end_array(j);
+    if (ms->suggested >= 0) {
+        pm_json_number(j, "suggested_resolution", ms->tried[ms->suggested].resolution);
+    } else {
+        pm_json_null(j, "suggested_resolution");
+    }
+    pm_json_end_object(j);
+}
+
 pm_err_t pm_write_run_json(FILE *fp, const pm_run_report_t *r, pm_diag_t *diag) {
     pm_json_t j;
     pm_json_init(&j, fp);
@@ -317,6 +399,7 @@ pm_err_t pm_write_run_json(FILE *fp, const pm_run_report_t *r, pm_diag_t *diag) 
     run_counts(&j, r);
     run_pairs(&j, r);
     run_network(&j, r);
+    run_multiscale(&j, r);
     if (r->after_clusters) {
         r->after_clusters(&j, r->ud);
     }

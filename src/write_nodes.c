@@ -1,5 +1,5 @@
 /* nodes.csv of the map: one row per vertex with share, Jeffreys interval, cluster, degree and
- * layout position (see mapwrite.h). */
+ * layout position, cluster name and sub-cluster (see mapwrite.h). */
 #include <errno.h>
 #include <stdlib.h>
 #include <string.h>
@@ -79,6 +79,10 @@ pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
         pm_write_number(fp, map->xy[2 * v + 1]);
         fputc(',', fp);
         pm_write_csv_field(fp, cname[cl - 1], map->csv_flags);
+        fputc(',', fp);
+        if (map->multiscale && map->multiscale->subcluster[v]) {
+            fprintf(fp, "%u.%u", cl, map->multiscale->subcluster[v]);
+        }
         fputc('\n', fp);
     }
     rc = PM_OK;

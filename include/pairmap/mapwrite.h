@@ -22,7 +22,8 @@ extern "C" {
 
 /* The nodes.csv columns of DESIGN.md (contract). */
 #define PM_NODES_HEADER                                                                            \
-    "item,category,respondents,share,share_low,share_high,cluster,degree,x,y,cluster_name"
+    "item,category,respondents,share,share_low,share_high,cluster,degree,x,y,cluster_name,"        \
+    "subcluster"
 
 /* Everything the map's writers read. Vertex v is incidence item item[v]; vertices are in
  * canonical order (item[] increasing). Edge k is selected edge k of edges, joining vertices
@@ -51,12 +52,16 @@ typedef struct {
     size_t n_seg;
     const pm_segcol_t *segcols;
     const pm_segstats_t *segstats;
+    /* optional: the sub-clusters of the big clusters (pm_multiscale_run over the vertices);
+     * NULL: nodes.csv's subcluster cells are empty, run.json has no "multiscale" object */
+    const pm_multiscale_t *multiscale;
 } pm_map_t;
 
 /* nodes.csv: one row per vertex, rows ordered by cluster, then share descending, then name
  * (bytes). share and its 95% Jeffreys interval as `pairmap items` prints them; cluster_name
  * the name of the vertex's cluster (pm_cluster_name: its leading members, the legend's name
- * of it). */
+ * of it); subcluster "K.S" (sub-cluster S of big cluster K, pm_multiscale_t) or empty outside
+ * the big clusters. */
 pm_err_t pm_write_nodes_csv(FILE *fp, const pm_map_t *map, pm_diag_t *diag);
 
 /* The clusters.csv columns of DESIGN.md (contract). */

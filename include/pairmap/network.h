@@ -185,6 +185,73 @@ pm_err_t pm_network_run(size_t n, size_t m, const uint32_t *ea, const uint32_t *
                         const pm_cluster_opts_t *o, uint64_t layout_seed, int iterations,
                         pm_clusters_t **clusters, double *xy, pm_diag_t *diag);
 
+/* ---- clusters at more than one scale (src/multiscale.c) ------------------------------------ */
+
+/* A cluster is big when it holds more than this share of the clustered items (the vertices
+ * with a usable edge: the ones Louvain groups; items on their own are not counted, or a long
+ * tail of unclustered items would hide any tangle). */
+#define PM_BIG_CLUSTER_SHARE 0.25
+/* The resolutions tried on the same graph when a cluster is big, besides the map's own. */
+#define PM_TRIED_RESOLUTIONS                                                                       \
+    { 0.5, 1.0, 1.5, 2.0, 3.0 }
+#define PM_N_TRIED_RESOLUTIONS 5
+
+/* One resolution tried on the whole graph: one Louvain run from the seed of restart 0 (the
+ * map's own resolution: the kept partition of its restarts instead). */
+typedef struct {
+    double resolution;
+    int own;              /* 1: the map's own --resolution (the kept partition) */
+    double modularity;    /* at this resolution (igraph_modularity) */
+    double modularity_1;  /* the same partition's modularity at resolution 1: comparable */
+    size_t n_clusters;    /* clusters of two or more items */
+    size_t largest;       /* items in the largest cluster */
+    double largest_share; /* largest / clustered */
+    uint32_t *cluster;    /* [n] 1-based cluster of each vertex (by size, as pm_clusters_t) */
+    size_t n_all;         /* clusters, singletons included */
+    uint32_t *grouped;    /* [n] the vertices by cluster, increasing within one */
+    size_t *first;        /* [n_all + 1] cluster c + 1 is grouped[first[c] .. first[c + 1]) */
+} pm_tried_resolution_t;
+
+/* The next level inside the big clusters, and the resolutions tried. Big clusters are
+ * clusters 1 .. n_big (clusters are numbered by size). The next level of big cluster k + 1 is
+ * Louvain run again on the cluster's own graph (its members and the usable edges between
+ * them), at the same resolution, with the same restarts, seeds and workers as the map: nested
+ * in the cluster by construction, the same for the same --seed and any number of workers.
+ * The cluster's own graph has its own null model, so the same resolution finds finer groups
+ * there (modularity's resolution limit, Fortunato & Barthelemy 2007, PNAS 104:36-41). */
+typedef struct {
+    size_t n;             /* vertices */
+    size_t clustered;     /* vertices with a usable edge */
+    double largest_share; /* cluster 1's size / clustered (0 when nothing is clustered) */
+    size_t n_big;
+    /* [n_big] the sub-clustering of cluster k + 1 over its members: local vertex j is the
+     * vertex members[first[k] + j] of the map's clusters; sub[k]->modularity is the
+     * modularity within the cluster's own graph at the map's resolution */
+    pm_clusters_t **sub;
+    char ***sub_name; /* [n_big][sub[k]->n_clusters] pm_cluster_name of each sub-cluster */
+    /* [n] 1-based sub-cluster of the vertex within its cluster; 0 outside the big clusters
+     * and in a big cluster that does not split (one sub-cluster) */
+    uint32_t *subcluster;
+    size_t n_tried; /* 0 when no cluster is big: nothing is tried */
+    pm_tried_resolution_t tried[PM_N_TRIED_RESOLUTIONS + 1]; /* by resolution, increasing */
+    int suggested; /* index into tried: the resolution with the highest modularity at 1 among
+                    * those whose largest cluster holds no more than PM_BIG_CLUSTER_SHARE (ties:
+                    * the lower resolution); -1 when none does */
+} pm_multiscale_t;
+
+/* Fills *out for the graph (n, m, ea, eb, w) and its clusters cl (from pm_cluster_louvain or
+ * pm_network_run with the same graph and options o). o->names (needed) names the sub-clusters
+ * with pm_cluster_name; o->share orders their members as for the clusters. When no cluster
+ * is big, nothing is run (n_big and n_tried 0, subcluster all 0). Otherwise, per big cluster,
+ * o->restarts Louvain runs on its own graph (shared among o->workers processes), and one run
+ * on the whole graph per resolution tried (PM_TRIED_RESOLUTIONS other than o->resolution).
+ * *out owns everything (pm_multiscale_free). Errors: those of pm_cluster_louvain and
+ * pm_modularity, PM_ENOMEM. */
+pm_err_t pm_multiscale_run(size_t n, size_t m, const uint32_t *ea, const uint32_t *eb,
+                           const double *w, const pm_cluster_opts_t *o, const pm_clusters_t *cl,
+                           pm_multiscale_t **out, pm_diag_t *diag);
+void pm_multiscale_free(pm_multiscale_t *ms);
+
 /* Adjusted Rand index (Hubert & Arabie 1985) of two partitions of n elements given as
  * labels (any values); computed from the contingency table. 1 for identical partitions;
  * defined as 1 when both partitions are trivial in the same way (all one cluster, or all

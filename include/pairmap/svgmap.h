@@ -42,6 +42,14 @@ typedef struct {
     const unsigned char *negative; /* per edge, nonzero = a negative (substitute) pair; NULL:
                                     * weight[k] < 0. Needed when the measure is lift, which
                                     * stays positive for substitutes */
+    /* the sub-clusters of big clusters (pm_multiscale_t), for the legend: sub_label[j] (e.g.
+     * "1.2: Name · Name") of sub_size[j] items is a sub-cluster of cluster sub_of[j] + 1; a
+     * cluster's come together, in order. n_sub 0: none. The legend lists them under their
+     * cluster, one a line, in place of its other members */
+    size_t n_sub;
+    const char *const *sub_label;
+    const uint32_t *sub_of;
+    const size_t *sub_size;
 } pm_svg_data_t;
 
 typedef struct {
@@ -79,7 +87,8 @@ void pm_svg_opts_init(pm_svg_opts_t *o);
  * x, y, font-size, text-anchor and font-weight as src/svg_text.c measures text); edges class
  * "edge" (negative ones "edge negative") with data-a, data-b, data-weight; regions class
  * "region" and cluster names class "cluster-label" with data-cluster; legend entries of
- * clusters class "legend-cluster" with data-cluster, data-size, data-drawn.
+ * clusters class "legend-cluster" with data-cluster, data-size, data-drawn (and
+ * data-subclusters, their number, for a big cluster that lists its sub-clusters).
  *
  * Writes the SVG to fp in one piece (nothing on error). Deterministic for the same data and
  * options. Draws at most o->draw items (fewer when their labels cannot all fit without

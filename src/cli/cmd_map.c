@@ -108,6 +108,13 @@ static void state_free(run_state *s) {
     free(s->share);
     free(s->xy);
     free(s->names);
+    for (size_t i = 0; s->sub_label && i < s->n_sub_labels; i++) {
+        free(s->sub_label[i]);
+    }
+    free(s->sub_label);
+    free(s->sub_of);
+    free(s->sub_size);
+    pm_multiscale_free(s->ms);
     pm_clusters_free(s->cl);
     pm_outdir_free(s->od);
     pm_edges_free(s->e);
@@ -119,6 +126,37 @@ static void state_free(run_state *s) {
 int pm_cli_map_oom(void) {
     fputs("pairmap: out of memory\n", stderr);
     return 4;
+}
+
+/* The legend's lines of the big clusters' sub-clusters: "K.S: NAME" and the size. */
+static int sub_labels(run_state *s) {
+    const pm_multiscale_t *ms = s->ms;
+    size_t total = 0;
+    for (size_t k = 0; k < ms->n_big; k++) {
+        total += ms->sub[k]->n_clusters > 1 ? ms->sub[k]->n_clusters : 0;
+    }
+    s->sub_label = calloc(total ? total : 1, sizeof *s->sub_label);
+    s->sub_of = malloc((total ? total : 1) * sizeof *s->sub_of);
+    s->sub_size = malloc((total ? total : 1) * sizeof *s->sub_size);
+    if (!s->sub_label || !s->sub_of || !s->sub_size) {
+        return pm_cli_map_oom();
+    }
+    for (size_t k = 0; k < ms->n_big; k++) {
+        const pm_clusters_t *sub = ms->sub[k];
+        for (size_t t = 0; t < sub->n_clusters && sub->n_clusters > 1; t++) {
+            const char *nm = ms->sub_name[k][t];
+            size_t len = strlen(nm) + 64;
+            char *l = malloc(len);
+            if (!l) {
+                return pm_cli_map_oom();
+            }
+            snprintf(l, len, "%zu.%zu: %s", k + 1, t + 1, nm);
+            s->sub_of[s->n_sub_labels] = (uint32_t)k;
+            s->sub_size[s->n_sub_labels] = sub->size[t];
+            s->sub_label[s->n_sub_labels++] = l;
+        }
+    }
+    return 0;
 }
 
 static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_opts_t *sel,
@@ -206,7 +244,12 @@ static int build_network(const pm_cli_t *c, const net_opts *no, const pm_select_
     for (size_t k = 0; k < s->n; k++) {
         s->cluster_int[k] = (int)s->cl->cluster[k];
     }
-    return 0;
+    /* a big cluster's next level and the resolutions tried, on the same graph (forks as the
+     * restarts do: before any thread of ours starts) */
+    if (pm_multiscale_run(s->n, m, s->ea, s->eb, s->wuse, &co, s->cl, &s->ms, &d)) {
+        return pm_cli_fail(&d);
+    }
+    return sub_labels(s);
 }
 
 /* ---- summary --------------------------------------------------------------------------------- */
@@ -284,6 +327,93 @@ static void summary_picture(const run_state *s) {
     }
 }
 
+/* The summary's lines on the big clusters: each one's share, its sub-clusters (the next
+ * level), and the resolutions tried with the suggestion. Nothing when no cluster is big. */
+static void summary_multiscale(const net_opts *no, const run_state *s) {
+    const pm_multiscale_t *ms = s->ms;
+    if (!ms || ms->n_big == 0) {
+        return;
+    }
+    for (size_t k = 0; k < ms->n_big; k++) {
+        const pm_clusters_t *sub = ms->sub[k];
+        printf("big cluster   %zu holds %zu of the %zu clustered items (%.0f%%, more than a "
+               "quarter);",
+               k + 1, s->cl->size[k], ms->clustered,
+               100.0 * (double)s->cl->size[k] / (double)ms->clustered);
+        if (sub->n_clusters < 2) {
+            printf("\n              Louvain on its own edges (resolution %g) does not split it\n",
+                   no->resolution);
+            continue;
+        }
+        printf("\n              its next level, Louvain on its own edges (resolution %g): %zu "
+               "sub-clusters,\n              modularity within it %.4f (nodes.csv: subcluster)\n",
+               no->resolution, sub->n_clusters, sub->modularity);
+        for (size_t t = 0; t < sub->n_clusters && t < 30; t++) {
+            char num[48];
+            snprintf(num, sizeof num, "%zu.%zu", k + 1, t + 1);
+            printf("  %6s %5zu items  %s\n", num, sub->size[t], pm_cli_shown(ms->sub_name[k][t]));
+        }
+        if (sub->n_clusters > 30) {
+            printf("        ... %zu more sub-clusters in nodes.csv and run.json\n",
+                   sub->n_clusters - 30);
+        }
+    }
+    printf("resolutions   tried on the same graph, one Louvain run each from --seed (this map: "
+           "its kept run);\n              modularity at resolution 1, so that they compare:\n");
+    for (size_t t = 0; t < ms->n_tried; t++) {
+        const pm_tried_resolution_t *tr = &ms->tried[t];
+        printf("  %10g  modularity %.4f  largest cluster %3.0f%% (%zu items), %zu clusters%s\n",
+               tr->resolution, tr->modularity_1, 100.0 * tr->largest_share, tr->largest,
+               tr->n_clusters, tr->own ? "  (this map)" : "");
+    }
+    if (ms->suggested >= 0) {
+        const pm_tried_resolution_t *tr = &ms->tried[ms->suggested];
+        printf("              suggested: --resolution %g (the highest modularity of those whose "
+               "largest\n              cluster holds a quarter of the clustered items or less)\n",
+               tr->resolution);
+    } else {
+        printf("              none of these brings the largest cluster to a quarter of the "
+               "clustered items or less\n");
+    }
+}
+
+/* The note on stderr when a cluster is big: what it holds, where its sub-clusters are, and the
+ * suggested resolution. */
+static void note_multiscale(const pm_cli_t *c, const run_state *s) {
+    const pm_multiscale_t *ms = s->ms;
+    if (!ms || ms->n_big == 0) {
+        return;
+    }
+    char tail[256];
+    if (ms->suggested >= 0) {
+        const pm_tried_resolution_t *tr = &ms->tried[ms->suggested];
+        snprintf(tail, sizeof tail,
+                 "; --resolution %g brings the largest cluster to %.0f%% (modularity at "
+                 "resolution 1: %.4f)",
+                 tr->resolution, 100.0 * tr->largest_share, tr->modularity_1);
+    } else {
+        snprintf(tail, sizeof tail, "; none of the resolutions tried brings it to a quarter");
+    }
+    int splits = 0;
+    for (size_t k = 0; k < ms->n_big; k++) {
+        splits |= ms->sub[k]->n_clusters > 1;
+    }
+    char head[160];
+    if (ms->n_big == 1) {
+        snprintf(head, sizeof head,
+                 "cluster 1 holds %.0f%% of the %zu clustered items, more than a quarter",
+                 100.0 * ms->largest_share, ms->clustered);
+    } else {
+        snprintf(head, sizeof head,
+                 "clusters 1 to %zu each hold more than a quarter of the %zu clustered items",
+                 ms->n_big, ms->clustered);
+    }
+    pm_cli_note(c, "note: %s%s%s (summary: resolutions tried)", head,
+                splits ? "; sub-clusters: nodes.csv's subcluster column"
+                       : "; Louvain on the cluster's own edges does not split it",
+                tail);
+}
+
 static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_state *s,
                     const char *c_unit) {
     const pm_edges_t *e = s->e;
@@ -344,6 +474,7 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
                "partitions; 1 = all agree)\n",
                cl->stability, (unsigned long long)no->restarts);
     }
+    summary_multiscale(no, s);
     summary_picture(s);
     if (s->seg.n) {
         printf("\nsegments      %zu of %zu items in segments.svg, %zu segments of %zu column%s",
@@ -472,6 +603,7 @@ int pm_cmd_map(int argc, char **argv) {
     if (rc) {
         goto done;
     }
+    note_multiscale(&c, &s);
     summary(&sel, &no, &s, pm_cli_unit(&c));
     rc = pm_cli_close_stdout();
 done:

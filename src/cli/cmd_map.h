@@ -27,6 +27,11 @@ typedef struct {
     pm_pairs_t *pp;
     pm_edges_t *e;
     pm_clusters_t *cl;
+    pm_multiscale_t *ms; /* the big clusters' sub-clusters, the resolutions tried */
+    char **sub_label;    /* [sub-clusters of the big clusters] "K.S: NAME", for the legend */
+    uint32_t *sub_of;    /* [same] its 0-based cluster */
+    size_t *sub_size;    /* [same] its items */
+    size_t n_sub_labels;
     pm_outdir_t *od;
     size_t n;
     uint32_t *item, *vof, *ea, *eb, *degree;

@@ -264,6 +264,7 @@ static int files_prepare(files_job *fj, const pm_cli_t *c, const net_opts *no,
         .n_seg = s->seg.n,
         .segcols = s->seg.cols,
         .segstats = s->seg.stats,
+        .multiscale = s->ms,
     };
     fj->map = map;
     fj->c = c;
@@ -307,6 +308,10 @@ static int files_prepare(files_job *fj, const pm_cli_t *c, const net_opts *no,
         .thresholds = fj->thr,
         .measure = pm_measure_name(sel->measure),
         .negative = s->negative,
+        .n_sub = s->n_sub_labels,
+        .sub_label = (const char *const *)s->sub_label,
+        .sub_of = s->sub_of,
+        .sub_size = s->sub_size,
     };
     fj->sd = sd;
     pm_svg_opts_init(&fj->so);

@@ -92,6 +92,7 @@ static pm_err_t split_cluster(pm_multiscale_t *ms, size_t m, const uint32_t *ea,
     pm_cluster_opts_t so = *o;
     so.names = names;
     so.share = share;
+    so.resolution = ms->sub_resolution;
     if ((rc = pm_cluster_louvain(size, m2, ea2, eb2, w2, &so, &ms->sub[k], diag)) != PM_OK) {
         goto done;
     }
@@ -214,6 +215,7 @@ pm_err_t pm_multiscale_run(size_t n, size_t m, const uint32_t *ea, const uint32_
     }
     ms->n = n;
     ms->suggested = -1;
+    ms->sub_resolution = o->resolution > 1.0 ? o->resolution : 1.0;
     for (size_t v = 0; v < n; v++) {
         ms->clustered += cl->strength[v] > 0;
     }

@@ -366,6 +366,7 @@ static void run_multiscale(pm_json_t *j, const pm_run_report_t *r) {
     pm_json_number(j, "big_share", PM_BIG_CLUSTER_SHARE);
     pm_json_uint(j, "clustered_items", ms->clustered);
     pm_json_number(j, "largest_share", ms->largest_share);
+    pm_json_number(j, "subcluster_resolution", ms->sub_resolution);
     pm_json_begin_array(j, "big_clusters");
     for (size_t k = 0; k < ms->n_big; k++) {
         run_subclusters(j, r, k);

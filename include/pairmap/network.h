@@ -215,18 +215,21 @@ typedef struct {
 /* The next level inside the big clusters, and the resolutions tried. Big clusters are
  * clusters 1 .. n_big (clusters are numbered by size). The next level of big cluster k + 1 is
  * Louvain run again on the cluster's own graph (its members and the usable edges between
- * them), at the same resolution, with the same restarts, seeds and workers as the map: nested
- * in the cluster by construction, the same for the same --seed and any number of workers.
- * The cluster's own graph has its own null model, so the same resolution finds finer groups
- * there (modularity's resolution limit, Fortunato & Barthelemy 2007, PNAS 104:36-41). */
+ * them), with the same restarts, seeds and workers as the map, at sub_resolution: the map's
+ * resolution or 1, whichever is higher. Nested in the cluster by construction, the same for
+ * the same seed and any number of workers. On the cluster's own graph, with its own null
+ * model, the same resolution is a finer scale than on the whole graph (modularity's
+ * resolution limit, Fortunato & Barthelemy 2007, PNAS 104:36-41); the floor of 1 keeps a low
+ * resolution, asked for to merge clusters, from merging their parts again. */
 typedef struct {
     size_t n;             /* vertices */
     size_t clustered;     /* vertices with a usable edge */
     double largest_share; /* cluster 1's size / clustered (0 when nothing is clustered) */
     size_t n_big;
+    double sub_resolution; /* of the next level: max(map's resolution, 1) */
     /* [n_big] the sub-clustering of cluster k + 1 over its members: local vertex j is the
      * vertex members[first[k] + j] of the map's clusters; sub[k]->modularity is the
-     * modularity within the cluster's own graph at the map's resolution */
+     * modularity within the cluster's own graph at sub_resolution */
     pm_clusters_t **sub;
     char ***sub_name; /* [n_big][sub[k]->n_clusters] pm_cluster_name of each sub-cluster */
     /* [n] 1-based sub-cluster of the vertex within its cluster; 0 outside the big clusters

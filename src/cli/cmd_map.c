@@ -329,7 +329,7 @@ static void summary_picture(const run_state *s) {
 
 /* The summary's lines on the big clusters: each one's share, its sub-clusters (the next
  * level), and the resolutions tried with the suggestion. Nothing when no cluster is big. */
-static void summary_multiscale(const net_opts *no, const run_state *s) {
+static void summary_multiscale(const run_state *s) {
     const pm_multiscale_t *ms = s->ms;
     if (!ms || ms->n_big == 0) {
         return;
@@ -342,12 +342,12 @@ static void summary_multiscale(const net_opts *no, const run_state *s) {
                100.0 * (double)s->cl->size[k] / (double)ms->clustered);
         if (sub->n_clusters < 2) {
             printf("\n              Louvain on its own edges (resolution %g) does not split it\n",
-                   no->resolution);
+                   ms->sub_resolution);
             continue;
         }
         printf("\n              its next level, Louvain on its own edges (resolution %g): %zu "
                "sub-clusters,\n              modularity within it %.4f (nodes.csv: subcluster)\n",
-               no->resolution, sub->n_clusters, sub->modularity);
+               ms->sub_resolution, sub->n_clusters, sub->modularity);
         for (size_t t = 0; t < sub->n_clusters && t < 30; t++) {
             char num[48];
             snprintf(num, sizeof num, "%zu.%zu", k + 1, t + 1);
@@ -474,7 +474,7 @@ static void summary(const pm_select_opts_t *sel, const net_opts *no, const run_s
                "partitions; 1 = all agree)\n",
                cl->stability, (unsigned long long)no->restarts);
     }
-    summary_multiscale(no, s);
+    summary_multiscale(s);
     summary_picture(s);
     if (s->seg.n) {
         printf("\nsegments      %zu of %zu items in segments.svg, %zu segments of %zu column%s",

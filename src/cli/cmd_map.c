@@ -77,9 +77,14 @@ static const char help_network[] =
     "are written to the files but take no part in clustering or layout. An item with no such\n"
     "edge is a cluster of its own (a singleton) and sits on a ring outside the layout's box.\n"
     "Clusters are numbered by size (1 = largest) and named by their leading members (most\n"
-    "weight on edges inside the cluster, then share). Same input, options and seed: the same\n"
-    "files, byte for byte, for any row order of the input and any --threads (the Louvain runs\n"
-    "and the layout share --threads processes).\n"
+    "weight on edges inside the cluster, then share). A cluster that holds more than a\n"
+    "quarter of the clustered items (those with such an edge) is big: Louvain runs again on\n"
+    "its own edges (at the map's resolution or 1, whichever is higher) and its sub-clusters\n"
+    "K.S go to nodes.csv's subcluster column, the summary, the legend and run.json; the\n"
+    "summary then lists resolutions 0.5, 1, 1.5, 2 and 3 tried on the same graph (one run\n"
+    "each) with their modularity at resolution 1 and largest cluster, and suggests one.\n"
+    "Same input, options and seed: the same files, byte for byte, for any row order of the\n"
+    "input and any --threads (the Louvain runs and the layout share --threads processes).\n"
     "\n";
 
 #include "cmd_map.h"
@@ -405,10 +410,10 @@ static void note_multiscale(const pm_cli_t *c, const run_state *s) {
                  100.0 * ms->largest_share, ms->clustered);
     } else {
         snprintf(head, sizeof head,
-                 "clusters 1 to %zu each hold more than a quarter of the %zu clustered items",
-                 ms->n_big, ms->clustered);
+                 "clusters 1 %s %zu each hold more than a quarter of the %zu clustered items",
+                 ms->n_big == 2 ? "and" : "to", ms->n_big, ms->clustered);
     }
-    pm_cli_note(c, "note: %s%s%s (summary: resolutions tried)", head,
+    pm_cli_note(c, "note: %s%s%s; the summary lists the resolutions tried", head,
                 splits ? "; sub-clusters: nodes.csv's subcluster column"
                        : "; Louvain on the cluster's own edges does not split it",
                 tail);

@@ -22,7 +22,7 @@ d = sys.argv[1]
 nodes = pd.read_csv(d + "/nodes.csv", keep_default_na=False)
 edges = pd.read_csv(d + "/edges.csv", keep_default_na=False)
 cols = list(nodes.columns)
-assert cols[-1] == "cluster_name" and cols[:10] == ["item", "category", "respondents", "share",
+assert cols[10] == "cluster_name" and cols[:10] == ["item", "category", "respondents", "share",
     "share_low", "share_high", "cluster", "degree", "x", "y"], cols
 cl = dict(zip(nodes["item"], nodes["cluster"]))
 share = dict(zip(nodes["item"], nodes["share"]))

@@ -31,7 +31,7 @@ import common as C  # noqa: E402
 DEMO = C.REPO / "demo" / "cafe-orders.csv"
 NS = "{http://graphml.graphdrawing.org/xmlns}"
 NODE_COLS = ["item", "category", "respondents", "share", "share_low", "share_high", "cluster",
-             "degree", "x", "y", "cluster_name"]
+             "degree", "x", "y", "cluster_name", "subcluster"]
 
 # renamed items (left: demo names); the right-hand names are the test's subject
 RENAME = {

@@ -347,7 +347,7 @@ static double cluster_list(ctx_t *c, const pic_t *p, sbuf *b, int mode, double y
         line[0] = '\0';
         /* a big cluster shows its sub-clusters, one a line, instead of more members */
         size_t first_sub, nsub = subs_of(d, k, &first_sub);
-        size_t sub_lines = nsub && mem_lines ? mem_lines + 2 : 0;
+        size_t sub_lines = nsub && mem_lines ? (mode == 0 ? 8 : 3) : 0; /* lines, at most */
         if (nsub) {
             cnt = 0;
             sub_lines = sub_lines < nsub ? sub_lines : nsub;

@@ -367,9 +367,10 @@ static void summary_multiscale(const run_state *s) {
            "its kept run);\n              modularity at resolution 1, so that they compare:\n");
     for (size_t t = 0; t < ms->n_tried; t++) {
         const pm_tried_resolution_t *tr = &ms->tried[t];
-        printf("  %10g  modularity %.4f  largest cluster %3.0f%% (%zu items), %zu clusters%s\n",
+        printf("  %10g  modularity %.4f  largest cluster %3.0f%% (%zu items), %zu cluster%s of 2 "
+               "or more%s\n",
                tr->resolution, tr->modularity_1, 100.0 * tr->largest_share, tr->largest,
-               tr->n_clusters, tr->own ? "  (this map)" : "");
+               tr->n_clusters, tr->n_clusters == 1 ? "" : "s", tr->own ? "  (this map)" : "");
     }
     if (ms->suggested >= 0) {
         const pm_tried_resolution_t *tr = &ms->tried[ms->suggested];

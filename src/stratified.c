@@ -204,15 +204,19 @@ static void group_counts(sedge_job *j, unsigned th, uint32_t a, size_t o0, size_
     }
     memset(nab, 0, g * k * sizeof *nab);
     if (by_rows < by_partner) {
-        uint32_t *slot = j->slot[th];
+        uint32_t *slot = j->slot[th], lb = UINT32_MAX;
         for (size_t o = o0; o < o1; o++) {
-            slot[SEDGE_PARTNER(j, o)] = (uint32_t)(o - o0) + 1;
+            uint32_t b = SEDGE_PARTNER(j, o);
+            slot[b] = (uint32_t)(o - o0) + 1;
+            lb = b < lb ? b : lb;
         }
         for (uint64_t p = L->start[a]; p < L->start[a + 1]; p++) {
             uint32_t q = L->resp[p];
             size_t s = (size_t)j->c->of[q];
-            for (uint64_t x = inc->row_ptr[q]; x < inc->row_ptr[q + 1]; x++) {
-                uint32_t sl = slot[inc->col[x]];
+            /* a row's items ascend: only those from the smallest partner on */
+            for (uint64_t x = inc->row_ptr[q + 1]; x > inc->row_ptr[q] && inc->col[x - 1] >= lb;
+                 x--) {
+                uint32_t sl = slot[inc->col[x - 1]];
                 if (sl) {
                     nab[(size_t)(sl - 1) * k + s]++;
                 }

@@ -170,6 +170,94 @@ done:
     return rc;
 }
 
+/* One row of an item some merge renamed rows into: its respondent and item (the key) and the
+ * name it was read with (tag). */
+typedef struct {
+    uint64_t key;
+    uint32_t tag, pad;
+} tagged_row;
+
+/* The rows of the items marked in merged[] of the respondents r with sel[r] (NULL: all); *n:
+ * how many. NULL when out of memory. */
+static tagged_row *tagged_rows(const pm_table_t *t, const unsigned char *merged,
+                               const unsigned char *sel, size_t *n) {
+    size_t m = 0;
+    for (size_t k = 0; k < t->n_rows; k++) {
+        m += merged[t->row_item[k]] && (!sel || sel[t->row_resp[k]]);
+    }
+    *n = m;
+    tagged_row *v = pm_i_malloc(m ? m : 1, sizeof *v);
+    for (size_t k = 0, w = 0; v && k < t->n_rows; k++) {
+        if (merged[t->row_item[k]] && (!sel || sel[t->row_resp[k]])) {
+            v[w].key = (uint64_t)t->row_resp[k] << 32 | t->row_item[k];
+            v[w].tag = t->row_tag[k];
+            v[w++].pad = 0;
+        }
+    }
+    return v;
+}
+
+/* merged[i] = 1 for the items some row was renamed into; NULL when out of memory. */
+static unsigned char *merged_items(const pm_table_t *t) {
+    unsigned char *merged = pm_i_calloc(t->items.count ? t->items.count : 1, 1);
+    for (size_t k = 0; merged && k < t->n_rows; k++) {
+        merged[t->row_item[k]] |= t->row_tag[k] != 0;
+    }
+    return merged;
+}
+
+int64_t pm_i_merge_groups(const pm_table_t *t) {
+    if (!t->row_tag) {
+        return 0;
+    }
+    unsigned char *merged = merged_items(t);
+    if (!merged) {
+        return -1;
+    }
+    int64_t n = 0;
+    for (size_t i = 0; i < t->items.count; i++) {
+        n += merged[i];
+    }
+    free(merged);
+    return n;
+}
+
+int pm_i_merge_collapses(const pm_table_t *t, const unsigned char *sel, uint64_t *out) {
+    *out = 0;
+    if (!t->row_tag) {
+        return 0;
+    }
+    unsigned char *merged = merged_items(t);
+    if (!merged) {
+        return -1;
+    }
+    size_t n;
+    tagged_row *v = tagged_rows(t, merged, sel, &n);
+    free(merged);
+    if (!v || pm_i_radix_sort(v, n, sizeof *v) != 0) {
+        free(v);
+        return -1;
+    }
+    /* per respondent and item: the names it was read with beyond the first */
+    uint64_t collapsed = 0;
+    for (size_t a = 0, b; a < n; a = b) {
+        for (b = a + 1; b < n && v[b].key == v[a].key; b++) {
+            uint32_t x = v[b].tag;
+            size_t j = b;
+            for (; j > a && v[j - 1].tag > x; j--) {
+                v[j].tag = v[j - 1].tag;
+            }
+            v[j].tag = x;
+        }
+        for (size_t j = a + 1; j < b; j++) {
+            collapsed += v[j].tag != v[j - 1].tag;
+        }
+    }
+    free(v);
+    *out = collapsed;
+    return 0;
+}
+
 /* The rows of a table whose respondents come in order, one run each: phase 0 maps the items
  * to canonical indices (col) and tells whether each chunk's rows are in respondent order,
  * also across its first edge; phase 1 sets the row pointers of the respondents whose run
@@ -564,6 +652,14 @@ pm_err_t pm_incidence_build_threads(const pm_table_t *t, unsigned threads, pm_in
     }
     if (rc == PM_OK) { /* sort and deduplicate each row, compacting in place */
         rc = sort_rows(inc, nr, ni, threads);
+    }
+    int64_t groups = pm_i_merge_groups(t);
+    if (rc == PM_OK && (groups < 0 || pm_i_merge_collapses(t, NULL, &inc->merge_collapsed))) {
+        rc = PM_ENOMEM;
+    }
+    inc->merge_groups = groups > 0 ? (uint64_t)groups : 0;
+    if (rc == PM_OK) { /* what merging made are not duplicates of the input */
+        inc->duplicates -= inc->merge_collapsed <= inc->duplicates ? inc->merge_collapsed : 0;
     }
     if (rc == PM_OK) {
         inc->n_items = ni;

@@ -38,6 +38,13 @@ struct pm_table {
     uint64_t *item_line; /* line of the row that set the item's category */
     size_t item_cap;
     uint32_t *row_resp, *row_item;
+    /* [rows_cap], only with --merge-file (else NULL): 0 for a row under the name it was read
+     * with, else which name merging replaced (a merge file's entry + 1, a wide option, an item
+     * merged late): two rows of one respondent and item that differ here are a collapse of
+     * the merge, not a duplicate of the input (pm_incidence_t.merge_collapsed) */
+    uint32_t *row_tag;
+    uint32_t add_tag; /* the wide reader's tag for the row pm_i_table_add adds next */
+    bool tag_rows;    /* a merge file was given: row_tag is kept */
     size_t n_rows, rows_cap;
     double *resp_weight;
     uint64_t *resp_line; /* line of the respondent's first row */
@@ -118,6 +125,15 @@ pm_err_t pm_i_table_finish(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *d
  * group that would take a second category). Table: src/table_late.c. */
 pm_err_t pm_i_table_late(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *diag);
 
+/* With --merge-file: the rows of the respondents r with sel[r] (NULL: all) that are a second or
+ * later name, merged into one item, of one respondent (two of a respondent's items merged into
+ * one group give one): what deduplication removes because of the merge, not because the input
+ * repeated a row. *out gets it (0 without a merge file). 0, or -1 when out of memory. Cost: a
+ * radix sort of the merged items' rows. (src/incidence.c) */
+int pm_i_merge_collapses(const pm_table_t *t, const unsigned char *sel, uint64_t *out);
+/* The items --merge-file renamed rows into (0 without a merge file). -1 when out of memory. */
+int64_t pm_i_merge_groups(const pm_table_t *t);
+
 /* Adds a line ("note: ..." or "warning: ...") to t->notes (pm_table_notes). 0, or -1 when out
  * of memory. */
 int pm_i_table_note(pm_table_t *t, const char *fmt, ...)
@@ -144,6 +160,9 @@ pm_err_t pm_i_read_wide(FILE *fp, const pm_input_opts_t *o, pm_table_t *t, pm_i_
 /* Room for `need` respondents in the per-respondent arrays (grown together: one capacity).
  * 0 or -1 (out of memory). */
 int pm_i_grow_respondents(pm_table_t *t, size_t need);
+/* Room for `need` rows in the row arrays (row_resp, row_item and, with --merge-file, row_tag:
+ * one capacity). 0 or -1 (out of memory). */
+int pm_i_grow_rows(pm_table_t *t, size_t need);
 /* Room for `runs` runs of ids and `bytes` bytes of their text (the run arrays share
  * run_off_cap). 0 or -1. */
 int pm_i_grow_runs(pm_table_t *t, size_t runs, size_t bytes);

@@ -507,7 +507,10 @@ static pm_err_t add_choice(wide *w, uint32_t resp, size_t ci, const pm_i_record 
         t->stats.dropped_rows++;
         return PM_OK;
     }
-    return pm_i_table_add(t, resp, ri->key, ri->keylen, q->cat, q->catlen, r->line, diag);
+    t->add_tag = ri->act & ACT_MERGED ? (uint32_t)rid + 1 : 0; /* the option merged */
+    pm_err_t rc = pm_i_table_add(t, resp, ri->key, ri->keylen, q->cat, q->catlen, r->line, diag);
+    t->add_tag = 0;
+    return rc;
 }
 
 static pm_err_t row(wide *w, const pm_i_record *r, pm_diag_t *diag) {

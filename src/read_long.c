@@ -351,6 +351,9 @@ pm_err_t pm_i_read_lines(void *ud, char *p, size_t len, uint64_t line, char sep,
         } else {
             t->row_resp[t->n_rows] = resp;
             t->row_item[t->n_rows] = (uint32_t)it;
+            if (t->row_tag) { /* a row under the name it was read with */
+                t->row_tag[t->n_rows] = 0;
+            }
             t->n_rows++;
             t->resp_has_item[resp] = 1;
             t->stats.rows++;

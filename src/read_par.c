@@ -149,6 +149,9 @@ static int par_rows_copy(void *ud, size_t k, unsigned th) {
         rr[i] = cr[i] + pr->r0;
         ri[i] = pr->item_map[ci[i]];
     }
+    if (pr->t->row_tag && pr->c->n_rows) { /* every chunk numbers the merge file alike */
+        memcpy(pr->t->row_tag + pr->dst, pr->c->row_tag, pr->c->n_rows * sizeof(uint32_t));
+    }
     return 0;
 }
 
@@ -354,14 +357,10 @@ static int par_append_all(pm_table_t *t, par_chunk *ch, size_t n, unsigned threa
     for (size_t k = 1; k < n; k++) {
         total += ch[k].t->n_rows;
     }
-    size_t c1 = t->rows_cap, c2 = t->rows_cap;
-    if (total > t->rows_cap && (pm_i_grow((void **)&t->row_resp, &c1, total, sizeof(uint32_t)) ||
-                                pm_i_grow((void **)&t->row_item, &c2, total, sizeof(uint32_t)))) {
+    if (pm_i_grow_rows(t, total)) {
         ok = 0;
         result = -1;
         pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
-    } else if (total > t->rows_cap) {
-        t->rows_cap = c1 < c2 ? c1 : c2;
     }
     for (size_t k = 1; k < n && ok; k++) {
         pm_err_t rc = par_append(t, ch[k].t, base, &rows[k - 1]);

@@ -397,6 +397,11 @@ pm_err_t pm_shard_build(const pm_table_t *t, const pm_incidence_t *inc, uint64_t
         s->rows += r < inc->n_resp && sel[r];
     }
     s->duplicates = m == 1 ? inc->duplicates : s->rows - use->row_ptr[use->n_resp];
+    uint64_t collapsed = 0; /* rows merging made one (not duplicates of the input) */
+    if (m > 1 && pm_i_merge_collapses(t, sel, &collapsed) != 0) {
+        goto done;
+    }
+    s->duplicates -= m > 1 && collapsed <= s->duplicates ? collapsed : 0;
     s->single_item = use->single_item;
     s->no_item = m == 1 ? inc->no_item : sub.no_item;
     int fr = fill_shard(s, use, c, inc->wexp);

@@ -63,6 +63,7 @@ void pm_table_free(pm_table_t *t) {
     free(t->item_line);
     free(t->row_resp);
     free(t->row_item);
+    free(t->row_tag);
     free(t->resp_weight);
     free(t->resp_line);
     free(t->resp_has_item);
@@ -191,6 +192,7 @@ pm_err_t pm_i_table_new(const pm_input_opts_t *o, const char *display, pm_table_
         pm_table_free(t);
         return pm_diag_set(diag, PM_ENOMEM, display, 0, "out of memory");
     }
+    t->tag_rows = t->merge_from.count > 0;
     t->weighted = o->weight_col != NULL;
     t->has_category = o->category_col != NULL;
     *out = t;
@@ -208,6 +210,20 @@ int pm_i_grow_respondents(pm_table_t *t, size_t need) {
         return -1;
     }
     t->resp_cap = c1;
+    return 0;
+}
+
+int pm_i_grow_rows(pm_table_t *t, size_t need) {
+    if (need <= t->rows_cap) {
+        return 0;
+    }
+    size_t c1 = t->rows_cap, c2 = t->rows_cap, c3 = t->rows_cap;
+    if (pm_i_grow((void **)&t->row_resp, &c1, need, sizeof(uint32_t)) ||
+        pm_i_grow((void **)&t->row_item, &c2, need, sizeof(uint32_t)) ||
+        (t->tag_rows && pm_i_grow((void **)&t->row_tag, &c3, need, sizeof(uint32_t)))) {
+        return -1;
+    }
+    t->rows_cap = c1 < c2 ? c1 : c2;
     return 0;
 }
 
@@ -312,9 +328,11 @@ pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len,
         t->stats.dropped_rows++;
         return PM_OK;
     }
+    uint32_t tag = t->add_tag;
     if (t->merge_from.count) {
         int64_t m = pm_i_strtab_find(&t->merge_from, item, len);
         if (m >= 0) {
+            tag = (uint32_t)m + 1;
             int64_t g = t->merge_to[m];
             t->merge_hit[m] = 1;
             item = t->merge_to_names.str[g];
@@ -378,16 +396,14 @@ pm_err_t pm_i_table_add(pm_table_t *t, uint32_t r, const char *item, size_t len,
                                (unsigned long long)t->item_line[it]);
         }
     }
-    if (t->n_rows >= t->rows_cap) {
-        size_t c1 = t->rows_cap, c2 = t->rows_cap;
-        if (pm_i_grow((void **)&t->row_resp, &c1, t->n_rows + 1, sizeof(uint32_t)) ||
-            pm_i_grow((void **)&t->row_item, &c2, t->n_rows + 1, sizeof(uint32_t))) {
-            return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
-        }
-        t->rows_cap = c1 < c2 ? c1 : c2;
+    if (pm_i_grow_rows(t, t->n_rows + 1)) {
+        return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
     }
     t->row_resp[t->n_rows] = r;
     t->row_item[t->n_rows] = (uint32_t)it;
+    if (t->row_tag) {
+        t->row_tag[t->n_rows] = tag;
+    }
     t->n_rows++;
     t->resp_has_item[r] = 1;
     t->stats.rows++;
@@ -607,7 +623,8 @@ size_t pm_table_take_rows(pm_table_t *t, uint32_t **resp, uint32_t **item) {
         free(t->row_resp);
         free(t->row_item);
     }
-    t->row_resp = t->row_item = NULL;
+    free(t->row_tag);
+    t->row_resp = t->row_item = t->row_tag = NULL;
     t->n_rows = t->rows_cap = 0;
     return cap;
 }
@@ -692,6 +709,9 @@ pm_err_t pm_table_keep(pm_table_t *t, const unsigned char *keep, pm_diag_t *diag
         if (r != UINT32_MAX) {
             t->row_resp[w] = r;
             t->row_item[w] = t->row_item[i];
+            if (t->row_tag) {
+                t->row_tag[w] = t->row_tag[i];
+            }
             newi[t->row_item[i]] = 0; /* used */
             w++;
         }

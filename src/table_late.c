@@ -219,6 +219,16 @@ done:
     return rc;
 }
 
+/* The first tag (pm_table_t.row_tag) for the items merged here: above every tag given while
+ * reading. */
+static uint32_t late_tag_base(const pm_table_t *t) {
+    uint32_t top = 0;
+    for (size_t k = 0; t->row_tag && k < t->n_rows; k++) {
+        top = t->row_tag[k] > top ? t->row_tag[k] : top;
+    }
+    return top + 1;
+}
+
 /* Rebuilds the item table without the items merged away or dropped, and the rows with it. */
 static pm_err_t compact(late *L, const pm_input_opts_t *o, pm_diag_t *diag) {
     pm_table_t *t = L->t;
@@ -246,15 +256,22 @@ static pm_err_t compact(late *L, const pm_input_opts_t *o, pm_diag_t *diag) {
         }
     }
     uint64_t removed = 0, renamed = 0;
+    uint32_t tag0 = late_tag_base(t);
     size_t w = 0;
     for (size_t k = 0; k < t->n_rows; k++) {
         uint32_t it = t->row_item[k];
+        if (t->row_tag) {
+            t->row_tag[w] = t->row_tag[k];
+        }
         if (it < L->n_old && L->map[it] != it) {
             if (L->map[it] == DEAD) {
                 removed++;
                 continue;
             }
             renamed++;
+            if (t->row_tag && !t->row_tag[w]) { /* the name it was read with, merged now */
+                t->row_tag[w] = tag0 + it;
+            }
             it = L->map[it];
         }
         t->row_resp[w] = t->row_resp[k];

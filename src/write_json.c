@@ -234,6 +234,8 @@ static void run_counts(pm_json_t *j, const pm_run_report_t *r) {
     pm_json_uint(j, "rows_without_item", st->empty_items);
     pm_json_uint(j, "rows_merged", st->merged_rows);
     pm_json_uint(j, "merge_entries", st->merge_entries);
+    pm_json_uint(j, "merge_groups", inc->merge_groups);
+    pm_json_uint(j, "rows_merged_together", inc->merge_collapsed);
     pm_json_uint(j, "rows_dropped", st->dropped_rows);
     pm_json_uint(j, "duplicate_rows", inc->duplicates);
     pm_json_uint(j, "respondents_seen", st->respondents);

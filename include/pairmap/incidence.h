@@ -38,7 +38,7 @@ typedef struct {
                            * every result is the same when all weights are scaled by one
                            * factor (exactly so for a power of two); 0 when unweighted.
                            * pm_incidence_wunits gives a weighted sum in the file's units. */
-    uint64_t duplicates;  /* duplicate respondent-item rows merged */
+    uint64_t duplicates;  /* duplicate respondent-item rows merged (rows the input repeated) */
     uint64_t single_item; /* respondents with exactly one item */
     uint64_t no_item;     /* respondents with no item (in N) */
     /* --max-basket: respondents with more items are left out. Their rows are empty, they are
@@ -46,7 +46,10 @@ typedef struct {
     unsigned char *left_out;   /* [n_resp] 1 for a respondent left out; NULL when none */
     uint64_t n_left_out;       /* how many */
     uint64_t largest_left_out; /* items of the largest of them */
-    char *storage;             /* owns the names */
+    /* --merge-file: rows that became a respondent's second row of an item only because they
+     * were renamed into it (not in duplicates), and the items rows were renamed into */
+    uint64_t merge_collapsed, merge_groups;
+    char *storage; /* owns the names */
 } pm_incidence_t;
 
 /* Builds the incidence of table t. On success *out owns a new incidence (pm_incidence_free).

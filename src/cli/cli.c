@@ -663,6 +663,23 @@ void pm_cli_progress_end(const pm_cli_t *c) {
 }
 
 /* ---- loading ----------------------------------------------------------------------------- */
+/* How many rows --merge-file renamed into how many groups, and how many of them a respondent
+ * already held under another name of the group: not duplicates of the input (the warning
+ * about those counts only rows the input repeated), each group counts once per respondent. */
+static void merge_note(const pm_cli_t *c, const pm_input_stats_t *s, const pm_incidence_t *ic) {
+    char tail[200] = "";
+    if (ic->merge_collapsed) {
+        snprintf(tail, sizeof tail,
+                 "; %llu of them joined a group one of the %s already held "
+                 "(a group counts once in each)",
+                 (unsigned long long)ic->merge_collapsed, pm_cli_unit(c));
+    }
+    pm_cli_note(c, "note: %llu rows renamed by --merge-file into %llu group%s (%llu entr%s)%s",
+                (unsigned long long)s->merged_rows, (unsigned long long)ic->merge_groups,
+                ic->merge_groups == 1 ? "" : "s", (unsigned long long)s->merge_entries,
+                s->merge_entries == 1 ? "y" : "ies", tail);
+}
+
 /* The notes and warnings after reading (pm_cli_load): what was taken as a header, merged,
  * dropped or left out. Returns 0, 1 when --max-basket left no respondent, or 4 when leaving
  * its respondents out of the segment columns ran out of memory (the table and the incidence
@@ -707,8 +724,7 @@ static int load_notes(const pm_cli_t *c, const pm_input_opts_t *iop, pm_table_t 
                     (unsigned long long)s->dropped_rows);
     }
     if (s->merged_rows) {
-        pm_cli_note(c, "note: %llu rows renamed by --merge-file (%llu entries)",
-                    (unsigned long long)s->merged_rows, (unsigned long long)s->merge_entries);
+        merge_note(c, s, ic);
     }
     if (s->blank_excluded) {
         pm_cli_note(c,

@@ -160,7 +160,7 @@ EOF
 same "unfold with --merge-file and --drop-item" hygiene.out want_hygiene.csv
 run hygiene_items items survey.csv "${W[@]}" --merge-file merge.csv --drop-item Ramen
 has "dropped note" hygiene_items.err "pairmap: note: 2 rows dropped by --drop-item"
-has "merged note" hygiene_items.err "pairmap: note: 4 rows renamed by --merge-file (2 entries)"
+has "merged note" hygiene_items.err "pairmap: note: 4 rows renamed by --merge-file into 2 groups (2 entries)"
 # a respondent whose only choices are dropped stays in N with no item
 run dropall unfold survey.csv "${W[@]}" --drop-item Ramen --drop-item Pancakes -q
 has "dropped to nothing" dropall.out "v4,,"
@@ -169,7 +169,7 @@ has "dropped to nothing" dropall.out "v4,,"
 printf 'order,item\n1,Espresso\n1,Bun\n2,Cappuccino\n2,Bun\n3,Bag\n3,Tea\n4,Bag\n' >orders.csv
 printf 'Espresso,Coffee\nCappuccino,Coffee\n' >coffee.csv
 run long_h items orders.csv --merge-file coffee.csv --drop-item Bag
-has "long merged note" long_h.err "pairmap: note: 2 rows renamed by --merge-file (2 entries)"
+has "long merged note" long_h.err "pairmap: note: 2 rows renamed by --merge-file into 1 group (2 entries)"
 has "long dropped note" long_h.err "pairmap: note: 2 rows dropped by --drop-item"
 CASES=$((CASES + 1))
 [ "$(cut -d, -f1-3 long_h.out | tr '\n' ' ')" = "item,category,respondents Bun,,2 Coffee,,2 Tea,,1 " ] ||

@@ -496,9 +496,21 @@ static void test_input_read_drop_merge(void **state) {
     pm_incidence_t *inc = NULL;
     pm_diag_t d;
     assert_int_equal(pm_incidence_build(r.t, &inc, &d), PM_OK);
-    assert_int_equal(inc->duplicates, 2); /* latte+espresso, chai+tea */
-    assert_int_equal(inc->n_items, 4);    /* coffee, scone, tea, water */
+    /* latte+espresso and chai+tea: made one by the merge, not duplicates of the input */
+    assert_int_equal(inc->duplicates, 0);
+    assert_int_equal(inc->merge_collapsed, 2);
+    assert_int_equal(inc->merge_groups, 2); /* coffee, tea */
+    assert_int_equal(inc->n_items, 4);      /* coffee, scone, tea, water */
     assert_int_equal(pm_incidence_find(inc, "latte"), -1);
+    pm_incidence_free(inc);
+    rd_done(&r);
+    /* a row the input repeats is a duplicate, merged or not (latte twice; tea twice) */
+    rd_init(&r);
+    r.o.merge_file = merge;
+    assert_int_equal(rd_run(&r, "o,item\n1,latte\n1,espresso\n1,latte\n2,tea\n2,tea\n"), PM_OK);
+    assert_int_equal(pm_incidence_build(r.t, &inc, &d), PM_OK);
+    assert_int_equal(inc->duplicates, 2);
+    assert_int_equal(inc->merge_collapsed, 1);
     pm_incidence_free(inc);
     rd_done(&r);
     /* dropping a group name drops what was merged into it */

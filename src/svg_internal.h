@@ -191,6 +191,8 @@ typedef struct {
     uint32_t *ea, *eb; /* drawn indices of the ends */
     size_t fails, cfails, strained;
     int max_ring;        /* label candidates: 0 beside the node only, 1 and 2 further out */
+    double edge_cost;    /* label placement: the cost of an edge through a label */
+    int escape;          /* and candidates one ring beyond max_ring, taken off the edges */
     spatial_t *sp;       /* owned; the index for label placement (NULL: none yet) */
     size_t neg_left_out; /* negative pairs between drawn items that are not drawn */
 } pic_t;

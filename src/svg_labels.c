@@ -11,8 +11,18 @@ typedef struct {
     box_t b;
     double x, y;
     int anchor;
+    int ring; /* 0 beside the node, 1 and 2 one and two lines further out (node_cands) */
     double cost;
 } cand_t;
+
+/* The cost of an edge running through a label while labels look for a place at all (an edge
+ * weighs about as much as the step from one candidate beside the node to the next, so that
+ * crowded pictures still fit), and afterwards in edge_relief: above the spread of one ring's
+ * costs and the step to the next ring (node_cands: 0 .. 2.4 beside the node, 4 .. 6.4 one line
+ * out), so that a free place beside the node or one line out is taken before one an edge
+ * crosses. */
+#define PRIMARY_EDGE_COST 1.0
+#define EDGE_COST 7.0
 
 #define MAX_CANDS 40
 
@@ -24,10 +34,12 @@ static void cand_add(cand_t *cs, int *nc, double x0, double y0, double w, double
     k->x = anchor == 0 ? x0 : (anchor == 1 ? x0 + 0.5 * w : x0 + w);
     k->y = y0 + ASCENT * fs;
     k->cost = cost;
+    k->ring = cost >= 7.9 ? 2 : (cost >= 3.9 ? 1 : 0);
 }
 
 /* Positions beside a node of radius r at (cx, cy) for a box w x h: right, left, the four
- * diagonals, above and below, then the same one and two lines further out. */
+ * diagonals, above and below, then the same one and two lines further out (rings 0 ..
+ * max_ring). */
 static int node_cands(double cx, double cy, double r, double w, double h, double fs, int max_ring,
                       cand_t *cs) {
     int nc = 0;
@@ -109,7 +121,7 @@ static int label_conflicts(const ctx_t *c, const pic_t *p, const box_t *b, const
             size_t k = sp->buf[i];
             if (pm_i_svg_segment_hits_box(p->x[p->ea[k]], p->y[p->ea[k]], p->x[p->eb[k]],
                                           p->y[p->eb[k]], b)) {
-                s += 1.0;
+                s += p->edge_cost;
             }
         }
         *soft = s;
@@ -149,44 +161,65 @@ static int leader_blocked(const pic_t *p, size_t k, const box_t *b, const lab_t 
     return 0;
 }
 
+/* The cost of candidate k for label l with the edges it crosses (soft): a label inside another
+ * cluster's region reads as its member, and costs more. */
+static double cand_cost(const pic_t *p, const cand_t *k, double soft, int own_group) {
+    double cost = k->cost + soft;
+    if (own_group < 0) {
+        return cost;
+    }
+    const box_t *b = &k->b;
+    const double px[5] = {0.5 * (b->x0 + b->x1), b->x0, b->x1, b->x0, b->x1};
+    const double py[5] = {0.5 * (b->y0 + b->y1), b->y0, b->y0, b->y1, b->y1};
+    for (size_t g = 0; g < p->ng; g++) {
+        if ((int)g == own_group || p->g[g].nh < 3) {
+            continue;
+        }
+        int in = 0;
+        for (int t = 0; t < 5; t++) {
+            in += pm_i_svg_inside_convex(p->g[g].hull, p->g[g].nh, px[t], py[t]);
+        }
+        cost += 0.8 * in;
+    }
+    return cost;
+}
+
+/* The best free candidate for label l (node: its item, or -1 for a cluster's name); 1 when
+ * found. With p->escape (edge_relief), a candidate one ring beyond p->max_ring is taken only
+ * when no edge crosses it (a way off the edges, not a place for a crowded label), and one of
+ * the outermost ring only when no place nearer is free at all, whatever edges cross those. */
 static int best_free(const ctx_t *c, const pic_t *p, const cand_t *cs, int nc, const lab_t *l,
                      int own_group, long node, cand_t *out) {
-    int found = 0;
-    double best = INFINITY;
+    double best[2] = {INFINITY, INFINITY}; /* nearer rings, the outermost */
+    int found[2] = {0, 0};
+    cand_t pick[2];
     for (int i = 0; i < nc; i++) {
-        if (cs[i].cost >= best) {
+        int tier = p->escape && cs[i].ring >= 2;
+        if (cs[i].cost >= best[tier] || (tier && found[0])) {
             continue;
         }
         double soft = 0;
         if (label_conflicts(c, p, &cs[i].b, l, 0, &soft)) {
             continue;
         }
-        if (node >= 0 && cs[i].cost >= 3.9 && leader_blocked(p, (size_t)node, &cs[i].b, l)) {
+        if (cs[i].ring > p->max_ring && soft > 0) {
             continue;
         }
-        double cost = cs[i].cost + soft;
-        if (own_group >= 0) { /* a label inside another cluster's region reads as its member */
-            const box_t *b = &cs[i].b;
-            const double px[5] = {0.5 * (b->x0 + b->x1), b->x0, b->x1, b->x0, b->x1};
-            const double py[5] = {0.5 * (b->y0 + b->y1), b->y0, b->y0, b->y1, b->y1};
-            for (size_t g = 0; g < p->ng; g++) {
-                if ((int)g == own_group || p->g[g].nh < 3) {
-                    continue;
-                }
-                int in = 0;
-                for (int t = 0; t < 5; t++) {
-                    in += pm_i_svg_inside_convex(p->g[g].hull, p->g[g].nh, px[t], py[t]);
-                }
-                cost += 0.8 * in;
-            }
+        if (node >= 0 && cs[i].ring > 0 && leader_blocked(p, (size_t)node, &cs[i].b, l)) {
+            continue;
         }
-        if (cost < best) {
-            best = cost;
-            *out = cs[i];
-            found = 1;
+        double cost = cand_cost(p, &cs[i], soft, own_group);
+        if (cost < best[tier]) {
+            best[tier] = cost;
+            pick[tier] = cs[i];
+            found[tier] = 1;
         }
     }
-    return found;
+    if (found[0] || found[1]) {
+        *out = pick[found[0] ? 0 : 1];
+        return 1;
+    }
+    return 0;
 }
 
 /* Puts label id (node labels 0..nd-1, cluster labels nd + g) at candidate k. */
@@ -196,8 +229,8 @@ static void lab_put(pic_t *p, size_t id, lab_t *l, const cand_t *k) {
     l->y = k->y;
     l->anchor = k->anchor;
     l->placed = 1;
-    l->strained = k->cost >= 7.9; /* the outermost ring (see node_cands) */
-    l->ring = k->cost >= 7.9 ? 2 : (k->cost >= 3.9 ? 1 : 0);
+    l->strained = k->ring >= 2; /* the outermost ring (see node_cands) */
+    l->ring = k->ring;
     pm_i_svg_spatial_add_label(p, id);
 }
 
@@ -208,7 +241,9 @@ static int try_node_label(const ctx_t *c, pic_t *p, size_t k) {
     }
     cand_t cs[MAX_CANDS], best = {0};
     double h = (ASCENT + DESCENT) * l->fs;
-    int nc = node_cands(p->x[k], p->y[k], p->r[k], l->w, h, l->fs, p->max_ring, cs);
+    /* with escape one ring further out too: a way off the edges (best_free) */
+    int rings = p->escape && p->max_ring < 1 ? 1 : p->max_ring;
+    int nc = node_cands(p->x[k], p->y[k], p->r[k], l->w, h, l->fs, rings, cs);
     if (best_free(c, p, cs, nc, l, (int)p->grp[k], (long)k, &best)) {
         lab_put(p, k, l, &best);
         return 1;
@@ -392,6 +427,45 @@ static pm_err_t cluster_label_fallback(ctx_t *c, pic_t *p, size_t g) {
 
 /* Places every label; with allow_short, labels that find no place are shortened step by
  * step. Sets p->fails (node labels not placed) and p->cfails (cluster names). */
+/* The edges through label l where it is now. */
+static int crossings(const ctx_t *c, const pic_t *p, const lab_t *l) {
+    double soft = 0;
+    label_conflicts(c, p, &l->b, l, 0, &soft);
+    return (int)(soft / p->edge_cost + 0.5);
+}
+
+/* Once every label has its place: a label that edges run through moves to a free place beside
+ * its node, or one line out, that fewer edges cross (EDGE_COST: a nearer place first among
+ * those). Which labels fit is settled before, so that no item is left out for it. */
+static void edge_relief(const ctx_t *c, pic_t *p) {
+    p->edge_cost = EDGE_COST;
+    p->escape = 1;
+    int moved = 1;
+    for (int round = 0; round < 2 && moved; round++) { /* a move can free another's place */
+        moved = 0;
+        for (size_t j = 0; j < p->nd; j++) {
+            size_t k = p->prio[j];
+            lab_t *l = &p->lab[k];
+            if (!l->placed || !l->text || l->strained) {
+                continue;
+            }
+            int now = crossings(c, p, l);
+            if (now == 0) {
+                continue;
+            }
+            lab_t saved = *l;
+            l->placed = 0;
+            if (!try_node_label(c, p, k) || crossings(c, p, l) >= now) {
+                *l = saved;
+            } else {
+                moved = 1;
+            }
+        }
+    }
+    p->edge_cost = PRIMARY_EDGE_COST;
+    p->escape = 0;
+}
+
 static pm_err_t place_labels(ctx_t *c, pic_t *p, int allow_short) {
     double mapw = c->map.x1 - c->map.x0;
     for (size_t k = 0; k < p->nd; k++) {
@@ -420,6 +494,8 @@ static pm_err_t place_labels(ctx_t *c, pic_t *p, int allow_short) {
             }
         }
     }
+    p->edge_cost = PRIMARY_EDGE_COST;
+    p->escape = 0;
     p->cfails = 0;
     for (size_t g = 0; g < p->ng && p->cfails == 0; g++) {
         if (p->g[g].region && !try_cluster_label(c, p, g)) {
@@ -478,6 +554,9 @@ static pm_err_t place_labels(ctx_t *c, pic_t *p, int allow_short) {
     for (size_t k = 0; k < p->nd; k++) {
         p->fails += !p->lab[k].placed;
         p->strained += p->lab[k].placed && p->lab[k].strained;
+    }
+    if (p->fails == 0 && p->cfails == 0) {
+        edge_relief(c, p);
     }
     return PM_OK;
 }

@@ -224,8 +224,9 @@ static void print_text(const pm_incidence_t *inc, const row *r, size_t n, bool w
                  r[i].odds.high);
         const char *f = weighted ? "  %9.1f  %9.1f" : "  %9.0f  %9.0f";
         printf(f, r[i].total, r[i].together);
-        printf("  %9.1f  %-24s  %6.1f%%  %7.2f  %7.3f  %-26s  %9.2g\n", r[i].expected, conf,
-               100 * r[i].rconf, r[i].lift, r[i].phi, odds, r[i].q);
+        char q[32]; /* the one style of q-values in text */
+        printf("  %9.1f  %-24s  %6.1f%%  %7.2f  %7.3f  %-26s  %9s\n", r[i].expected, conf,
+               100 * r[i].rconf, r[i].lift, r[i].phi, odds, pm_cli_q(r[i].q, q, sizeof q));
     }
 }
 

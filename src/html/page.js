@@ -26,10 +26,15 @@
   }
   function pct(x) { return (100 * x).toFixed(1) + '%'; }
   function fixed(x, d) { return x === null ? 'n/a' : x.toFixed(d); }
+  /* q-values in the one style of the command line's text (pm_cli_q: C's %.2g): two
+   * significant digits, no trailing zeros, an exponent of two digits or more below 1e-4 */
   function qtext(q) {
     if (q === null) { return 'n/a'; }
     if (q === 0) { return '0'; }
-    return q < 0.001 ? q.toExponential(1) : q.toPrecision(2);
+    var m = q.toExponential(1).split('e'), x = parseInt(m[1], 10);
+    if (x >= -4 && x < 2) { return String(Number(q.toPrecision(2))); }
+    var d = m[0].replace(/\.0$/, ''), a = Math.abs(x);
+    return d + 'e' + (x < 0 ? '-' : '+') + (a < 10 ? '0' : '') + a;
   }
   function count(x) { return Number.isInteger(x) ? thousands(x) : x.toFixed(1); }
   /* ---- the data --------------------------------------------------------------------------- */

@@ -311,6 +311,41 @@ static size_t sedge_max_group(const sedge_job *j) {
     return best;
 }
 
+/* The figures of the edges from the one-pass counts (stratified_rows.c). */
+static pm_err_t rows_path(const pm_incidence_t *inc, const pm_segcol_t *c, size_t nr,
+                          const pm_pairs_t *pp, const pm_edges_t *e, pm_sign_t sign,
+                          unsigned threads, pm_strat_t **out, pm_diag_t *diag) {
+    size_t k = c->n_levels, ni = inc->n_items;
+    uint64_t *nab = pm_i_malloc(e->n * k > 0 ? e->n * k : 1, sizeof *nab);
+    uint64_t *tot = pm_i_calloc(ni * k > 0 ? ni * k : 1, sizeof *tot);
+    pm_strat_t *r = pm_i_malloc(e->n ? e->n : 1, sizeof *r);
+    pm_err_t rc = nab && tot && r ? PM_OK : PM_ENOMEM;
+    for (size_t q = 0; rc == PM_OK && q < nr; q++) { /* the counts per item and level */
+        if (c->of[q] >= 0) {
+            for (uint64_t p = inc->row_ptr[q]; p < inc->row_ptr[q + 1]; p++) {
+                tot[(size_t)inc->col[p] * k + (size_t)c->of[q]]++;
+            }
+        }
+    }
+    if (rc == PM_OK) {
+        rc = pm_i_strat_rows_counts(inc, c, nr, pp, e, threads, nab);
+    }
+    for (size_t i = 0; rc == PM_OK && i < e->n; i++) {
+        uint32_t a = pp->a[e->idx[i]], b = pp->b[e->idx[i]];
+        pm_stratified_pair(k, c->base, tot + (size_t)a * k, tot + (size_t)b * k, nab + i * k, sign,
+                           &r[i]);
+    }
+    pm_i_free(nab);
+    pm_i_free(tot);
+    if (rc != PM_OK) {
+        pm_i_free(r);
+        return pm_diag_set(diag, PM_ENOMEM, NULL, 0,
+                           "out of memory for the pair tests within segments");
+    }
+    *out = r;
+    return PM_OK;
+}
+
 pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, const pm_pairs_t *pp,
                              const pm_edges_t *e, pm_sign_t sign, unsigned threads,
                              pm_strat_t **out, pm_diag_t *diag) {
@@ -327,6 +362,12 @@ pm_err_t pm_stratified_edges(const pm_incidence_t *inc, const pm_segcol_t *c, co
     threads = threads ? threads : pm_cpu_count();
     threads = threads > SEDGE_MAX_THREADS ? SEDGE_MAX_THREADS : threads;
     threads = e->n < 2 * SEDGE_CHUNKS ? 1 : threads; /* few edges: not worth a thread */
+    /* test hook: PM_TEST_STRAT_BY_ITEM=1 takes the item-by-item way below even where the
+     * one-pass count fits, so that tests can compare the two */
+    const char *by_item = getenv("PM_TEST_STRAT_BY_ITEM");
+    if (!(by_item && by_item[0] == '1') && pm_i_strat_rows_fits(ni, e->n, k, threads)) {
+        return rows_path(inc, c, nr, pp, e, sign, threads, out, diag);
+    }
     pm_i_strat_lists L;
     pm_err_t rc = pm_i_strat_lists_build(inc, c, nr, &L);
     sedge_job j = {inc, c, pp, e, sign, &L, NULL, {0}, {NULL}, {NULL}, {NULL}, {NULL}, 0, NULL};

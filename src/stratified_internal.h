@@ -51,4 +51,14 @@ pm_err_t pm_i_strat_lists_build(const pm_incidence_t *inc, const pm_segcol_t *c,
                                 pm_i_strat_lists *out);
 void pm_i_strat_lists_free(pm_i_strat_lists *l);
 
+/* src/stratified_rows.c: whether the one-pass count of the edges' joint counts per level fits
+ * (items x items bits at most 32 MiB, edges x levels x threads counts at most 64 MiB). */
+int pm_i_strat_rows_fits(size_t items, size_t edges, size_t levels, unsigned threads);
+/* The joint counts per level of every edge i of e into nab[i * levels + s], over the
+ * respondents q < nr with a level (c->of[q] >= 0), on `threads` threads (at most 8; the same
+ * result on any number). 0, or PM_ENOMEM. */
+pm_err_t pm_i_strat_rows_counts(const pm_incidence_t *inc, const pm_segcol_t *c, size_t nr,
+                                const pm_pairs_t *pp, const pm_edges_t *e, unsigned threads,
+                                uint64_t *nab);
+
 #endif

@@ -26,6 +26,19 @@ done
 check "over 128 pairs with the stratified columns" test "$(wc -l <"$TMP/strat1.csv")" -gt 129
 check "stratified columns: --threads 2 as 1" cmp -s "$TMP/strat1.csv" "$TMP/strat2.csv"
 check "stratified columns: --threads 3 as 1" cmp -s "$TMP/strat1.csv" "$TMP/strat3.csv"
+# the two ways of counting the edges per segment (one pass over the rows; item by item, taken
+# where the rows' bit matrix would not fit) give the same bytes
+for t in 1 2; do
+    PM_TEST_STRAT_BY_ITEM=1 "$PAIRMAP" pairs "$D" --segment-col location --sign both --max-q 1 \
+        --min-count 1 --threads "$t" -q >"$TMP/stratitem$t.csv" 2>/dev/null || fail "by item: exit $?"
+    check "stratified columns item by item (--threads $t) as in one pass" \
+        cmp -s "$TMP/strat1.csv" "$TMP/stratitem$t.csv"
+done
+PM_TEST_STRAT_BY_ITEM=1 "$PAIRMAP" partners "$D" --item "Raclette plate" --segment-col location \
+    --csv --top 0 --max-q 1 --min-count 1 --sign both -q >"$TMP/pitem.csv" 2>/dev/null
+"$PAIRMAP" partners "$D" --item "Raclette plate" --segment-col location --csv --top 0 \
+    --max-q 1 --min-count 1 --sign both -q >"$TMP/prows.csv" 2>/dev/null
+check "partners' stratified columns: the same both ways" cmp -s "$TMP/pitem.csv" "$TMP/prows.csv"
 # the segments table bounded before it is allocated: 60,000 segments x 300 items (exit 4, no DIR)
 awk 'BEGIN { srand(3); print "r,i,seg"; for (r = 0; r < 60000; r++) for (j = 0; j < 3; j++)
     printf "r%d,i%d,s%d\n", r, int(rand() * 300), r }' >"$TMP/manyseg.csv"

@@ -311,6 +311,29 @@ static size_t sedge_max_group(const sedge_job *j) {
     return best;
 }
 
+/* The figures of edges [i0, i1) of chunk ch from their counts, shared by the threads (each
+ * edge on its own). */
+typedef struct {
+    const pm_segcol_t *c;
+    const pm_pairs_t *pp;
+    const pm_edges_t *e;
+    pm_sign_t sign;
+    const uint64_t *tot, *nab;
+    pm_strat_t *r;
+} pair_job;
+
+static int pair_chunk(void *ud, size_t ch, unsigned th) {
+    (void)th;
+    const pair_job *j = ud;
+    size_t k = j->c->n_levels, n = j->e->n;
+    for (size_t i = n * ch / SEDGE_CHUNKS; i < n * (ch + 1) / SEDGE_CHUNKS; i++) {
+        uint32_t a = j->pp->a[j->e->idx[i]], b = j->pp->b[j->e->idx[i]];
+        pm_stratified_pair(k, j->c->base, j->tot + (size_t)a * k, j->tot + (size_t)b * k,
+                           j->nab + i * k, j->sign, &j->r[i]);
+    }
+    return 0;
+}
+
 /* The figures of the edges from the one-pass counts (stratified_rows.c). */
 static pm_err_t rows_path(const pm_incidence_t *inc, const pm_segcol_t *c, size_t nr,
                           const pm_pairs_t *pp, const pm_edges_t *e, pm_sign_t sign,
@@ -330,10 +353,15 @@ static pm_err_t rows_path(const pm_incidence_t *inc, const pm_segcol_t *c, size_
     if (rc == PM_OK) {
         rc = pm_i_strat_rows_counts(inc, c, nr, pp, e, threads, nab);
     }
-    for (size_t i = 0; rc == PM_OK && i < e->n; i++) {
-        uint32_t a = pp->a[e->idx[i]], b = pp->b[e->idx[i]];
-        pm_stratified_pair(k, c->base, tot + (size_t)a * k, tot + (size_t)b * k, nab + i * k, sign,
-                           &r[i]);
+    if (rc == PM_OK) {
+        pair_job pj = {c, pp, e, sign, tot, nab, r};
+        if (threads < 2) {
+            for (size_t ch = 0; ch < SEDGE_CHUNKS; ch++) {
+                pair_chunk(&pj, ch, 0);
+            }
+        } else {
+            (void)pm_i_parallel(threads, SEDGE_CHUNKS, pair_chunk, &pj); /* every chunk runs */
+        }
     }
     pm_i_free(nab);
     pm_i_free(tot);

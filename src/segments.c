@@ -166,6 +166,9 @@ static int64_t find_resp(reader *rd, const char *id, size_t il) {
     return r;
 }
 
+static pm_err_t row(reader *rd, const char *id, size_t il, const char *v, size_t vl, uint64_t line,
+                    pm_diag_t *diag);
+
 static pm_err_t record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     reader *rd = ud;
     if (!rd->header_done) {
@@ -179,6 +182,12 @@ static pm_err_t record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     size_t il = r->len[rd->idc], vl = r->len[rd->segc];
     trim(&id, &il);
     trim(&v, &vl);
+    return row(rd, id, il, v, vl, r->line, diag);
+}
+
+/* One row's respondent id[0..il) and segment v[0..vl), trimmed, from line `line`. */
+static pm_err_t row(reader *rd, const char *id, size_t il, const char *v, size_t vl, uint64_t line,
+                    pm_diag_t *diag) {
     int same_id = rd->last_id && il == rd->last_il && memcmp(id, rd->last_id, il) == 0;
     int64_t resp = same_id ? rd->last_resp : find_resp(rd, id, il);
     if (resp == -2) {
@@ -195,7 +204,7 @@ static pm_err_t record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     } else {
         if (!pm_i_utf8_valid(v, vl)) {
             char b[96];
-            return pm_diag_set(diag, PM_EDATA, rd->file, (long)r->line,
+            return pm_diag_set(diag, PM_EDATA, rd->file, (long)line,
                                "invalid UTF-8 in segment '%s'; save the file as UTF-8",
                                pm_i_shown(v, vl, b, sizeof b));
         }
@@ -218,14 +227,14 @@ static pm_err_t record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
     }
     if (rd->line[resp]) {
         if (!rd->src->is_input) {
-            return pm_diag_set(diag, PM_EDATA, rd->file, (long)r->line,
+            return pm_diag_set(diag, PM_EDATA, rd->file, (long)line,
                                "the respondent on this line is also on line %llu; a segment "
                                "file holds one row per respondent",
                                (unsigned long long)rd->line[resp]);
         }
         if (rd->lab[resp] != (int32_t)lab) {
             char b[96];
-            return pm_diag_set(diag, PM_EDATA, rd->file, (long)r->line,
+            return pm_diag_set(diag, PM_EDATA, rd->file, (long)line,
                                "segment '%s' in column '%s' differs from the one this "
                                "respondent has on line %llu; a respondent has one segment",
                                pm_i_shown(v, vl, b, sizeof b), rd->src->column,
@@ -233,9 +242,69 @@ static pm_err_t record(void *ud, const pm_i_record *r, pm_diag_t *diag) {
         }
         return PM_OK;
     }
-    rd->line[resp] = r->line;
+    rd->line[resp] = line;
     rd->lab[resp] = (int32_t)lab;
     return PM_OK;
+}
+
+/* Plain lines read without building records (see pm_i_lines_fn): the id and segment fields
+ * found by their separators. A line is taken only where it has the same effect as its record:
+ * its '\n' in p, no CR but a final CRLF one, both fields there, no space or tab at their
+ * edges (the record path trims them) and none over the field limit; any other line, and the
+ * header, go the record way. */
+static pm_err_t seg_lines(void *ud, char *p, size_t len, uint64_t line, char sep, size_t *used,
+                          uint64_t *nlines, pm_diag_t *diag) {
+    reader *rd = ud;
+    *used = 0;
+    *nlines = 0;
+    if (!rd->header_done) {
+        return PM_OK;
+    }
+    long need = (rd->idc > rd->segc ? rd->idc : rd->segc) + 1;
+    const char *end = p + len, *at = p, *cr = memchr(p, '\r', len);
+    pm_err_t rc = PM_OK;
+    while (at < end && rc == PM_OK) {
+        const char *nl = memchr(at, '\n', (size_t)(end - at)), *le = nl;
+        if (!nl) {
+            break;
+        }
+        if (cr && cr < nl) {
+            if (cr != nl - 1) {
+                break;
+            }
+            le = nl - 1;
+            cr = nl + 1 < end ? memchr(nl + 1, '\r', (size_t)(end - nl - 1)) : NULL;
+        }
+        const char *f[2] = {NULL, NULL}, *q = at;
+        size_t fl[2] = {0, 0};
+        int whole = 1;
+        for (long k = 0; k < need; k++) {
+            const char *d = memchr(q, sep, (size_t)(le - q)), *fe = d ? d : le;
+            if (k == rd->idc || k == rd->segc) {
+                int w = k == rd->segc;
+                f[w] = q;
+                fl[w] = (size_t)(fe - q);
+                if (fl[w] > PM_INPUT_MAX_FIELD ||
+                    (fl[w] && (q[0] == ' ' || q[0] == '\t' || fe[-1] == ' ' || fe[-1] == '\t'))) {
+                    goto stop; /* the record path trims, or reports, it */
+                }
+            }
+            if (!d) {
+                whole = k + 1 == need; /* fewer fields: a short row, skipped both ways */
+                break;
+            }
+            q = d + 1;
+        }
+        if (whole) {
+            rc = row(rd, f[0], fl[0], f[1], fl[1], line, diag);
+        }
+        line++;
+        (*nlines)++;
+        at = nl + 1;
+    }
+stop:
+    *used = (size_t)(at - p);
+    return rc;
 }
 
 static pm_err_t read_file(reader *rd, pm_diag_t *diag) {
@@ -248,6 +317,7 @@ static pm_err_t read_file(reader *rd, pm_diag_t *diag) {
     pm_i_csv_opts co = {0};
     co.sep = rd->src->sep;
     co.display = rd->file;
+    co.lines_fn = seg_lines;
     pm_err_t rc = pm_i_csv_stream(fp, &co, record, rd, diag);
     fclose(fp);
     return rc;

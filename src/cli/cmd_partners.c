@@ -72,7 +72,7 @@ typedef struct {
     double total, rconf; /* the partner's own total, and together / total */
     pm_oddsratio_t odds;
     double key;
-    pm_strat_t st; /* within segments (--segment-col; one item only) */
+    pm_strat_t st; /* within segments (--segment-col) */
     int has_st;
 } row;
 
@@ -243,7 +243,7 @@ static void print_csv(const pm_incidence_t *inc, const row *r, size_t n, unsigne
             fputc(',', stdout);
             pm_write_number(stdout, v[k]);
         }
-        if (with_strat) { /* empty cells where not defined (a set, weighted input) */
+        if (with_strat) { /* empty cells where not defined (weighted input) */
             const pm_strat_t *s = r[i].has_st ? &r[i].st : NULL;
             const double w[5] = {s ? s->mh_or : NAN, s ? s->mh_low : NAN, s ? s->mh_high : NAN,
                                  s ? s->cmh_p : NAN, s ? s->het_p : NAN};
@@ -327,6 +327,73 @@ static int rows_strat(const pm_cli_t *c, const pm_incidence_t *inc, uint32_t fir
     free(st);
     anchor_view_free(&v);
     return rc;
+}
+
+/* The same for the anchor of a set (in_set marks its k items): per segment of the first
+ * column, the respondents with a segment who chose every item of the set (the set's "item"),
+ * each partner's respondents, and both, from one pass over the rows; then each row's figures
+ * as for a pair of items (pm_stratified_pair). Memory: segments x (items + 1) counts, bounded
+ * by the memory check first. */
+static int rows_strat_set(const pm_cli_t *c, const pm_incidence_t *inc, const unsigned char *in_set,
+                          size_t k, row *r, size_t n, const pm_select_opts_t *sel) {
+    size_t nseg;
+    const pm_segcol_t *seg = pm_cli_segcols(&nseg);
+    if (nseg == 0 || inc->weight) {
+        if (nseg && inc->weight) {
+            pm_cli_note(c, "note: weighted input: the Mantel-Haenszel columns are left empty "
+                           "(they take unweighted counts)");
+        }
+        return 0;
+    }
+    size_t L = seg[0].n_levels, ni = inc->n_items;
+    size_t nr = inc->n_resp < seg[0].n_resp ? inc->n_resp : seg[0].n_resp;
+    int rc = pm_cli_check_bytes(c, ((uint64_t)ni * 2 + 1) * (L ? L : 1) * sizeof(uint64_t),
+                                "the pair tests within segments");
+    if (rc) {
+        return rc;
+    }
+    uint64_t *tot = calloc(ni * L > 0 ? ni * L : 1, sizeof *tot);
+    uint64_t *joint = calloc(ni * L > 0 ? ni * L : 1, sizeof *joint);
+    uint64_t *na = calloc(L ? L : 1, sizeof *na);
+    if (!tot || !joint || !na) {
+        free(tot);
+        free(joint);
+        free(na);
+        fputs("pairmap: out of memory\n", stderr);
+        return 4;
+    }
+    for (size_t q = 0; q < nr; q++) {
+        int32_t s = seg[0].of[q];
+        if (s < 0) {
+            continue;
+        }
+        size_t hit = 0;
+        for (uint64_t p = inc->row_ptr[q]; p < inc->row_ptr[q + 1]; p++) {
+            tot[(size_t)inc->col[p] * L + (size_t)s]++;
+            hit += in_set[inc->col[p]];
+        }
+        if (hit == k) {
+            na[s]++;
+            for (uint64_t p = inc->row_ptr[q]; p < inc->row_ptr[q + 1]; p++) {
+                joint[(size_t)inc->col[p] * L + (size_t)s]++;
+            }
+        }
+    }
+    for (size_t j = 0; j < n; j++) {
+        size_t b = r[j].item;
+        pm_stratified_pair(L, seg[0].base, na, tot + b * L, joint + b * L, sel->sign, &r[j].st);
+        r[j].has_st = 1;
+    }
+    pm_cli_note(c,
+                "note: pairs within the %zu segments of '%s' (Mantel-Haenszel, the set as one "
+                "item: its %s with a segment who chose all %zu items; %llu %s without a segment "
+                "left out of those columns)",
+                L, seg[0].column, pm_cli_unit(c), k, (unsigned long long)seg[0].none,
+                pm_cli_unit(c));
+    free(tot);
+    free(joint);
+    free(na);
+    return 0;
 }
 
 /* --pair-test: 0, or 1 after a usage error (within takes one --item). */
@@ -808,8 +875,9 @@ int pm_cmd_partners(int argc, char **argv) {
     g_rank_inc = inc;
     qsort(rows, nrows, sizeof *rows, cmp_row);
     size_t shown = po.top && po.top < nrows ? (size_t)po.top : nrows;
-    if (po.csv && k == 1 && (rc = rows_strat(&c, inc, first, rows, shown, &sel)) != 0) {
-        goto done; /* within segments: CSV only, one item only */
+    if (po.csv && (rc = k == 1 ? rows_strat(&c, inc, first, rows, shown, &sel)
+                               : rows_strat_set(&c, inc, in_set, k, rows, shown, &sel)) != 0) {
+        goto done; /* within segments: CSV only */
     }
     print_rows(&c, inc, &po, &an, in_set, rows, nrows, shown, nfam, &hid);
     rc = pm_cli_close_stdout();

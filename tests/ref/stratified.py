@@ -144,6 +144,26 @@ def random_case(d, rng, n, k, sign):
             want = reference(tables_of(M, strata, levels, names.index(x), names.index(y)), sign)
             for c, w in zip(COLS[:5], want):
                 close("partners/edges.csv " + c, f(row[c]), w)
+        # a set of items (fig and kale) as one item: its respondents chose both
+        ps = pm(["partners", d / "in.csv", "--segment-col", "stratum", "--item", "fig", "--item",
+                 "kale", "--csv", "--min-count", "0", "--max-q", "1", "--sign", sign, "--top", "0",
+                 "--quiet"])
+        check(list(ps.columns[-6:]) == COLS and len(ps) == 3, f"set partners {list(ps.columns)}")
+        anchor = M[:, 0] & M[:, 1]
+        for _, row in ps.iterrows():
+            y = M[:, names.index(row["partner"])]
+            T = []
+            for s in levels:
+                m = strata == s
+                x, z = anchor[m], y[m]
+                T.append(np.array([[np.sum(x & z), np.sum(x & ~z)], [np.sum(~x & z),
+                                   np.sum(~x & ~z)]], dtype=float))
+            want = reference(T, sign)
+            for c, w in zip(COLS, want):
+                if c == "reversed":
+                    check(row[c] == ("" if np.isnan(w) else str(int(w))), f"set reversed {row[c]}")
+                else:
+                    close("set partners " + c, f(row[c]), w)
     return len(out)
 
 

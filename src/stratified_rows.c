@@ -39,16 +39,16 @@ typedef struct {
 } rows_job;
 
 static uint32_t edge_of(const rows_job *j, uint32_t a, uint32_t b) {
-    uint64_t lo = j->estart[a], hi = j->estart[a + 1];
-    while (lo < hi) {
-        uint64_t mid = lo + (hi - lo) / 2;
-        if (j->eb[mid] < b) {
-            lo = mid + 1;
-        } else {
-            hi = mid;
-        }
+    /* the last partner <= b, which is b (the bit says the edge is there), without branches on
+     * the data */
+    const uint32_t *p = j->eb + j->estart[a];
+    size_t n = (size_t)(j->estart[a + 1] - j->estart[a]);
+    while (n > 1) {
+        size_t half = n / 2;
+        p = p[half] <= b ? p + half : p;
+        n -= half;
     }
-    return j->eidx[lo]; /* the bit says the edge is there */
+    return j->eidx[p - j->eb];
 }
 
 static int rows_chunk(void *ud, size_t ch, unsigned th) {

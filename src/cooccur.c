@@ -59,13 +59,22 @@ long pm_counts_find(const pm_counts_t *c, uint32_t a, uint32_t b) {
     return -1;
 }
 
-/* ---- per-chunk output ------------------------------------------------------------------ */
+/* ---- output: one stream per thread, chunks recorded in it ------------------------------ */
+/* A thread appends the pairs of each chunk it runs to its own stream (chunks are claimed in
+ * increasing order, so a stream holds its chunks in order); the chunks are put in place at
+ * the end in the stream that holds most of them (concat_outputs): with one thread the stream
+ * is the result, no copy, and no chunk buffer is regrown from small sizes. */
 typedef struct {
     uint32_t *a, *b, *n;
     double *w;
     size_t len, cap;
-    uint64_t seen, pruned;
 } outbuf;
+
+typedef struct {
+    unsigned th;     /* the stream holding the chunk */
+    size_t off, len; /* its pairs there */
+    uint64_t seen, pruned;
+} chunkout;
 
 static int out_push(outbuf *o, uint32_t a, uint32_t b, uint32_t n, double w, int weighted) {
     if (o->len == o->cap) {
@@ -121,8 +130,10 @@ typedef struct {
     uint32_t *trow; /* entry: its row (weighted only) */
     /* chunking */
     size_t nchunks;
-    size_t *cbeg; /* chunk c covers items (sparse) or rows (dense) cbeg[c]..cbeg[c+1] */
-    outbuf *outs;
+    size_t *cbeg;    /* chunk c covers items (sparse) or rows (dense) cbeg[c]..cbeg[c+1] */
+    outbuf *outs;    /* one per thread: nouts */
+    chunkout *couts; /* one per chunk */
+    unsigned nouts;
     unsigned threads;
     /* per-thread scratch */
     uint32_t **acc;
@@ -149,18 +160,27 @@ static void report(kstate *k, uint64_t add) {
     }
 }
 
-static int emit(kstate *k, outbuf *ob, unsigned thread, uint32_t ea, uint32_t eb, uint32_t n,
+static int emit(kstate *k, chunkout *co, unsigned thread, uint32_t ea, uint32_t eb, uint32_t n,
                 double w) {
     uint32_t a = k->gidx[ea], b = k->gidx[eb];
-    ob->seen++;
+    outbuf *ob = &k->outs[thread];
+    co->seen++;
     if (n < k->o->min_keep) {
-        ob->pruned++;
+        co->pruned++;
         if (k->o->prune) {
             k->o->prune(k->o->prune_ud, thread, a, b, n, w);
         }
         return 0;
     }
     return out_push(ob, a, b, n, w, k->wt != NULL);
+}
+
+/* Chunk c starts at the end of thread th's stream. */
+static chunkout *chunk_begin(kstate *k, size_t c, unsigned th) {
+    chunkout *co = &k->couts[c];
+    co->th = th;
+    co->off = k->outs[th].len;
+    return co;
 }
 
 static int cmp_u32(const void *x, const void *y) {
@@ -171,7 +191,7 @@ static int cmp_u32(const void *x, const void *y) {
 /* ---- sparse kernel ------------------------------------------------------------------------ */
 static int sparse_chunk(void *ud, size_t c, unsigned th) {
     kstate *k = ud;
-    outbuf *ob = &k->outs[c];
+    chunkout *co = chunk_begin(k, c, th);
     uint32_t *acc = k->acc[th];
     double *wacc = k->wacc ? k->wacc[th] : NULL;
     uint32_t *touched = k->touched[th];
@@ -239,12 +259,13 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
                 wab = wacc[b];
                 wacc[b] = 0;
             }
-            if (emit(k, ob, th, (uint32_t)a, b, acc[b], wab) != 0) {
+            if (emit(k, co, th, (uint32_t)a, b, acc[b], wab) != 0) {
                 return 1;
             }
             acc[b] = 0;
         }
     }
+    co->len = k->outs[th].len - co->off;
     report(k, work);
     return 0;
 }
@@ -276,16 +297,17 @@ static int dense_chunk(void *ud, size_t c, unsigned th) {
 
 static int dense_emit_chunk(void *ud, size_t c, unsigned th) {
     kstate *k = ud;
-    outbuf *ob = &k->outs[c];
+    chunkout *co = chunk_begin(k, c, th);
     uint32_t *tri = k->tri[0];
     for (size_t a = k->cbeg[c]; a < k->cbeg[c + 1]; a++) {
         for (size_t b = a + 1; b < k->E; b++) {
             uint32_t n = tri[tri_index(k->E, a, b)];
-            if (n && emit(k, ob, th, (uint32_t)a, (uint32_t)b, n, 0) != 0) {
+            if (n && emit(k, co, th, (uint32_t)a, (uint32_t)b, n, 0) != 0) {
                 return 1;
             }
         }
     }
+    co->len = k->outs[th].len - co->off;
     return 0;
 }
 
@@ -497,14 +519,15 @@ done:
 
 static void kstate_free(kstate *k) {
     if (k->outs) {
-        for (size_t c = 0; c < k->nchunks; c++) {
-            free(k->outs[c].a);
-            free(k->outs[c].b);
-            free(k->outs[c].n);
-            free(k->outs[c].w);
+        for (unsigned t = 0; t < k->nouts; t++) {
+            free(k->outs[t].a);
+            free(k->outs[t].b);
+            free(k->outs[t].n);
+            free(k->outs[t].w);
         }
         free(k->outs);
     }
+    free(k->couts);
     for (unsigned t = 0; t < k->nacc; t++) {
         free(k->acc[t]);
         free(k->touched[t]);
@@ -712,6 +735,14 @@ static pm_err_t exact_weights(kstate *k) {
     return PM_OK;
 }
 
+/* The threads' output streams and the chunks' records (k->threads, k->nchunks set). */
+static pm_err_t outputs_alloc(kstate *k) {
+    k->outs = pm_i_calloc(k->threads ? k->threads : 1, sizeof *k->outs);
+    k->couts = pm_i_calloc(k->nchunks ? k->nchunks : 1, sizeof *k->couts);
+    k->nouts = k->outs ? k->threads : 0;
+    return k->outs && k->couts ? PM_OK : PM_ENOMEM;
+}
+
 /* Per-thread accumulators of the sparse kernel: E counters, the touched list, weights. */
 static pm_err_t sparse_scratch(kstate *k) {
     k->acc = pm_i_calloc(k->threads, sizeof *k->acc);
@@ -766,9 +797,8 @@ static pm_err_t count_sparse(kstate *k, uint64_t nnz, size_t want) {
     }
     free(cost);
     if (rc == PM_OK) {
-        k->outs = pm_i_calloc(k->nchunks ? k->nchunks : 1, sizeof *k->outs);
-        rc = k->outs ? parallel_rc(pm_i_parallel(k->threads, k->nchunks, sparse_chunk, k))
-                     : PM_ENOMEM;
+        rc = outputs_alloc(k);
+        rc = rc ? rc : parallel_rc(pm_i_parallel(k->threads, k->nchunks, sparse_chunk, k));
     }
     return rc;
 }
@@ -835,53 +865,94 @@ static pm_err_t count_dense(kstate *k, size_t want) {
     }
     k->nchunks = make_chunks(cost, k->E, want, k->cbeg);
     free(cost);
-    k->outs = pm_i_calloc(k->nchunks ? k->nchunks : 1, sizeof *k->outs);
-    if (!k->outs) {
-        return PM_ENOMEM;
-    }
     k->threads = k->o->threads ? k->o->threads : pm_cpu_count();
     if (k->threads > 256) {
         k->threads = 256;
     }
+    if (outputs_alloc(k)) {
+        return PM_ENOMEM;
+    }
     return parallel_rc(pm_i_parallel(k->threads, k->nchunks, dense_emit_chunk, k));
 }
 
-/* The chunks' outputs concatenated in order into res. */
+/* Stream t's arrays resized to n entries (n >= its length). */
+static int stream_resize(outbuf *ob, size_t n, int weighted) {
+    n = n ? n : 1;
+    uint32_t *na = pm_i_realloc(ob->a, n, sizeof *na);
+    if (na) {
+        ob->a = na;
+    }
+    uint32_t *nb = na ? pm_i_realloc(ob->b, n, sizeof *nb) : NULL;
+    if (nb) {
+        ob->b = nb;
+    }
+    uint32_t *nn = nb ? pm_i_realloc(ob->n, n, sizeof *nn) : NULL;
+    if (nn) {
+        ob->n = nn;
+    }
+    double *nw = nn && weighted ? pm_i_realloc(ob->w, n, sizeof *nw) : NULL;
+    if (nw) {
+        ob->w = nw;
+    }
+    if (!nn || (weighted && !nw)) {
+        return -1;
+    }
+    ob->cap = n;
+    return 0;
+}
+
+/* Entries [from, from + len) of src to [to, to + len) of dst (may be the same stream). */
+static void stream_move(outbuf *dst, size_t to, const outbuf *src, size_t from, size_t len) {
+    if (len == 0 || (dst == src && to == from)) {
+        return;
+    }
+    memmove(dst->a + to, src->a + from, len * sizeof *dst->a);
+    memmove(dst->b + to, src->b + from, len * sizeof *dst->b);
+    memmove(dst->n + to, src->n + from, len * sizeof *dst->n);
+    if (dst->w) {
+        memmove(dst->w + to, src->w + from, len * sizeof *dst->w);
+    }
+}
+
+/* The chunks' outputs in chunk order into res: in the longest stream, grown to the total, its
+ * own chunks moved up to their places (the last first: a chunk only moves towards the end,
+ * never over one not yet moved), the other streams' chunks copied in between. */
 static pm_err_t concat_outputs(kstate *k, pm_counts_t *res, int weighted) {
     size_t total = 0;
+    unsigned base = 0;
     for (size_t c = 0; c < k->nchunks; c++) {
-        total += k->outs[c].len;
-        res->seen += k->outs[c].seen;
-        res->pruned += k->outs[c].pruned;
+        total += k->couts[c].len;
+        res->seen += k->couts[c].seen;
+        res->pruned += k->couts[c].pruned;
     }
-    res->a = pm_i_malloc(total ? total : 1, sizeof *res->a);
-    res->b = pm_i_malloc(total ? total : 1, sizeof *res->b);
-    res->n = pm_i_malloc(total ? total : 1, sizeof *res->n);
-    if (weighted) {
-        res->w = pm_i_malloc(total ? total : 1, sizeof *res->w);
+    for (unsigned t = 1; t < k->nouts; t++) {
+        base = k->outs[t].len > k->outs[base].len ? t : base;
     }
-    if (!res->a || !res->b || !res->n || (weighted && !res->w)) {
+    outbuf *ob = &k->outs[base];
+    if (stream_resize(ob, total, weighted)) {
         return PM_ENOMEM;
     }
-    size_t at = 0;
-    for (size_t c = 0; c < k->nchunks; c++) {
-        outbuf *ob = &k->outs[c];
-        if (ob->len) {
-            memcpy(res->a + at, ob->a, ob->len * sizeof *res->a);
-            memcpy(res->b + at, ob->b, ob->len * sizeof *res->b);
-            memcpy(res->n + at, ob->n, ob->len * sizeof *res->n);
-            if (res->w) {
-                memcpy(res->w + at, ob->w, ob->len * sizeof *res->w);
-            }
+    size_t at = total;
+    for (size_t c = k->nchunks; c-- > 0;) {
+        const chunkout *co = &k->couts[c];
+        at -= co->len;
+        if (co->th == base) {
+            stream_move(ob, at, ob, co->off, co->len);
         }
-        at += ob->len;
-        free(ob->a);
-        free(ob->b);
-        free(ob->n);
-        free(ob->w);
-        ob->a = ob->b = ob->n = NULL;
-        ob->w = NULL;
     }
+    for (size_t c = 0; c < k->nchunks; c++) {
+        const chunkout *co = &k->couts[c];
+        if (co->th != base) {
+            stream_move(ob, at, &k->outs[co->th], co->off, co->len);
+        }
+        at += co->len;
+    }
+    res->a = ob->a;
+    res->b = ob->b;
+    res->n = ob->n;
+    res->w = weighted ? ob->w : NULL;
+    ob->a = ob->b = ob->n = NULL;
+    ob->w = NULL;
     res->n_pairs = total;
     return PM_OK;
 }

@@ -318,8 +318,9 @@ static int exact_sums(pm_shard_t *s, const pm_incidence_t *sub, const pm_counts_
     return 0;
 }
 
-/* Copies the items, totals and pairs of sub (counted in c) into s. */
-static int fill_shard(pm_shard_t *s, const pm_incidence_t *sub, const pm_counts_t *c, int wexp) {
+/* Copies the items, totals and pair counts of sub (counted in c) into s; the pairs' items are
+ * c's arrays, taken (c->a and c->b are NULL afterwards). */
+static int fill_shard(pm_shard_t *s, const pm_incidence_t *sub, pm_counts_t *c, int wexp) {
     if (pm_i_shard_alloc(s, sub->n_items, c->n_pairs)) {
         return 1;
     }
@@ -333,15 +334,34 @@ static int fill_shard(pm_shard_t *s, const pm_incidence_t *sub, const pm_counts_
         s->count[i] = sub->count[i];
     }
     for (size_t k = 0; k < c->n_pairs; k++) {
-        s->a[k] = c->a[k];
-        s->b[k] = c->b[k];
         s->n[k] = c->n[k];
     }
     s->n_pairs = c->n_pairs;
-    return s->weighted ? exact_sums(s, sub, c, wexp) : 0;
+    int rc = s->weighted ? exact_sums(s, sub, c, wexp) : 0;
+    free(s->a); /* the pairs' items are c's arrays, taken */
+    free(s->b);
+    s->a = c->a;
+    s->b = c->b;
+    c->a = c->b = NULL;
+    return rc;
 }
 
-pm_err_t pm_shard_build(const pm_table_t *t, const pm_incidence_t *inc, uint64_t k, uint64_t m,
+/* The pairs of use, with the table's rows (no longer needed: the rows and duplicates are
+ * counted) as the counting's scratch: memory in use already instead of fresh pages. */
+static pm_err_t count_pairs(pm_table_t *t, const pm_incidence_t *use, unsigned threads,
+                            pm_counts_t **c, pm_diag_t *diag) {
+    pm_counts_opts_t co;
+    pm_counts_opts_init(&co);
+    co.threads = threads;
+    co.min_keep = 1;
+    co.scratch_n = pm_table_take_rows(t, &co.scratch[0], &co.scratch[1]);
+    pm_err_t rc = pm_counts_build(use, &co, c, diag);
+    free(co.scratch[0]);
+    free(co.scratch[1]);
+    return rc;
+}
+
+pm_err_t pm_shard_build(pm_table_t *t, const pm_incidence_t *inc, uint64_t k, uint64_t m,
                         const char *fingerprint, unsigned threads, pm_shard_t **out,
                         pm_diag_t *diag) {
     *out = NULL;
@@ -375,13 +395,6 @@ pm_err_t pm_shard_build(const pm_table_t *t, const pm_incidence_t *inc, uint64_t
         }
         use = &sub;
     }
-    pm_counts_opts_t co;
-    pm_counts_opts_init(&co);
-    co.threads = threads;
-    co.min_keep = 1;
-    if ((rc = pm_counts_build(use, &co, &c, diag)) != PM_OK) {
-        goto done;
-    }
     rc = PM_ENOMEM;
     s->weighted = inc->wcount != NULL;
     s->has_categories = pm_table_has_categories(t);
@@ -404,6 +417,10 @@ pm_err_t pm_shard_build(const pm_table_t *t, const pm_incidence_t *inc, uint64_t
     s->duplicates -= m > 1 && collapsed <= s->duplicates ? collapsed : 0;
     s->single_item = use->single_item;
     s->no_item = m == 1 ? inc->no_item : sub.no_item;
+    if ((rc = count_pairs(t, use, threads, &c, diag)) != PM_OK) {
+        goto done;
+    }
+    rc = PM_ENOMEM;
     int fr = fill_shard(s, use, c, inc->wexp);
     if (fr == 2) {
         rc = pm_diag_set(diag, PM_EDATA, pm_table_source(t), 0,

@@ -26,6 +26,13 @@ extern int pm_i_no_fast_lines;
 /* Tests only: the background SHA-256 thread waits until it is told to stop (a thread that
  * gets no processor), so that its owner must hash the file itself. */
 extern int pm_i_hash_stall;
+/* Tests only: with pm_i_hash_stall_after > 0 the idle thread (left at the normal priority, so
+ * that it gets there) stops hashing after that
+ * many windows of pm_i_hash_window bytes (a multiple of the page size; 0: 4 MiB), sets
+ * pm_i_hash_stalled and waits until it is told to stop: an owner then goes on from there. */
+extern int pm_i_hash_stall_after;
+extern size_t pm_i_hash_window;
+extern atomic_int pm_i_hash_stalled;
 
 typedef struct pm_i_hash_job pm_i_hash_job; /* src/filehash.c */
 

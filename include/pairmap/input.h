@@ -124,6 +124,10 @@ pm_err_t pm_table_keep(pm_table_t *t, const unsigned char *keep, pm_diag_t *diag
  * PM_OK at once when there is none; PM_EIO (diag set) when the file changed while it was read
  * or could not be read again for the hash. */
 pm_err_t pm_table_wait_hash(pm_table_t *t, pm_diag_t *diag);
+/* A SHA-256 left to the idle class goes on at the normal priority, from where it got, beside
+ * the caller's next stages (for a caller that needs it soon: count); pm_table_wait_hash still
+ * ends it. Nothing to do when there is none or it is done. */
+void pm_table_hash_ahead(pm_table_t *t);
 /* The name shown in messages ("stdin" for "-"). */
 const char *pm_table_source(const pm_table_t *t);
 /* What reading noted about --drop-item and --merge-file names found only ignoring letter case

@@ -76,10 +76,10 @@ pm_err_t pm_shard_fingerprint(const pm_input_opts_t *o, char **out, pm_diag_t *d
 
 /* The shard of table t (read with o) and its incidence inc: with m > 1 only the respondents
  * whose id falls in part k of m (pm_shard_part_of; respondents without id: the decimal text
- * of their 1-based number in the file). fingerprint is copied. Requires the table's SHA-256
- * (pm_table_wait_hash). The table's rows are taken as the counting's scratch: afterwards
- * pm_table_nrows(t) is 0 (pm_table_take_rows). Errors: PM_ENOMEM, PM_EDATA (too many
- * respondents). */
+ * of their 1-based number in the file). fingerprint is copied. The source's SHA-256
+ * (parts[0].src) is the table's: call pm_table_wait_hash before, or set it after. The table's rows
+ * are taken as the counting's scratch: afterwards pm_table_nrows(t) is 0 (pm_table_take_rows).
+ * Errors: PM_ENOMEM, PM_EDATA (too many respondents). */
 pm_err_t pm_shard_build(pm_table_t *t, const pm_incidence_t *inc, uint64_t k, uint64_t m,
                         const char *fingerprint, unsigned threads, pm_shard_t **out,
                         pm_diag_t *diag);

@@ -808,6 +808,9 @@ int pm_cli_load(const pm_cli_t *c, pm_table_t **table, pm_incidence_t **inc, dou
     if (rc) {
         return pm_cli_fail(&d);
     }
+    if (c->cmd == PM_CMD_COUNT) { /* the shard holds the hash: beside the incidence, counting */
+        pm_table_hash_ahead(*table);
+    }
     /* segments: read once here, --only-segment applied to the table before the incidence */
     int src = pm_cli_segments_load(c, *table);
     if (src) {

@@ -134,9 +134,16 @@ int pm_cmd_count(int argc, char **argv) {
         cost.bytes = b >= 1.8e19L ? UINT64_MAX : (uint64_t)b;
         rc = rc ? rc : pm_cli_check_memory(&c, &cost);
     }
-    if (!rc && (pm_table_wait_hash(t, &d) || pm_shard_build(t, inc, k, m, fp, th, &s, &d) ||
-                pm_shard_encode(s, &buf, &len, &d))) {
+    /* the hash runs beside the counting (pm_table_hash_ahead): the shard's source is set
+     * once it is done */
+    if (!rc && (pm_shard_build(t, inc, k, m, fp, th, &s, &d) || pm_table_wait_hash(t, &d))) {
         rc = pm_cli_fail(&d);
+    }
+    if (!rc) {
+        memcpy(s->parts[0].src, pm_table_stats(t)->sha256, 32);
+        if (pm_shard_encode(s, &buf, &len, &d)) {
+            rc = pm_cli_fail(&d);
+        }
     }
     if (!rc) {
         rc = pm_cli_write_shard(out, buf, len);

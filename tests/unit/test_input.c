@@ -177,6 +177,55 @@ static void expect_row(const pm_table_t *t, size_t i, const char *resp, const ch
 
 /* ---- long format -------------------------------------------------------------------------- */
 
+/* The background SHA-256 stopped after some windows and finished by its owner, either where it
+ * waits for it (pm_table_wait_hash) or by a thread at the normal priority (pm_table_hash_ahead):
+ * the digest the serial reader computes while it reads (its own code path). */
+static void test_input_hash_resumed(void **state) {
+    (void)state;
+    char path[] = "/tmp/pm_hash_XXXXXX";
+    int fd = mkstemp(path);
+    assert_true(fd >= 0);
+    FILE *fp = fdopen(fd, "w");
+    fputs("respondent,item\n", fp);
+    for (int i = 0; i < 40000; i++) { /* about 800 kB: some 200 windows of a page */
+        fprintf(fp, "r%06d,item%03d\n", i / 7, (i * 37) % 500);
+    }
+    fclose(fp);
+    pm_input_opts_t o;
+    pm_input_opts_init(&o);
+    o.threads = 1;
+    pm_table_t *ref = NULL, *t = NULL;
+    pm_diag_t d;
+    pm_diag_clear(&d);
+    assert_int_equal(pm_input_read(path, &o, &ref, &d), PM_OK);
+    for (int ahead = 0; ahead < 2; ahead++) {
+        for (int after = 1; after <= 150; after += 149) {
+            o.threads = 2;
+            o.chunk_bytes = 1;
+            o.defer_hash = true;
+            pm_i_hash_window = (size_t)sysconf(_SC_PAGESIZE);
+            pm_i_hash_stall_after = after;
+            atomic_store(&pm_i_hash_stalled, 0);
+            assert_int_equal(pm_input_read(path, &o, &t, &d), PM_OK);
+            for (int w = 0; w < 60000 && !atomic_load(&pm_i_hash_stalled); w++) {
+                struct timespec ms = {0, 1000000};
+                nanosleep(&ms, NULL);
+            }
+            assert_true(atomic_load(&pm_i_hash_stalled)); /* stopped part-way, then resumed */
+            if (ahead) {
+                pm_table_hash_ahead(t);
+            }
+            assert_int_equal(pm_table_wait_hash(t, &d), PM_OK);
+            assert_memory_equal(pm_table_stats(t)->sha256, pm_table_stats(ref)->sha256, 32);
+            pm_table_free(t);
+        }
+    }
+    pm_i_hash_stall_after = 0;
+    pm_i_hash_window = 0;
+    pm_table_free(ref);
+    unlink(path);
+}
+
 static void test_input_read_long_basic(void **state) {
     (void)state;
     rd r;
@@ -827,6 +876,7 @@ static const struct CMUnitTest tests[] = {
     cmocka_unit_test(test_input_read_errors),
     cmocka_unit_test(test_input_read_alloc_failure),
     cmocka_unit_test(test_input_read_plain_lines_fast),
+    cmocka_unit_test(test_input_hash_resumed),
 };
 
 UNIT_MAIN("input", tests)

@@ -141,6 +141,7 @@ typedef struct {
     pm_i_u128 *wtx; /* R weights in units of 2^xe (exact sums, pm_i_xs), or NULL */
     int xe;
     uint32_t **touched;
+    uint64_t **mark;     /* per thread: a bit per item, set with its first count (sparse) */
     uint32_t **tri;      /* dense triangles */
     unsigned nacc, ntri; /* scratch buffers allocated */
     int borrowed;        /* rp, ci, wt belong to the incidence */
@@ -189,12 +190,37 @@ static int cmp_u32(const void *x, const void *y) {
 }
 
 /* ---- sparse kernel ------------------------------------------------------------------------ */
+/* The nt items touched with item a (all > a, their bits set in mark) in increasing order into
+ * touched, and mark cleared: by a scan of the bit words after a's when they are few enough
+ * for the touched items (a word or more per eight), else by sorting the list. */
+static size_t touched_in_order(uint64_t *mark, uint32_t *touched, size_t nt, size_t a, size_t E) {
+    size_t w0 = (a + 1) >> 6, w1 = (E - 1) >> 6;
+    if (nt * 8 < w1 - w0 + 1) {
+        qsort(touched, nt, sizeof *touched, cmp_u32);
+        for (size_t i = 0; i < nt; i++) {
+            mark[touched[i] >> 6] = 0;
+        }
+        return nt;
+    }
+    size_t n = 0;
+    for (size_t w = w0; w <= w1; w++) {
+        uint64_t x = mark[w];
+        mark[w] = 0;
+        while (x) {
+            touched[n++] = (uint32_t)(w * 64 + (size_t)__builtin_ctzll(x));
+            x &= x - 1;
+        }
+    }
+    return n;
+}
+
 static int sparse_chunk(void *ud, size_t c, unsigned th) {
     kstate *k = ud;
     chunkout *co = chunk_begin(k, c, th);
     uint32_t *acc = k->acc[th];
     double *wacc = k->wacc ? k->wacc[th] : NULL;
     uint32_t *touched = k->touched[th];
+    uint64_t *mark = k->mark[th];
     uint64_t work = 0;
     for (size_t a = k->cbeg[c]; a < k->cbeg[c + 1]; a++) {
         size_t nt = 0;
@@ -214,6 +240,7 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
                     uint32_t b = row[q];
                     if (acc[b]++ == 0) {
                         touched[nt++] = b;
+                        mark[b >> 6] |= (uint64_t)1 << (b & 63);
                     }
                     wx[b] += w;
                 }
@@ -223,6 +250,7 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
                     uint32_t b = row[q];
                     if (acc[b]++ == 0) {
                         touched[nt++] = b;
+                        mark[b >> 6] |= (uint64_t)1 << (b & 63);
                     }
                     wacc[b] += w;
                 }
@@ -231,6 +259,7 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
                     uint32_t b = row[q];
                     if (acc[b]++ == 0) {
                         touched[nt++] = b;
+                        mark[b >> 6] |= (uint64_t)1 << (b & 63);
                     }
                 }
             }
@@ -238,16 +267,7 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
         if (nt == 0) {
             continue;
         }
-        if (nt * 16 > k->E - a) { /* dense enough: scan instead of sorting */
-            nt = 0;
-            for (size_t b = a + 1; b < k->E; b++) {
-                if (acc[b]) {
-                    touched[nt++] = (uint32_t)b;
-                }
-            }
-        } else {
-            qsort(touched, nt, sizeof *touched, cmp_u32);
-        }
+        nt = touched_in_order(mark, touched, nt, a, k->E);
         for (size_t i = 0; i < nt; i++) {
             uint32_t b = touched[i];
             double wab = 0;
@@ -531,6 +551,7 @@ static void kstate_free(kstate *k) {
     for (unsigned t = 0; t < k->nacc; t++) {
         free(k->acc[t]);
         free(k->touched[t]);
+        free(k->mark[t]);
         if (k->wacc) {
             free(k->wacc[t]);
         }
@@ -540,6 +561,7 @@ static void kstate_free(kstate *k) {
     }
     free(k->acc);
     free(k->touched);
+    free(k->mark);
     free(k->wacc);
     free(k->wtx);
     free(k->tri);
@@ -747,7 +769,8 @@ static pm_err_t outputs_alloc(kstate *k) {
 static pm_err_t sparse_scratch(kstate *k) {
     k->acc = pm_i_calloc(k->threads, sizeof *k->acc);
     k->touched = pm_i_calloc(k->threads, sizeof *k->touched);
-    if (!k->acc || !k->touched) {
+    k->mark = pm_i_calloc(k->threads, sizeof *k->mark);
+    if (!k->acc || !k->touched || !k->mark) {
         return PM_ENOMEM;
     }
     k->nacc = k->threads;
@@ -760,7 +783,8 @@ static pm_err_t sparse_scratch(kstate *k) {
     for (unsigned t = 0; t < k->threads; t++) {
         k->acc[t] = pm_i_calloc(k->E ? k->E : 1, sizeof(uint32_t));
         k->touched[t] = pm_i_malloc(k->E ? k->E : 1, sizeof(uint32_t));
-        if (!k->acc[t] || !k->touched[t]) {
+        k->mark[t] = pm_i_calloc(k->E / 64 + 1, sizeof(uint64_t));
+        if (!k->acc[t] || !k->touched[t] || !k->mark[t]) {
             return PM_ENOMEM;
         }
         if (k->wt) {
@@ -1099,9 +1123,11 @@ pm_err_t pm_counts_cost(const pm_incidence_t *inc, const pm_counts_opts_t *o,
     uint64_t b = sat_add(sat_mul(R, weighted ? 32 : 8), sat_mul(nnz, 4));
     if (kernel == PM_COUNTS_SPARSE) {
         /* transpose 8-12 per entry; tp and cost 16 per item; per thread acc and touched (and
-         * 16-byte weighted sums), and the transpose's two counters per item */
+         * 16-byte weighted sums), the transpose's two counters per item and a bit per item
+         * (a byte counted, and a word) */
         b = sat_add(b, sat_mul(nnz, weighted ? 12 : 8));
-        b = sat_add(b, sat_mul(E, 16 + (uint64_t)th * (weighted ? 40 : 24)));
+        b = sat_add(b, sat_mul(E, 16 + (uint64_t)th * (weighted ? 41 : 25)));
+        b = sat_add(b, (uint64_t)th * 8);
     } else {
         b = sat_add(b, sat_mul(sat_mul(all, 4), th)); /* one triangle per thread */
     }

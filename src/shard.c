@@ -113,6 +113,36 @@ static void put_str(wbuf *b, const char *s) {
     put(b, s, l);
 }
 
+/* v as a variable-length number at o (as put_var); returns the byte after it. */
+static unsigned char *var_at(unsigned char *o, uint64_t v) {
+    while (v >= 0x80) {
+        *o++ = (unsigned char)(v | 0x80);
+        v >>= 7;
+    }
+    *o++ = (unsigned char)v;
+    return o;
+}
+
+/* The pairs: item a's step from the pair before, b's step (from the pair before when a is the
+ * same, else from a), the count, and the weighted sum. Room for a pair's three numbers is
+ * made once per pair, and they are written in place. */
+static void put_pairs(wbuf *b, const pm_shard_t *s) {
+    for (size_t k = 0; k < s->n_pairs && !b->fail; k++) {
+        if (b->n + 32 > b->cap && pm_i_grow((void **)&b->p, &b->cap, b->n + 32, 1)) {
+            b->fail = 1;
+            return;
+        }
+        uint32_t da = k ? s->a[k] - s->a[k - 1] : s->a[k];
+        unsigned char *o = var_at(b->p + b->n, da);
+        o = var_at(o, k && !da ? s->b[k] - s->b[k - 1] - 1 : s->b[k] - s->a[k] - 1);
+        o = var_at(o, s->n[k]);
+        b->n = (size_t)(o - b->p);
+        if (s->weighted) {
+            put_x(b, s->w[k]);
+        }
+    }
+}
+
 pm_err_t pm_shard_encode(const pm_shard_t *s, unsigned char **buf, size_t *len, pm_diag_t *diag) {
     wbuf b = {0};
     put(&b, MAGIC, 8);
@@ -154,15 +184,7 @@ pm_err_t pm_shard_encode(const pm_shard_t *s, unsigned char **buf, size_t *len, 
         }
     }
     put_var(&b, s->n_pairs);
-    for (size_t k = 0; k < s->n_pairs; k++) {
-        uint32_t da = k ? s->a[k] - s->a[k - 1] : s->a[k];
-        put_var(&b, da);
-        put_var(&b, k && !da ? s->b[k] - s->b[k - 1] - 1 : s->b[k] - s->a[k] - 1);
-        put_var(&b, s->n[k]);
-        if (s->weighted) {
-            put_x(&b, s->w[k]);
-        }
-    }
+    put_pairs(&b, s);
     if (!b.fail) {
         uint64_t body = b.n - HEAD_BYTES;
         for (size_t i = 0; i < 8; i++) {

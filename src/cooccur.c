@@ -1054,9 +1054,9 @@ static int pair_bounds(const pm_incidence_t *inc, const unsigned char *el, uint6
         return -1;
     }
     for (size_t r = 0; r < inc->n_resp; r++) {
-        uint64_t m = 0;
-        for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
-            m += !el || el[inc->col[q]];
+        uint64_t m = el ? 0 : inc->row_ptr[r + 1] - inc->row_ptr[r];
+        for (uint64_t q = inc->row_ptr[r]; el && q < inc->row_ptr[r + 1]; q++) {
+            m += el[inc->col[q]] != 0;
         }
         if (m > out->largest) {
             out->largest = m;
@@ -1096,9 +1096,10 @@ pm_err_t pm_counts_cost(const pm_incidence_t *inc, const pm_counts_opts_t *o,
         E += !o->eligible || o->eligible[i];
     }
     for (size_t r = 0; r < inc->n_resp; r++) {
-        uint64_t m = 0;
-        for (uint64_t q = inc->row_ptr[r]; q < inc->row_ptr[r + 1]; q++) {
-            m += !o->eligible || o->eligible[inc->col[q]];
+        const unsigned char *el = o->eligible;
+        uint64_t m = el ? 0 : inc->row_ptr[r + 1] - inc->row_ptr[r];
+        for (uint64_t q = inc->row_ptr[r]; el && q < inc->row_ptr[r + 1]; q++) {
+            m += el[inc->col[q]] != 0;
         }
         nnz += m >= 2 ? m : 0;
         R += m >= 2;

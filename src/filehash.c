@@ -77,7 +77,7 @@ static int hash_file(int fd, atomic_int *stop, pm_i_sha256 *sha, uint64_t *bytes
     if (fstat(fd, &st) == 0 && S_ISREG(st.st_mode)) {
         uint64_t size = (uint64_t)st.st_size;
         while (*bytes < size) {
-            if (stop && atomic_load_explicit(stop, memory_order_relaxed)) {
+            if (stop && atomic_load(stop)) { /* sequentially consistent: see take_over */
                 return -1;
             }
             size_t len = size - *bytes < window ? (size_t)(size - *bytes) : window;
@@ -102,7 +102,7 @@ static int hash_file(int fd, atomic_int *stop, pm_i_sha256 *sha, uint64_t *bytes
     }
     int rc = 0;
     for (;;) {
-        if (stop && atomic_load_explicit(stop, memory_order_relaxed)) {
+        if (stop && atomic_load(stop)) { /* sequentially consistent: see take_over */
             rc = -1;
             break;
         }

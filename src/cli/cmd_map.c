@@ -93,9 +93,6 @@ static void state_free(run_state *s) {
     pm_cli_map_early_join(s);
     pm_cli_mapseg_free(&s->seg);
     free(s->strat);
-    free(s->early.items);
-    free(s->early.lo);
-    free(s->early.hi);
     if (s->cluster_name) {
         for (size_t i = 0; s->cl && i < s->cl->n_clusters; i++) {
             free(s->cluster_name[i]);

@@ -49,17 +49,14 @@ typedef struct {
     int with_strat;      /* --segment-col: edges.csv gains the within-segment columns */
     pm_strat_t *strat;   /* [e->n] (NULL: empty cells, weighted input) */
     const char *within;  /* --pair-test within: the column of the test, else NULL */
-    /* edges.csv and the share intervals of nodes.csv need no clusters: with more than one
-     * thread they are done on a thread of their own while the graph stage runs */
+    /* edges.csv needs no clusters, layout or picture: with more than one thread it is
+     * written on a thread of its own beside all the other files */
     struct {
         FILE *fp;
         pthread_t th;
         int running;
         pm_err_t rc;
         pm_diag_t d;
-        uint32_t *items;
-        size_t n;
-        double *lo, *hi;
     } early;
 } run_state;
 
@@ -69,8 +66,8 @@ int pm_cli_map_oom(void);
  * does the same work. */
 void pm_cli_map_early_start(run_state *s, unsigned threads);
 void pm_cli_map_early_join(run_state *s);
-/* Writes the four files on two threads, then run.json, and commits the directory. Returns
- * the exit status (0: done). */
+/* Writes the four files on two threads beside the early one, then run.json, and commits the
+ * directory. Returns the exit status (0: done). */
 int pm_cli_map_write_files(const pm_cli_t *c, const net_opts *no, const pm_select_opts_t *sel,
                            run_state *s);
 

@@ -1,5 +1,5 @@
-/* `pairmap map`'s files (see cmd_map.h): edges.csv and the share intervals on an early thread
- * while the graph stage runs, GraphML and nodes.csv on a second writer thread beside the SVG,
+/* `pairmap map`'s files (see cmd_map.h): edges.csv on an early thread from the end of the
+ * graph stage, GraphML and nodes.csv on a second writer thread beside the SVG and the page,
  * run.json (pm_write_run_json), and the commit of the output directory. */
 #include <stdbool.h>
 #include <stdlib.h>
@@ -128,31 +128,17 @@ static pm_err_t write_edges(const run_state *s, FILE *fp, pm_diag_t *d) {
 
 static void *early_main(void *arg) {
     run_state *s = arg;
-    /* one thread: the graph stage's processes use the other cores meanwhile */
-    (void)pm_assoc_share_intervals(s->inc, s->early.items, s->early.n, 1, s->early.lo, s->early.hi,
-                                   NULL);
     s->early.rc = write_edges(s, s->early.fp, &s->early.d);
     early_sync(s->early.fp);
     return NULL;
 }
 
+/* edges.csv (its odds ratios on all cores, then its rows) on a thread of its own from the end
+ * of the graph stage until all the other files are written beside it. */
 void pm_cli_map_early_start(run_state *s, unsigned threads) {
     if (threads == 1) {
         return;
     }
-    size_t n = s->pp->n_eligible, v = 0;
-    s->early.items = malloc((n ? n : 1) * sizeof *s->early.items);
-    s->early.lo = malloc((n ? n : 1) * sizeof *s->early.lo);
-    s->early.hi = malloc((n ? n : 1) * sizeof *s->early.hi);
-    if (!s->early.items || !s->early.lo || !s->early.hi) {
-        return; /* write_files does it */
-    }
-    for (size_t i = 0; i < s->inc->n_items; i++) {
-        if (s->pp->eligible[i]) { /* the vertices, in order (build_network) */
-            s->early.items[v++] = (uint32_t)i;
-        }
-    }
-    s->early.n = v;
     pm_diag_clear(&s->early.d);
     if (pm_outdir_create(s->od, "edges.csv", &s->early.fp, &s->early.d) != PM_OK) {
         s->early.fp = NULL; /* write_files tries again and reports */
@@ -227,7 +213,7 @@ typedef struct {
     const char **cats;
     double *slo, *shi;
     char thr[256];
-    int early; /* edges.csv came from the early thread */
+    int early; /* edges.csv comes from the early thread */
     unsigned nthreads;
     const pm_cli_t *c; /* for the page (map.html) */
     const net_opts *no;
@@ -243,7 +229,7 @@ static void files_job_free(files_job *fj) {
     free(fj->shi);
 }
 
-/* The map's and the picture's data; the share intervals from the early thread, or here. */
+/* The map's and the picture's data, and the share intervals of nodes.csv. */
 static int files_prepare(files_job *fj, const pm_cli_t *c, const net_opts *no,
                          const pm_select_opts_t *sel, run_state *s) {
     pm_map_t map = {
@@ -277,14 +263,9 @@ static int files_prepare(files_job *fj, const pm_cli_t *c, const net_opts *no,
         return pm_cli_map_oom();
     }
     (void)pm_cli_threads(c, &fj->nthreads); /* validated earlier */
-    pm_cli_map_early_join(s);
-    fj->early = s->early.fp != NULL; /* its items are the vertices, in order */
-    if (fj->early) {
-        memcpy(fj->slo, s->early.lo, s->n * sizeof *fj->slo);
-        memcpy(fj->shi, s->early.hi, s->n * sizeof *fj->shi);
-    } else { /* the share intervals of nodes.csv (a root search each) on all threads */
-        (void)pm_assoc_share_intervals(s->inc, s->item, s->n, fj->nthreads, fj->slo, fj->shi, NULL);
-    }
+    fj->early = s->early.fp != NULL;        /* edges.csv is being written on its own thread */
+    /* the share intervals of nodes.csv (a root search each) on all threads */
+    (void)pm_assoc_share_intervals(s->inc, s->item, s->n, fj->nthreads, fj->slo, fj->shi, NULL);
     fj->map.share_low = fj->slo;
     fj->map.share_high = fj->shi;
     for (size_t v = 0; v < s->n; v++) {
@@ -326,14 +307,15 @@ static int files_prepare(files_job *fj, const pm_cli_t *c, const net_opts *no,
     return 0;
 }
 
-/* The four files are created here, then written on two threads: GraphML and nodes.csv on a
- * second thread (plain text, no igraph), the SVG (whose layout calls igraph, which is not
- * thread-safe) and edges.csv on this one. */
+/* The four files are created here (edges.csv already, when the early thread writes it), then
+ * written on two threads beside that one: GraphML and nodes.csv on a second thread (plain
+ * text, no igraph), the SVG (whose layout calls igraph, which is not thread-safe), the page
+ * and, without the early thread, edges.csv on this one. */
 static pm_err_t files_write(files_job *fj, run_state *s, pm_diag_t *d) {
     pm_err_t rc = PM_OK;
     for (size_t k = 0; k < 4 && !rc; k++) {
         if (k == 2 && fj->early) {
-            fj->fps[k] = s->early.fp; /* written already */
+            fj->fps[k] = s->early.fp; /* being written */
             continue;
         }
         rc = pm_outdir_create(s->od, files[k], &fj->fps[k], d);
@@ -342,12 +324,8 @@ static pm_err_t files_write(files_job *fj, run_state *s, pm_diag_t *d) {
         fj->wrc[k] = PM_OK;
         pm_diag_clear(&fj->wd[k]);
     }
-    if (fj->early) {
-        fj->wrc[2] = s->early.rc;
-        fj->wd[2] = s->early.d;
-    }
     if (rc) {
-        return rc;
+        return rc; /* files_finish joins the early thread */
     }
     side_job job = {&fj->map,    fj->fps[0], fj->fps[3], &fj->wrc[0],
                     &fj->wrc[3], &fj->wd[0], &fj->wd[3]};
@@ -368,6 +346,15 @@ static pm_err_t files_write(files_job *fj, run_state *s, pm_diag_t *d) {
         pthread_join(th, NULL);
     }
     return PM_OK;
+}
+
+/* The early thread's edges.csv, once it is done. */
+static void files_early_done(files_job *fj, run_state *s) {
+    pm_cli_map_early_join(s);
+    if (fj->early) {
+        fj->wrc[2] = s->early.rc;
+        fj->wd[2] = s->early.d;
+    }
 }
 
 /* The input's SHA-256 for run.json, before any output is replaced (a file that changed while
@@ -418,6 +405,7 @@ int pm_cli_map_write_files(const pm_cli_t *c, const net_opts *no, const pm_selec
         return 4;
     }
     pm_err_t rc = files_write(&fj, s, &d);
+    files_early_done(&fj, s);
     rc = files_finish(&fj, s, no, rc, &d);
     if (rc) {
         files_job_free(&fj);

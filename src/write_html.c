@@ -37,17 +37,63 @@ static void jkey(FILE *fp, const char *key, int first) {
     fputc(':', fp);
 }
 
+/* A column of numbers or indices built in a buffer and written in pieces (the same text as
+ * one fputs per number, without a stdio call for each). */
+#define JBUF 65536
+#define JROOM 80 /* the longest number, its comma and "null" fit */
+
 /* "key":[v0,v1,...] of n numbers */
 static void jnums(FILE *fp, const char *key, const double *v, size_t n) {
     jkey(fp, key, 0);
-    fputc('[', fp);
+    char buf[JBUF];
+    size_t o = 0;
+    buf[o++] = '[';
     for (size_t i = 0; i < n; i++) {
         if (i) {
-            fputc(',', fp);
+            buf[o++] = ',';
         }
-        jnum(fp, v[i]);
+        if (isfinite(v[i])) {
+            o += (size_t)pm_i_fmt_double(buf + o, JROOM, v[i]);
+        } else {
+            memcpy(buf + o, "null", 4);
+            o += 4;
+        }
+        if (o > JBUF - JROOM) {
+            fwrite(buf, 1, o, fp);
+            o = 0;
+        }
     }
-    fputc(']', fp);
+    buf[o++] = ']';
+    fwrite(buf, 1, o, fp);
+}
+
+/* "key":[u0,u1,...] of n indices (first: no comma before the key) */
+static void jindices(FILE *fp, const char *key, int first, const uint32_t *v, size_t n) {
+    jkey(fp, key, first);
+    char buf[JBUF];
+    size_t o = 0;
+    buf[o++] = '[';
+    for (size_t i = 0; i < n; i++) {
+        if (i) {
+            buf[o++] = ',';
+        }
+        char t[12];
+        int k = 0;
+        uint32_t u = v[i];
+        do {
+            t[k++] = (char)('0' + u % 10);
+            u /= 10;
+        } while (u);
+        while (k) {
+            buf[o++] = t[--k];
+        }
+        if (o > JBUF - JROOM) {
+            fwrite(buf, 1, o, fp);
+            o = 0;
+        }
+    }
+    buf[o++] = ']';
+    fwrite(buf, 1, o, fp);
 }
 
 /* ---- the data -------------------------------------------------------------------------------- */
@@ -131,18 +177,8 @@ static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
     size_t m = map->edges->n;
     jkey(fp, "edges", 0);
     fputc('{', fp);
-    jkey(fp, "a", 1);
-    fputc('[', fp);
-    for (size_t k = 0; k < m; k++) {
-        fprintf(fp, k ? ",%u" : "%u", map->ea[k]);
-    }
-    fputc(']', fp);
-    jkey(fp, "b", 0);
-    fputc('[', fp);
-    for (size_t k = 0; k < m; k++) {
-        fprintf(fp, k ? ",%u" : "%u", map->eb[k]);
-    }
-    fputc(']', fp);
+    jindices(fp, "a", 1, map->ea, m);
+    jindices(fp, "b", 0, map->eb, m);
     static const char *const cols[EDGE_COLS] = {"together",
                                                 "expected",
                                                 "lift",
@@ -181,16 +217,7 @@ static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
         if (!inc->wcount && (col == 1 || col == 2 || col == 5 || col == 8)) {
             continue;
         }
-        jkey(fp, cols[col], 0);
-        fputc('[', fp);
-        const double *v = buf + slot[col] * m;
-        for (size_t k = 0; k < m; k++) {
-            if (k) {
-                fputc(',', fp);
-            }
-            jnum(fp, v[k]);
-        }
-        fputc(']', fp);
+        jnums(fp, cols[col], buf + slot[col] * m, m);
     }
     fputc('}', fp);
 }

@@ -69,29 +69,33 @@ void pm_write_pair_oddsratio(const pm_pairs_t *pp, const pm_incidence_t *inc, si
     }
 }
 
-/* The odds ratios of the edges, computed on all cores before the rows are written (the exact
- * branch costs some microseconds per pair: on a single thread it came to a third of a whole
- * `map` run on the bench data). Each value depends on its pair only: the same on any
- * number of threads. */
-typedef struct {
-    const pm_pairs_t *pp;
-    const pm_incidence_t *inc;
-    const pm_edges_t *e;
-    pm_oddsratio_t *r;
-} or_job;
-
-#define OR_CHUNK 512
-
-static int or_chunk(void *ud, size_t c, unsigned th) {
-    (void)th;
-    const or_job *j = ud;
-    size_t b = c * OR_CHUNK, end = b + OR_CHUNK < j->e->n ? b + OR_CHUNK : j->e->n;
-    for (size_t i = b; i < end; i++) {
-        pm_measures_t m;
-        pm_pairs_measures(j->pp, j->inc, j->e->idx[i], &m);
-        pm_write_pair_oddsratio(j->pp, j->inc, j->e->idx[i], &m, &j->r[i]);
+/* pm_write_csv_field's text at o (2 strlen(s) + 3 bytes at most); returns its end. */
+static char *csv_field_at(char *o, const char *s, unsigned flags) {
+    size_t n = strlen(s);
+    int quote = n > 0 && (s[0] == ' ' || s[0] == '\t' || s[n - 1] == ' ' || s[n - 1] == '\t');
+    if (!quote && strpbrk(s, ",\"\r\n;\t|")) {
+        quote = 1;
     }
-    return 0;
+    int mark = !(flags & PM_CSV_RAW) && formula_like(s);
+    if (!quote) {
+        if (mark) {
+            *o++ = '\'';
+        }
+        memcpy(o, s, n);
+        return o + n;
+    }
+    *o++ = '"';
+    if (mark) {
+        *o++ = '\''; /* inside the quotes: the cell's text begins with it */
+    }
+    for (const char *p = s; *p; p++) {
+        if (*p == '"') {
+            *o++ = '"';
+        }
+        *o++ = *p;
+    }
+    *o++ = '"';
+    return o;
 }
 
 /* The within-segment cells of one row (empty where not defined or st is NULL). */
@@ -111,6 +115,125 @@ static char *strat_cells(char *o, const pm_strat_t *st) {
     return o;
 }
 
+/* What the rows of edges.csv are made from. */
+typedef struct {
+    const pm_pairs_t *pp;
+    const pm_incidence_t *inc;
+    const pm_edges_t *e;
+    int with_strat;
+    const pm_strat_t *st;
+    unsigned csv_flags;
+} rows_src;
+
+/* The bytes row i may take: its two names quoted with every character doubled, and 24
+ * numbers of at most 64 bytes with their separators (16 columns, 6 more with segments). */
+static size_t row_room(const rows_src *r, size_t i) {
+    size_t k = r->e->idx[i];
+    return 2 * strlen(r->inc->name[r->pp->a[k]]) + 2 * strlen(r->inc->name[r->pp->b[k]]) + 6 +
+           24 * 65 + 2;
+}
+
+/* Row i of edges.csv from the comma after its names to its newline at o (24 x 65 + 2 bytes
+ * at most); returns its end. */
+static char *edge_numbers(char *o, const rows_src *r, size_t i) {
+    const pm_pairs_t *pp = r->pp;
+    size_t k = r->e->idx[i];
+    pm_measures_t m;
+    pm_pairs_measures(pp, r->inc, k, &m);
+    const double v[8] = {m.together,      m.expected, m.support, m.confidence_ab,
+                         m.confidence_ba, m.lift,     m.phi,     m.jaccard};
+    for (int j = 0; j < 8; j++) {
+        *o++ = ',';
+        o += pm_i_fmt_double(o, 64, v[j]);
+    }
+    const char *t = m.test == PM_TEST_FISHER ? ",fisher," : ",chi2,";
+    memcpy(o, t, strlen(t));
+    o += strlen(t);
+    o += pm_i_fmt_double(o, 64, m.p);
+    *o++ = ',';
+    o += pm_i_fmt_double(o, 64, m.q);
+    pm_oddsratio_t or ;
+    pm_write_pair_oddsratio(pp, r->inc, k, &m, & or);
+    const double orv[3] = { or.estimate, or.low, or.high};
+    for (int j = 0; j < 3; j++) {
+        *o++ = ',';
+        o += pm_i_fmt_double(o, 64, orv[j]);
+    }
+    if (r->with_strat) {
+        o = strat_cells(o, r->st ? &r->st[i] : NULL);
+    }
+    *o++ = '\n';
+    return o;
+}
+
+/* Row i of edges.csv at o (row_room bytes); returns its end. The odds ratio of the exact
+ * branch costs some microseconds per pair, the row's formatting about one: both are made on
+ * all cores (rows_chunk), in windows of rows written in order. */
+static char *edge_row(char *o, const rows_src *r, size_t i) {
+    size_t k = r->e->idx[i];
+    o = csv_field_at(o, r->inc->name[r->pp->a[k]], r->csv_flags);
+    *o++ = ',';
+    o = csv_field_at(o, r->inc->name[r->pp->b[k]], r->csv_flags);
+    return edge_numbers(o, r, i);
+}
+
+#define ROW_CHUNK 512    /* rows per chunk of the parallel loop */
+#define WINDOW_CHUNKS 64 /* chunks per window: about 8 MB of text at most in memory */
+
+/* One window: chunk c holds rows from + c ROW_CHUNK on, its text in buf[c] (len[c] bytes). */
+typedef struct {
+    const rows_src *r;
+    size_t from, to;
+    char *buf[WINDOW_CHUNKS];
+    size_t len[WINDOW_CHUNKS];
+} rows_window;
+
+static int rows_chunk(void *ud, size_t c, unsigned th) {
+    (void)th;
+    rows_window *w = ud;
+    size_t b = w->from + c * ROW_CHUNK, end = b + ROW_CHUNK < w->to ? b + ROW_CHUNK : w->to;
+    size_t room = 0;
+    for (size_t i = b; i < end; i++) {
+        room += row_room(w->r, i);
+    }
+    char *buf = pm_i_malloc(room ? room : 1, 1), *o = buf;
+    if (!buf) {
+        return 1; /* the window is written row by row instead */
+    }
+    for (size_t i = b; i < end; i++) {
+        o = edge_row(o, w->r, i);
+    }
+    w->buf[c] = buf;
+    w->len[c] = (size_t)(o - buf);
+    return 0;
+}
+
+/* Rows from .. to-1, made on all cores and written in order; without the memory for that,
+ * each row made here and written on its own, as it is made (the same bytes). */
+static void write_window(FILE *fp, const rows_src *r, size_t from, size_t to) {
+    rows_window w;
+    memset(&w, 0, sizeof w);
+    w.r = r;
+    w.from = from;
+    w.to = to;
+    size_t nc = (to - from + ROW_CHUNK - 1) / ROW_CHUNK;
+    int rc = pm_i_parallel(pm_cpu_count(), nc, rows_chunk, &w);
+    for (size_t c = 0; c < nc; c++) {
+        if (!rc) {
+            fwrite(w.buf[c], 1, w.len[c], fp);
+        }
+        pm_i_free(w.buf[c]);
+    }
+    for (size_t i = from; rc && i < to; i++) {
+        size_t k = r->e->idx[i];
+        char buf[24 * 65 + 2];
+        pm_write_csv_field(fp, r->inc->name[r->pp->a[k]], r->csv_flags);
+        fputc(',', fp);
+        pm_write_csv_field(fp, r->inc->name[r->pp->b[k]], r->csv_flags);
+        fwrite(buf, 1, (size_t)(edge_numbers(buf, r, i) - buf), fp);
+    }
+}
+
 static pm_err_t edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
                           const pm_edges_t *e, int with_strat, const pm_strat_t *st,
                           unsigned csv_flags, pm_diag_t *diag);
@@ -126,57 +249,16 @@ pm_err_t pm_write_edges_csv_strat(FILE *fp, const pm_pairs_t *pp, const pm_incid
     return edges_csv(fp, pp, inc, e, 1, st, csv_flags, diag);
 }
 
+/* Each row depends on its pair only: the same bytes on any number of threads. */
 static pm_err_t edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
                           const pm_edges_t *e, int with_strat, const pm_strat_t *st,
                           unsigned csv_flags, pm_diag_t *diag) {
     fputs(with_strat ? PM_EDGES_HEADER PM_STRAT_HEADER "\n" : PM_EDGES_HEADER "\n", fp);
-    /* without memory for them, or without threads, each row computes its own */
-    or_job oj = {pp, inc, e, pm_i_malloc(e->n ? e->n : 1, sizeof(pm_oddsratio_t))};
-    if (oj.r && pm_i_parallel(pm_cpu_count(), (e->n + OR_CHUNK - 1) / OR_CHUNK, or_chunk, &oj)) {
-        free(oj.r);
-        oj.r = NULL;
+    rows_src r = {pp, inc, e, with_strat, st, csv_flags};
+    const size_t per = (size_t)ROW_CHUNK * WINDOW_CHUNKS;
+    for (size_t from = 0; from < e->n && !ferror(fp); from += per) {
+        write_window(fp, &r, from, e->n - from < per ? e->n : from + per);
     }
-    for (size_t i = 0; i < e->n; i++) {
-        size_t k = e->idx[i];
-        pm_measures_t m;
-        pm_pairs_measures(pp, inc, k, &m);
-        pm_write_csv_field(fp, inc->name[pp->a[k]], csv_flags);
-        fputc(',', fp);
-        pm_write_csv_field(fp, inc->name[pp->b[k]], csv_flags);
-        const double v[8] = {m.together,      m.expected, m.support, m.confidence_ab,
-                             m.confidence_ba, m.lift,     m.phi,     m.jaccard};
-        char buf[24 * 64], *o = buf; /* the numbers of the row, written at once */
-        for (int j = 0; j < 8; j++) {
-            *o++ = ',';
-            o += pm_i_fmt_double(o, 64, v[j]);
-        }
-        const char *t = m.test == PM_TEST_FISHER ? ",fisher," : ",chi2,";
-        memcpy(o, t, strlen(t));
-        o += strlen(t);
-        o += pm_i_fmt_double(o, 64, m.p);
-        *o++ = ',';
-        o += pm_i_fmt_double(o, 64, m.q);
-        pm_oddsratio_t r;
-        if (oj.r) {
-            r = oj.r[i];
-        } else {
-            pm_write_pair_oddsratio(pp, inc, k, &m, &r);
-        }
-        const double orv[3] = {r.estimate, r.low, r.high};
-        for (int j = 0; j < 3; j++) {
-            *o++ = ',';
-            o += pm_i_fmt_double(o, 64, orv[j]);
-        }
-        if (with_strat) {
-            o = strat_cells(o, st ? &st[i] : NULL);
-        }
-        *o++ = '\n';
-        fwrite(buf, 1, (size_t)(o - buf), fp);
-        if ((i & 4095) == 0 && ferror(fp)) {
-            break;
-        }
-    }
-    free(oj.r);
     return check(fp, diag);
 }
 

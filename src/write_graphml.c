@@ -8,6 +8,7 @@
 #include "pairmap/mapwrite.h"
 #include "pairmap/text.h"
 #include "pairmap/write.h"
+#include "parallel.h"
 #include "util.h"
 
 void pm_write_xml_text(FILE *fp, const char *s) {
@@ -90,6 +91,83 @@ static const struct {
     {"pair.weight", "edge", "weight", "double"},
 };
 
+/* Edge k's element at o (EDGE_ROOM bytes at most); returns its end. */
+#define EDGE_ROOM 1024
+static char *edge_element(char *o, const pm_map_t *map, size_t k) {
+    static const char *const ekey[6] = {"pair.together", "pair.phi",     "pair.lift",
+                                        "pair.jaccard",  "pair.q_value", "pair.weight"};
+    pm_measures_t m;
+    pm_pairs_measures(map->pairs, map->inc, map->edges->idx[k], &m);
+    const double val[6] = {m.together, m.phi, m.lift, m.jaccard, m.q, map->edges->weight[k]};
+    o = put_str(o, "    <edge id=\"e");
+    o = put_u64(o, k);
+    o = put_str(o, "\" source=\"n");
+    o = put_u64(o, map->ea[k]);
+    o = put_str(o, "\" target=\"n");
+    o = put_u64(o, map->eb[k]);
+    o = put_str(o, "\">\n");
+    for (int j = 0; j < 6; j++) {
+        o = put_str(o, "      <data key=\"");
+        o = put_str(o, ekey[j]);
+        o = put_str(o, "\">");
+        o = put_num(o, val[j]);
+        o = put_str(o, "</data>\n");
+    }
+    return put_str(o, "    </edge>\n");
+}
+
+#define EDGE_CHUNK 512   /* edges per chunk of the parallel loop */
+#define WINDOW_CHUNKS 64 /* chunks per window: 32 MB of buffers at most, about 10 in use */
+
+/* One window of edges: chunk c holds edges from + c EDGE_CHUNK on, its text in buf[c]. */
+typedef struct {
+    const pm_map_t *map;
+    size_t from, to;
+    char *buf[WINDOW_CHUNKS];
+    size_t len[WINDOW_CHUNKS];
+} edge_window;
+
+static int edge_chunk(void *ud, size_t c, unsigned th) {
+    (void)th;
+    edge_window *w = ud;
+    size_t b = w->from + c * EDGE_CHUNK, end = b + EDGE_CHUNK < w->to ? b + EDGE_CHUNK : w->to;
+    char *buf = pm_i_malloc(end - b, EDGE_ROOM), *o = buf;
+    if (!buf) {
+        return 1; /* the window is written edge by edge instead */
+    }
+    for (size_t k = b; k < end; k++) {
+        o = edge_element(o, w->map, k);
+    }
+    w->buf[c] = buf;
+    w->len[c] = (size_t)(o - buf);
+    return 0;
+}
+
+/* The edges' elements, each window's made on all cores and written in order; without the
+ * memory for a window, each element made and written on its own (the same bytes). */
+static void graphml_edges(FILE *fp, const pm_map_t *map) {
+    const size_t per = (size_t)EDGE_CHUNK * WINDOW_CHUNKS, n = map->edges->n;
+    for (size_t from = 0; from < n && !ferror(fp); from += per) {
+        edge_window w;
+        memset(&w, 0, sizeof w);
+        w.map = map;
+        w.from = from;
+        w.to = n - from < per ? n : from + per;
+        size_t nc = (w.to - from + EDGE_CHUNK - 1) / EDGE_CHUNK;
+        int rc = pm_i_parallel(pm_cpu_count(), nc, edge_chunk, &w);
+        for (size_t c = 0; c < nc; c++) {
+            if (!rc) {
+                fwrite(w.buf[c], 1, w.len[c], fp);
+            }
+            pm_i_free(w.buf[c]);
+        }
+        for (size_t k = from; rc && k < w.to; k++) {
+            char buf[EDGE_ROOM];
+            fwrite(buf, 1, (size_t)(edge_element(buf, map, k) - buf), fp);
+        }
+    }
+}
+
 pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
     const pm_incidence_t *inc = map->inc;
     fputs("<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n"
@@ -146,35 +224,8 @@ pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
             break;
         }
     }
-    /* the edges, most of the file: each built in a buffer and written at once (the same text
-     * data_num would print) */
-    static const char *const ekey[6] = {"pair.together", "pair.phi",     "pair.lift",
-                                        "pair.jaccard",  "pair.q_value", "pair.weight"};
-    for (size_t k = 0; k < map->edges->n; k++) {
-        pm_measures_t m;
-        pm_pairs_measures(map->pairs, inc, map->edges->idx[k], &m);
-        const double val[6] = {m.together, m.phi, m.lift, m.jaccard, m.q, map->edges->weight[k]};
-        char buf[1024], *o = buf;
-        o = put_str(o, "    <edge id=\"e");
-        o = put_u64(o, k);
-        o = put_str(o, "\" source=\"n");
-        o = put_u64(o, map->ea[k]);
-        o = put_str(o, "\" target=\"n");
-        o = put_u64(o, map->eb[k]);
-        o = put_str(o, "\">\n");
-        for (int j = 0; j < 6; j++) {
-            o = put_str(o, "      <data key=\"");
-            o = put_str(o, ekey[j]);
-            o = put_str(o, "\">");
-            o = put_num(o, val[j]);
-            o = put_str(o, "</data>\n");
-        }
-        o = put_str(o, "    </edge>\n");
-        fwrite(buf, 1, (size_t)(o - buf), fp);
-        if ((k & 1023) == 0 && ferror(fp)) {
-            break;
-        }
-    }
+    /* the edges, most of the file: made on all cores in windows (graphml_edges) */
+    graphml_edges(fp, map);
     fputs("  </graph>\n</graphml>\n", fp);
     if (ferror(fp)) {
         return pm_diag_set(diag, PM_EIO, NULL, 0, "cannot write map.graphml: %s",

@@ -180,12 +180,13 @@ static char *edge_row(char *o, const rows_src *r, size_t i) {
 #define ROW_CHUNK 512    /* rows per chunk of the parallel loop */
 #define WINDOW_CHUNKS 64 /* chunks per window: about 8 MB of text at most in memory */
 
-/* One window: chunk c holds rows from + c ROW_CHUNK on, its text in buf[c] (len[c] bytes). */
+/* One window: chunk c holds rows from + c ROW_CHUNK on, its text in buf[c] (len[c] bytes of
+ * cap[c]). The buffers are kept from window to window: their pages are touched once. */
 typedef struct {
     const rows_src *r;
     size_t from, to;
     char *buf[WINDOW_CHUNKS];
-    size_t len[WINDOW_CHUNKS];
+    size_t len[WINDOW_CHUNKS], cap[WINDOW_CHUNKS];
 } rows_window;
 
 static int rows_chunk(void *ud, size_t c, unsigned th) {
@@ -196,33 +197,27 @@ static int rows_chunk(void *ud, size_t c, unsigned th) {
     for (size_t i = b; i < end; i++) {
         room += row_room(w->r, i);
     }
-    char *buf = pm_i_malloc(room ? room : 1, 1), *o = buf;
-    if (!buf) {
+    if (pm_i_grow((void **)&w->buf[c], &w->cap[c], room ? room : 1, 1) != 0) {
         return 1; /* the window is written row by row instead */
     }
+    char *o = w->buf[c];
     for (size_t i = b; i < end; i++) {
         o = edge_row(o, w->r, i);
     }
-    w->buf[c] = buf;
-    w->len[c] = (size_t)(o - buf);
+    w->len[c] = (size_t)(o - w->buf[c]);
     return 0;
 }
 
 /* Rows from .. to-1, made on all cores and written in order; without the memory for that,
  * each row made here and written on its own, as it is made (the same bytes). */
-static void write_window(FILE *fp, const rows_src *r, size_t from, size_t to) {
-    rows_window w;
-    memset(&w, 0, sizeof w);
-    w.r = r;
-    w.from = from;
-    w.to = to;
+static void write_window(FILE *fp, rows_window *w, size_t from, size_t to) {
+    const rows_src *r = w->r;
+    w->from = from;
+    w->to = to;
     size_t nc = (to - from + ROW_CHUNK - 1) / ROW_CHUNK;
-    int rc = pm_i_parallel(pm_cpu_count(), nc, rows_chunk, &w);
-    for (size_t c = 0; c < nc; c++) {
-        if (!rc) {
-            fwrite(w.buf[c], 1, w.len[c], fp);
-        }
-        pm_i_free(w.buf[c]);
+    int rc = pm_i_parallel(pm_cpu_count(), nc, rows_chunk, w);
+    for (size_t c = 0; c < nc && !rc; c++) {
+        fwrite(w->buf[c], 1, w->len[c], fp);
     }
     for (size_t i = from; rc && i < to; i++) {
         size_t k = r->e->idx[i];
@@ -255,9 +250,15 @@ static pm_err_t edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *
                           unsigned csv_flags, pm_diag_t *diag) {
     fputs(with_strat ? PM_EDGES_HEADER PM_STRAT_HEADER "\n" : PM_EDGES_HEADER "\n", fp);
     rows_src r = {pp, inc, e, with_strat, st, csv_flags};
+    rows_window w;
+    memset(&w, 0, sizeof w);
+    w.r = &r;
     const size_t per = (size_t)ROW_CHUNK * WINDOW_CHUNKS;
     for (size_t from = 0; from < e->n && !ferror(fp); from += per) {
-        write_window(fp, &r, from, e->n - from < per ? e->n : from + per);
+        write_window(fp, &w, from, e->n - from < per ? e->n : from + per);
+    }
+    for (size_t c = 0; c < WINDOW_CHUNKS; c++) {
+        pm_i_free(w.buf[c]);
     }
     return check(fp, diag);
 }

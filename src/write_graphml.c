@@ -117,9 +117,10 @@ static char *edge_element(char *o, const pm_map_t *map, size_t k) {
 }
 
 #define EDGE_CHUNK 512   /* edges per chunk of the parallel loop */
-#define WINDOW_CHUNKS 64 /* chunks per window: 32 MB of buffers at most, about 10 in use */
+#define WINDOW_CHUNKS 64 /* chunks per window: 32 MB of buffers, about 10 MB of them touched */
 
-/* One window of edges: chunk c holds edges from + c EDGE_CHUNK on, its text in buf[c]. */
+/* One window of edges: chunk c holds edges from + c EDGE_CHUNK on, its text in buf[c]. The
+ * buffers are kept from window to window: their pages are touched once. */
 typedef struct {
     const pm_map_t *map;
     size_t from, to;
@@ -131,15 +132,14 @@ static int edge_chunk(void *ud, size_t c, unsigned th) {
     (void)th;
     edge_window *w = ud;
     size_t b = w->from + c * EDGE_CHUNK, end = b + EDGE_CHUNK < w->to ? b + EDGE_CHUNK : w->to;
-    char *buf = pm_i_malloc(end - b, EDGE_ROOM), *o = buf;
-    if (!buf) {
+    if (!w->buf[c] && !(w->buf[c] = pm_i_malloc(EDGE_CHUNK, EDGE_ROOM))) {
         return 1; /* the window is written edge by edge instead */
     }
+    char *o = w->buf[c];
     for (size_t k = b; k < end; k++) {
         o = edge_element(o, w->map, k);
     }
-    w->buf[c] = buf;
-    w->len[c] = (size_t)(o - buf);
+    w->len[c] = (size_t)(o - w->buf[c]);
     return 0;
 }
 
@@ -147,24 +147,24 @@ static int edge_chunk(void *ud, size_t c, unsigned th) {
  * memory for a window, each element made and written on its own (the same bytes). */
 static void graphml_edges(FILE *fp, const pm_map_t *map) {
     const size_t per = (size_t)EDGE_CHUNK * WINDOW_CHUNKS, n = map->edges->n;
+    edge_window w;
+    memset(&w, 0, sizeof w);
+    w.map = map;
     for (size_t from = 0; from < n && !ferror(fp); from += per) {
-        edge_window w;
-        memset(&w, 0, sizeof w);
-        w.map = map;
         w.from = from;
         w.to = n - from < per ? n : from + per;
         size_t nc = (w.to - from + EDGE_CHUNK - 1) / EDGE_CHUNK;
         int rc = pm_i_parallel(pm_cpu_count(), nc, edge_chunk, &w);
-        for (size_t c = 0; c < nc; c++) {
-            if (!rc) {
-                fwrite(w.buf[c], 1, w.len[c], fp);
-            }
-            pm_i_free(w.buf[c]);
+        for (size_t c = 0; c < nc && !rc; c++) {
+            fwrite(w.buf[c], 1, w.len[c], fp);
         }
         for (size_t k = from; rc && k < w.to; k++) {
             char buf[EDGE_ROOM];
             fwrite(buf, 1, (size_t)(edge_element(buf, map, k) - buf), fp);
         }
+    }
+    for (size_t c = 0; c < WINDOW_CHUNKS; c++) {
+        pm_i_free(w.buf[c]);
     }
 }
 

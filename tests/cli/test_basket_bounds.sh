@@ -147,18 +147,23 @@ else
             "${M[@]}" -o "$TMP/h" --max-memory "$((est + 3))M"
         check "nothing written when the page does not fit" test ! -e "$TMP/h"
         expect_ok "${M[@]}" -o "$TMP/h" --max-memory "$((est + 3))M" --no-html
-        # the page's own memory (PM_HTML_EDGE_BYTES, 128 bytes an edge) against the measured
-        # difference of the peaks with and without it: above it, not far above
+        # the page's own memory (PM_HTML_EDGE_BYTES, 128 bytes an edge: what it allocates)
+        # against the measured difference of the peaks with and without it: above it, not far
+        # above. The difference undercounts the page (its arrays come on top of what is live
+        # while the files are written, below the run's peak elsewhere), the more so when the
+        # other files' writers run beside it: measured on --threads 1 (the files one after
+        # another), where it was 2.8x below the estimate (1.7x before edges.csv's windows made
+        # the rest of the writing lighter); at most 4x
         CASES=$((CASES + 1))
-        /usr/bin/time -f '%M' -o "$TMP/rss" "$PAIRMAP" "${M[@]}" -o "$TMP/h2" >/dev/null 2>&1 ||
-            fail "map with the page: the run failed"
+        /usr/bin/time -f '%M' -o "$TMP/rss" "$PAIRMAP" "${M[@]}" -o "$TMP/h2" --threads 1 \
+            >/dev/null 2>&1 || fail "map with the page: the run failed"
         with="$(tail -1 "$TMP/rss")"
         /usr/bin/time -f '%M' -o "$TMP/rss" "$PAIRMAP" "${M[@]}" -o "$TMP/h3" --no-html \
-            >/dev/null 2>&1 || fail "map --no-html: the run failed"
+            --threads 1 >/dev/null 2>&1 || fail "map --no-html: the run failed"
         without="$(tail -1 "$TMP/rss")"
         edges="$(($(wc -l <"$TMP/h2/edges.csv") - 1))"
         awk -v n="$edges" -v a="$with" -v b="$without" 'BEGIN { e = 128 * n / 1024; d = a - b
-            exit !(e >= d && e <= 3 * d) }' ||
+            exit !(e >= d && e <= 4 * d) }' ||
             fail "map.html: 128 bytes x $edges edges against a measured $((with - without)) KiB"
     fi
 fi

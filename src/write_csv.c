@@ -17,13 +17,19 @@ static int formula_like(const char *s) {
     return s[0] == '=' || s[0] == '+' || s[0] == '-' || s[0] == '@' || s[0] == '\t' || s[0] == '\r';
 }
 
+/* How a text cell s of n bytes is written: in quotes (edge spaces or tabs, or a delimiter,
+ * quote or line break inside) and with the leading apostrophe before a formula-like text. The
+ * one rule of both writers below. */
+static void field_form(const char *s, size_t n, unsigned flags, int *quote, int *mark) {
+    *quote = (n > 0 && (s[0] == ' ' || s[0] == '\t' || s[n - 1] == ' ' || s[n - 1] == '\t')) ||
+             strpbrk(s, ",\"\r\n;\t|") != NULL;
+    *mark = !(flags & PM_CSV_RAW) && formula_like(s);
+}
+
 void pm_write_csv_field(FILE *fp, const char *s, unsigned flags) {
     size_t n = strlen(s);
-    int quote = n > 0 && (s[0] == ' ' || s[0] == '\t' || s[n - 1] == ' ' || s[n - 1] == '\t');
-    if (!quote && strpbrk(s, ",\"\r\n;\t|")) {
-        quote = 1;
-    }
-    int mark = !(flags & PM_CSV_RAW) && formula_like(s);
+    int quote, mark;
+    field_form(s, n, flags, &quote, &mark);
     if (!quote) {
         if (mark) {
             fputc('\'', fp);
@@ -72,11 +78,8 @@ void pm_write_pair_oddsratio(const pm_pairs_t *pp, const pm_incidence_t *inc, si
 /* pm_write_csv_field's text at o (2 strlen(s) + 3 bytes at most); returns its end. */
 static char *csv_field_at(char *o, const char *s, unsigned flags) {
     size_t n = strlen(s);
-    int quote = n > 0 && (s[0] == ' ' || s[0] == '\t' || s[n - 1] == ' ' || s[n - 1] == '\t');
-    if (!quote && strpbrk(s, ",\"\r\n;\t|")) {
-        quote = 1;
-    }
-    int mark = !(flags & PM_CSV_RAW) && formula_like(s);
+    int quote, mark;
+    field_form(s, n, flags, &quote, &mark);
     if (!quote) {
         if (mark) {
             *o++ = '\'';

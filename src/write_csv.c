@@ -8,8 +8,8 @@
 #include <math.h>
 
 #include "pairmap/oddsratio.h"
-#include "parallel.h"
 #include "util.h"
+#include "windows.h"
 
 /* A cell that a spreadsheet would read as a formula (OWASP's CSV-injection guidance): it begins
  * with = + - @, a tab or a carriage return. */
@@ -171,7 +171,7 @@ static char *edge_numbers(char *o, const rows_src *r, size_t i) {
 
 /* Row i of edges.csv at o (row_room bytes); returns its end. The odds ratio of the exact
  * branch costs some microseconds per pair, the row's formatting about one: both are made on
- * all cores (rows_chunk), in windows of rows written in order. */
+ * all cores (pm_i_write_windows), in windows of rows written in order. */
 static char *edge_row(char *o, const rows_src *r, size_t i) {
     size_t k = r->e->idx[i];
     o = csv_field_at(o, r->inc->name[r->pp->a[k]], r->csv_flags);
@@ -180,56 +180,25 @@ static char *edge_row(char *o, const rows_src *r, size_t i) {
     return edge_numbers(o, r, i);
 }
 
-#define ROW_CHUNK 512    /* rows per chunk of the parallel loop */
-#define WINDOW_CHUNKS 64 /* chunks per window: about 8 MB of text at most in memory */
+#define ROW_CHUNK 512 /* rows per chunk of the parallel loop (pm_i_write_windows) */
 
-/* One window: chunk c holds rows from + c ROW_CHUNK on, its text in buf[c] (len[c] bytes of
- * cap[c]). The buffers are kept from window to window: their pages are touched once. */
-typedef struct {
-    const rows_src *r;
-    size_t from, to;
-    char *buf[WINDOW_CHUNKS];
-    size_t len[WINDOW_CHUNKS], cap[WINDOW_CHUNKS];
-} rows_window;
-
-static int rows_chunk(void *ud, size_t c, unsigned th) {
-    (void)th;
-    rows_window *w = ud;
-    size_t b = w->from + c * ROW_CHUNK, end = b + ROW_CHUNK < w->to ? b + ROW_CHUNK : w->to;
-    size_t room = 0;
-    for (size_t i = b; i < end; i++) {
-        room += row_room(w->r, i);
-    }
-    if (pm_i_grow((void **)&w->buf[c], &w->cap[c], room ? room : 1, 1) != 0) {
-        return 1; /* the window is written row by row instead */
-    }
-    char *o = w->buf[c];
-    for (size_t i = b; i < end; i++) {
-        o = edge_row(o, w->r, i);
-    }
-    w->len[c] = (size_t)(o - w->buf[c]);
-    return 0;
+static size_t row_room_cb(void *ud, size_t i) {
+    return row_room(ud, i);
 }
 
-/* Rows from .. to-1, made on all cores and written in order; without the memory for that,
- * each row made here and written on its own, as it is made (the same bytes). */
-static void write_window(FILE *fp, rows_window *w, size_t from, size_t to) {
-    const rows_src *r = w->r;
-    w->from = from;
-    w->to = to;
-    size_t nc = (to - from + ROW_CHUNK - 1) / ROW_CHUNK;
-    int rc = pm_i_parallel(pm_cpu_count(), nc, rows_chunk, w);
-    for (size_t c = 0; c < nc && !rc; c++) {
-        fwrite(w->buf[c], 1, w->len[c], fp);
-    }
-    for (size_t i = from; rc && i < to; i++) {
-        size_t k = r->e->idx[i];
-        char buf[24 * 65 + 2];
-        pm_write_csv_field(fp, r->inc->name[r->pp->a[k]], r->csv_flags);
-        fputc(',', fp);
-        pm_write_csv_field(fp, r->inc->name[r->pp->b[k]], r->csv_flags);
-        fwrite(buf, 1, (size_t)(edge_numbers(buf, r, i) - buf), fp);
-    }
+static char *edge_row_cb(void *ud, char *o, size_t i) {
+    return edge_row(o, ud, i);
+}
+
+/* Row i straight to fp, where a window's buffers cannot be had (names of any length). */
+static void edge_row_one(void *ud, FILE *fp, size_t i) {
+    const rows_src *r = ud;
+    size_t k = r->e->idx[i];
+    char buf[24 * 65 + 2];
+    pm_write_csv_field(fp, r->inc->name[r->pp->a[k]], r->csv_flags);
+    fputc(',', fp);
+    pm_write_csv_field(fp, r->inc->name[r->pp->b[k]], r->csv_flags);
+    fwrite(buf, 1, (size_t)(edge_numbers(buf, r, i) - buf), fp);
 }
 
 static pm_err_t edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
@@ -253,16 +222,8 @@ static pm_err_t edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *
                           unsigned csv_flags, pm_diag_t *diag) {
     fputs(with_strat ? PM_EDGES_HEADER PM_STRAT_HEADER "\n" : PM_EDGES_HEADER "\n", fp);
     rows_src r = {pp, inc, e, with_strat, st, csv_flags};
-    rows_window w;
-    memset(&w, 0, sizeof w);
-    w.r = &r;
-    const size_t per = (size_t)ROW_CHUNK * WINDOW_CHUNKS;
-    for (size_t from = 0; from < e->n && !ferror(fp); from += per) {
-        write_window(fp, &w, from, e->n - from < per ? e->n : from + per);
-    }
-    for (size_t c = 0; c < WINDOW_CHUNKS; c++) {
-        pm_i_free(w.buf[c]);
-    }
+    const pm_i_windows w = {e->n, ROW_CHUNK, row_room_cb, edge_row_cb, edge_row_one, &r};
+    pm_i_write_windows(fp, &w);
     return check(fp, diag);
 }
 

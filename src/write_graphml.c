@@ -8,8 +8,8 @@
 #include "pairmap/mapwrite.h"
 #include "pairmap/text.h"
 #include "pairmap/write.h"
-#include "parallel.h"
 #include "util.h"
+#include "windows.h"
 
 void pm_write_xml_text(FILE *fp, const char *s) {
     pm_text_xml_fputs(fp, s, 0); /* the one XML text cleaner (text.h) */
@@ -116,56 +116,27 @@ static char *edge_element(char *o, const pm_map_t *map, size_t k) {
     return put_str(o, "    </edge>\n");
 }
 
-#define EDGE_CHUNK 512   /* edges per chunk of the parallel loop */
-#define WINDOW_CHUNKS 64 /* chunks per window: 32 MB of buffers, about 10 MB of them touched */
+#define EDGE_CHUNK 512 /* edges per chunk of the parallel loop (pm_i_write_windows) */
 
-/* One window of edges: chunk c holds edges from + c EDGE_CHUNK on, its text in buf[c]. The
- * buffers are kept from window to window: their pages are touched once. */
-typedef struct {
-    const pm_map_t *map;
-    size_t from, to;
-    char *buf[WINDOW_CHUNKS];
-    size_t len[WINDOW_CHUNKS];
-} edge_window;
-
-static int edge_chunk(void *ud, size_t c, unsigned th) {
-    (void)th;
-    edge_window *w = ud;
-    size_t b = w->from + c * EDGE_CHUNK, end = b + EDGE_CHUNK < w->to ? b + EDGE_CHUNK : w->to;
-    if (!w->buf[c] && !(w->buf[c] = pm_i_malloc(EDGE_CHUNK, EDGE_ROOM))) {
-        return 1; /* the window is written edge by edge instead */
-    }
-    char *o = w->buf[c];
-    for (size_t k = b; k < end; k++) {
-        o = edge_element(o, w->map, k);
-    }
-    w->len[c] = (size_t)(o - w->buf[c]);
-    return 0;
+static size_t edge_room(void *ud, size_t k) {
+    (void)ud;
+    (void)k;
+    return EDGE_ROOM;
 }
 
-/* The edges' elements, each window's made on all cores and written in order; without the
- * memory for a window, each element made and written on its own (the same bytes). */
+static char *edge_make(void *ud, char *o, size_t k) {
+    return edge_element(o, ud, k);
+}
+
+static void edge_one(void *ud, FILE *fp, size_t k) {
+    char buf[EDGE_ROOM];
+    fwrite(buf, 1, (size_t)(edge_element(buf, ud, k) - buf), fp);
+}
+
+/* The edges' elements, made on all cores in windows and written in order. */
 static void graphml_edges(FILE *fp, const pm_map_t *map) {
-    const size_t per = (size_t)EDGE_CHUNK * WINDOW_CHUNKS, n = map->edges->n;
-    edge_window w;
-    memset(&w, 0, sizeof w);
-    w.map = map;
-    for (size_t from = 0; from < n && !ferror(fp); from += per) {
-        w.from = from;
-        w.to = n - from < per ? n : from + per;
-        size_t nc = (w.to - from + EDGE_CHUNK - 1) / EDGE_CHUNK;
-        int rc = pm_i_parallel(pm_cpu_count(), nc, edge_chunk, &w);
-        for (size_t c = 0; c < nc && !rc; c++) {
-            fwrite(w.buf[c], 1, w.len[c], fp);
-        }
-        for (size_t k = from; rc && k < w.to; k++) {
-            char buf[EDGE_ROOM];
-            fwrite(buf, 1, (size_t)(edge_element(buf, map, k) - buf), fp);
-        }
-    }
-    for (size_t c = 0; c < WINDOW_CHUNKS; c++) {
-        pm_i_free(w.buf[c]);
-    }
+    const pm_i_windows w = {map->edges->n, EDGE_CHUNK, edge_room, edge_make, edge_one, (void *)map};
+    pm_i_write_windows(fp, &w);
 }
 
 pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {

@@ -376,14 +376,17 @@ pm_err_t pm_shard_build(pm_table_t *t, const pm_incidence_t *inc, uint64_t k, ui
         goto done;
     }
     m = m ? m : 1;
-    for (size_t r = 0; r < inc->n_resp; r++) {
+    for (size_t r = 0; r < inc->n_resp && m == 1; r++) { /* the whole input: no id hashed */
+        sel[r] = !(inc->left_out && inc->left_out[r]);   /* --max-basket: in no part */
+    }
+    for (size_t r = 0; r < inc->n_resp && m > 1; r++) {
         const char *id = pm_table_respondent(t, r);
         char num[32];
         if (!id) { /* no id: the respondent's 1-based number */
             snprintf(num, sizeof num, "%llu", (unsigned long long)r + 1);
             id = num;
         }
-        sel[r] = m == 1 || pm_shard_part_of(id, strlen(id), m) == k;
+        sel[r] = pm_shard_part_of(id, strlen(id), m) == k;
         if (inc->left_out && inc->left_out[r]) {
             sel[r] = 0; /* --max-basket: in no part */
         }
@@ -404,11 +407,7 @@ pm_err_t pm_shard_build(pm_table_t *t, const pm_incidence_t *inc, uint64_t k, ui
     s->n_parts = 1;
     s->N = m == 1 ? inc->N : sub.N;
     s->respondents = use->n_resp - (m == 1 ? inc->n_left_out : 0); /* sub: none left out */
-    for (size_t i = 0; i < pm_table_nrows(t); i++) {
-        size_t r, it;
-        pm_table_row_index(t, i, &r, &it);
-        s->rows += r < inc->n_resp && sel[r];
-    }
+    s->rows = pm_table_rows_of(t, inc->n_resp, m == 1 && !inc->left_out ? NULL : sel);
     s->duplicates = m == 1 ? inc->duplicates : s->rows - use->row_ptr[use->n_resp];
     uint64_t collapsed = 0; /* rows merging made one (not duplicates of the input) */
     if (m > 1 && pm_i_merge_collapses(t, sel, &collapsed) != 0) {

@@ -664,6 +664,20 @@ void pm_table_row_index(const pm_table_t *t, size_t i, size_t *respondent, size_
     *respondent = t->row_resp[i];
     *item = t->row_item[i];
 }
+uint64_t pm_table_rows_of(const pm_table_t *t, size_t n, const unsigned char *sel) {
+    const uint32_t *rr = t->row_resp;
+    uint64_t k = 0;
+    if (!sel) {
+        for (size_t i = 0; i < t->n_rows; i++) {
+            k += rr[i] < n;
+        }
+        return k;
+    }
+    for (size_t i = 0; i < t->n_rows; i++) {
+        k += rr[i] < n && sel[rr[i]];
+    }
+    return k;
+}
 size_t pm_table_nitems(const pm_table_t *t) {
     return t->items.count;
 }

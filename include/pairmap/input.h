@@ -147,6 +147,9 @@ void pm_table_row(const pm_table_t *t, size_t i, const char **respondent, const 
 /* Respondent index (0 .. pm_table_nrespondents() - 1, in order of first appearance) and item
  * index (0 .. pm_table_nitems() - 1) of row i. */
 void pm_table_row_index(const pm_table_t *t, size_t i, size_t *respondent, size_t *item);
+/* The number of rows whose respondent index r is below n and, when sel is not NULL, has
+ * sel[r] set: one pass over the rows' respondent indices (no call per row). */
+uint64_t pm_table_rows_of(const pm_table_t *t, size_t n, const unsigned char *sel);
 size_t pm_table_nitems(const pm_table_t *t);
 size_t pm_table_nrespondents(const pm_table_t *t);
 const char *pm_table_respondent(const pm_table_t *t, size_t r);

@@ -172,6 +172,24 @@ static inline double phi_counts(uint64_t N, uint64_t na, uint64_t nb, uint64_t n
     return (double)(num / den);
 }
 
+double pm_i_assoc_pruned_p(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
+                           double lim) {
+    if (test_for(N, na, nb) == PM_TEST_FISHER) {
+        uint64_t K = na, n = nb, x = nab;
+        uint64_t lo = n > N - K ? n - (N - K) : 0, hi = K < n ? K : n;
+        if (x > hyper_mode(N, K, n) && x <= hi) { /* the first term is the one fisher() uses */
+            double e = exp(lpmf(lf, N, K, n, x));
+            if (e > lim) {
+                return INFINITY;
+            }
+            /* tail_upper: x above the clamped mode too (it is lo or the mode itself) */
+            return x <= lo ? 1.0 : e * upper_rel(N, K, n, x, hi);
+        }
+    }
+    unsigned char t;
+    return pm_i_assoc_counts_p(lf, N, na, nb, nab, PM_SIGN_POSITIVE, &t);
+}
+
 double pm_i_assoc_counts_p(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
                            pm_sign_t sign, unsigned char *test) {
     if (test_for(N, na, nb) == PM_TEST_FISHER) {

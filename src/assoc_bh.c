@@ -17,7 +17,7 @@ static int cmp_pgroup(const void *x, const void *y) {
 /* Sorts records whose first member is a p-value (a double) by it, stably. p-values are >= 0,
  * so their bit patterns order as unsigned integers (pm_i_radix_sort); -0.0 becomes 0 and a NaN
  * (impossible for eligible items) 1, which would otherwise break that order. */
-static int sort_pvalues(void *base, size_t n, size_t size) {
+int pm_i_sort_pvalues(void *base, size_t n, size_t size) {
     unsigned char *b = base;
     for (size_t i = 0; i < n; i++) {
         double p;
@@ -86,7 +86,7 @@ typedef struct {
 
 static void *sort_main(void *arg) {
     sort_job *j = arg;
-    j->rc = sort_pvalues(j->base, j->n, j->size);
+    j->rc = pm_i_sort_pvalues(j->base, j->n, j->size);
     return NULL;
 }
 
@@ -100,12 +100,11 @@ typedef struct {
  * pm_assoc_bh's cmp_pidx gives), pf and pd; the three sorts are independent, so pf (the
  * pruned p-values, the most numerous) runs on a second thread when there are many. */
 static pm_err_t sort_family(pm_i_family *f, unsigned threads) {
-    sort_job sj = {f->pf, f->npf, sizeof *f->pf, 0};
+    sort_job sj = {f->pf, f->pf_sorted ? 0 : f->npf, sizeof *f->pf, 0};
     pthread_t sth;
-    int sthreaded =
-        threads > 1 && f->npf > 100000 && pthread_create(&sth, NULL, sort_main, &sj) == 0;
-    int src =
-        sort_pvalues(f->lv, f->nlv, sizeof *f->lv) | sort_pvalues(f->pd, f->npd, sizeof *f->pd);
+    int sthreaded = threads > 1 && sj.n > 100000 && pthread_create(&sth, NULL, sort_main, &sj) == 0;
+    int src = pm_i_sort_pvalues(f->lv, f->nlv, sizeof *f->lv) |
+              pm_i_sort_pvalues(f->pd, f->npd, sizeof *f->pd);
     if (sthreaded) {
         pthread_join(sth, NULL);
     } else {

@@ -92,30 +92,24 @@ static inline int at_most_expected(uint64_t N, uint64_t na, uint64_t nb, uint64_
     return pm_i_joint_sign(N, na, nb, nab) <= 0;
 }
 
-/* True when the one-sided "greater" p-value of the table, P(X >= nab), is above lim by its
- * first term alone: where Fisher's test applies (smallest expected cell below 5) and nab is
- * above the mode, the p-value fisher() computes is exp(lpmf(nab)) times a sum of at least 1,
- * so exp(lpmf(nab)) > lim means p > lim, without the sum. */
-static int first_term_above(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
-                            double lim) {
-    if (test_for(N, na, nb) != PM_TEST_FISHER) {
-        return 0;
-    }
-    uint64_t K = na, n = nb, x = nab;
-    uint64_t hi = K < n ? K : n;
-    uint64_t mode = hyper_mode(N, K, n); /* fisher() clamps it to lo, below nab anyway */
-    if (x <= mode || x > hi) {
-        return 0;
-    }
-    return exp(lpmf(lf, N, K, n, x)) > lim;
-}
-
 /* Under a q limit below 0.49 (sign positive, unweighted: skip_mean), a pair whose p-value is
  * shown to exceed the limit without computing it: seen no more often than expected, or its
- * first Fisher term over the limit. */
-static inline int shown_above(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
-                              double lim) {
-    return at_most_expected(N, na, nb, nab) || first_term_above(lf, N, na, nb, nab, lim);
+ * first Fisher term over the limit (pm_i_assoc_pruned_p: where Fisher's test applies and nab
+ * is above the mode, the p-value is exp(lpmf(nab)) times a sum of at least 1). Such pairs get
+ * +INFINITY; the others their p-value, the first term computed once. */
+static inline double p_or_above(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
+                                double lim) {
+    return at_most_expected(N, na, nb, nab) ? INFINITY
+                                            : pm_i_assoc_pruned_p(lf, N, na, nb, nab, lim);
+}
+
+/* A pruned pair's p-value, or +INFINITY when it is shown above the limit without it. */
+static double pruned_p(const prune_ctx *c, uint32_t a, uint32_t b, uint32_t nab, double wab) {
+    const pm_incidence_t *inc = c->inc;
+    if (c->skip_mean) {
+        return p_or_above(c->lf, inc->N, inc->count[a], inc->count[b], nab, c->lim);
+    }
+    return pair_p(c->lf, inc, c->sign, c->neff, a, b, nab, wab, NULL);
 }
 
 static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t nab, double wab) {
@@ -125,12 +119,7 @@ static void on_prune(void *ud, unsigned thread, uint32_t a, uint32_t b, uint32_t
         return;
     }
     if (!c->keep_ids) {
-        const pm_incidence_t *inc = c->inc;
-        if (c->skip_mean && shown_above(c->lf, inc->N, inc->count[a], inc->count[b], nab, c->lim)) {
-            pb->above++;
-            return;
-        }
-        double p = pair_p(c->lf, inc, c->sign, c->neff, a, b, nab, wab, NULL);
+        double p = pruned_p(c, a, b, nab, wab);
         if (p > c->lim) {
             pb->above++;
             return;
@@ -181,10 +170,10 @@ static int p_chunk(void *ud, size_t c, unsigned th) {
     const pm_incidence_t *inc = j->inc;
     for (size_t k = b; k < e; k++) {
         uint64_t na = inc->count[pp->a[k]], nb = inc->count[pp->b[k]];
-        if (j->skip_mean && shown_above(j->lf, inc->N, na, nb, pp->n_ab[k], j->lim)) {
-            /* p above the q limit: not computed (the pair is never shown), only counted in
-             * the family */
-            pp->p[k] = INFINITY;
+        if (j->skip_mean) {
+            /* p above the q limit shown without it: not computed (the pair is never shown),
+             * only counted in the family; else the value, its first term computed once */
+            pp->p[k] = p_or_above(j->lf, inc->N, na, nb, pp->n_ab[k], j->lim);
             pp->test[k] = test_for(inc->N, na, nb);
             continue;
         }
@@ -526,26 +515,67 @@ static void listed_pvalues(pm_assoc_stage_t *st) {
     (void)pm_i_parallel(st->threads, nch, p_chunk, &j); /* runs every chunk */
 }
 
+enum { MERGE_MAX = 4 }; /* stores merged by looking at each one's head */
+
+static int sort_store(void *ud, size_t c, unsigned t) {
+    (void)t;
+    prune_buf *pb = &((prune_buf *)ud)[c];
+    return pm_i_sort_pvalues(pb->pf, pb->nf, sizeof *pb->pf) ? -1 : 0;
+}
+
+/* The threads' stores of pruned p-values (k of them, each in order) merged into out. */
+static void merge_stores(const prune_buf *bufs, unsigned k, double *out) {
+    size_t at[MERGE_MAX] = {0};
+    for (size_t o = 0;; o++) {
+        unsigned best = k;
+        for (unsigned t = 0; t < k; t++) {
+            if (at[t] < bufs[t].nf && (best == k || bufs[t].pf[at[t]] < bufs[best].pf[at[best]])) {
+                best = t;
+            }
+        }
+        if (best == k) {
+            return;
+        }
+        out[o] = bufs[best].pf[at[best]++];
+    }
+}
+
 /* Step 6: the pruned pairs' p-values, gathered from the threads' stores (those kept by
- * identity tested here); the ones above the q limit only counted. */
+ * identity tested here); the ones above the q limit only counted. With many of them (the large
+ * bench file has 13 million) each thread's store is sorted on a thread of its own and the
+ * stores merged, in place of one sort of them all on one thread: the same values in the same
+ * order (equal doubles cannot be told apart), and a radix sort's scratch of the same size. */
 static pm_err_t pruned_pvalues(pm_assoc_stage_t *st, pm_i_family *f) {
     for (unsigned t = 0; t < st->threads; t++) {
         f->npf += st->pc.bufs[t].nf;
         f->npd += st->pc.bufs[t].ni;
         f->above += st->pc.bufs[t].above;
     }
+    unsigned k = st->threads;
+    if (k > 1 && k <= MERGE_MAX && f->npf > 100000) {
+        if (pm_i_parallel(k, k, sort_store, st->pc.bufs)) {
+            return PM_ENOMEM;
+        }
+        f->pf_sorted = 1;
+    }
     f->pf = pm_i_malloc(f->npf ? f->npf : 1, sizeof *f->pf);
     f->pd = pm_i_malloc(f->npd ? f->npd : 1, sizeof *f->pd);
     if (!f->pf || !f->pd) {
         return PM_ENOMEM;
     }
+    if (f->pf_sorted) {
+        merge_stores(st->pc.bufs, k, f->pf);
+    }
     size_t at = 0, d = 0;
     for (unsigned t = 0; t < st->threads; t++) {
         prune_buf *pb = &st->pc.bufs[t];
-        if (pb->nf) {
+        if (pb->nf && !f->pf_sorted) {
             memcpy(f->pf + at, pb->pf, pb->nf * sizeof *f->pf);
         }
         at += pb->nf;
+        free(pb->pf); /* gathered: the store's memory back before the family's sort */
+        pb->pf = NULL;
+        pb->cf = 0;
         for (size_t i = 0; i < pb->ni; i++) {
             double p = pair_p(st->lf, st->inc, st->o.sign, st->neff, pb->a[i], pb->b[i], pb->n[i],
                               pb->w ? pb->w[i] : 0, NULL);
@@ -752,6 +782,23 @@ static pm_err_t listed_family(const pm_assoc_stage_t *st, pm_i_family *f) {
     return PM_OK;
 }
 
+/* How many of the p-values v[0..n), sorted ascending (as the walk left them: no NaN), have a
+ * q-value within the limit. A q-value never falls as p grows (the walk's running minimum, and
+ * +INFINITY above the limit), so they are a prefix of v: its length by halving, where asking
+ * each p-value's q (a search of its own) took a second on the large bench file's pruned pairs. */
+static uint64_t q_within(const pm_pairs_t *pp, const double *v, size_t n) {
+    size_t lo = 0, hi = n;
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        if (pm_pairs_qvalue(pp, v[mid]) <= pp->q_limit) {
+            lo = mid + 1;
+        } else {
+            hi = mid;
+        }
+    }
+    return lo;
+}
+
 pm_err_t pm_assoc_finish(pm_assoc_stage_t *st, pm_counts_t *cnt, pm_pairs_t **out,
                          pm_diag_t *diag) {
     *out = NULL;
@@ -775,11 +822,7 @@ pm_err_t pm_assoc_finish(pm_assoc_stage_t *st, pm_counts_t *cnt, pm_pairs_t **ou
         rc = pm_i_assoc_family_bh(st->pp, &f, st->threads);
     }
     if (rc == PM_OK) { /* the pruned pairs that --min-count alone keeps out of the listing */
-        st->pp->below_count_q = 0;
-        for (size_t i = 0; i < f.npf + f.npd; i++) {
-            double p = i < f.npf ? f.pf[i] : f.pd[i - f.npf];
-            st->pp->below_count_q += pm_pairs_qvalue(st->pp, p) <= st->pp->q_limit;
-        }
+        st->pp->below_count_q = q_within(st->pp, f.pf, f.npf) + q_within(st->pp, f.pd, f.npd);
     }
     free(f.lv);
     free(f.pf);

@@ -61,6 +61,12 @@ static inline unsigned char test_for(uint64_t N, uint64_t na, uint64_t nb) {
 /* The p-value of a table and its test (phi only when chi-square needs it). */
 double pm_i_assoc_counts_p(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
                            pm_sign_t sign, unsigned char *test);
+/* A pruned table's one-sided "greater" p-value under a q limit lim (sign positive, unweighted,
+ * the pair seen more often than expected), or +INFINITY when its first Fisher term alone is
+ * above lim: first_term_above's test and pm_i_assoc_counts_p's value in one, the first term
+ * computed once (the same bits as the two apart). */
+double pm_i_assoc_pruned_p(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
+                           double lim);
 /* The measures of a table; its p-value too when with_test is set (else NaN). */
 void pm_i_assoc_counts_measures(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb, uint64_t nab,
                                 pm_sign_t sign, pm_measures_t *m, int with_test);
@@ -88,7 +94,12 @@ typedef struct {
     pgroup *groups;
     size_t ngroups;
     uint64_t above;
+    int pf_sorted; /* pf is in order already (sorted per thread and merged) */
 } pm_i_family;
+
+/* Sorts n records of `size` bytes whose first member is a p-value (a double) by it, stably;
+ * -0.0 becomes 0 and a NaN 1 (in place). 0, or -1 when out of memory (nothing moved then). */
+int pm_i_sort_pvalues(void *base, size_t n, size_t size);
 
 /* Sorts the family's p-values (pf on a second thread when there are many) and fills pp->q of
  * the listed pairs and the lookup table pp->qp/qq by one walk from the largest p downwards. */

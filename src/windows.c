@@ -1,4 +1,4 @@
-/* Text made on all cores and written in order (src/windows.h). */
+/* Text made on several threads and written in order (src/windows.h). */
 #include "windows.h"
 
 #include <string.h>
@@ -43,7 +43,7 @@ void pm_i_write_windows(FILE *fp, const pm_i_windows *w) {
         x.from = from;
         x.to = w->n - from < per ? w->n : from + per;
         size_t nc = (x.to - from + w->chunk - 1) / w->chunk;
-        int rc = pm_i_parallel(pm_cpu_count(), nc, chunk_text, &x);
+        int rc = pm_i_parallel(w->threads ? w->threads : pm_cpu_count(), nc, chunk_text, &x);
         for (size_t c = 0; c < nc && !rc; c++) {
             fwrite(x.buf[c], 1, x.len[c], fp);
         }

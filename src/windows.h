@@ -1,4 +1,5 @@
-/* Text made on all cores and written in order (edges.csv's rows, map.graphml's edges). */
+/* Text made on several threads and written in order (edges.csv's rows, map.graphml's edges,
+ * map.html's long columns). */
 #ifndef PM_WINDOWS_H
 #define PM_WINDOWS_H
 
@@ -15,10 +16,11 @@ typedef struct {
     char *(*make)(void *ud, char *o, size_t i);
     void (*write_one)(void *ud, FILE *fp, size_t i);
     void *ud;
+    unsigned threads; /* threads the text is made on (0: one per core) */
 } pm_i_windows;
 
 /* Writes the items in order, in windows of PM_I_WINDOW_CHUNKS chunks: each chunk's text made
- * on all cores into a buffer of its own (kept from window to window, so that its pages are
+ * on w->threads threads into a buffer of its own (kept from window to window, so that its pages are
  * touched once), the buffers then written in order; a window where a chunk's buffer cannot
  * be had is written item by item with write_one instead. Stops between windows once fp has
  * an error. The bytes depend on the items only, never on the threads. */

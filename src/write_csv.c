@@ -171,7 +171,7 @@ static char *edge_numbers(char *o, const rows_src *r, size_t i) {
 
 /* Row i of edges.csv at o (row_room bytes); returns its end. The odds ratio of the exact
  * branch costs some microseconds per pair, the row's formatting about one: both are made on
- * all cores (pm_i_write_windows), in windows of rows written in order. */
+ * the threads asked for (pm_i_write_windows), in windows of rows written in order. */
 static char *edge_row(char *o, const rows_src *r, size_t i) {
     size_t k = r->e->idx[i];
     o = csv_field_at(o, r->inc->name[r->pp->a[k]], r->csv_flags);
@@ -201,28 +201,24 @@ static void edge_row_one(void *ud, FILE *fp, size_t i) {
     fwrite(buf, 1, (size_t)(edge_numbers(buf, r, i) - buf), fp);
 }
 
-static pm_err_t edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
-                          const pm_edges_t *e, int with_strat, const pm_strat_t *st,
-                          unsigned csv_flags, pm_diag_t *diag);
-
 pm_err_t pm_write_edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
                             const pm_edges_t *e, unsigned csv_flags, pm_diag_t *diag) {
-    return edges_csv(fp, pp, inc, e, 0, NULL, csv_flags, diag);
+    return pm_write_edges_csv_on(fp, pp, inc, e, 0, NULL, csv_flags, 0, diag);
 }
 
 pm_err_t pm_write_edges_csv_strat(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
                                   const pm_edges_t *e, const pm_strat_t *st, unsigned csv_flags,
                                   pm_diag_t *diag) {
-    return edges_csv(fp, pp, inc, e, 1, st, csv_flags, diag);
+    return pm_write_edges_csv_on(fp, pp, inc, e, 1, st, csv_flags, 0, diag);
 }
 
 /* Each row depends on its pair only: the same bytes on any number of threads. */
-static pm_err_t edges_csv(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
-                          const pm_edges_t *e, int with_strat, const pm_strat_t *st,
-                          unsigned csv_flags, pm_diag_t *diag) {
+pm_err_t pm_write_edges_csv_on(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
+                               const pm_edges_t *e, int with_strat, const pm_strat_t *st,
+                               unsigned csv_flags, unsigned threads, pm_diag_t *diag) {
     fputs(with_strat ? PM_EDGES_HEADER PM_STRAT_HEADER "\n" : PM_EDGES_HEADER "\n", fp);
     rows_src r = {pp, inc, e, with_strat, st, csv_flags};
-    const pm_i_windows w = {e->n, ROW_CHUNK, row_room_cb, edge_row_cb, edge_row_one, &r};
+    const pm_i_windows w = {e->n, ROW_CHUNK, row_room_cb, edge_row_cb, edge_row_one, &r, threads};
     pm_i_write_windows(fp, &w);
     return check(fp, diag);
 }

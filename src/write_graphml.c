@@ -133,9 +133,10 @@ static void edge_one(void *ud, FILE *fp, size_t k) {
     fwrite(buf, 1, (size_t)(edge_element(buf, ud, k) - buf), fp);
 }
 
-/* The edges' elements, made on all cores in windows and written in order. */
+/* The edges' elements, made on --threads threads in windows and written in order. */
 static void graphml_edges(FILE *fp, const pm_map_t *map) {
-    const pm_i_windows w = {map->edges->n, EDGE_CHUNK, edge_room, edge_make, edge_one, (void *)map};
+    const pm_i_windows w = {map->edges->n, EDGE_CHUNK,  edge_room,   edge_make,
+                            edge_one,      (void *)map, map->threads};
     pm_i_write_windows(fp, &w);
 }
 
@@ -195,7 +196,7 @@ pm_err_t pm_write_graphml(FILE *fp, const pm_map_t *map, pm_diag_t *diag) {
             break;
         }
     }
-    /* the edges, most of the file: made on all cores in windows (graphml_edges) */
+    /* the edges, most of the file: made on the map's threads in windows (graphml_edges) */
     graphml_edges(fp, map);
     fputs("  </graph>\n</graphml>\n", fp);
     if (ferror(fp)) {

@@ -11,6 +11,7 @@
 #include "pairmap/text.h"
 #include "pairmap/write.h"
 #include "util.h"
+#include "windows.h"
 
 /* ---- JSON pieces (compact: the page's weight matters) ---------------------------------------- */
 static void jstr(FILE *fp, const char *s) {
@@ -42,9 +43,42 @@ static void jkey(FILE *fp, const char *key, int first) {
 #define JBUF 65536
 #define JROOM 80 /* the longest number, its comma and "null" fit */
 
+/* One number of a column and the comma before it (not before the first). */
+static size_t jnum_room(void *ud, size_t i) {
+    (void)ud;
+    (void)i;
+    return JROOM;
+}
+
+static char *jnum_make(void *ud, char *o, size_t i) {
+    const double *v = ud;
+    if (i) {
+        *o++ = ',';
+    }
+    if (isfinite(v[i])) {
+        return o + pm_i_fmt_double(o, JROOM, v[i]);
+    }
+    memcpy(o, "null", 4);
+    return o + 4;
+}
+
+static void jnum_one(void *ud, FILE *fp, size_t i) {
+    char t[JROOM];
+    fwrite(t, 1, (size_t)(jnum_make(ud, t, i) - t), fp);
+}
+
+#define JNUMS_PAR 65536 /* columns this long are made on all cores (pm_i_write_windows) */
+
 /* "key":[v0,v1,...] of n numbers */
-static void jnums(FILE *fp, const char *key, const double *v, size_t n) {
+static void jnums_on(FILE *fp, const char *key, const double *v, size_t n, unsigned threads) {
     jkey(fp, key, 0);
+    if (n >= JNUMS_PAR) { /* the same text, in windows of chunks made on all cores */
+        fputc('[', fp);
+        const pm_i_windows w = {n, 1024, jnum_room, jnum_make, jnum_one, (void *)v, threads};
+        pm_i_write_windows(fp, &w);
+        fputc(']', fp);
+        return;
+    }
     char buf[JBUF];
     size_t o = 0;
     buf[o++] = '[';
@@ -124,21 +158,21 @@ static pm_err_t write_items(FILE *fp, const pm_html_data_t *d, double *buf) {
     for (size_t v = 0; v < n; v++) {
         buf[v] = (double)inc->count[map->item[v]];
     }
-    jnums(fp, "respondents", buf, n);
+    jnums_on(fp, "respondents", buf, n, d->threads);
     for (size_t v = 0; v < n; v++) {
         buf[v] = pm_incidence_share(inc, map->item[v]);
     }
-    jnums(fp, "share", buf, n);
-    jnums(fp, "share_low", map->share_low, n);
-    jnums(fp, "share_high", map->share_high, n);
+    jnums_on(fp, "share", buf, n, d->threads);
+    jnums_on(fp, "share_low", map->share_low, n, d->threads);
+    jnums_on(fp, "share_high", map->share_high, n, d->threads);
     for (size_t v = 0; v < n; v++) {
         buf[v] = map->clusters->cluster[v];
     }
-    jnums(fp, "cluster", buf, n);
+    jnums_on(fp, "cluster", buf, n, d->threads);
     for (size_t v = 0; v < n; v++) {
         buf[v] = map->degree[v];
     }
-    jnums(fp, "degree", buf, n);
+    jnums_on(fp, "degree", buf, n, d->threads);
     /* names as the SVG writes them (data-item, data-a, data-b) where the XML cleaner changes
      * them: [[vertex, name], ...] */
     jkey(fp, "svg_name", 0);
@@ -217,7 +251,7 @@ static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
         if (!inc->wcount && (col == 1 || col == 2 || col == 5 || col == 8)) {
             continue;
         }
-        jnums(fp, cols[col], buf + slot[col] * m, m);
+        jnums_on(fp, cols[col], buf + slot[col] * m, m, d->threads);
     }
     fputc('}', fp);
 }

@@ -44,6 +44,7 @@ typedef struct {
      * item[]); NULL: nodes.csv computes them */
     const double *share_low, *share_high;
     unsigned csv_flags; /* pm_write_csv_field flags of nodes.csv's names (write.h) */
+    unsigned threads;   /* threads map.graphml's edges are made on (0: one per core) */
     /* [clusters->n_clusters] optional: the clusters' names (pm_cluster_name); NULL: made here
      * by pm_cluster_name from the items' names */
     const char *const *cluster_name;

@@ -38,6 +38,12 @@ pm_err_t pm_write_edges_csv_strat(FILE *fp, const pm_pairs_t *pp, const pm_incid
                                   const pm_edges_t *e, const pm_strat_t *st, unsigned csv_flags,
                                   pm_diag_t *diag);
 
+/* Either of the two above (with_strat: the within-segment columns from st) with the rows made
+ * on `threads` threads (0: one per core); the bytes do not depend on it. */
+pm_err_t pm_write_edges_csv_on(FILE *fp, const pm_pairs_t *pp, const pm_incidence_t *inc,
+                               const pm_edges_t *e, int with_strat, const pm_strat_t *st,
+                               unsigned csv_flags, unsigned threads, pm_diag_t *diag);
+
 /* The odds ratio of listed pair k of pp (measures m from pm_pairs_measures: its test picks the
  * branch), as edges.csv writes it. */
 void pm_write_pair_oddsratio(const pm_pairs_t *pp, const pm_incidence_t *inc, size_t k,

@@ -541,6 +541,7 @@ int pm_cmd_map(int argc, char **argv) {
     run_state s;
     memset(&s, 0, sizeof s);
     s.csv_flags = pm_cli_csv_flags(&c);
+    s.threads = th;
     pm_diag_t d;
     pm_diag_clear(&d);
     pm_cli_signals_catch();

@@ -46,6 +46,7 @@ typedef struct {
     pm_cli_mapseg_t seg; /* --segment-col: segments.csv, segments.svg */
     int iterations;      /* the layout's, resolved */
     unsigned csv_flags;  /* --csv-raw */
+    unsigned threads;    /* --threads (0: one per core) */
     int with_strat;      /* --segment-col: edges.csv gains the within-segment columns */
     pm_strat_t *strat;   /* [e->n] (NULL: empty cells, weighted input) */
     const char *within;  /* --pair-test within: the column of the test, else NULL */

@@ -178,8 +178,7 @@ int pm_cmd_pairs(int argc, char **argv) {
     if (pm_cli_text_out(&c) && nseg == 0) { /* the segment columns: CSV only */
         print_text(&c, pp, inc, &sel, e);
     } else {
-        wr = nseg ? pm_write_edges_csv_strat(stdout, pp, inc, e, st, pm_cli_csv_flags(&c), &d)
-                  : pm_write_edges_csv(stdout, pp, inc, e, pm_cli_csv_flags(&c), &d);
+        wr = pm_write_edges_csv_on(stdout, pp, inc, e, nseg > 0, st, pm_cli_csv_flags(&c), th, &d);
     }
     free(st);
     if (wr) {

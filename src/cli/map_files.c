@@ -121,9 +121,8 @@ void pm_cli_map_early_join(run_state *s) {
 }
 
 static pm_err_t write_edges(const run_state *s, FILE *fp, pm_diag_t *d) {
-    return s->with_strat
-               ? pm_write_edges_csv_strat(fp, s->pp, s->inc, s->e, s->strat, s->csv_flags, d)
-               : pm_write_edges_csv(fp, s->pp, s->inc, s->e, s->csv_flags, d);
+    return pm_write_edges_csv_on(fp, s->pp, s->inc, s->e, s->with_strat, s->strat, s->csv_flags,
+                                 s->threads, d);
 }
 
 static void *early_main(void *arg) {
@@ -246,6 +245,7 @@ static int files_prepare(files_job *fj, const pm_cli_t *c, const net_opts *no,
         .eb = s->eb,
         .title = no->title,
         .csv_flags = s->csv_flags,
+        .threads = s->threads,
         .cluster_name = (const char *const *)s->cluster_name,
         .n_seg = s->seg.n,
         .segcols = s->seg.cols,

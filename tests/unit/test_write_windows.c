@@ -13,6 +13,7 @@
 
 #include "pairmap/select.h"
 #include "pairmap/write.h"
+#include "parallel.h"
 #include "util.h"
 
 #define NI 400
@@ -68,8 +69,8 @@ static void family_free(pm_pairs_t *pp) {
 
 /* edges.csv of every pair in the family's order (after the first allocation failure
  * fail_at, 0: none) in a malloc'd string of *len bytes. */
-static char *edges_text(const pm_pairs_t *pp, const pm_incidence_t *inc, long fail_at,
-                        size_t *len) {
+static char *edges_text_on(const pm_pairs_t *pp, const pm_incidence_t *inc, long fail_at,
+                           unsigned threads, size_t *len) {
     pm_edges_t e;
     memset(&e, 0, sizeof e);
     e.n = NP;
@@ -86,13 +87,19 @@ static char *edges_text(const pm_pairs_t *pp, const pm_incidence_t *inc, long fa
     pm_diag_t d;
     pm_diag_clear(&d);
     pm_i_alloc_fail_after(fail_at);
-    pm_err_t rc = pm_write_edges_csv(fp, pp, inc, &e, 0, &d);
+    pm_err_t rc = threads ? pm_write_edges_csv_on(fp, pp, inc, &e, 0, NULL, 0, threads, &d)
+                          : pm_write_edges_csv(fp, pp, inc, &e, 0, &d);
     pm_i_alloc_fail_after(0);
     assert_int_equal(rc, PM_OK);
     assert_int_equal(fclose(fp), 0);
     free(e.idx);
     free(e.weight);
     return text;
+}
+
+static char *edges_text(const pm_pairs_t *pp, const pm_incidence_t *inc, long fail_at,
+                        size_t *len) {
+    return edges_text_on(pp, inc, fail_at, 0, len);
 }
 
 /* One row per edge, in the edges' order: row k names pair k's items "i%05u" (unit.h). */
@@ -143,10 +150,34 @@ static void test_windows_without_memory(void **state) {
     pm_incidence_free(inc);
 }
 
+/* --threads reaches the windows: the rows are made on as many threads as asked (the last
+ * window's 28 chunks on exactly that many; the threads' count of the last parallel loop,
+ * pm_i_parallel_last_threads), never on one per core regardless, and the bytes are the same
+ * for each. */
+static void test_windows_threads(void **state) {
+    (void)state;
+    pm_incidence_t *inc = family_inc();
+    pm_pairs_t *pp = family_pairs();
+    size_t len = 0;
+    char *want = edges_text(pp, inc, 0, &len);
+    for (unsigned th = 1; th <= 3; th++) {
+        size_t n = 0;
+        char *got = edges_text_on(pp, inc, 0, th, &n);
+        assert_int_equal(pm_i_parallel_last_threads(), th);
+        assert_int_equal(n, len);
+        assert_memory_equal(got, want, len);
+        free(got);
+    }
+    free(want);
+    family_free(pp);
+    pm_incidence_free(inc);
+}
+
 int main(void) {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_windows_rows_in_order),
         cmocka_unit_test(test_windows_without_memory),
+        cmocka_unit_test(test_windows_threads),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

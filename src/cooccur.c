@@ -214,6 +214,23 @@ static size_t touched_in_order(uint64_t *mark, uint32_t *touched, size_t nt, siz
     return n;
 }
 
+size_t pm_i_counts_scan_items = 65536;
+
+/* The items marked with item a (all > a) in increasing order into touched, and mark cleared;
+ * returns their number. */
+static size_t marked_in_order(uint64_t *mark, uint32_t *touched, size_t a, size_t E) {
+    size_t n = 0;
+    for (size_t w = (a + 1) >> 6, w1 = (E - 1) >> 6; w <= w1; w++) {
+        uint64_t x = mark[w];
+        mark[w] = 0;
+        while (x) {
+            touched[n++] = (uint32_t)(w * 64 + (size_t)__builtin_ctzll(x));
+            x &= x - 1;
+        }
+    }
+    return n;
+}
+
 static int sparse_chunk(void *ud, size_t c, unsigned th) {
     kstate *k = ud;
     chunkout *co = chunk_begin(k, c, th);
@@ -222,6 +239,11 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
     uint32_t *touched = k->touched[th];
     uint64_t *mark = k->mark[th];
     uint64_t work = 0;
+    /* unweighted with up to 65536 items (pm_i_counts_scan_items): every visit counts and
+     * marks without a branch (whether a partner is new is a coin toss for the branch
+     * predictor), and the partners are read off the marks, a scan of at most 1,024 words per
+     * item; beyond that the list of the touched ones */
+    const int scan = !wacc && k->E <= pm_i_counts_scan_items;
     for (size_t a = k->cbeg[c]; a < k->cbeg[c + 1]; a++) {
         size_t nt = 0;
         const uint64_t t_end = k->tp[a + 1];
@@ -254,6 +276,13 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
                     }
                     wacc[b] += w;
                 }
+            } else if (scan) { /* no branch: the partners are found in mark afterwards */
+                for (uint64_t q = beg; q < end; q++) {
+                    uint32_t b = row[q];
+                    acc[b]++;
+                    mark[b >> 6] |= (uint64_t)1 << (b & 63);
+                }
+                nt += end > beg;
             } else {
                 for (uint64_t q = beg; q < end; q++) {
                     uint32_t b = row[q];
@@ -267,7 +296,8 @@ static int sparse_chunk(void *ud, size_t c, unsigned th) {
         if (nt == 0) {
             continue;
         }
-        nt = touched_in_order(mark, touched, nt, a, k->E);
+        nt = scan ? marked_in_order(mark, touched, a, k->E)
+                  : touched_in_order(mark, touched, nt, a, k->E);
         for (size_t i = 0; i < nt; i++) {
             uint32_t b = touched[i];
             double wab = 0;

@@ -16,6 +16,9 @@ void *pm_i_realloc(void *p, size_t n, size_t size);
 void pm_i_free(void *p);
 /* Test hook: make the n-th allocation from now fail (0 disables). Not thread-safe. */
 void pm_i_alloc_fail_after(long n);
+/* Test hook: the sparse counting kernel reads an item's partners off its marks (no branch per
+ * visit) up to this many eligible items, unweighted (default 65536); 0: always the list. */
+extern size_t pm_i_counts_scan_items;
 
 /* Grows *p (holding *cap elements of size) to hold at least need elements. 0 on success. */
 int pm_i_grow(void **p, size_t *cap, size_t need, size_t size);

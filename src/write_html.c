@@ -199,32 +199,16 @@ static pm_err_t write_items(FILE *fp, const pm_html_data_t *d, double *buf) {
     return PM_OK;
 }
 
-/* The kept edges, columnar: vertex indices a < b and the numbers of the partner table for
- * both directions (buf: EDGE_COLS * edges numbers, column by column in the order of slot[]:
- * both lower bounds side by side and both upper bounds, so that the 2 x edges Jeffreys
- * intervals are solved in one call). */
+/* The partner table's numbers for both directions (cols: EDGE_COLS * edges numbers, column by
+ * column in the order of slot[]: both lower bounds side by side and both upper bounds, so that
+ * the 2 x edges Jeffreys intervals are solved in one call). */
 #define EDGE_COLS 11
-static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
-    const pm_map_t *map = d->map;
+static const size_t slot[EDGE_COLS] = {0, 1, 2, 3, 4, 5, 7, 9, 6, 8, 10};
+
+static void edge_columns(const pm_map_t *map, unsigned threads, double *buf) {
     const pm_incidence_t *inc = map->inc;
     const pm_pairs_t *pp = map->pairs;
     size_t m = map->edges->n;
-    jkey(fp, "edges", 0);
-    fputc('{', fp);
-    jindices(fp, "a", 1, map->ea, m);
-    jindices(fp, "b", 0, map->eb, m);
-    static const char *const cols[EDGE_COLS] = {"together",
-                                                "expected",
-                                                "lift",
-                                                "phi",
-                                                "q_value",
-                                                "confidence_ab",
-                                                "confidence_ab_low",
-                                                "confidence_ab_high",
-                                                "confidence_ba",
-                                                "confidence_ba_low",
-                                                "confidence_ba_high"};
-    static const size_t slot[EDGE_COLS] = {0, 1, 2, 3, 4, 5, 7, 9, 6, 8, 10};
     double *lo = buf + 7 * m, *hi = buf + 9 * m; /* a -> b at k, b -> a at m + k */
     for (size_t k = 0; k < m; k++) {
         size_t idx = map->edges->idx[k];
@@ -243,7 +227,45 @@ static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
         pm_assoc_confidence_args(inc, pp->b[idx], pp->n_ab[idx], w_ab, &buf[6 * m + k], &lo[m + k],
                                  &hi[m + k]);
     }
-    pm_assoc_jeffreys_many(lo, hi, 2 * m, 0.05, d->threads, lo, hi);
+    pm_assoc_jeffreys_many(lo, hi, 2 * m, 0.05, threads, lo, hi);
+}
+
+double *pm_html_edge_columns(const pm_map_t *map, unsigned threads) {
+    size_t m = map->edges->n;
+    double *cols =
+        m <= SIZE_MAX / EDGE_COLS ? malloc((m ? m : 1) * EDGE_COLS * sizeof *cols) : NULL;
+    if (cols) {
+        edge_columns(map, threads, cols);
+    }
+    return cols;
+}
+
+/* The kept edges, columnar: vertex indices a < b and the partner table's columns (from
+ * d->edge_cols, else made in buf). */
+static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
+    const pm_map_t *map = d->map;
+    const pm_incidence_t *inc = map->inc;
+    size_t m = map->edges->n;
+    jkey(fp, "edges", 0);
+    fputc('{', fp);
+    jindices(fp, "a", 1, map->ea, m);
+    jindices(fp, "b", 0, map->eb, m);
+    static const char *const cols[EDGE_COLS] = {"together",
+                                                "expected",
+                                                "lift",
+                                                "phi",
+                                                "q_value",
+                                                "confidence_ab",
+                                                "confidence_ab_low",
+                                                "confidence_ab_high",
+                                                "confidence_ba",
+                                                "confidence_ba_low",
+                                                "confidence_ba_high"};
+    const double *v = d->edge_cols;
+    if (!v) {
+        edge_columns(map, d->threads, buf);
+        v = buf;
+    }
     for (size_t col = 0; col < EDGE_COLS; col++) {
         /* unweighted, expected, lift and both confidences are one or two double operations
          * on the counts the page holds (src/assoc.c's order): the script derives them, bit
@@ -251,7 +273,7 @@ static void write_edges(FILE *fp, const pm_html_data_t *d, double *buf) {
         if (!inc->wcount && (col == 1 || col == 2 || col == 5 || col == 8)) {
             continue;
         }
-        jnums_on(fp, cols[col], buf + slot[col] * m, m, d->threads);
+        jnums_on(fp, cols[col], v + slot[col] * m, m, d->threads);
     }
     fputc('}', fp);
 }
@@ -428,7 +450,7 @@ pm_err_t pm_html_write(FILE *fp, const pm_html_data_t *d, pm_diag_t *diag) {
     if (m > SIZE_MAX / EDGE_COLS) {
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");
     }
-    size_t cap = map->n > m * EDGE_COLS ? map->n : m * EDGE_COLS;
+    size_t cap = d->edge_cols || map->n > m * EDGE_COLS ? map->n : m * EDGE_COLS;
     double *buf = pm_i_malloc(cap ? cap : 1, sizeof *buf);
     if (!buf) {
         return pm_diag_set(diag, PM_ENOMEM, NULL, 0, "out of memory");

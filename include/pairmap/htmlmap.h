@@ -53,8 +53,15 @@ typedef struct {
     const pm_html_run_t *run;
     size_t n_segments; /* segment columns (0: no selector) */
     const pm_html_segments_t *segments;
-    unsigned threads; /* for the partner table's Jeffreys intervals (0: all cores) */
+    unsigned threads;        /* for the partner table's Jeffreys intervals (0: all cores) */
+    const double *edge_cols; /* pm_html_edge_columns(map, ...), or NULL: made while writing */
 } pm_html_data_t;
+
+/* The numbers of the page's partner table (the measures and Jeffreys intervals of both
+ * directions of every kept edge, on `threads` threads), which pm_html_write otherwise computes
+ * itself: for a caller that has them made beside other work. malloc'd (free() it), NULL when
+ * out of memory; PM_HTML_EDGE_BYTES covers it. */
+double *pm_html_edge_columns(const pm_map_t *map, unsigned threads);
 
 /* Writes the page to fp. Every text of the data reaches the page through one of two escapers:
  * the XML escaper (pm_write_xml_text) for the title, and pm_json_write_script_string for the

@@ -224,6 +224,10 @@ typedef struct {
     const pm_map_t *map;
     const pm_select_opts_t *sel;
     const pm_table_t *table;
+    /* map.html's partner table made beside the picture: waits for it and returns it (NULL:
+     * made while writing the page); NULL: none */
+    const double *(*edge_cols)(void *ud);
+    void *edge_cols_ud;
 } pm_cli_map_picture_t;
 pm_err_t pm_cli_map_picture(const pm_cli_map_picture_t *p, pm_svg_stats_t *stats, pm_diag_t *diag);
 

@@ -7,6 +7,7 @@
 #include <unistd.h>
 
 #include "cmd_map.h"
+#include "pairmap/htmlmap.h"
 #include "pairmap/mapwrite.h"
 #include "pairmap/write.h"
 
@@ -149,12 +150,33 @@ void pm_cli_map_early_start(run_state *s, unsigned threads) {
     }
 }
 
+/* map.html's partner table, made on the second writer thread before the GraphML (the page is
+ * written last, after the picture, on this thread) and handed over under a lock. */
+typedef struct {
+    pthread_mutex_t mu;
+    pthread_cond_t cv;
+    int want, done;
+    double *cols;
+    unsigned threads;
+} html_cols;
+
 typedef struct {
     const pm_map_t *map;
     FILE *graphml, *nodes;
     pm_err_t *rc_graphml, *rc_nodes;
     pm_diag_t *d_graphml, *d_nodes;
+    html_cols *hc;
 } side_job;
+
+static const double *cols_wait(void *ud) {
+    html_cols *hc = ud;
+    pthread_mutex_lock(&hc->mu);
+    while (hc->want && !hc->done) {
+        pthread_cond_wait(&hc->cv, &hc->mu);
+    }
+    pthread_mutex_unlock(&hc->mu);
+    return hc->cols;
+}
 
 /* PM_DEBUG_RUNS=FILE (for the reference checks, tests/ref/cluster_stability.py): every
  * Louvain run's community labels, one line per item: item, then one label per run, and a
@@ -182,6 +204,15 @@ static void debug_runs(const run_state *s) {
 
 static void *side_writer(void *arg) {
     side_job *j = arg;
+    html_cols *hc = j->hc;
+    if (hc->want) {
+        double *cols = pm_html_edge_columns(j->map, hc->threads);
+        pthread_mutex_lock(&hc->mu);
+        hc->cols = cols;
+        hc->done = 1;
+        pthread_cond_signal(&hc->cv);
+        pthread_mutex_unlock(&hc->mu);
+    }
     *j->rc_graphml = pm_write_graphml(j->graphml, j->map, j->d_graphml);
     early_sync(j->graphml);
     *j->rc_nodes = pm_write_nodes_csv(j->nodes, j->map, j->d_nodes);
@@ -327,15 +358,18 @@ static pm_err_t files_write(files_job *fj, run_state *s, pm_diag_t *d) {
     if (rc) {
         return rc; /* files_finish joins the early thread */
     }
+    html_cols hc = {.want = !pm_cli_flag(fj->c, "no-html"), .threads = fj->nthreads};
+    pthread_mutex_init(&hc.mu, NULL);
+    pthread_cond_init(&hc.cv, NULL);
     side_job job = {&fj->map,    fj->fps[0], fj->fps[3], &fj->wrc[0],
-                    &fj->wrc[3], &fj->wd[0], &fj->wd[3]};
+                    &fj->wrc[3], &fj->wd[0], &fj->wd[3], &hc};
     pthread_t th;
     int threaded = fj->nthreads != 1 && pthread_create(&th, NULL, side_writer, &job) == 0;
     if (!threaded) {
         side_writer(&job);
     }
-    pm_cli_map_picture_t pic = {fj->c,   s->od,    fj->no->dir, fj->fps[1], &fj->sd,
-                                &fj->so, &fj->map, fj->sel,     s->t};
+    pm_cli_map_picture_t pic = {fj->c,    s->od,   fj->no->dir, fj->fps[1], &fj->sd, &fj->so,
+                                &fj->map, fj->sel, s->t,        cols_wait,  &hc};
     fj->wrc[1] = pm_cli_map_picture(&pic, &s->svg, &fj->wd[1]); /* map.svg, map.html */
     early_sync(fj->fps[1]);
     if (!fj->early) {
@@ -345,6 +379,9 @@ static pm_err_t files_write(files_job *fj, run_state *s, pm_diag_t *d) {
     if (threaded) {
         pthread_join(th, NULL);
     }
+    free(hc.cols);
+    pthread_cond_destroy(&hc.cv);
+    pthread_mutex_destroy(&hc.mu);
     return PM_OK;
 }
 

@@ -93,6 +93,7 @@ pm_err_t pm_cli_map_picture(const pm_cli_map_picture_t *p, pm_svg_stats_t *stats
         .sel = p->sel,
         .drawn = stats ? stats->drawn : 0,
         .run = &run,
+        .edge_cols = p->edge_cols ? p->edge_cols(p->edge_cols_ud) : NULL,
     };
     (void)pm_cli_threads(p->cli, &hd.threads); /* validated earlier */
     /* --segment-col: each column's shrunk index per level and item (pm_segstats_index, the

@@ -190,32 +190,6 @@ static int cmp_u32(const void *x, const void *y) {
 }
 
 /* ---- sparse kernel ------------------------------------------------------------------------ */
-/* The nt items touched with item a (all > a, their bits set in mark) in increasing order into
- * touched, and mark cleared: by a scan of the bit words after a's when they are few enough
- * for the touched items (a word or more per eight), else by sorting the list. */
-static size_t touched_in_order(uint64_t *mark, uint32_t *touched, size_t nt, size_t a, size_t E) {
-    size_t w0 = (a + 1) >> 6, w1 = (E - 1) >> 6;
-    if (nt * 8 < w1 - w0 + 1) {
-        qsort(touched, nt, sizeof *touched, cmp_u32);
-        for (size_t i = 0; i < nt; i++) {
-            mark[touched[i] >> 6] = 0;
-        }
-        return nt;
-    }
-    size_t n = 0;
-    for (size_t w = w0; w <= w1; w++) {
-        uint64_t x = mark[w];
-        mark[w] = 0;
-        while (x) {
-            touched[n++] = (uint32_t)(w * 64 + (size_t)__builtin_ctzll(x));
-            x &= x - 1;
-        }
-    }
-    return n;
-}
-
-size_t pm_i_counts_scan_items = 65536;
-
 /* The items marked with item a (all > a) in increasing order into touched, and mark cleared;
  * returns their number. */
 static size_t marked_in_order(uint64_t *mark, uint32_t *touched, size_t a, size_t E) {
@@ -230,6 +204,23 @@ static size_t marked_in_order(uint64_t *mark, uint32_t *touched, size_t a, size_
     }
     return n;
 }
+
+/* The nt items touched with item a (all > a, their bits set in mark) in increasing order into
+ * touched, and mark cleared: by a scan of the bit words after a's when they are few enough
+ * for the touched items (a word or more per eight), else by sorting the list. */
+static size_t touched_in_order(uint64_t *mark, uint32_t *touched, size_t nt, size_t a, size_t E) {
+    size_t w0 = (a + 1) >> 6, w1 = (E - 1) >> 6;
+    if (nt * 8 < w1 - w0 + 1) {
+        qsort(touched, nt, sizeof *touched, cmp_u32);
+        for (size_t i = 0; i < nt; i++) {
+            mark[touched[i] >> 6] = 0;
+        }
+        return nt;
+    }
+    return marked_in_order(mark, touched, a, E);
+}
+
+size_t pm_i_counts_scan_items = 65536;
 
 static int sparse_chunk(void *ud, size_t c, unsigned th) {
     kstate *k = ud;

@@ -129,6 +129,16 @@ static void test_windows_rows_in_order(void **state) {
     pm_incidence_free(inc);
 }
 
+/* edges_text_on's text is want's len bytes. */
+static void same_text(const pm_pairs_t *pp, const pm_incidence_t *inc, long fail_at,
+                      unsigned threads, const char *want, size_t len) {
+    size_t n = 0;
+    char *got = edges_text_on(pp, inc, fail_at, threads, &n);
+    assert_int_equal(n, len);
+    assert_memory_equal(got, want, len);
+    free(got);
+}
+
 /* Any allocation that fails (a chunk's buffer, the threads' bookkeeping) changes how the
  * rows are made, never their bytes. */
 static void test_windows_without_memory(void **state) {
@@ -139,11 +149,7 @@ static void test_windows_without_memory(void **state) {
     char *want = edges_text(pp, inc, 0, &len);
     static const long fail_at[] = {1, 2, 3, 5, 8, 40, 65, 66, 100, 130, 131, 200};
     for (size_t i = 0; i < sizeof fail_at / sizeof fail_at[0]; i++) {
-        size_t n = 0;
-        char *got = edges_text(pp, inc, fail_at[i], &n);
-        assert_int_equal(n, len);
-        assert_memory_equal(got, want, len);
-        free(got);
+        same_text(pp, inc, fail_at[i], 0, want, len);
     }
     free(want);
     family_free(pp);
@@ -161,12 +167,8 @@ static void test_windows_threads(void **state) {
     size_t len = 0;
     char *want = edges_text(pp, inc, 0, &len);
     for (unsigned th = 1; th <= 3; th++) {
-        size_t n = 0;
-        char *got = edges_text_on(pp, inc, 0, th, &n);
+        same_text(pp, inc, 0, th, want, len);
         assert_int_equal(pm_i_parallel_last_threads(), th);
-        assert_int_equal(n, len);
-        assert_memory_equal(got, want, len);
-        free(got);
     }
     free(want);
     family_free(pp);

@@ -715,6 +715,38 @@ static int put_word(char *buf, size_t size, const char *s) {
     return (int)n;
 }
 
+/* The text out[0..o) (out has 64 bytes) to buf as pm_i_fmt_double promises; returns o. */
+static int fmt_out(char *buf, size_t size, char *out, int o) {
+    out[o] = '\0';
+    if (size >= 32) {
+        memcpy(buf, out, 32); /* the text, its terminator, then filler (util.h) */
+    } else if (size) {
+        size_t c = (size_t)o < size - 1 ? (size_t)o : size - 1;
+        memcpy(buf, out, c);
+        buf[c] = '\0';
+    }
+    return o;
+}
+
+/* A whole number below 10^15 (counts, and sums of whole weights): its digits are what %.15g
+ * prints, and 15 digits read back, so the text of the general route, without its arithmetic. */
+static int fmt_whole(char *buf, size_t size, double v) {
+    char out[64] = {0}, rev[20];
+    int o = 0, r = 0;
+    if (v < 0) {
+        out[o++] = '-';
+    }
+    uint64_t u = (uint64_t)fabs(v);
+    do {
+        rev[r++] = (char)('0' + u % 10);
+        u /= 10;
+    } while (u);
+    while (r) {
+        out[o++] = rev[--r];
+    }
+    return fmt_out(buf, size, out, o);
+}
+
 int pm_i_fmt_double(char *buf, size_t size, double v) {
     if (isnan(v)) {
         return put_word(buf, size, "nan");
@@ -724,6 +756,9 @@ int pm_i_fmt_double(char *buf, size_t size, double v) {
     }
     if (v == 0) {
         return put_word(buf, size, "0"); /* -0 too */
+    }
+    if (fabs(v) < 1e15 && fabs(v) == (double)(uint64_t)fabs(v)) {
+        return fmt_whole(buf, size, v);
     }
     char dig[40] = {0}; /* P digits, then room for the fixed-size copies below */
     int x = 0;
@@ -778,15 +813,7 @@ int pm_i_fmt_double(char *buf, size_t size, double v) {
             o += x + 1;
         }
     }
-    out[o] = '\0';
-    if (size >= 32) {
-        memcpy(buf, out, 32); /* the text, its terminator, then filler (util.h) */
-    } else if (size) {
-        size_t c = (size_t)o < size - 1 ? (size_t)o : size - 1;
-        memcpy(buf, out, c);
-        buf[c] = '\0';
-    }
-    return o;
+    return fmt_out(buf, size, out, o);
 }
 
 double pm_i_now(void) {

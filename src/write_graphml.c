@@ -106,11 +106,23 @@ static char *edge_element(char *o, const pm_map_t *map, size_t k) {
     o = put_str(o, "\" target=\"n");
     o = put_u64(o, map->eb[k]);
     o = put_str(o, "\">\n");
+    const char *phi = NULL; /* the weight is most often phi itself: its text once */
+    size_t phi_len = 0;
     for (int j = 0; j < 6; j++) {
         o = put_str(o, "      <data key=\"");
         o = put_str(o, ekey[j]);
         o = put_str(o, "\">");
-        o = put_num(o, val[j]);
+        if (j == 5 && phi && memcmp(&val[5], &val[1], sizeof val[1]) == 0) {
+            memcpy(o, phi, phi_len);
+            o += phi_len;
+        } else {
+            char *at = o;
+            o = put_num(o, val[j]);
+            if (j == 1) {
+                phi = at;
+                phi_len = (size_t)(o - at);
+            }
+        }
         o = put_str(o, "</data>\n");
     }
     return put_str(o, "    </edge>\n");

@@ -177,7 +177,12 @@ double pm_i_assoc_pruned_p(const lftab *lf, uint64_t N, uint64_t na, uint64_t nb
     if (test_for(N, na, nb) == PM_TEST_FISHER) {
         uint64_t K = na, n = nb, x = nab;
         uint64_t lo = n > N - K ? n - (N - K) : 0, hi = K < n ? K : n;
-        if (x > hyper_mode(N, K, n) && x <= hi) { /* the first term is the one fisher() uses */
+        /* x above the mode floor((n+1)(K+1)/(N+2)) is x (N+2) > (n+1)(K+1) for whole x:
+         * compared in integers where they fit, without the division */
+        int above = n < UINT32_MAX && K < UINT32_MAX && x < UINT32_MAX && N < UINT32_MAX - 2
+                        ? x * (N + 2) > (n + 1) * (K + 1)
+                        : x > hyper_mode(N, K, n);
+        if (above && x <= hi) { /* the first term is the one fisher() uses */
             double e = exp(lpmf(lf, N, K, n, x));
             if (e > lim) {
                 return INFINITY;

@@ -219,6 +219,11 @@ static double solve(const nchg_goal *g, double th0) {
         }
         double tn = th - f / slope;
         int newton = tn > lo && tn < hi; /* false also for NaN and infinities */
+        if (!newton && fabs(tn - th) <= 1e-9) {
+            /* converged at a bracket's end: the step falls below th's rounding (tn is th) or
+             * leaves the bracket by less than the tolerance; bisecting would only move away */
+            break;
+        }
         if (!newton) {
             tn = lo + (hi - lo) / 2;
         }

@@ -16,10 +16,18 @@ References:
   statsmodels')
 Tolerance: relative 1e-7 (scipy's own root finder stops at xtol 2e-12 absolute on the odds
 ratio, which is relative 1e-8 on an odds ratio of 1e-4).
+- exact branch, finer: every reported root (estimate: the mean equals x; low: P(X >= x) = 2.5%;
+  high: P(X <= x) = 2.5%) is bracketed to 2^-46 (1.4e-14) relative by the definition of Fisher's
+  noncentral hypergeometric distribution, P(X = k) proportional to C(na, k) C(N - na, nb - k) w^k,
+  summed in exact integer arithmetic (Python's math.comb and integers, no rounding anywhere): the
+  equation must change sign between r (1 - 2^-46) and r (1 + 2^-46). This sees errors a hundred
+  times below what the comparison with scipy can; besides the random tables, two tables with
+  margins like the medium bench file's (1,000,000 respondents, generated) through --respondents.
 """
 
 import math
 import sys
+from fractions import Fraction
 from pathlib import Path
 
 import numpy as np
@@ -32,6 +40,7 @@ import common as C  # noqa: E402
 
 ALL = ["--min-count", "0", "--max-q", "1", "--sign", "both"]
 RTOL = 1e-7
+DELTA = Fraction(1, 2 ** 46)  # the exact bracket of each root, relative
 
 
 def make_case(seed, N, k):
@@ -60,7 +69,45 @@ def items_counts(f, extra):
     return {r.item: int(r.respondents) for r in df.itertuples(index=False)}
 
 
-def check_rows(chk, df, N, counts, label):
+def nchg_exact(N, K, n, x, w):
+    """Exact integers proportional to the total, P(X < x), P(X <= x) and the first moment of
+    Fisher's noncentral hypergeometric distribution C(K, k) C(N - K, n - k) w^k, for w = p / 2^e
+    (a double, or a double times 1 +- 2^-46): Horner's rule homogeneous in p and 2^e, so that each
+    step is a shift, an addition or a product by p."""
+    lo, hi = max(0, n - (N - K)), min(K, n)
+    p, q = w.numerator, w.denominator
+    e = q.bit_length() - 1
+    assert q == 1 << e, w
+    c = [math.comb(K, lo) * math.comb(N - K, n - lo)]  # C(K, k) C(N - K, n - k), k = lo..hi
+    for k in range(lo, hi):
+        c.append(c[-1] * (K - k) * (n - k) // ((k + 1) * (N - K - n + k + 1)))  # exact
+    tot = below = upto = mom = 0
+    for j in range(hi - lo, -1, -1):
+        k, a = lo + j, c[j] << (e * (hi - lo - j))
+        tot = tot * p + a
+        below = below * p + (a if k < x else 0)
+        upto = upto * p + (a if k <= x else 0)
+        mom = mom * p + k * a
+    return tot, below, upto, mom
+
+
+def exact_roots(chk, N, na, nb, nab, got, where):
+    """Each finite, nonzero root of got = (estimate, low, high) bracketed to DELTA, exactly."""
+    for name, r in zip(("estimate", "low", "high"), got):
+        if r == 0 or math.isinf(r) or math.isnan(r):
+            continue  # the support's edges: compared with scipy exactly
+        signs = []
+        for w in (Fraction(r) * (1 - DELTA), Fraction(r) * (1 + DELTA)):
+            tot, below, upto, mom = nchg_exact(N, na, nb, nab, w)
+            # each equation increasing in w: mean - x, P(X >= x) - 1/40, 1/40 - P(X <= x)
+            v = {"estimate": mom - nab * tot, "low": 40 * (tot - below) - tot,
+                 "high": tot - 40 * upto}[name]
+            signs.append(v)
+        chk.equal(f"odds ratio {name} within 2^-46 of the root (exact integer arithmetic)",
+                  signs[0] < 0 < signs[1], True, f"{where} {name}={r!r}")
+
+
+def check_rows(chk, df, N, counts, label, seen=None):
     nexact = nwoolf = 0
     for r in df.itertuples(index=False):
         na, nb, nab = counts[r.item_a], counts[r.item_b], int(float(r.together))
@@ -73,6 +120,9 @@ def check_rows(chk, df, N, counts, label):
             want = (float(res.statistic), float(ci.low), float(ci.high))
             src = "scipy odds_ratio(kind=conditional)"
             nexact += 1
+            if seen is not None and (na, nb, nab) not in seen:  # each table once
+                seen.add((na, nb, nab))
+                exact_roots(chk, N, na, nb, nab, got, where)
         else:
             tb = Table2x2(np.array(t, dtype=float))
             lo, hi = tb.oddsratio_confint(0.05, method="normal")
@@ -85,6 +135,29 @@ def check_rows(chk, df, N, counts, label):
             else:
                 chk.close(f"odds ratio {name} vs {src}", g, w, rtol=RTOL, where=where)
     return nexact, nwoolf
+
+
+def bench_like(chk, td):
+    """Fisher-branch tables with margins like the medium bench file's (N = 1,000,000, items of
+    several hundred respondents, a few dozen together; generated): only the respondents who chose
+    something are written, --respondents gives N. Roots bracketed exactly to 2^-46."""
+    cases = [(1_000_000, 470, 1208, 27), (1_000_000, 862, 635, 30)]
+    for i, (N, na, nb, nab) in enumerate(cases):
+        rows = [[f"o{j:06d}", "cocoa"] for j in range(na)]
+        rows += [[f"o{j:06d}", "strudel"] for j in range(na - nab, na - nab + nb)]
+        f = td / f"bench{i}.csv"
+        C.write_long(f, rows)
+        where = f"N={N} table={C.table2x2(N, na, nb, nab)}"
+        try:
+            df = C.read_csv(C.run(["pairs", f, "--respondents", N] + ALL), C.PAIR_COLUMNS)
+        except C.RunError as e:
+            chk.fail(f"{where}: {e}")
+            continue
+        r = next(df.itertuples(index=False))
+        chk.equal("bench-like table: the pair's count and test", (int(r.together), r.test),
+                  (nab, "fisher"), where)
+        got = (float(r.odds_ratio), float(r.odds_ratio_low), float(r.odds_ratio_high))
+        exact_roots(chk, N, na, nb, nab, got, where)
 
 
 def weighted_case(chk, td):
@@ -122,6 +195,7 @@ def main():
     C.require_binary()
     chk = C.Checker("odds_ratio (scipy conditional MLE + exact interval, statsmodels Woolf)")
     totals = [0, 0]
+    seen = set()
     with C.tempdir() as tds:
         td = Path(tds)
         for seed, N, k in [(1, 25, 10), (2, 60, 14), (3, 300, 16), (4, 1500, 14), (5, 4000, 12)]:
@@ -138,9 +212,10 @@ def main():
                 except C.RunError as e:
                     chk.fail(f"{label}: {e}")
                     continue
-                ne, nw = check_rows(chk, df, N, counts, f"{label} {opts[-1]}")
+                ne, nw = check_rows(chk, df, N, counts, f"{label} {opts[-1]}", seen)
                 totals[0] += ne
                 totals[1] += nw
+        bench_like(chk, td)
         weighted_case(chk, td)
     chk.note(f"{totals[0]} tables on the exact branch, {totals[1]} on Woolf's")
     if totals[0] < 50 or totals[1] < 50:

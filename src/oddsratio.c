@@ -8,32 +8,52 @@
 #include <math.h>
 
 /* Fisher's noncentral hypergeometric distribution of the joint count given the margins:
- * P(X = x) proportional to C(K, x) C(N - K, n - x) w^x on lo..hi (K = na, n = nb). */
+ * P(X = k) proportional to C(K, k) C(N - K, n - k) w^k on lo..hi (K = na, n = nb). */
 typedef struct {
     double N, K, n;
     uint64_t lo, hi, x;
-    double *qc; /* q(lo + i) once computed, NaN before; NULL: none kept */
-    uint64_t m; /* the mode of the last evaluation (lo before the first): where the next one's
-                 * search for its mode starts */
+    double *qc;      /* q(k) at qc[k - base] for k in [qa, qb) (see q_need) */
+    uint64_t base;   /* the window qc covers: [base, base + QCACHE) */
+    uint64_t qa, qb; /* the kept range, empty (qa == qb) before the first */
+    uint64_t m;      /* the mode of the last evaluation (x before the first): where the next
+                      * one's search for its mode starts */
 } nchg;
 
-/* q(k) = P(k+1) / (w P(k)) = (K - k)(n - k) / ((k + 1)(N - K - n + k + 1)), for lo <= k < hi.
- * The about twelve evaluations of one table walk much the same k: each q is computed once
- * and kept (the same value, so the same bits as computing it again). */
-static inline double step_ratio(const nchg *d, uint64_t k) {
-    double *c = d->qc ? &d->qc[k - d->lo] : NULL;
-    if (c && !isnan(*c)) {
-        return *c;
-    }
+#define QCACHE 2048 /* ratios kept per table: the window of qc */
+#define QCHUNK 32   /* ratios computed at a time ahead of the sums */
+
+/* q(k) = P(k+1) / (w P(k)) = (K - k)(n - k) / ((k + 1)(N - K - n + k + 1)), for lo <= k < hi. */
+static double q_of(const nchg *d, uint64_t k) {
     double dk = (double)k;
-    double q = (d->K - dk) * (d->n - dk) / ((dk + 1) * (d->N - d->K - d->n + dk + 1));
-    if (c) {
-        *c = q;
-    }
-    return q;
+    return (d->K - dk) * (d->n - dk) / ((dk + 1) * (d->N - d->K - d->n + dk + 1));
 }
 
-#define QCACHE 2048 /* tables with a wider support compute each q afresh */
+/* Keeps q(k) for k in [a, b) (b - a <= QCHUNK, within [lo, hi)): the kept range grows to
+ * take them in, computing those between too (a table's evaluations walk one run of k around
+ * their modes), or starts afresh around a where the window cannot hold the union (supports
+ * wider than QCACHE only). Each q is the same expression wherever and whenever computed, so
+ * the same bits. */
+static void q_need(nchg *d, uint64_t a, uint64_t b) {
+    uint64_t ua = a < d->qa ? a : d->qa, ub = b > d->qb ? b : d->qb;
+    if (d->qa == d->qb || ua < d->base || ub > d->base + QCACHE) {
+        d->base = a - d->lo > QCACHE / 2 ? a - QCACHE / 2 : d->lo;
+        d->qa = d->qb = a;
+    }
+    for (; d->qa > a; d->qa--) {
+        d->qc[d->qa - 1 - d->base] = q_of(d, d->qa - 1);
+    }
+    for (; d->qb < b; d->qb++) {
+        d->qc[d->qb - d->base] = q_of(d, d->qb);
+    }
+}
+
+/* q(k), kept */
+static inline double step_ratio(nchg *d, uint64_t k) {
+    if (k - d->qa >= d->qb - d->qa) {
+        q_need(d, k, k + 1);
+    }
+    return d->qc[k - d->base];
+}
 
 /* The sums of the distribution at log odds ratio th, relative to its largest term, at the
  * mode m: total s, moments about the mode c1 = sum (k - m) t, c2 = sum (k - m)^2 t, the upper
@@ -43,7 +63,8 @@ static inline double step_ratio(const nchg *d, uint64_t k) {
  * log-concave, so the mode is the first k whose ratio falls below 1) and stop below 1e-18 of
  * the running sum: the cost is the distribution's effective width, not the support's. Each
  * goal (what, below) needs s and c1 and one group of the others, so only that group is
- * summed: the same additions in the same order, so the same bits, for about half the work. */
+ * summed; the terms in the tail and those out of it are summed by separate loops (the tail's
+ * edge splits each direction's run in two). */
 typedef struct {
     double s, c1, c2, su, cu, sl, cl, sb, sa;
     uint64_t m;
@@ -55,22 +76,20 @@ typedef struct {
 #define PM_ALWAYS_INLINE inline
 #endif
 
-/* what: 0 the mean (c2), 1 the upper tail (su, cu, sb), 2 the lower tail (sl, cl, sa); a
- * constant in each caller, so that each goal gets its own loop without the others' sums. */
-static PM_ALWAYS_INLINE void add_term(const nchg *d, nchg_sums *o, uint64_t k, double t, int what) {
-    double dk = (double)k - (double)o->m;
+/* Term t at k = m + dk (dk exact: an integer in a double). what: 0 the mean (c2), 1 the upper
+ * tail, 2 the lower tail; tail: whether k is in the goal's tail (1: k >= x, 2: k <= x). Both
+ * constants where inlined, so that each goal and run gets its own loop, without branches. */
+static PM_ALWAYS_INLINE void add_term(nchg_sums *o, double dk, double t, int what, int tail) {
     o->s += t;
     o->c1 += dk * t;
     if (what == 0) {
         o->c2 += dk * dk * t;
+    } else if (what == 1 && tail) {
+        o->su += t;
+        o->cu += dk * t;
     } else if (what == 1) {
-        if (k >= d->x) {
-            o->su += t;
-            o->cu += dk * t;
-        } else {
-            o->sb += t;
-        }
-    } else if (k <= d->x) {
+        o->sb += t;
+    } else if (tail) {
         o->sl += t;
         o->cl += dk * t;
     } else {
@@ -84,7 +103,7 @@ static PM_ALWAYS_INLINE void add_term(const nchg *d, nchg_sums *o, uint64_t k, d
  * here by doubling steps from the last evaluation's mode, which the next Newton step has
  * moved by a few k at most, then by halving the bracket found (about 4 ratios tested where
  * halving [lo, hi] took 11 on the bench file's tables). */
-static uint64_t nchg_mode(const nchg *d, double w) {
+static uint64_t nchg_mode(nchg *d, double w) {
     uint64_t a = d->lo, b = d->hi, h = d->m < d->lo ? d->lo : d->m > d->hi ? d->hi : d->m;
     if (h == d->hi || w * step_ratio(d, h) < 1) { /* the mode is h or below */
         b = h;
@@ -119,10 +138,60 @@ static uint64_t nchg_mode(const nchg *d, double w) {
     return a;
 }
 
-static PM_ALWAYS_INLINE void nchg_eval(nchg *dp, double th, nchg_sums *o, int what) {
-    /* a copy the loops read: the stores of kept ratios cannot reach it, so its fields stay in
-     * registers */
-    const nchg dc = *dp, *d = &dc;
+/* One run of terms, all in or all out of the tail, going up from k = *kp (the last term
+ * added, t = *tp, at m + *dkp): t(k + 1) = t(k) w q(k), while k < end and t reaches 1e-18 of
+ * the running sum. Returns 0 once that rule stops the run. The ratios are made ready
+ * QCHUNK at a time, so that the inner loop tests nothing but its end and the rule. */
+static PM_ALWAYS_INLINE int run_up(nchg *d, nchg_sums *o, uint64_t *kp, uint64_t end, double w,
+                                   double *tp, double *dkp, int what, int tail) {
+    uint64_t k = *kp;
+    double t = *tp, dk = *dkp;
+    int go = 1;
+    while (k < end && (go = t >= o->s * 1e-18)) {
+        uint64_t e = end - k > QCHUNK ? k + QCHUNK : end;
+        if (k < d->qa || e > d->qb) {
+            q_need(d, k, e);
+        }
+        const double *q = d->qc;
+        const uint64_t base = d->base;
+        for (; k < e && (go = t >= o->s * 1e-18); k++) {
+            t *= w * q[k - base];
+            dk += 1;
+            add_term(o, dk, t, what, tail);
+        }
+    }
+    *kp = k;
+    *tp = t;
+    *dkp = dk;
+    return go;
+}
+
+/* The same going down from k = *kp: t(k - 1) = t(k) / (w q(k - 1)), while k > end. */
+static PM_ALWAYS_INLINE int run_down(nchg *d, nchg_sums *o, uint64_t *kp, uint64_t end, double iw,
+                                     double *tp, double *dkp, int what, int tail) {
+    uint64_t k = *kp;
+    double t = *tp, dk = *dkp;
+    int go = 1;
+    while (k > end && (go = t >= o->s * 1e-18)) {
+        uint64_t e = k - end > QCHUNK ? k - QCHUNK : end;
+        if (e < d->qa || k > d->qb) {
+            q_need(d, e, k);
+        }
+        const double *q = d->qc;
+        const uint64_t base = d->base;
+        for (; k > e && (go = t >= o->s * 1e-18); k--) {
+            t *= iw / q[k - 1 - base];
+            dk -= 1;
+            add_term(o, dk, t, what, tail);
+        }
+    }
+    *kp = k;
+    *tp = t;
+    *dkp = dk;
+    return go;
+}
+
+static PM_ALWAYS_INLINE void nchg_eval(nchg *d, double th, nchg_sums *out, int what) {
     if (th > 700) {
         th = 700;
     } else if (th < -700) {
@@ -130,19 +199,30 @@ static PM_ALWAYS_INLINE void nchg_eval(nchg *dp, double th, nchg_sums *o, int wh
     }
     double w = exp(th), iw = exp(-th);
     uint64_t m = nchg_mode(d, w);
-    dp->m = m;
-    *o = (nchg_sums){0, 0, 0, 0, 0, 0, 0, 0, 0, m};
-    add_term(d, o, m, 1, what);
-    double t = 1;
-    for (uint64_t k = m; k < d->hi && t >= o->s * 1e-18; k++) { /* t(k+1) = t(k) w q(k) */
-        t *= w * step_ratio(d, k);
-        add_term(d, o, k + 1, t, what);
+    d->m = m;
+    /* the tail's edge: k >= b is in the upper tail (what 1), out of the lower one (what 2) */
+    uint64_t b = what == 0 ? d->hi + 1 : what == 1 ? d->x : d->x + 1;
+    int low = what == 2; /* in the tail below b */
+    nchg_sums o = {0, 0, 0, 0, 0, 0, 0, 0, 0, m};
+    double t = 1, dk = 0;
+    uint64_t k = m;
+    if (m >= b) {
+        add_term(&o, 0, 1, what, !low);
+    } else {
+        add_term(&o, 0, 1, what, low);
+    }
+    /* up: the terms below b, then (unless the rule stopped the run) those from b on */
+    if (m + 1 >= b || run_up(d, &o, &k, b - 1 < d->hi ? b - 1 : d->hi, w, &t, &dk, what, low)) {
+        run_up(d, &o, &k, d->hi, w, &t, &dk, what, !low);
     }
     t = 1;
-    for (uint64_t k = m; k > d->lo && t >= o->s * 1e-18; k--) { /* t(k-1) = t(k) / (w q(k-1)) */
-        t *= iw / step_ratio(d, k - 1);
-        add_term(d, o, k - 1, t, what);
+    dk = 0;
+    k = m;
+    /* down: the terms from b on, then those below b */
+    if (m <= b || run_down(d, &o, &k, b, iw, &t, &dk, what, !low)) {
+        run_down(d, &o, &k, d->lo, iw, &t, &dk, what, low);
     }
+    *out = o;
 }
 
 typedef struct {
@@ -244,17 +324,11 @@ void pm_oddsratio_exact(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, pm_o
         na = nb;
         nb = t;
     }
-    nchg d = {(double)N, (double)na, (double)nb, 0, 0, nab, NULL, 0};
-    d.lo = nb > N - na ? nb - (N - na) : 0;
+    double qc[QCACHE];
+    nchg d = {(double)N, (double)na, (double)nb, 0, 0, nab, qc, 0, 0, 0, 0};
+    d.lo = d.base = nb > N - na ? nb - (N - na) : 0;
     d.hi = na < nb ? na : nb;
     d.m = nab; /* the first search for a mode starts at the table's own count */
-    double qc[QCACHE];
-    if (d.hi - d.lo <= QCACHE) {
-        for (uint64_t i = 0; i < d.hi - d.lo; i++) {
-            qc[i] = NAN;
-        }
-        d.qc = qc;
-    }
     out->method = PM_OR_EXACT;
     out->estimate = out->low = out->high = NAN;
     if (d.lo == d.hi) { /* a single possible table: nothing to estimate */

@@ -34,7 +34,7 @@ typedef struct {
 /* The odds ratio of the unweighted table of (N, na, nb, nab), whose test (pm_measures_t.test,
  * from Cochran's rule) picks the branch. Requires 0 < na, nb < N and
  * max(0, na + nb - N) <= nab <= min(na, nb). Cost: Woolf O(1); exact O(s) per evaluation of
- * the conditional distribution (s its effective width, a few standard deviations), about 12
+ * the conditional distribution (s its effective width, a few standard deviations), about 8
  * evaluations in all (measured on the bench data). */
 void pm_oddsratio_counts(uint64_t N, uint64_t na, uint64_t nb, uint64_t nab, pm_test_t test,
                          pm_oddsratio_t *out);

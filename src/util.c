@@ -211,7 +211,14 @@ int64_t pm_i_strtab_find(const pm_i_strtab *t, const char *s, size_t len) {
     if (!t->cap || len > UINT32_MAX) {
         return -1;
     }
-    uint64_t h = pm_i_hash(s, len), k0, k1;
+    return pm_i_strtab_find_h(t, s, len, pm_i_hash(s, len));
+}
+
+int64_t pm_i_strtab_find_h(const pm_i_strtab *t, const char *s, size_t len, uint64_t h) {
+    if (!t->cap || len > UINT32_MAX) {
+        return -1;
+    }
+    uint64_t k0, k1;
     slot_key(s, len, h, &k0, &k1);
     size_t i = (size_t)h & (t->cap - 1);
     while (t->slots[i].id1) {

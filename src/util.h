@@ -52,7 +52,18 @@ void pm_i_strtab_destroy(pm_i_strtab *t);
 int64_t pm_i_strtab_intern(pm_i_strtab *t, const char *s, size_t len, bool *added);
 /* Returns the id of s, or -1 when absent. */
 int64_t pm_i_strtab_find(const pm_i_strtab *t, const char *s, size_t len);
+/* The same with h = pm_i_hash(s, len) already taken (pm_i_strtab_prefetch beforehand). */
+int64_t pm_i_strtab_find_h(const pm_i_strtab *t, const char *s, size_t len, uint64_t h);
 uint64_t pm_i_hash(const char *s, size_t len);
+/* A hint: the slot where the string of hash h is looked up first is read into the cache, so
+ * that a lookup of it some lines later need not wait for memory. Changes nothing. */
+static inline void pm_i_strtab_prefetch(const pm_i_strtab *t, uint64_t h) {
+    /* in integers: an empty table (no slots, cap 0) gives some address, never read (gcc 12
+     * drops a prefetch under a condition) */
+    uintptr_t sl = (uintptr_t)t->slots + ((size_t)h & (t->cap - 1)) * sizeof(pm_i_slot);
+    __builtin_prefetch((const void *)sl);
+    __builtin_prefetch((const void *)(sl + sizeof(pm_i_slot) - 1)); /* it may straddle two */
+}
 
 /* ---- sorting ------------------------------------------------------------------------------ */
 /* Sorts n records of size bytes (size >= 8) by the uint64_t their first 8 bytes hold, stably

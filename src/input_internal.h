@@ -5,7 +5,8 @@
  *   src/input_wide.c  the wide format
  *   src/read_long.c   the long and lines formats
  *   src/filehash.c    the SHA-256 thread of a parallel read
- *   src/table.c       the table builder, --drop-item, --merge-file, accessors */
+ *   src/table.c       the table builder, --drop-item, --merge-file, accessors
+ *   src/table_runs.c  the runs of deferred respondent ids merged (pm_i_table_merge_runs) */
 #ifndef PM_INPUT_INTERNAL_H
 #define PM_INPUT_INTERNAL_H
 
@@ -123,6 +124,11 @@ pm_err_t pm_i_table_weight(pm_table_t *t, uint32_t r, const char *w, size_t len,
 
 /* Finishes reading: applies --respondents, checks the table is usable. */
 pm_err_t pm_i_table_finish(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *diag);
+/* The runs of deferred ids that share an id made one respondent each, in order of first
+ * appearance, the rows remapped and t->rstr set, on up to `threads` threads (0: all cores); the
+ * same table for any number. Errors: PM_ENOMEM, PM_EDATA (two weights of one respondent, at
+ * the first line in run order that differs). (src/table_runs.c) */
+pm_err_t pm_i_table_merge_runs(pm_table_t *t, unsigned threads, pm_diag_t *diag);
 
 /* After reading (the table finished): every --drop-item name and --merge-file item that no row
  * matched exactly is looked up with pm_item_find (pairmap/itemfind.h) among the items read.

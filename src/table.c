@@ -1,7 +1,7 @@
 /* The table the readers build (long and lines in src/read_long.c, wide in src/input_wide.c,
  * chunks of the parallel reader in src/read_par.c): respondents, items, categories, weights,
- * item hygiene (--drop-item, --merge-file), the merge of deferred respondent ids, the column
- * selectors and the accessors of include/pairmap/input.h. */
+ * item hygiene (--drop-item, --merge-file), the column selectors and the accessors of
+ * include/pairmap/input.h. The runs of deferred respondent ids are merged by src/table_runs.c. */
 #include "input_internal.h"
 
 #include <ctype.h>
@@ -446,112 +446,9 @@ pm_err_t pm_i_table_weight(pm_table_t *t, uint32_t r, const char *w, size_t len,
     return PM_OK;
 }
 
-/* Merges the runs of deferred respondent ids that share an id (see struct pm_table): hashes
- * sorted with a stable radix sort, equal strings found within equal hashes, then respondents
- * renumbered in order of first appearance and the rows remapped. */
-typedef struct {
-    uint64_t h; /* the sort key: first */
-    uint32_t r;
-} run_key;
-
-static pm_err_t merge_runs(pm_table_t *t, pm_diag_t *diag) {
-    size_t n = t->run_n;
-    pm_err_t rc = PM_ENOMEM;
-    run_key *rk = pm_i_malloc(n ? n : 1, sizeof *rk);
-    uint32_t *ix = pm_i_malloc(n ? n : 1, sizeof *ix); /* the new index of each run */
-    uint32_t *canon = pm_i_malloc(n ? n : 1, sizeof *canon);
-    t->rstr = pm_i_malloc(n ? n : 1, sizeof *t->rstr);
-    if (!rk || !ix || !canon || !t->rstr) {
-        goto done;
-    }
-    for (size_t r = 0; r < n; r++) {
-        rk[r].h = t->run_hash[r] >> 32; /* 32 bits: half the radix passes; equal keys are
-                                         * told apart by their strings below */
-        rk[r].r = (uint32_t)r;
-        canon[r] = (uint32_t)r;
-    }
-    if (pm_i_radix_sort(rk, n, sizeof *rk)) { /* stable: equal hashes keep run order */
-        goto done;
-    }
-    size_t dups = 0;
-    for (size_t i = 0; i < n;) {
-        size_t j = i + 1;
-        while (j < n && rk[j].h == rk[i].h) {
-            j++;
-        }
-        for (size_t a = i + 1; a < j; a++) { /* groups are tiny: pairwise */
-            uint32_t ra = rk[a].r;
-            for (size_t b = i; b < a; b++) {
-                uint32_t rb = rk[b].r;
-                if (canon[rb] == rb && t->run_len[ra] == t->run_len[rb] &&
-                    memcmp(t->run_buf + t->run_off[ra], t->run_buf + t->run_off[rb],
-                           t->run_len[ra]) == 0) {
-                    canon[ra] = rb; /* rb < ra: groups are in run order */
-                    dups++;
-                    break;
-                }
-            }
-        }
-        i = j;
-    }
-    if (dups) {
-        /* fold each later run into its first: weights must agree */
-        for (size_t r = 0; r < n; r++) {
-            uint32_t c = canon[r];
-            if (c == r) {
-                continue;
-            }
-            double wc = t->resp_weight[c], wr = t->resp_weight[r];
-            if (!isnan(wr)) {
-                if (isnan(wc)) {
-                    t->resp_weight[c] = wr;
-                } else if (wc != wr) {
-                    rc = pm_diag_set(diag, PM_EDATA, t->source, (long)t->resp_line[r],
-                                     "weight %.17g differs from the weight %.17g this respondent "
-                                     "has on line %llu; give each respondent one weight",
-                                     wr, wc, (unsigned long long)t->resp_line[c]);
-                    goto done;
-                }
-            }
-            t->resp_has_item[c] |= t->resp_has_item[r];
-        }
-        /* renumber: first appearances in order */
-        size_t k = 0;
-        for (size_t r = 0; r < n; r++) {
-            if (canon[r] == r) {
-                ix[r] = (uint32_t)k;
-                t->resp_weight[k] = t->resp_weight[r];
-                t->resp_line[k] = t->resp_line[r];
-                t->resp_has_item[k] = t->resp_has_item[r];
-                t->rstr[k] = t->run_buf + t->run_off[r];
-                k++;
-            } else {
-                ix[r] = ix[canon[r]];
-            }
-        }
-        for (size_t i = 0; i < t->n_rows; i++) {
-            t->row_resp[i] = ix[t->row_resp[i]];
-        }
-        t->stats.respondents = k;
-    } else {
-        for (size_t r = 0; r < n; r++) {
-            t->rstr[r] = t->run_buf + t->run_off[r];
-        }
-    }
-    rc = PM_OK;
-done:
-    free(rk);
-    free(ix);
-    free(canon);
-    if (rc == PM_ENOMEM) {
-        pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
-    }
-    return rc;
-}
-
 pm_err_t pm_i_table_finish(pm_table_t *t, const pm_input_opts_t *o, pm_diag_t *diag) {
     if (t->defer && t->run_n) {
-        pm_err_t rc = merge_runs(t, diag);
+        pm_err_t rc = pm_i_table_merge_runs(t, o->threads, diag);
         if (rc) {
             return rc;
         }

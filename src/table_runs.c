@@ -1,0 +1,257 @@
+/* Merging the runs of deferred respondent ids (see struct pm_table in src/input_internal.h):
+ * the runs that share an id become one respondent, numbered in order of first appearance, and
+ * the rows are remapped. The runs are grouped by the top 32 bits of their ids' hashes on all
+ * threads: keys (hash << 32 | run) are cut by their top bits into buckets (each thread's share
+ * of the runs scattered in order, so each bucket holds its runs in run order), each bucket is
+ * sorted by a stable radix sort on one thread, and equal strings are looked for only among the
+ * runs of one hash, in run order. Which thread sorts which bucket changes nothing: a run's
+ * first equal run is the same whatever the order of the buckets. */
+#include "input_internal.h"
+#include "parallel.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#define RUNS_BUCKET_BITS 8 /* 256 buckets when there are many runs */
+#define RUNS_MANY (1u << 20)
+
+typedef struct {
+    uint32_t later, first; /* run `later` has the id of run `first` (first < later) */
+} run_dup;
+
+typedef struct {
+    run_dup *v;
+    size_t n, cap;
+    unsigned char *seen; /* [group] a run of the group already known to be a repeat */
+    size_t seen_cap;
+} dup_list;
+
+typedef struct {
+    const pm_table_t *t;
+    size_t n, nparts; /* runs; thread shares of them */
+    int bits;         /* bucket bits: 0 (one bucket) or RUNS_BUCKET_BITS */
+    int phase;        /* 0: count, 1: scatter, 2: sort and find repeats */
+    uint64_t *keys;   /* [n] hash << 32 | run, by bucket */
+    size_t *at;       /* [nparts][buckets] where each share's runs of a bucket go */
+    size_t *start;    /* [buckets + 1] where each bucket starts */
+    dup_list *dups;   /* [threads] */
+} runs_job;
+
+static size_t runs_bucket(const runs_job *j, uint64_t h) {
+    return j->bits ? (size_t)(h >> (64 - j->bits)) : 0;
+}
+
+/* Phases 0 and 1 on share c of the runs. */
+static void runs_scatter(runs_job *j, size_t c) {
+    size_t r0 = j->n * c / j->nparts, r1 = j->n * (c + 1) / j->nparts;
+    size_t *at = j->at + (c << j->bits);
+    const uint64_t *h = j->t->run_hash;
+    if (j->phase == 0) {
+        for (size_t r = r0; r < r1; r++) {
+            at[runs_bucket(j, h[r])]++;
+        }
+        return;
+    }
+    for (size_t r = r0; r < r1; r++) {
+        j->keys[at[runs_bucket(j, h[r])]++] = (h[r] >> 32) << 32 | (uint64_t)r;
+    }
+}
+
+/* The repeats among keys[a..b) (one hash, in run order) into d. -1 when out of memory. */
+static int runs_group(const pm_table_t *t, const uint64_t *keys, size_t a, size_t b, dup_list *d) {
+    size_t m = b - a;
+    if (m > d->seen_cap) {
+        free(d->seen);
+        d->seen_cap = 0;
+        if (!(d->seen = pm_i_malloc(m, 1))) {
+            return -1;
+        }
+        d->seen_cap = m;
+    }
+    memset(d->seen, 0, m);
+    for (size_t x = 1; x < m; x++) {
+        uint32_t ra = (uint32_t)keys[a + x];
+        for (size_t y = 0; y < x; y++) {
+            uint32_t rb = (uint32_t)keys[a + y];
+            if (!d->seen[y] && t->run_len[ra] == t->run_len[rb] &&
+                memcmp(t->run_buf + t->run_off[ra], t->run_buf + t->run_off[rb], t->run_len[ra]) ==
+                    0) {
+                if (d->n == d->cap && pm_i_grow((void **)&d->v, &d->cap, d->n + 1, sizeof *d->v)) {
+                    return -1;
+                }
+                d->v[d->n++] = (run_dup){ra, rb}; /* rb: the first run of this id */
+                d->seen[x] = 1;
+                break;
+            }
+        }
+    }
+    return 0;
+}
+
+/* Phase 2 on bucket c: sorted by hash (stable: run order within a hash), repeats found. */
+static int runs_sort_bucket(runs_job *j, size_t c, unsigned th) {
+    size_t a = j->start[c], b = j->start[c + 1];
+    uint64_t *k = j->keys;
+    if (b - a > 1 && pm_i_radix_sort_from(k + a, b - a, sizeof *k, 32)) {
+        return -1;
+    }
+    for (size_t i = a; i < b;) {
+        size_t e = i + 1;
+        while (e < b && k[e] >> 32 == k[i] >> 32) {
+            e++;
+        }
+        if (e - i > 1 && runs_group(j->t, k, i, e, &j->dups[th])) {
+            return -1;
+        }
+        i = e;
+    }
+    return 0;
+}
+
+static int runs_chunk(void *ud, size_t c, unsigned th) {
+    runs_job *j = ud;
+    if (j->phase < 2) {
+        runs_scatter(j, c);
+        return 0;
+    }
+    return runs_sort_bucket(j, c, th);
+}
+
+/* Every run's first run of the same id into canon (canon[r] = r: the first of its id), on
+ * up to `threads` threads. *dups gets the number of repeats. -1 when out of memory. */
+static int runs_canon(const pm_table_t *t, unsigned threads, uint32_t **canon, size_t *dups) {
+    runs_job j;
+    memset(&j, 0, sizeof j);
+    j.t = t;
+    j.n = t->run_n;
+    j.bits = j.n >= RUNS_MANY && threads > 1 ? RUNS_BUCKET_BITS : 0;
+    j.nparts = j.bits ? 4 * (size_t)threads : 1;
+    size_t nb = (size_t)1 << j.bits;
+    j.keys = pm_i_malloc(j.n ? j.n : 1, sizeof *j.keys);
+    j.at = pm_i_calloc(j.nparts * nb, sizeof *j.at);
+    j.start = pm_i_malloc(nb + 1, sizeof *j.start);
+    j.dups = pm_i_calloc(threads, sizeof *j.dups);
+    int rc = -1;
+    *canon = NULL;
+    *dups = 0;
+    if (!j.keys || !j.at || !j.start || !j.dups ||
+        pm_i_parallel(threads, j.nparts, runs_chunk, &j)) {
+        goto done;
+    }
+    size_t sum = 0; /* bucket by bucket, each share's runs in share order */
+    for (size_t bk = 0; bk < nb; bk++) {
+        j.start[bk] = sum;
+        for (size_t c = 0; c < j.nparts; c++) {
+            size_t x = j.at[(c << j.bits) + bk];
+            j.at[(c << j.bits) + bk] = sum;
+            sum += x;
+        }
+    }
+    j.start[nb] = sum;
+    j.phase = 1;
+    if (pm_i_parallel(threads, j.nparts, runs_chunk, &j)) {
+        goto done;
+    }
+    j.phase = 2;
+    if (pm_i_parallel(j.bits ? threads : 1, nb, runs_chunk, &j)) {
+        goto done;
+    }
+    for (unsigned th = 0; th < threads; th++) {
+        *dups += j.dups[th].n;
+    }
+    if (*dups) {
+        if (!(*canon = pm_i_malloc(j.n, sizeof **canon))) {
+            goto done;
+        }
+        for (size_t r = 0; r < j.n; r++) {
+            (*canon)[r] = (uint32_t)r;
+        }
+        for (unsigned th = 0; th < threads; th++) {
+            for (size_t i = 0; i < j.dups[th].n; i++) {
+                (*canon)[j.dups[th].v[i].later] = j.dups[th].v[i].first;
+            }
+        }
+    }
+    rc = 0;
+done:
+    for (unsigned th = 0; j.dups && th < threads; th++) {
+        free(j.dups[th].v);
+        free(j.dups[th].seen);
+    }
+    free(j.dups);
+    free(j.keys);
+    free(j.at);
+    free(j.start);
+    return rc;
+}
+
+/* Folds each later run into its first (weights must agree), renumbers the respondents in
+ * order of first appearance and remaps the rows. */
+static pm_err_t runs_fold(pm_table_t *t, const uint32_t *canon, pm_diag_t *diag) {
+    size_t n = t->run_n;
+    for (size_t r = 0; r < n; r++) {
+        uint32_t c = canon[r];
+        if (c == r) {
+            continue;
+        }
+        double wc = t->resp_weight[c], wr = t->resp_weight[r];
+        if (!isnan(wr)) {
+            if (isnan(wc)) {
+                t->resp_weight[c] = wr;
+            } else if (wc != wr) {
+                return pm_diag_set(diag, PM_EDATA, t->source, (long)t->resp_line[r],
+                                   "weight %.17g differs from the weight %.17g this respondent "
+                                   "has on line %llu; give each respondent one weight",
+                                   wr, wc, (unsigned long long)t->resp_line[c]);
+            }
+        }
+        t->resp_has_item[c] |= t->resp_has_item[r];
+    }
+    uint32_t *ix = pm_i_malloc(n ? n : 1, sizeof *ix); /* the new index of each run */
+    if (!ix) {
+        return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
+    }
+    size_t k = 0;
+    for (size_t r = 0; r < n; r++) {
+        if (canon[r] == r) {
+            ix[r] = (uint32_t)k;
+            t->resp_weight[k] = t->resp_weight[r];
+            t->resp_line[k] = t->resp_line[r];
+            t->resp_has_item[k] = t->resp_has_item[r];
+            t->rstr[k] = t->run_buf + t->run_off[r];
+            k++;
+        } else {
+            ix[r] = ix[canon[r]];
+        }
+    }
+    for (size_t i = 0; i < t->n_rows; i++) {
+        t->row_resp[i] = ix[t->row_resp[i]];
+    }
+    t->stats.respondents = k;
+    free(ix);
+    return PM_OK;
+}
+
+pm_err_t pm_i_table_merge_runs(pm_table_t *t, unsigned threads, pm_diag_t *diag) {
+    if (threads == 0) {
+        long np = sysconf(_SC_NPROCESSORS_ONLN);
+        threads = np > 0 ? (unsigned)np : 1;
+    }
+    size_t n = t->run_n, dups;
+    uint32_t *canon;
+    t->rstr = pm_i_malloc(n ? n : 1, sizeof *t->rstr);
+    if (!t->rstr || runs_canon(t, threads, &canon, &dups)) {
+        return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
+    }
+    if (dups) {
+        pm_err_t rc = runs_fold(t, canon, diag);
+        free(canon);
+        return rc;
+    }
+    for (size_t r = 0; r < n; r++) {
+        t->rstr[r] = t->run_buf + t->run_off[r];
+    }
+    return PM_OK;
+}

@@ -121,6 +121,7 @@ typedef struct {
     size_t nr;        /* the chunk's respondents (runs or anonymous lines), from r0 */
     uint64_t base;    /* lines before the chunk */
     size_t rn, used0; /* its runs start at run rn, their ids at run_buf + used0 */
+    pm_table_t **own; /* where the chunk's table is held: freed once copied (on all threads) */
 } par_rows;
 
 static int par_rows_copy(void *ud, size_t k, unsigned th) {
@@ -152,6 +153,8 @@ static int par_rows_copy(void *ud, size_t k, unsigned th) {
     if (pr->t->row_tag && pr->c->n_rows) { /* every chunk numbers the merge file alike */
         memcpy(pr->t->row_tag + pr->dst, pr->c->row_tag, pr->c->n_rows * sizeof(uint32_t));
     }
+    pm_table_free(*pr->own);
+    *pr->own = NULL;
     return 0;
 }
 
@@ -364,6 +367,7 @@ static int par_append_all(pm_table_t *t, par_chunk *ch, size_t n, unsigned threa
     }
     for (size_t k = 1; k < n && ok; k++) {
         pm_err_t rc = par_append(t, ch[k].t, base, &rows[k - 1]);
+        rows[k - 1].own = &ch[k].t;
         if (rc == PM_ENOMEM) {
             pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
             result = -1;

@@ -19,8 +19,8 @@
 #include <string.h>
 
 /* Invariants: row_resp[i] < resp.count, row_item[i] < items.count; item_cat[i] is a category
- * id or -1; resp_weight[r] is NaN until the respondent's first weighted row. Item names are
- * trimmed, non-empty and valid UTF-8. */
+ * id or -1; resp_weight is NULL without a weight column, else resp_weight[r] is NaN until the
+ * respondent's first weighted row. Item names are trimmed, non-empty and valid UTF-8. */
 /* Tests only: set to read every line through the record path (no pm_i_read_lines fast path), to
  * check that both give the same table or the same error. */
 extern int pm_i_no_fast_lines;

@@ -130,7 +130,9 @@ static int par_rows_copy(void *ud, size_t k, unsigned th) {
     pm_table_t *t = pr->t;
     const pm_table_t *c = pr->c;
     if (pr->nr) {
-        memcpy(t->resp_weight + pr->r0, c->resp_weight, pr->nr * sizeof(double));
+        if (c->resp_weight) { /* only with weights */
+            memcpy(t->resp_weight + pr->r0, c->resp_weight, pr->nr * sizeof(double));
+        }
         memcpy(t->resp_has_item + pr->r0, c->resp_has_item, pr->nr);
         for (size_t r = 0; r < pr->nr; r++) {
             t->resp_line[pr->r0 + r] = c->resp_line[r] + pr->base;

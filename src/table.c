@@ -204,9 +204,9 @@ int pm_i_grow_respondents(pm_table_t *t, size_t need) {
         return 0;
     }
     size_t c1 = t->resp_cap, c2 = t->resp_cap, c3 = t->resp_cap;
-    if (pm_i_grow((void **)&t->resp_weight, &c1, need, sizeof(double)) ||
-        pm_i_grow((void **)&t->resp_line, &c2, need, sizeof(uint64_t)) ||
-        pm_i_grow((void **)&t->resp_has_item, &c3, need, 1)) {
+    if (pm_i_grow((void **)&t->resp_line, &c1, need, sizeof(uint64_t)) ||
+        pm_i_grow((void **)&t->resp_has_item, &c2, need, 1) ||
+        (t->weighted && pm_i_grow((void **)&t->resp_weight, &c3, need, sizeof(double)))) {
         return -1;
     }
     t->resp_cap = c1;
@@ -239,7 +239,9 @@ static pm_err_t new_respondent(pm_table_t *t, size_t r, uint64_t line, pm_diag_t
     if (pm_i_grow_respondents(t, r + 1)) {
         return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");
     }
-    t->resp_weight[r] = NAN;
+    if (t->resp_weight) { /* only with weights */
+        t->resp_weight[r] = NAN;
+    }
     t->resp_line[r] = line;
     t->resp_has_item[r] = 0;
     t->stats.respondents++;
@@ -606,7 +608,9 @@ pm_err_t pm_table_keep(pm_table_t *t, const unsigned char *keep, pm_diag_t *diag
         if (ids) {
             ids[k] = pm_table_respondent(t, r); /* addresses stay valid: the arena is kept */
         }
-        t->resp_weight[k] = t->resp_weight[r];
+        if (t->resp_weight) {
+            t->resp_weight[k] = t->resp_weight[r];
+        }
         t->resp_line[k] = t->resp_line[r];
         t->resp_has_item[k] = t->resp_has_item[r];
         k++;

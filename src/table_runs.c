@@ -196,7 +196,8 @@ static pm_err_t runs_fold(pm_table_t *t, const uint32_t *canon, pm_diag_t *diag)
         if (c == r) {
             continue;
         }
-        double wc = t->resp_weight[c], wr = t->resp_weight[r];
+        double wc = t->resp_weight ? t->resp_weight[c] : NAN;
+        double wr = t->resp_weight ? t->resp_weight[r] : NAN;
         if (!isnan(wr)) {
             if (isnan(wc)) {
                 t->resp_weight[c] = wr;
@@ -217,7 +218,9 @@ static pm_err_t runs_fold(pm_table_t *t, const uint32_t *canon, pm_diag_t *diag)
     for (size_t r = 0; r < n; r++) {
         if (canon[r] == r) {
             ix[r] = (uint32_t)k;
-            t->resp_weight[k] = t->resp_weight[r];
+            if (t->resp_weight) {
+                t->resp_weight[k] = t->resp_weight[r];
+            }
             t->resp_line[k] = t->resp_line[r];
             t->resp_has_item[k] = t->resp_has_item[r];
             t->rstr[k] = t->run_buf + t->run_off[r];

@@ -37,6 +37,16 @@ extern atomic_int pm_i_hash_stalled;
 
 typedef struct pm_i_hash_job pm_i_hash_job; /* src/filehash.c */
 
+/* The runs of ids one chunk of a parallel read found, handed over to the file's table as they
+ * are (not copied): run r of the file is run r - r0 of the segment holding it. */
+typedef struct {
+    char *buf;      /* the ids' text: kept while the table lives (t->rstr points into it) */
+    uint64_t *off;  /* [n] where each run's id starts in buf (freed once the runs are merged) */
+    uint32_t *len;  /* [n] */
+    uint64_t *hash; /* [n] */
+    size_t n, r0;
+} pm_i_run_seg;
+
 struct pm_table {
     char *source;
     pm_i_strtab resp;  /* respondent ids (kept only for `unfold`; never in results) */
@@ -84,6 +94,10 @@ struct pm_table {
     uint32_t *run_len;
     uint64_t *run_hash; /* pm_i_hash of each run's id, taken while reading */
     size_t run_n, run_off_cap;
+    /* a parallel read: the runs of the chunks after the first, from run run_own on (the first
+     * run_own runs are the ones above); run_n counts them all */
+    pm_i_run_seg *run_segs;
+    size_t n_run_segs, run_own;
     const char **rstr; /* after finish: respondent -> id (deferred mode) */
     /* fast path: the last respondent seen */
     char *last_id;

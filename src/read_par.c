@@ -120,7 +120,6 @@ typedef struct {
     uint32_t r0;
     size_t nr;        /* the chunk's respondents (runs or anonymous lines), from r0 */
     uint64_t base;    /* lines before the chunk */
-    size_t rn, used0; /* its runs start at run rn, their ids at run_buf + used0 */
     pm_table_t **own; /* where the chunk's table is held: freed once copied (on all threads) */
 } par_rows;
 
@@ -137,14 +136,6 @@ static int par_rows_copy(void *ud, size_t k, unsigned th) {
         for (size_t r = 0; r < pr->nr; r++) {
             t->resp_line[pr->r0 + r] = c->resp_line[r] + pr->base;
         }
-    }
-    if (c->run_n) {
-        memcpy(t->run_hash + pr->rn, c->run_hash, c->run_n * sizeof *t->run_hash);
-        memcpy(t->run_buf + pr->used0, c->run_buf, c->run_used);
-        for (size_t r = 0; r < c->run_n; r++) {
-            t->run_off[pr->rn + r] = c->run_off[r] + pr->used0;
-        }
-        memcpy(t->run_len + pr->rn, c->run_len, c->run_n * sizeof *t->run_len);
     }
     uint32_t *rr = pr->t->row_resp + pr->dst, *ri = pr->t->row_item + pr->dst;
     const uint32_t *cr = pr->c->row_resp, *ci = pr->c->row_item;
@@ -209,16 +200,17 @@ static pm_err_t par_append(pm_table_t *t, pm_table_t *c, uint64_t base, par_rows
     if (pm_i_grow_respondents(t, r0 + nr)) {
         goto done;
     }
-    /* the respondents' and runs' arrays are copied with the rows, later (par_rows_copy) */
+    /* the respondents' arrays are copied with the rows, later (par_rows_copy); the runs are
+     * handed over */
     rows_job->nr = nr;
     rows_job->base = base;
-    rows_job->rn = t->run_n;
-    rows_job->used0 = t->run_used;
     if (c->run_n) {
-        if (pm_i_grow_runs(t, t->run_n + c->run_n, t->run_used + c->run_used)) {
-            goto done;
-        }
-        t->run_used += c->run_used;
+        t->run_segs[t->n_run_segs++] = /* room for every chunk (par_append_all) */
+            (pm_i_run_seg){c->run_buf, c->run_off, c->run_len, c->run_hash, c->run_n, t->run_n};
+        c->run_buf = NULL;
+        c->run_off = NULL;
+        c->run_len = NULL;
+        c->run_hash = NULL;
         t->run_n += c->run_n;
     }
     t->n_anon += c->n_anon;
@@ -362,7 +354,7 @@ static int par_append_all(pm_table_t *t, par_chunk *ch, size_t n, unsigned threa
     for (size_t k = 1; k < n; k++) {
         total += ch[k].t->n_rows;
     }
-    if (pm_i_grow_rows(t, total)) {
+    if (pm_i_grow_rows(t, total) || !(t->run_segs = pm_i_calloc(n, sizeof *t->run_segs))) {
         ok = 0;
         result = -1;
         pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory");

@@ -72,6 +72,13 @@ void pm_table_free(pm_table_t *t) {
     free(t->run_off);
     free(t->run_len);
     free(t->run_hash);
+    for (size_t k = 0; k < t->n_run_segs; k++) {
+        free(t->run_segs[k].buf);
+        free(t->run_segs[k].off);
+        free(t->run_segs[k].len);
+        free(t->run_segs[k].hash);
+    }
+    free(t->run_segs);
     free((void *)t->rstr);
     free(t);
 }
@@ -275,6 +282,7 @@ pm_err_t pm_i_table_respondent(pm_table_t *t, const char *id, size_t len, uint64
         t->run_hash[rr] = pm_i_hash(id, len);
         t->run_used += len + 1;
         t->run_n++;
+        t->run_own = t->run_n;
         pm_err_t rc = new_respondent(t, rr, line, diag);
         if (rc) {
             return rc;

@@ -5,7 +5,9 @@
  * of the runs scattered in order, so each bucket holds its runs in run order), each bucket is
  * sorted by a stable radix sort on one thread, and equal strings are looked for only among the
  * runs of one hash, in run order. Which thread sorts which bucket changes nothing: a run's
- * first equal run is the same whatever the order of the buckets. */
+ * first equal run is the same whatever the order of the buckets. The runs of a parallel read
+ * stay where its chunks left them (pm_i_run_seg, handed over by src/read_par.c): the table's
+ * own runs first, then each segment's. */
 #include "input_internal.h"
 #include "parallel.h"
 
@@ -28,9 +30,17 @@ typedef struct {
     size_t seen_cap;
 } dup_list;
 
+/* A share of the runs for phases 0 and 1: runs a..b of one segment. */
 typedef struct {
-    const pm_table_t *t;
-    size_t n, nparts; /* runs; thread shares of them */
+    const pm_i_run_seg *seg;
+    size_t a, b;
+} run_share;
+
+typedef struct {
+    const pm_i_run_seg *segs; /* [nsegs] in run order: the table's own runs, then the chunks' */
+    size_t nsegs;
+    run_share *share; /* [nparts] in run order */
+    size_t n, nparts; /* runs; shares of them */
     int bits;         /* bucket bits: 0 (one bucket) or RUNS_BUCKET_BITS */
     int phase;        /* 0: count, 1: scatter, 2: sort and find repeats */
     uint64_t *keys;   /* [n] hash << 32 | run, by bucket */
@@ -45,22 +55,38 @@ static size_t runs_bucket(const runs_job *j, uint64_t h) {
 
 /* Phases 0 and 1 on share c of the runs. */
 static void runs_scatter(runs_job *j, size_t c) {
-    size_t r0 = j->n * c / j->nparts, r1 = j->n * (c + 1) / j->nparts;
+    const run_share *sh = &j->share[c];
+    const uint64_t *h = sh->seg->hash;
     size_t *at = j->at + (c << j->bits);
-    const uint64_t *h = j->t->run_hash;
     if (j->phase == 0) {
-        for (size_t r = r0; r < r1; r++) {
+        for (size_t r = sh->a; r < sh->b; r++) {
             at[runs_bucket(j, h[r])]++;
         }
         return;
     }
-    for (size_t r = r0; r < r1; r++) {
-        j->keys[at[runs_bucket(j, h[r])]++] = (h[r] >> 32) << 32 | (uint64_t)r;
+    for (size_t r = sh->a; r < sh->b; r++) {
+        j->keys[at[runs_bucket(j, h[r])]++] = (h[r] >> 32) << 32 | (uint64_t)(sh->seg->r0 + r);
     }
 }
 
+/* The id of run r (its length into *len). */
+static const char *run_id(const runs_job *j, size_t r, uint32_t *len) {
+    size_t lo = 0, hi = j->nsegs; /* the last segment starting at or before r */
+    while (hi - lo > 1) {
+        size_t mid = lo + (hi - lo) / 2;
+        if (j->segs[mid].r0 <= r) {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    const pm_i_run_seg *g = &j->segs[lo];
+    *len = g->len[r - g->r0];
+    return g->buf + g->off[r - g->r0];
+}
+
 /* The repeats among keys[a..b) (one hash, in run order) into d. -1 when out of memory. */
-static int runs_group(const pm_table_t *t, const uint64_t *keys, size_t a, size_t b, dup_list *d) {
+static int runs_group(const runs_job *j, size_t a, size_t b, dup_list *d) {
     size_t m = b - a;
     if (m > d->seen_cap) {
         free(d->seen);
@@ -72,12 +98,12 @@ static int runs_group(const pm_table_t *t, const uint64_t *keys, size_t a, size_
     }
     memset(d->seen, 0, m);
     for (size_t x = 1; x < m; x++) {
-        uint32_t ra = (uint32_t)keys[a + x];
+        uint32_t ra = (uint32_t)j->keys[a + x], la, lb;
+        const char *ida = run_id(j, ra, &la);
         for (size_t y = 0; y < x; y++) {
-            uint32_t rb = (uint32_t)keys[a + y];
-            if (!d->seen[y] && t->run_len[ra] == t->run_len[rb] &&
-                memcmp(t->run_buf + t->run_off[ra], t->run_buf + t->run_off[rb], t->run_len[ra]) ==
-                    0) {
+            uint32_t rb = (uint32_t)j->keys[a + y];
+            const char *idb = run_id(j, rb, &lb);
+            if (!d->seen[y] && la == lb && memcmp(ida, idb, la) == 0) {
                 if (d->n == d->cap && pm_i_grow((void **)&d->v, &d->cap, d->n + 1, sizeof *d->v)) {
                     return -1;
                 }
@@ -102,7 +128,7 @@ static int runs_sort_bucket(runs_job *j, size_t c, unsigned th) {
         while (e < b && k[e] >> 32 == k[i] >> 32) {
             e++;
         }
-        if (e - i > 1 && runs_group(j->t, k, i, e, &j->dups[th])) {
+        if (e - i > 1 && runs_group(j, i, e, &j->dups[th])) {
             return -1;
         }
         i = e;
@@ -119,68 +145,92 @@ static int runs_chunk(void *ud, size_t c, unsigned th) {
     return runs_sort_bucket(j, c, th);
 }
 
-/* Every run's first run of the same id into canon (canon[r] = r: the first of its id), on
- * up to `threads` threads. *dups gets the number of repeats. -1 when out of memory. */
-static int runs_canon(const pm_table_t *t, unsigned threads, uint32_t **canon, size_t *dups) {
+/* The shares of phases 0 and 1: each segment cut into pieces of about `size` runs, in run
+ * order. Returns how many (at most nsegs + n / size), or 0 when out of memory. */
+static size_t runs_shares(runs_job *j, size_t size) {
+    size_t most = j->nsegs + j->n / size, k = 0;
+    j->share = pm_i_malloc(most ? most : 1, sizeof *j->share);
+    for (size_t g = 0; j->share && g < j->nsegs; g++) {
+        size_t n = j->segs[g].n, parts = (n + size - 1) / size;
+        for (size_t p = 0; p < parts; p++) {
+            j->share[k++] = (run_share){&j->segs[g], n * p / parts, n * (p + 1) / parts};
+        }
+    }
+    return j->share ? k : 0;
+}
+
+/* Where each share's runs of each bucket go: bucket by bucket, the shares in run order. */
+static void runs_offsets(runs_job *j) {
+    size_t sum = 0, nb = (size_t)1 << j->bits;
+    for (size_t bk = 0; bk < nb; bk++) {
+        j->start[bk] = sum;
+        for (size_t c = 0; c < j->nparts; c++) {
+            size_t x = j->at[(c << j->bits) + bk];
+            j->at[(c << j->bits) + bk] = sum;
+            sum += x;
+        }
+    }
+    j->start[nb] = sum;
+}
+
+/* The repeats found into canon (made only when there are some: *dups). -1 out of memory. */
+static int runs_canon_make(runs_job *j, unsigned threads, uint32_t **canon, size_t *dups) {
+    for (unsigned th = 0; th < threads; th++) {
+        *dups += j->dups[th].n;
+    }
+    if (*dups) {
+        if (!(*canon = pm_i_malloc(j->n, sizeof **canon))) {
+            return -1;
+        }
+        for (size_t r = 0; r < j->n; r++) {
+            (*canon)[r] = (uint32_t)r;
+        }
+        for (unsigned th = 0; th < threads; th++) {
+            for (size_t i = 0; i < j->dups[th].n; i++) {
+                (*canon)[j->dups[th].v[i].later] = j->dups[th].v[i].first;
+            }
+        }
+    }
+    return 0;
+}
+
+/* Every run's first run of the same id into canon (canon[r] = r: the first of its id; NULL
+ * when no id repeats), on up to `threads` threads. *dups gets the number of repeats. -1 when
+ * out of memory. */
+static int runs_canon(const pm_i_run_seg *segs, size_t nsegs, size_t n, unsigned threads,
+                      uint32_t **canon, size_t *dups) {
     runs_job j;
     memset(&j, 0, sizeof j);
-    j.t = t;
-    j.n = t->run_n;
-    j.bits = j.n >= RUNS_MANY && threads > 1 ? RUNS_BUCKET_BITS : 0;
-    j.nparts = j.bits ? 4 * (size_t)threads : 1;
+    j.segs = segs;
+    j.nsegs = nsegs;
+    j.n = n;
+    j.bits = n >= RUNS_MANY && threads > 1 ? RUNS_BUCKET_BITS : 0;
     size_t nb = (size_t)1 << j.bits;
-    j.keys = pm_i_malloc(j.n ? j.n : 1, sizeof *j.keys);
-    j.at = pm_i_calloc(j.nparts * nb, sizeof *j.at);
+    j.nparts = runs_shares(&j, j.bits ? n / (4 * (size_t)threads) + 1 : n + 1);
+    j.keys = pm_i_malloc(n ? n : 1, sizeof *j.keys);
+    j.at = pm_i_calloc((j.nparts ? j.nparts : 1) * nb, sizeof *j.at);
     j.start = pm_i_malloc(nb + 1, sizeof *j.start);
     j.dups = pm_i_calloc(threads, sizeof *j.dups);
     int rc = -1;
     *canon = NULL;
     *dups = 0;
-    if (!j.keys || !j.at || !j.start || !j.dups ||
-        pm_i_parallel(threads, j.nparts, runs_chunk, &j)) {
-        goto done;
-    }
-    size_t sum = 0; /* bucket by bucket, each share's runs in share order */
-    for (size_t bk = 0; bk < nb; bk++) {
-        j.start[bk] = sum;
-        for (size_t c = 0; c < j.nparts; c++) {
-            size_t x = j.at[(c << j.bits) + bk];
-            j.at[(c << j.bits) + bk] = sum;
-            sum += x;
-        }
-    }
-    j.start[nb] = sum;
-    j.phase = 1;
-    if (pm_i_parallel(threads, j.nparts, runs_chunk, &j)) {
-        goto done;
-    }
-    j.phase = 2;
-    if (pm_i_parallel(j.bits ? threads : 1, nb, runs_chunk, &j)) {
-        goto done;
-    }
-    for (unsigned th = 0; th < threads; th++) {
-        *dups += j.dups[th].n;
-    }
-    if (*dups) {
-        if (!(*canon = pm_i_malloc(j.n, sizeof **canon))) {
-            goto done;
-        }
-        for (size_t r = 0; r < j.n; r++) {
-            (*canon)[r] = (uint32_t)r;
-        }
-        for (unsigned th = 0; th < threads; th++) {
-            for (size_t i = 0; i < j.dups[th].n; i++) {
-                (*canon)[j.dups[th].v[i].later] = j.dups[th].v[i].first;
+    if (j.nparts && j.keys && j.at && j.start && j.dups &&
+        pm_i_parallel(threads, j.nparts, runs_chunk, &j) == 0) {
+        runs_offsets(&j);
+        j.phase = 1;
+        if (pm_i_parallel(threads, j.nparts, runs_chunk, &j) == 0) {
+            j.phase = 2;
+            if (pm_i_parallel(j.bits ? threads : 1, nb, runs_chunk, &j) == 0) {
+                rc = runs_canon_make(&j, threads, canon, dups);
             }
         }
     }
-    rc = 0;
-done:
     for (unsigned th = 0; j.dups && th < threads; th++) {
         free(j.dups[th].v);
         free(j.dups[th].seen);
     }
     free(j.dups);
+    free(j.share);
     free(j.keys);
     free(j.at);
     free(j.start);
@@ -188,7 +238,7 @@ done:
 }
 
 /* Folds each later run into its first (weights must agree), renumbers the respondents in
- * order of first appearance and remaps the rows. */
+ * order of first appearance (t->rstr, set for every run, compacted) and remaps the rows. */
 static pm_err_t runs_fold(pm_table_t *t, const uint32_t *canon, pm_diag_t *diag) {
     size_t n = t->run_n;
     for (size_t r = 0; r < n; r++) {
@@ -223,7 +273,7 @@ static pm_err_t runs_fold(pm_table_t *t, const uint32_t *canon, pm_diag_t *diag)
             }
             t->resp_line[k] = t->resp_line[r];
             t->resp_has_item[k] = t->resp_has_item[r];
-            t->rstr[k] = t->run_buf + t->run_off[r];
+            t->rstr[k] = t->rstr[r]; /* k <= r */
             k++;
         } else {
             ix[r] = ix[canon[r]];
@@ -242,19 +292,40 @@ pm_err_t pm_i_table_merge_runs(pm_table_t *t, unsigned threads, pm_diag_t *diag)
         long np = sysconf(_SC_NPROCESSORS_ONLN);
         threads = np > 0 ? (unsigned)np : 1;
     }
-    size_t n = t->run_n, dups;
-    uint32_t *canon;
+    size_t n = t->run_n, dups, nsegs = 0;
+    uint32_t *canon = NULL;
+    pm_i_run_seg *segs = pm_i_malloc(t->n_run_segs + 1, sizeof *segs);
     t->rstr = pm_i_malloc(n ? n : 1, sizeof *t->rstr);
-    if (!t->rstr || runs_canon(t, threads, &canon, &dups)) {
+    if (!segs || !t->rstr) {
+        free(segs);
         return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
     }
-    if (dups) {
-        pm_err_t rc = runs_fold(t, canon, diag);
-        free(canon);
-        return rc;
+    if (t->run_own) { /* the table's own runs, then the chunks' */
+        segs[nsegs++] =
+            (pm_i_run_seg){t->run_buf, t->run_off, t->run_len, t->run_hash, t->run_own, 0};
     }
-    for (size_t r = 0; r < n; r++) {
-        t->rstr[r] = t->run_buf + t->run_off[r];
+    for (size_t k = 0; k < t->n_run_segs; k++) {
+        segs[nsegs++] = t->run_segs[k];
     }
-    return PM_OK;
+    for (size_t g = 0; g < nsegs; g++) {
+        for (size_t r = 0; r < segs[g].n; r++) {
+            t->rstr[segs[g].r0 + r] = segs[g].buf + segs[g].off[r];
+        }
+    }
+    int crc = runs_canon(segs, nsegs, n, threads, &canon, &dups);
+    free(segs);
+    if (crc) {
+        return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");
+    }
+    for (size_t k = 0; k < t->n_run_segs; k++) { /* only the ids' text is needed now */
+        free(t->run_segs[k].off);
+        free(t->run_segs[k].len);
+        free(t->run_segs[k].hash);
+        t->run_segs[k].off = NULL;
+        t->run_segs[k].len = NULL;
+        t->run_segs[k].hash = NULL;
+    }
+    pm_err_t rc = dups ? runs_fold(t, canon, diag) : PM_OK;
+    free(canon);
+    return rc;
 }

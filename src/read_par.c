@@ -255,9 +255,13 @@ static size_t par_plan(int fd, uint64_t size, const pm_input_opts_t *o, unsigned
     if (nc < 2 || threads < 2 || o->format == PM_FORMAT_WIDE) {
         return 0;
     }
+    /* the first chunk, which the calling thread reads into the table itself (the others are
+     * copied into it), is as long as the others the remaining threads read meanwhile: about
+     * (nc - threads) / threads of the nc parts; the parts after it are handed out one by one */
+    uint64_t first = nc > 2 * (uint64_t)threads ? (nc - threads) / threads : 1;
     size_t n = 0;
     cut[n++] = 0;
-    for (uint64_t k = 1; k < nc; k++) {
+    for (uint64_t k = first; k < nc; k++) {
         uint64_t want = size / nc * k;
         if (want <= cut[n - 1]) {
             continue;

@@ -39,14 +39,15 @@ typedef struct {
 typedef struct {
     const pm_i_run_seg *segs; /* [nsegs] in run order: the table's own runs, then the chunks' */
     size_t nsegs;
-    run_share *share; /* [nparts] in run order */
-    size_t n, nparts; /* runs; shares of them */
-    int bits;         /* bucket bits: 0 (one bucket) or RUNS_BUCKET_BITS */
-    int phase;        /* 0: count, 1: scatter, 2: sort and find repeats */
-    uint64_t *keys;   /* [n] hash << 32 | run, by bucket */
-    size_t *at;       /* [nparts][buckets] where each share's runs of a bucket go */
-    size_t *start;    /* [buckets + 1] where each bucket starts */
-    dup_list *dups;   /* [threads] */
+    run_share *share;  /* [nparts] in run order */
+    size_t n, nparts;  /* runs; shares of them */
+    int bits;          /* bucket bits: 0 (one bucket) or RUNS_BUCKET_BITS */
+    int phase;         /* 0: count, 1: scatter, 2: sort and find repeats */
+    uint64_t *keys;    /* [n] hash << 32 | run, by bucket */
+    size_t *at;        /* [nparts][buckets] where each share's runs of a bucket go */
+    size_t *start;     /* [buckets + 1] where each bucket starts */
+    dup_list *dups;    /* [threads] */
+    const char **rstr; /* [n] set in phase 1: each run's id */
 } runs_job;
 
 static size_t runs_bucket(const runs_job *j, uint64_t h) {
@@ -66,6 +67,7 @@ static void runs_scatter(runs_job *j, size_t c) {
     }
     for (size_t r = sh->a; r < sh->b; r++) {
         j->keys[at[runs_bucket(j, h[r])]++] = (h[r] >> 32) << 32 | (uint64_t)(sh->seg->r0 + r);
+        j->rstr[sh->seg->r0 + r] = sh->seg->buf + sh->seg->off[r];
     }
 }
 
@@ -195,12 +197,13 @@ static int runs_canon_make(runs_job *j, unsigned threads, uint32_t **canon, size
 }
 
 /* Every run's first run of the same id into canon (canon[r] = r: the first of its id; NULL
- * when no id repeats), on up to `threads` threads. *dups gets the number of repeats. -1 when
- * out of memory. */
+ * when no id repeats), and every run's id into rstr, on up to `threads` threads. *dups gets the
+ * number of repeats. -1 when out of memory. */
 static int runs_canon(const pm_i_run_seg *segs, size_t nsegs, size_t n, unsigned threads,
-                      uint32_t **canon, size_t *dups) {
+                      const char **rstr, uint32_t **canon, size_t *dups) {
     runs_job j;
     memset(&j, 0, sizeof j);
+    j.rstr = rstr;
     j.segs = segs;
     j.nsegs = nsegs;
     j.n = n;
@@ -307,12 +310,7 @@ pm_err_t pm_i_table_merge_runs(pm_table_t *t, unsigned threads, pm_diag_t *diag)
     for (size_t k = 0; k < t->n_run_segs; k++) {
         segs[nsegs++] = t->run_segs[k];
     }
-    for (size_t g = 0; g < nsegs; g++) {
-        for (size_t r = 0; r < segs[g].n; r++) {
-            t->rstr[segs[g].r0 + r] = segs[g].buf + segs[g].off[r];
-        }
-    }
-    int crc = runs_canon(segs, nsegs, n, threads, &canon, &dups);
+    int crc = runs_canon(segs, nsegs, n, threads, t->rstr, &canon, &dups);
     free(segs);
     if (crc) {
         return pm_diag_set(diag, PM_ENOMEM, t->source, 0, "out of memory (respondent ids)");

@@ -157,6 +157,22 @@ stop_stalled_input() {
 }
 
 # True when `pairmap CMD` is implemented (its --help succeeds).
+# same_out NAME ARGS...: pairmap ARGS with --threads 1 and with 2 give the same stdout, stderr
+# and exit status (the status, the same for both, is left in $st); outputs in $TMP/NAME.*
+same_out() {
+    local name="$1"
+    shift
+    CASES=$((CASES + 1))
+    "$PAIRMAP" "$@" --threads 1 >"$TMP/$name.1" 2>"$TMP/$name.e1"
+    local s1=$?
+    "$PAIRMAP" "$@" --threads 2 >"$TMP/$name.2" 2>"$TMP/$name.e2"
+    local s2=$?
+    [ "$s1" = "$s2" ] || fail "$name: exit $s1 with one thread, $s2 with two"
+    cmp -s "$TMP/$name.1" "$TMP/$name.2" || fail "$name: stdout differs between 1 and 2 threads"
+    cmp -s "$TMP/$name.e1" "$TMP/$name.e2" || fail "$name: stderr differs between 1 and 2 threads"
+    st="$s1"
+}
+
 have_command() {
     "$PAIRMAP" "$1" --help >/dev/null 2>&1
 }

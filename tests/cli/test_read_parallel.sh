@@ -24,22 +24,7 @@ awk 'BEGIN {
 size=$(wc -c <"$TMP/long.csv")
 [ "$size" -gt 17000000 ] || fail "the test file is only $size bytes: too small to be read in chunks"
 
-# same_out NAME ARGS...: stdout and stderr of --threads 1 and 2 are identical; the exit status
-# (the same for both) is left in $st
-same_out() {
-    local name="$1"
-    shift
-    CASES=$((CASES + 1))
-    "$PAIRMAP" "$@" --threads 1 >"$TMP/$name.1" 2>"$TMP/$name.e1"
-    local s1=$?
-    "$PAIRMAP" "$@" --threads 2 >"$TMP/$name.2" 2>"$TMP/$name.e2"
-    local s2=$?
-    [ "$s1" = "$s2" ] || fail "$name: exit $s1 with one thread, $s2 with two"
-    cmp -s "$TMP/$name.1" "$TMP/$name.2" || fail "$name: stdout differs between 1 and 2 threads"
-    cmp -s "$TMP/$name.e1" "$TMP/$name.e2" || fail "$name: stderr differs between 1 and 2 threads"
-    st="$s1"
-}
-
+# same_out (errors_lib.sh): stdout, stderr and exit status of --threads 1 and 2 the same
 same_out items items "$TMP/long.csv" --category-col category
 [ "$st" = 0 ] || fail "items on the long file exited $st"
 [ "$(wc -l <"$TMP/items.1")" -eq 301 ] || fail "items: expected 300 items, got $(($(wc -l <"$TMP/items.1") - 1))"

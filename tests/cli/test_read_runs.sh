@@ -29,19 +29,6 @@ runs=$(awk -F, 'NR > 1 && $1 != last { n++ } { last = $1 } END { print n }' "$TM
 [ "$runs" -gt 1048576 ] || fail "only $runs runs: below the size where buckets are used"
 ids=$(tail -n +2 "$TMP/runs.csv" | cut -d, -f1 | sort -u | wc -l)
 
-same_out() { # NAME ARGS...: stdout, stderr and exit status of --threads 1 and 2 are the same
-    local name="$1"
-    shift
-    CASES=$((CASES + 1))
-    "$PAIRMAP" "$@" --threads 1 >"$TMP/$name.1" 2>"$TMP/$name.e1"
-    local s1=$?
-    "$PAIRMAP" "$@" --threads 2 >"$TMP/$name.2" 2>"$TMP/$name.e2"
-    local s2=$?
-    [ "$s1" = "$s2" ] || fail "$name: exit $s1 with one thread, $s2 with two"
-    cmp -s "$TMP/$name.1" "$TMP/$name.2" || fail "$name: stdout differs between 1 and 2 threads"
-    cmp -s "$TMP/$name.e1" "$TMP/$name.e2" || fail "$name: stderr differs between 1 and 2 threads"
-    st="$s1"
-}
 
 same_out items items "$TMP/runs.csv"
 [ "$st" = 0 ] || fail "items exited $st"

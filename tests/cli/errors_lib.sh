@@ -173,6 +173,16 @@ same_out() {
     st="$s1"
 }
 
+# on_tty FILE ARGS...: pairmap ARGS with a terminal as stdout (util-linux `script -qec` gives
+# it one; stderr silenced by --quiet), what it printed in FILE without the terminal's CRs
+on_tty() {
+    local out="$1"
+    shift
+    local cmd
+    printf -v cmd '%q ' "$PAIRMAP" "$@" --quiet
+    script -qec "$cmd" /dev/null </dev/null | tr -d '\r' >"$out"
+}
+
 have_command() {
     "$PAIRMAP" "$1" --help >/dev/null 2>&1
 }

@@ -12,13 +12,6 @@ source "$(dirname "${BASH_SOURCE[0]}")/errors_lib.sh"
 cafe="$DEMO/cafe-orders.csv"
 command -v script >/dev/null || { fail "util-linux 'script' is missing"; finish; }
 command -v chromium >/dev/null || { fail "chromium is missing (scripts/setup installs it)"; finish; }
-on_tty() {
-    local out="$1"
-    shift
-    local cmd
-    printf -v cmd '%q ' "$PAIRMAP" "$@" --quiet
-    script -qec "$cmd" /dev/null </dev/null | tr -d '\r' >"$out"
-}
 # text and CSV of one run: NAME ARGS...
 both() {
     local name="$1"

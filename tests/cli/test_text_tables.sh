@@ -7,14 +7,6 @@
 source "$(dirname "${BASH_SOURCE[0]}")/errors_lib.sh"
 cafe="$DEMO/cafe-orders.csv"
 command -v script >/dev/null || { fail "util-linux 'script' is missing"; finish; }
-# on_tty FILE ARGS...: pairmap ARGS with a terminal as stdout (stderr silenced by --quiet)
-on_tty() {
-    local out="$1"
-    shift
-    local cmd
-    printf -v cmd '%q ' "$PAIRMAP" "$@" --quiet
-    script -qec "$cmd" /dev/null </dev/null | tr -d '\r' >"$out"
-}
 on_tty "$TMP/pairs.txt" pairs "$cafe" --sort lift
 "$PAIRMAP" pairs "$cafe" --sort lift --quiet >"$TMP/pairs.csv"
 on_tty "$TMP/pairs_csv.txt" pairs "$cafe" --sort lift --csv

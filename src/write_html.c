@@ -67,12 +67,12 @@ static void jnum_one(void *ud, FILE *fp, size_t i) {
     fwrite(t, 1, (size_t)(jnum_make(ud, t, i) - t), fp);
 }
 
-#define JNUMS_PAR 65536 /* columns this long are made on all cores (pm_i_write_windows) */
+#define JNUMS_PAR 65536 /* columns this long are made on several threads (pm_i_write_windows) */
 
 /* "key":[v0,v1,...] of n numbers */
 static void jnums_on(FILE *fp, const char *key, const double *v, size_t n, unsigned threads) {
     jkey(fp, key, 0);
-    if (n >= JNUMS_PAR) { /* the same text, in windows of chunks made on all cores */
+    if (n >= JNUMS_PAR) { /* the same text, in windows of chunks made on `threads` threads */
         fputc('[', fp);
         const pm_i_windows w = {n, 1024, jnum_room, jnum_make, jnum_one, (void *)v, threads};
         pm_i_write_windows(fp, &w);
@@ -83,15 +83,7 @@ static void jnums_on(FILE *fp, const char *key, const double *v, size_t n, unsig
     size_t o = 0;
     buf[o++] = '[';
     for (size_t i = 0; i < n; i++) {
-        if (i) {
-            buf[o++] = ',';
-        }
-        if (isfinite(v[i])) {
-            o += (size_t)pm_i_fmt_double(buf + o, JROOM, v[i]);
-        } else {
-            memcpy(buf + o, "null", 4);
-            o += 4;
-        }
+        o = (size_t)(jnum_make((void *)v, buf + o, i) - buf);
         if (o > JBUF - JROOM) {
             fwrite(buf, 1, o, fp);
             o = 0;

@@ -133,8 +133,8 @@ static void *early_main(void *arg) {
     return NULL;
 }
 
-/* edges.csv (its odds ratios on all cores, then its rows) on a thread of its own from the end
- * of the graph stage until all the other files are written beside it. */
+/* edges.csv (its rows and odds ratios made on --threads threads) on a thread of its own from the
+ * end of the graph stage until all the other files are written beside it. */
 void pm_cli_map_early_start(run_state *s, unsigned threads) {
     if (threads == 1) {
         return;

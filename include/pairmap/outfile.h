@@ -44,11 +44,14 @@ pm_err_t pm_outdir_open(const char *dir, pm_outdir_t **out, pm_diag_t *diag);
 
 /* Creates the temporary file for output name (a plain file name, no '/') and opens it for
  * writing (mode 0666 & ~umask, as an ordinary new file). *fp belongs to od: close it with
- * pm_outdir_finish, never fclose. Errors: PM_EIO, PM_EUSAGE (bad or repeated name, too many
- * files). */
+ * pm_outdir_finish, never fclose. Where the file system takes O_DIRECT the stream writes its
+ * full 1 MiB blocks around the page cache and only the last partial block through it
+ * (src/outfile_direct.h); fileno(*fp) is then -1. Errors: PM_EIO, PM_EUSAGE (bad or repeated
+ * name, too many files). */
 pm_err_t pm_outdir_create(pm_outdir_t *od, const char *name, FILE **fp, pm_diag_t *diag);
 
-/* Completes the file fp of od: fflush, ferror, fsync and fclose, each checked. After an error
+/* Completes the file fp of od: fflush, ferror, the direct stream's last block, fsync and
+ * fclose, each checked. After an error
  * the file is closed all the same and the run cannot be committed. PM_EIO names the file. */
 pm_err_t pm_outdir_finish(pm_outdir_t *od, FILE *fp, pm_diag_t *diag);
 

@@ -111,7 +111,10 @@ static pm_err_t write_run_json(FILE *fp, const pm_cli_t *c, const net_opts *no,
  * while the other thread still writes; pm_outdir_finish flushes the stdio buffer, checks and
  * syncs again (cheap then), so every error still shows there, with its own errno. */
 static void early_sync(FILE *fp) {
-    (void)fsync(fileno(fp));
+    int fd = fileno(fp);
+    if (fd >= 0) { /* a direct stream (outfile.h) has no fd here; its full blocks are on disk */
+        (void)fsync(fd);
+    }
 }
 
 void pm_cli_map_early_join(run_state *s) {

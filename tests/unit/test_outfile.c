@@ -1,10 +1,16 @@
 /* Unit tests of src/outfile.c: temporary files, checked completion, commit, roll-back and
- * clean-up of the atomic output directory. */
+ * clean-up of the atomic output directory; and of src/outfile_direct.c, the stream that
+ * writes full blocks around the page cache. */
+#define _GNU_SOURCE /* O_DIRECT, for the probe of the file system (before any header) */
 #include "unit.h"
 
 #include <dirent.h>
 #include <sys/stat.h>
 
+#include <fcntl.h>
+#include <unistd.h>
+
+#include "outfile_direct.h"
 #include "pairmap/outfile.h"
 
 static char *tmpdir(void) {
@@ -135,6 +141,99 @@ static void test_outfile_errors(void **state) {
     free(dir);
 }
 
+/* The direct stream (src/outfile_direct.c): 3 MiB and 12,345 bytes written in pieces of
+ * uneven sizes (1 byte to more than the 1 MiB block) come back byte for byte, with the three
+ * full blocks written direct where the file system takes O_DIRECT; the same bytes when the
+ * first direct write is refused (EINVAL, as on a file system without it: the stream goes on
+ * through the page cache) and when the hook turns the stream off (no stream: the caller's
+ * ordinary one). */
+#define DIO_TEST_LEN ((size_t)3 * 1048576 + 12345)
+
+static size_t dio_write_all(const char *path, const char *mode, unsigned char *src, int *made,
+                            uint64_t *direct) {
+    if (mode) {
+        setenv("PM_TEST_OUTPUT_DIRECT", mode, 1);
+    } else {
+        unsetenv("PM_TEST_OUTPUT_DIRECT");
+    }
+    int fd = open(path, O_WRONLY | O_CREAT | O_TRUNC, 0600);
+    assert_true(fd >= 0);
+    pm_i_dio *d = NULL;
+    FILE *fp = pm_i_dio_open(fd, &d);
+    unsetenv("PM_TEST_OUTPUT_DIRECT");
+    *made = fp != NULL;
+    if (!fp) {
+        assert_null(d);
+        fp = fdopen(fd, "w");
+        assert_non_null(fp);
+    }
+    static const size_t piece[] = {1, 7, 4095, 4097, 65536, 65537, 1048575, 1048577, 300000};
+    size_t off = 0;
+    for (size_t k = 0; off < DIO_TEST_LEN; k++) {
+        size_t n = piece[k % (sizeof piece / sizeof piece[0])];
+        n = n < DIO_TEST_LEN - off ? n : DIO_TEST_LEN - off;
+        assert_int_equal(fwrite(src + off, 1, n, fp), n);
+        off += n;
+    }
+    assert_int_equal(fflush(fp), 0);
+    *direct = 0;
+    if (d) {
+        assert_int_equal(pm_i_dio_end(d), 0);
+        *direct = pm_i_dio_direct_bytes(d);
+    }
+    assert_int_equal(fclose(fp), 0);
+    /* read back */
+    FILE *in = fopen(path, "rb");
+    assert_non_null(in);
+    unsigned char *back = malloc(DIO_TEST_LEN + 1);
+    assert_non_null(back);
+    size_t got = fread(back, 1, DIO_TEST_LEN + 1, in);
+    fclose(in);
+    assert_int_equal(got, DIO_TEST_LEN);
+    assert_memory_equal(back, src, DIO_TEST_LEN);
+    free(back);
+    return got;
+}
+
+static void test_outfile_direct_stream(void **state) {
+    (void)state;
+    char *dir = tmpdir(), path[600], cmd[700];
+    snprintf(path, sizeof path, "%s/direct.bin", dir);
+    unsigned char *src = malloc(DIO_TEST_LEN);
+    assert_non_null(src);
+    uint64_t x = 88172645463325252ULL; /* xorshift64: bytes without a period of a block */
+    for (size_t i = 0; i < DIO_TEST_LEN; i++) {
+        x ^= x << 13;
+        x ^= x >> 7;
+        x ^= x << 17;
+        src[i] = (unsigned char)(x >> 56);
+    }
+    /* does this file system take O_DIRECT? asked with open(2), not through the code */
+    int probe = open(path, O_WRONLY | O_CREAT | O_DIRECT, 0600);
+    int fs_direct = probe >= 0;
+    if (probe >= 0) {
+        close(probe);
+    }
+    int made;
+    uint64_t direct;
+    dio_write_all(path, NULL, src, &made, &direct);
+    assert_int_equal(made, fs_direct);
+    if (fs_direct) {
+        assert_int_equal(direct, (uint64_t)3 * 1048576);
+    } else {
+        print_message("note: %s refuses O_DIRECT: only the fallback is checked here\n", dir);
+    }
+    dio_write_all(path, "refuse", src, &made, &direct);
+    assert_int_equal(made, fs_direct);
+    assert_int_equal(direct, 0);
+    dio_write_all(path, "off", src, &made, &direct);
+    assert_int_equal(made, 0);
+    free(src);
+    snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);
+    assert_int_equal(system(cmd), 0);
+    free(dir);
+}
+
 int main(int argc, char **argv) {
     if (argc > 1) {
         cmocka_set_test_filter(argv[1]);
@@ -143,6 +242,7 @@ int main(int argc, char **argv) {
         cmocka_unit_test(test_outfile_commit_replaces_all),
         cmocka_unit_test(test_outfile_free_without_commit_leaves_nothing),
         cmocka_unit_test(test_outfile_errors),
+        cmocka_unit_test(test_outfile_direct_stream),
     };
     return cmocka_run_group_tests_name("outfile", tests, NULL, NULL);
 }

@@ -81,6 +81,7 @@ void pm_i_svg_ctx_free(ctx_t *c) {
     pm_i_free(c->thresholds);
     pm_i_free(c->measure);
     pm_i_free(c->unit);
+    pm_i_free(c->fr_xy);
 }
 
 /* ==== preparation: clean text, sizes, colours, priority ==================================== */

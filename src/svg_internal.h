@@ -229,6 +229,10 @@ typedef struct {
     char **cshort; /* "k: name", shortened once: the cluster's label in the map and legend */
     int *ccycle;   /* per cluster: how often the palette came round before its colour (0:
                     * solid outline; more: dashed), set by pm_i_svg_colours */
+    double *fr_xy; /* per item: the first attempt's Fruchterman-Reingold position (layout
+                    * units), reused by the later attempts, whose items are a prefix of the
+                    * same order (svg_layout.c); NULL until then */
+    size_t fr_nd;  /* the number of items that layout was made for */
 } ctx_t;
 
 /* ---- text (svg_text.c) ---- */

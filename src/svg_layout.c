@@ -308,10 +308,20 @@ static void pack_groups(const ctx_t *c, pic_t *p) {
 /* Fruchterman-Reingold on the drawn items, then our post-processing in pixels. The layout
  * graph is the drawn positive edges plus a light "glue" star from each cluster's leading
  * drawn member to the others, so that members whose partners are not drawn stay with their
- * cluster. */
+ * cluster. The fit's first attempt has the most items, and every later one a prefix of the
+ * same priority order (pm_i_svg_fit): the later attempts take their items' positions from
+ * the first one's layout instead of laying out again (the items they leave out are the
+ * least important, and place_groups packs the clusters' discs afresh for the items kept). */
 static pm_err_t layout_fr(ctx_t *c, pic_t *p, double *xy) {
     const pm_svg_data_t *d = c->d;
     size_t nd = p->nd;
+    if (c->fr_xy && nd <= c->fr_nd) {
+        for (size_t k = 0; k < nd; k++) {
+            xy[2 * k] = c->fr_xy[2 * p->item[k]];
+            xy[2 * k + 1] = c->fr_xy[2 * p->item[k] + 1];
+        }
+        return PM_OK;
+    }
     size_t cap = p->ne + nd;
     uint32_t *la = pm_i_malloc(cap, sizeof *la), *lb = pm_i_malloc(cap, sizeof *lb);
     double *lw = pm_i_malloc(cap, sizeof *lw);
@@ -347,6 +357,15 @@ static pm_err_t layout_fr(ctx_t *c, pic_t *p, double *xy) {
     pm_i_free(la);
     pm_i_free(lb);
     pm_i_free(lw);
+    if (!rc) { /* kept for the later attempts (without the memory: they lay out afresh) */
+        pm_i_free(c->fr_xy);
+        c->fr_xy = pm_i_malloc(2 * (c->n ? c->n : 1), sizeof *c->fr_xy);
+        c->fr_nd = c->fr_xy ? nd : 0;
+        for (size_t k = 0; c->fr_xy && k < nd; k++) {
+            c->fr_xy[2 * p->item[k]] = xy[2 * k];
+            c->fr_xy[2 * p->item[k] + 1] = xy[2 * k + 1];
+        }
+    }
     if (rc && rc != PM_ENOMEM) {
         char why[sizeof c->diag->msg];
         snprintf(why, sizeof why, "%s", c->diag->msg);

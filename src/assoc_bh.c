@@ -205,7 +205,7 @@ static pm_err_t bh_walk(pm_pairs_t *pp, const pm_i_family *f) {
             used += f->groups[ig - 1].mult;
             ig--;
         }
-        { /* every distinct p: its q and its rank (pm_pairs_prank, explain) */
+        {                    /* every distinct p: its q and its rank (pm_pairs_prank, explain) */
             if (nq >= cap) { /* cannot happen: one entry per value at most */
                 return PM_ENOMEM;
             }

@@ -13,7 +13,7 @@
  * logical block size up to 4 KiB (a device needing more refuses the first write with
  * EINVAL, and the stream goes on through the page cache). */
 #define DIO_ALIGN 4096
-#define DIO_BUF ((size_t)1 << 20) /* one pwrite per MiB */
+#define DIO_BUF ((size_t)1 << 20)    /* one pwrite per MiB */
 #define DIO_STDIO ((size_t)64 << 10) /* stdio's own buffer in front of it */
 
 struct pm_i_dio {
